@@ -1,0 +1,239 @@
+//! WAV decoding and encoding (16/24/32-bit integer PCM and 32-bit float; plain or extensible).
+
+use std::fs::File;
+use std::io::BufReader;
+use std::path::Path;
+
+use serde::{Deserialize, Serialize};
+
+use super::InputError;
+
+/// Sample encoding of a WAV file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SampleEncoding {
+    /// 16-bit signed integer PCM.
+    Int16,
+    /// 24-bit signed integer PCM.
+    Int24,
+    /// 32-bit signed integer PCM.
+    Int32,
+    /// 32-bit IEEE float.
+    Float32,
+}
+
+impl SampleEncoding {
+    fn spec(self) -> (u16, hound::SampleFormat) {
+        match self {
+            SampleEncoding::Int16 => (16, hound::SampleFormat::Int),
+            SampleEncoding::Int24 => (24, hound::SampleFormat::Int),
+            SampleEncoding::Int32 => (32, hound::SampleFormat::Int),
+            SampleEncoding::Float32 => (32, hound::SampleFormat::Float),
+        }
+    }
+}
+
+/// Header facts of a WAV file.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct WavInfo {
+    /// Sample rate, Hz.
+    pub sample_rate_hz: u32,
+    /// Number of interleaved channels.
+    pub channels: usize,
+    /// Encoding.
+    pub encoding: SampleEncoding,
+    /// Frames (samples per channel).
+    pub frames: usize,
+}
+
+/// Two channels taken out of a recording, in digital full-scale units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TwoChannels {
+    /// Header facts.
+    pub info: WavInfo,
+    /// Channel A samples.
+    pub a: Vec<f64>,
+    /// Channel B samples.
+    pub b: Vec<f64>,
+}
+
+fn open(path: &Path) -> Result<hound::WavReader<BufReader<File>>, InputError> {
+    hound::WavReader::open(path).map_err(|e| InputError::new(path, describe(e)))
+}
+
+fn describe(e: hound::Error) -> String {
+    match e {
+        hound::Error::FormatError(m) => format!("not a readable WAV file ({m})"),
+        hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
+            "the WAV file is truncated: its data ends before its header says".to_string()
+        }
+        hound::Error::IoError(io) => format!("cannot read: {io}"),
+        hound::Error::Unsupported => "unsupported WAV encoding".to_string(),
+        hound::Error::TooWide => "sample width too large".to_string(),
+        other => other.to_string(),
+    }
+}
+
+/// Reads the header and checks the encoding is one tapgrid accepts.
+pub fn probe(path: &Path) -> Result<WavInfo, InputError> {
+    let r = open(path)?;
+    info_of(path, &r)
+}
+
+fn info_of<R: std::io::Read>(
+    path: &Path,
+    r: &hound::WavReader<R>,
+) -> Result<WavInfo, InputError> {
+    let spec = r.spec();
+    let encoding = match (spec.sample_format, spec.bits_per_sample) {
+        (hound::SampleFormat::Int, 16) => SampleEncoding::Int16,
+        (hound::SampleFormat::Int, 24) => SampleEncoding::Int24,
+        (hound::SampleFormat::Int, 32) => SampleEncoding::Int32,
+        (hound::SampleFormat::Float, 32) => SampleEncoding::Float32,
+        (hound::SampleFormat::Int, 8) => {
+            return Err(InputError::new(
+                path,
+                "8-bit PCM is not accepted (too coarse for modal testing); record at 16, 24 or 32 bits",
+            ));
+        }
+        (f, b) => {
+            return Err(InputError::new(
+                path,
+                format!("unsupported sample format: {b}-bit {f:?}"),
+            ));
+        }
+    };
+    if spec.channels < 2 {
+        return Err(InputError::new(
+            path,
+            format!(
+                "has {} channel; a test needs two (excitation/reference and response)",
+                spec.channels
+            ),
+        ));
+    }
+    if spec.sample_rate == 0 {
+        return Err(InputError::new(path, "sample rate is zero"));
+    }
+    Ok(WavInfo {
+        sample_rate_hz: spec.sample_rate,
+        channels: spec.channels as usize,
+        encoding,
+        frames: r.duration() as usize,
+    })
+}
+
+/// Decodes channels `a` and `b` (0-based) of a WAV file to full-scale units.
+pub fn read_two_channels(path: &Path, a: usize, b: usize) -> Result<TwoChannels, InputError> {
+    let mut r = open(path)?;
+    let info = info_of(path, &r)?;
+    for (name, idx) in [("A", a), ("B", b)] {
+        if idx >= info.channels {
+            return Err(InputError::new(
+                path,
+                format!(
+                    "channel {name} index {idx} is out of range: the file has {} channels (0..{})",
+                    info.channels,
+                    info.channels - 1
+                ),
+            ));
+        }
+    }
+    let nch = info.channels;
+    let mut ca = Vec::with_capacity(info.frames);
+    let mut cb = Vec::with_capacity(info.frames);
+    let mut k = 0usize;
+    macro_rules! decode {
+        ($t:ty, $scale:expr) => {{
+            let scale: f64 = $scale;
+            for s in r.samples::<$t>() {
+                let v = s.map_err(|e| InputError::new(path, describe(e)))? as f64 * scale;
+                let ch = k % nch;
+                if ch == a {
+                    ca.push(v);
+                } else if ch == b {
+                    cb.push(v);
+                }
+                k += 1;
+            }
+        }};
+    }
+    match info.encoding {
+        SampleEncoding::Int16 => decode!(i16, 1.0 / 32768.0),
+        SampleEncoding::Int24 => decode!(i32, 1.0 / 8_388_608.0),
+        SampleEncoding::Int32 => decode!(i32, 1.0 / 2_147_483_648.0),
+        SampleEncoding::Float32 => decode!(f32, 1.0),
+    }
+    if k % nch != 0 {
+        return Err(InputError::new(
+            path,
+            "the WAV file is truncated: its last frame is incomplete",
+        ));
+    }
+    if info.encoding == SampleEncoding::Float32 {
+        for (name, ch) in [("A", &ca), ("B", &cb)] {
+            if let Some(i) = ch.iter().position(|v| !v.is_finite()) {
+                return Err(InputError::new(
+                    path,
+                    format!(
+                        "channel {name} holds a non-finite sample (NaN or infinity) at frame {i}"
+                    ),
+                ));
+            }
+        }
+    }
+    Ok(TwoChannels { info, a: ca, b: cb })
+}
+
+/// Encodes channels (full-scale units, clipped to ±1) into a WAV file, atomically.
+///
+/// # Panics
+/// If `channels` is empty or the channels differ in length (a bug in the caller).
+pub fn write_channels(
+    path: &Path,
+    sample_rate_hz: u32,
+    encoding: SampleEncoding,
+    channels: &[&[f64]],
+) -> Result<(), InputError> {
+    assert!(!channels.is_empty(), "write_channels needs a channel");
+    let n = channels[0].len();
+    assert!(channels.iter().all(|c| c.len() == n), "channel lengths differ");
+    let (bits, fmt) = encoding.spec();
+    let spec = hound::WavSpec {
+        channels: channels.len() as u16,
+        sample_rate: sample_rate_hz,
+        bits_per_sample: bits,
+        sample_format: fmt,
+    };
+    crate::session::atomic::write_with(path, |file| {
+        let mut w = hound::WavWriter::new(std::io::BufWriter::new(file), spec)
+            .map_err(|e| std::io::Error::other(e.to_string()))?;
+        let map = |e: hound::Error| std::io::Error::other(e.to_string());
+        for i in 0..n {
+            for c in channels {
+                let v = c[i].clamp(-1.0, 1.0);
+                match encoding {
+                    SampleEncoding::Int16 => w
+                        .write_sample((v * 32768.0).round().clamp(-32768.0, 32767.0) as i16)
+                        .map_err(map)?,
+                    SampleEncoding::Int24 => w
+                        .write_sample(
+                            (v * 8_388_608.0).round().clamp(-8_388_608.0, 8_388_607.0) as i32,
+                        )
+                        .map_err(map)?,
+                    SampleEncoding::Int32 => w
+                        .write_sample(
+                            (v * 2_147_483_648.0)
+                                .round()
+                                .clamp(-2_147_483_648.0, 2_147_483_647.0)
+                                as i32,
+                        )
+                        .map_err(map)?,
+                    SampleEncoding::Float32 => w.write_sample(v as f32).map_err(map)?,
+                }
+            }
+        }
+        w.finalize().map_err(map)
+    })
+    .map_err(|e| InputError::new(path, format!("cannot write: {e}")))
+}

@@ -1,0 +1,236 @@
+//! Runs the signal chain over a whole test (a WAV set or a session), station by station in
+//! parallel, and collects the results. This is the entry point the CLI and the GUI share.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::sync::Mutex;
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+use crate::acquire::InputError;
+use crate::acquire::wav::read_two_channels;
+use crate::acquire::wavset::{PositionSource, WavSet};
+use crate::session::{SavedHit, Session};
+use crate::setup::Setup;
+use crate::signal::{SpectrumPlan, StationResult, analyze_station};
+
+/// One station's recording to analyse.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StationSource {
+    /// Station number.
+    pub station: u32,
+    /// Position, m.
+    pub position_m: f64,
+    /// Where the position came from.
+    pub position_source: PositionSource,
+    /// The recording.
+    pub path: PathBuf,
+    /// Saved overrides: hit index → accept.
+    pub overrides: BTreeMap<usize, bool>,
+}
+
+/// A test to analyse.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Dataset {
+    /// Stations in ascending order.
+    pub stations: Vec<StationSource>,
+    /// Where it came from (folder of the WAV set or session).
+    pub origin: PathBuf,
+}
+
+impl Dataset {
+    /// From a WAV set folder.
+    pub fn from_wavset(set: &WavSet) -> Self {
+        Self {
+            stations: set
+                .stations
+                .iter()
+                .map(|s| StationSource {
+                    station: s.station,
+                    position_m: s.position_m,
+                    position_source: s.position_source,
+                    path: s.path.clone(),
+                    overrides: BTreeMap::new(),
+                })
+                .collect(),
+            origin: set.dir.clone(),
+        }
+    }
+
+    /// From an open session (with its overrides).
+    pub fn from_session(s: &Session) -> Self {
+        let ov = s.overrides();
+        let stations = s
+            .manifest
+            .stations
+            .iter()
+            .filter_map(|st| {
+                let rec = s.manifest.recordings.iter().find(|r| r.station == st.station)?;
+                Some(StationSource {
+                    station: st.station,
+                    position_m: st.position_m,
+                    position_source: st.position_source,
+                    path: s.dir.join(&rec.file),
+                    overrides: ov.get(&st.station).cloned().unwrap_or_default(),
+                })
+            })
+            .collect();
+        Self { stations, origin: s.dir.clone() }
+    }
+
+    /// Opens a path that is either a session folder or a WAV set folder.
+    pub fn open(path: &Path, spacing_m: f64) -> Result<(Self, Option<Session>), InputError> {
+        if Session::is_session(path) {
+            let s = Session::open(path)?;
+            Ok((Self::from_session(&s), Some(s)))
+        } else if path.is_dir() {
+            Ok((Self::from_wavset(&WavSet::scan(path, spacing_m)?), None))
+        } else {
+            Err(InputError::new(path, "is not a folder (expected a WAV set or a session folder)"))
+        }
+    }
+}
+
+/// One analysed station.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StationAnalysis {
+    /// Station number.
+    pub station: u32,
+    /// Position, m.
+    pub position_m: f64,
+    /// Where the position came from.
+    pub position_source: PositionSource,
+    /// Recording analysed.
+    pub path: PathBuf,
+    /// Chain output.
+    pub result: StationResult,
+}
+
+/// The analysed test.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Analysis {
+    /// Setup used.
+    pub setup: Setup,
+    /// Sample rate, Hz.
+    pub sample_rate_hz: u32,
+    /// Stations in ascending order.
+    pub stations: Vec<StationAnalysis>,
+}
+
+impl Analysis {
+    /// Hits in the form saved in a session manifest.
+    pub fn saved_hits(&self) -> Vec<SavedHit> {
+        self.stations
+            .iter()
+            .flat_map(|s| {
+                s.result.hits.iter().map(move |h| SavedHit {
+                    station: s.station,
+                    index: h.index,
+                    time_s: h.time_s,
+                    accepted: h.accepted,
+                    reasons: h.reasons.clone(),
+                    override_accept: h.override_accept,
+                })
+            })
+            .collect()
+    }
+
+    /// Things a person should know about the result as a whole.
+    pub fn warnings(&self) -> Vec<String> {
+        let mut w = Vec::new();
+        if self
+            .stations
+            .iter()
+            .any(|s| s.position_source == PositionSource::Spacing)
+        {
+            w.push(format!(
+                "no stations.csv: positions assumed as station × {} m",
+                self.setup.spacing_m
+            ));
+        }
+        for s in &self.stations {
+            let n = s.result.frf.as_ref().map_or(0, |f| f.hits_averaged);
+            if n == 0 {
+                w.push(format!("station {}: no accepted hit, no FRF", s.station));
+            } else if n == 1 {
+                w.push(format!(
+                    "station {}: one accepted hit; its coherence is 1 by definition and says nothing",
+                    s.station
+                ));
+            }
+        }
+        w
+    }
+}
+
+/// Decodes and analyses every station, using up to `available_parallelism` threads.
+pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
+    setup
+        .validate()
+        .map_err(|m| InputError::new(&data.origin, format!("bad setup: {m}")))?;
+    if data.stations.is_empty() {
+        return Err(InputError::new(&data.origin, "holds no station recordings"));
+    }
+    let next = AtomicUsize::new(0);
+    let out: Mutex<Vec<Option<Result<(u32, StationResult), InputError>>>> =
+        Mutex::new(vec![None; data.stations.len()]);
+    let workers = std::thread::available_parallelism()
+        .map(|n| n.get())
+        .unwrap_or(1)
+        .min(data.stations.len());
+    let rates: Mutex<Vec<u32>> = Mutex::new(vec![0; data.stations.len()]);
+    std::thread::scope(|scope| {
+        for w in 0..workers {
+            let (next, out, rates) = (&next, &out, &rates);
+            std::thread::Builder::new()
+                .name(format!("tapgrid-analysis-{w}"))
+                .spawn_scoped(scope, move || {
+                    let mut plan: Option<SpectrumPlan> = None;
+                    loop {
+                        let i = next.fetch_add(1, Ordering::Relaxed);
+                        let Some(src) = data.stations.get(i) else { break };
+                        let r = read_two_channels(&src.path, setup.channel_a.index, setup.channel_b.index)
+                            .and_then(|rec| {
+                                if let Ok(mut g) = rates.lock() {
+                                    g[i] = rec.info.sample_rate_hz;
+                                }
+                                analyze_station(&rec.a, &rec.b, rec.info.sample_rate_hz, setup, &src.overrides, &mut plan)
+                                    .map(|res| (rec.info.sample_rate_hz, res))
+                                    .map_err(|m| InputError::new(&src.path, m))
+                            });
+                        if let Ok(mut g) = out.lock() {
+                            g[i] = Some(r);
+                        }
+                    }
+                })
+                .expect("spawning an analysis thread");
+        }
+    });
+    let results = out.into_inner().unwrap_or_default();
+    let mut stations = Vec::with_capacity(results.len());
+    let mut rate = None;
+    for (src, r) in data.stations.iter().zip(results) {
+        let (fs, result) = r.unwrap_or_else(|| Err(InputError::new(&src.path, "was not analysed")))?;
+        match rate {
+            None => rate = Some((fs, src.path.clone())),
+            Some((r0, ref p0)) if r0 != fs => {
+                return Err(InputError::new(
+                    &src.path,
+                    format!("sample rate {fs} Hz differs from {r0} Hz in {}", p0.display()),
+                ));
+            }
+            _ => {}
+        }
+        stations.push(StationAnalysis {
+            station: src.station,
+            position_m: src.position_m,
+            position_source: src.position_source,
+            path: src.path.clone(),
+            result,
+        });
+    }
+    Ok(Analysis {
+        setup: setup.clone(),
+        sample_rate_hz: rate.map_or(0, |r| r.0),
+        stations,
+    })
+}

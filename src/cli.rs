@@ -1,0 +1,497 @@
+//! The command line: a stable, documented interface (see README.md).
+
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result, anyhow, bail};
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+use crate::acquire::wav::SampleEncoding;
+use crate::acquire::wavset::WavSet;
+use crate::analysis::{self, Dataset};
+use crate::report;
+use crate::session::{Part, Session};
+use crate::setup::{Estimator, Layout, Setup, Slope, TriggerLevel};
+use crate::sim::Scenario;
+use crate::units::Sensitivity;
+
+/// tapgrid: impact modal testing of shafts and rotors.
+#[derive(Debug, Parser)]
+#[command(name = "tapgrid", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// Subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Analyse a WAV set or a session: hits, verdicts, FRFs → frf.csv and result.json.
+    Analyze(AnalyzeArgs),
+    /// Import a WAV set into a new session folder (recordings are copied, never modified).
+    Import(ImportArgs),
+    /// Override a hit's verdict in a session (accept, reject, or back to automatic).
+    Verdict(VerdictArgs),
+    /// Write a simulated WAV set, with truth.json, from tapgrid's own beam physics.
+    Simulate(SimulateArgs),
+    /// Analyse the bundled demo session and print its summary.
+    Demo(DemoArgs),
+}
+
+/// Layout choice on the command line.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum LayoutArg {
+    /// Roving hammer, fixed accelerometer.
+    Hammer,
+    /// Roving accelerometer against a fixed reference accelerometer.
+    Sensor,
+}
+
+impl From<LayoutArg> for Layout {
+    fn from(l: LayoutArg) -> Self {
+        match l {
+            LayoutArg::Hammer => Layout::Hammer,
+            LayoutArg::Sensor => Layout::Sensor,
+        }
+    }
+}
+
+/// Estimator choice.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum EstimatorArg {
+    /// H1 = G_ab/G_aa.
+    H1,
+    /// H2 = G_bb/G_ba.
+    H2,
+    /// Hv, total least squares.
+    Hv,
+}
+
+/// Trigger slope.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum SlopeArg {
+    /// Rising through +level.
+    Rising,
+    /// Falling through −level.
+    Falling,
+}
+
+/// WAV encoding for the simulator.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum EncodingArg {
+    /// 16-bit integer.
+    Int16,
+    /// 24-bit integer.
+    Int24,
+    /// 32-bit integer.
+    Int32,
+    /// 32-bit float.
+    Float32,
+}
+
+impl From<EncodingArg> for SampleEncoding {
+    fn from(e: EncodingArg) -> Self {
+        match e {
+            EncodingArg::Int16 => SampleEncoding::Int16,
+            EncodingArg::Int24 => SampleEncoding::Int24,
+            EncodingArg::Int32 => SampleEncoding::Int32,
+            EncodingArg::Float32 => SampleEncoding::Float32,
+        }
+    }
+}
+
+/// Setup options shared by `analyze` and `import`; each overrides the session's or the default.
+#[derive(Debug, Args, Default)]
+pub struct SetupArgs {
+    /// Test layout.
+    #[arg(long, value_enum)]
+    pub layout: Option<LayoutArg>,
+    /// Channel indices A,B (0-based): A = force or reference, B = response.
+    #[arg(long, value_name = "A,B")]
+    pub channels: Option<String>,
+    /// Sensitivities A,B in mV per unit, optionally with units: 2.25mV/N,100mV/g.
+    #[arg(long, value_name = "A,B")]
+    pub sensitivity: Option<String>,
+    /// Volts at digital full scale.
+    #[arg(long, value_name = "V")]
+    pub full_scale_volts: Option<f64>,
+    /// Analysis band in Hz.
+    #[arg(long, value_name = "LO:HI")]
+    pub band: Option<String>,
+    /// Record length, s (default: the next power of two ≥ 1 s of samples).
+    #[arg(long, value_name = "SECONDS")]
+    pub record_length: Option<f64>,
+    /// Fraction of the record before the trigger.
+    #[arg(long, value_name = "FRACTION")]
+    pub pretrigger: Option<f64>,
+    /// FRF estimator.
+    #[arg(long, value_enum)]
+    pub estimator: Option<EstimatorArg>,
+    /// Trigger level as a fraction of full scale (default 0.02).
+    #[arg(long, value_name = "FRACTION", conflicts_with = "trigger_noise")]
+    pub trigger_level: Option<f64>,
+    /// Trigger level as a multiple of channel A's noise rms.
+    #[arg(long, value_name = "K")]
+    pub trigger_noise: Option<f64>,
+    /// Trigger slope.
+    #[arg(long, value_enum)]
+    pub slope: Option<SlopeArg>,
+    /// Dead time after a trigger, s (default: the post-trigger record).
+    #[arg(long, value_name = "SECONDS")]
+    pub holdoff: Option<f64>,
+    /// Unity length of the force window, s (default: 4 × detected pulse width).
+    #[arg(long, value_name = "SECONDS")]
+    pub force_window: Option<f64>,
+    /// Cosine taper each side of the force window, s (default: one pulse width).
+    #[arg(long, value_name = "SECONDS")]
+    pub force_taper: Option<f64>,
+    /// Exponential window value at the record end (1 = no exponential window).
+    #[arg(long, value_name = "FRACTION")]
+    pub exp_end: Option<f64>,
+    /// Station spacing in m, when there is no stations.csv.
+    #[arg(long, value_name = "METRES")]
+    pub spacing: Option<f64>,
+    /// Station of the fixed (reference) accelerometer.
+    #[arg(long, value_name = "STATION")]
+    pub reference: Option<u32>,
+}
+
+fn pair<T: std::str::FromStr>(text: &str, what: &str) -> Result<(T, T)> {
+    let mut it = text.split(',').map(str::trim);
+    match (it.next(), it.next(), it.next()) {
+        (Some(a), Some(b), None) => Ok((
+            a.parse().map_err(|_| anyhow!("--{what}: cannot read {a:?}"))?,
+            b.parse().map_err(|_| anyhow!("--{what}: cannot read {b:?}"))?,
+        )),
+        _ => bail!("--{what} takes two values separated by a comma, got {text:?}"),
+    }
+}
+
+impl SetupArgs {
+    /// Applies the given options on top of `base`.
+    pub fn apply(&self, mut s: Setup) -> Result<Setup> {
+        if let Some(l) = self.layout {
+            s.layout = l.into();
+        }
+        if let Some(c) = &self.channels {
+            let (a, b) = pair::<usize>(c, "channels")?;
+            s.channel_a.index = a;
+            s.channel_b.index = b;
+        }
+        if let Some(t) = &self.sensitivity {
+            let (a, b): (String, String) = pair(t, "sensitivity")?;
+            let sa = Sensitivity::parse(&a).map_err(|e| anyhow!("--sensitivity A: {e}"))?;
+            let sb = Sensitivity::parse(&b).map_err(|e| anyhow!("--sensitivity B: {e}"))?;
+            sa.check_quantity(&a, s.layout.channel_a_quantity())
+                .map_err(|e| anyhow!("--sensitivity A: {e}"))?;
+            sb.check_quantity(&b, crate::units::Quantity::Acceleration)
+                .map_err(|e| anyhow!("--sensitivity B: {e}"))?;
+            s.channel_a.sensitivity = sa;
+            s.channel_b.sensitivity = sb;
+        }
+        if let Some(v) = self.full_scale_volts {
+            s.full_scale_volts = v;
+        }
+        if let Some(b) = &self.band {
+            let (lo, hi) = b
+                .split_once(':')
+                .ok_or_else(|| anyhow!("--band takes LO:HI in Hz, got {b:?}"))?;
+            let p = |x: &str| x.trim().parse::<f64>().map_err(|_| anyhow!("--band: cannot read {x:?}"));
+            s.band_hz = Some([p(lo)?, p(hi)?]);
+        }
+        if let Some(r) = self.record_length {
+            s.trigger.record_length_s = Some(r);
+        }
+        if let Some(p) = self.pretrigger {
+            s.trigger.pretrigger_fraction = p;
+        }
+        if let Some(e) = self.estimator {
+            s.estimator = match e {
+                EstimatorArg::H1 => Estimator::H1,
+                EstimatorArg::H2 => Estimator::H2,
+                EstimatorArg::Hv => Estimator::Hv,
+            };
+        }
+        if let Some(f) = self.trigger_level {
+            s.trigger.level = TriggerLevel::FractionOfRange(f);
+        }
+        if let Some(k) = self.trigger_noise {
+            s.trigger.level = TriggerLevel::NoiseMultiple(k);
+        }
+        if let Some(sl) = self.slope {
+            s.trigger.slope = match sl {
+                SlopeArg::Rising => Slope::Rising,
+                SlopeArg::Falling => Slope::Falling,
+            };
+        }
+        if let Some(h) = self.holdoff {
+            s.trigger.holdoff_s = Some(h);
+        }
+        if let Some(w) = self.force_window {
+            s.windows.force_unity_s = Some(w);
+        }
+        if let Some(w) = self.force_taper {
+            s.windows.force_taper_s = Some(w);
+        }
+        if let Some(e) = self.exp_end {
+            s.windows.exponential_end = e;
+        }
+        if let Some(sp) = self.spacing {
+            s.spacing_m = sp;
+        }
+        if let Some(r) = self.reference {
+            s.reference_station = Some(r);
+        }
+        s.validate().map_err(|m| anyhow!("bad setup: {m}"))?;
+        Ok(s)
+    }
+}
+
+/// `tapgrid analyze`.
+#[derive(Debug, Args)]
+pub struct AnalyzeArgs {
+    /// A WAV set folder or a session folder.
+    pub input: PathBuf,
+    /// Output folder for frf.csv and result.json.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Setup.
+    #[command(flatten)]
+    pub setup: SetupArgs,
+}
+
+/// `tapgrid import`.
+#[derive(Debug, Args)]
+pub struct ImportArgs {
+    /// The WAV set folder.
+    pub wavset: PathBuf,
+    /// New session folder.
+    #[arg(long)]
+    pub session: PathBuf,
+    /// Part name.
+    #[arg(long, default_value = "")]
+    pub part: String,
+    /// Setup.
+    #[command(flatten)]
+    pub setup: SetupArgs,
+}
+
+/// Verdict to set.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum VerdictArg {
+    /// Keep the hit whatever the checks say.
+    Accept,
+    /// Leave the hit out whatever the checks say.
+    Reject,
+    /// Back to the automatic verdict.
+    Auto,
+}
+
+/// `tapgrid verdict`.
+#[derive(Debug, Args)]
+pub struct VerdictArgs {
+    /// Session folder.
+    pub session: PathBuf,
+    /// Station.
+    #[arg(long)]
+    pub station: u32,
+    /// Hit index (0-based, in recording order).
+    #[arg(long)]
+    pub hit: usize,
+    /// The verdict.
+    #[arg(long = "set", value_enum)]
+    pub verdict: VerdictArg,
+}
+
+/// `tapgrid simulate`.
+#[derive(Debug, Args)]
+pub struct SimulateArgs {
+    /// Output folder (WAV set + truth.json).
+    #[arg(long)]
+    pub out: PathBuf,
+    /// A scenario JSON file (see `sim::Scenario`); flags below override it.
+    #[arg(long)]
+    pub scenario: Option<PathBuf>,
+    /// Layout.
+    #[arg(long, value_enum)]
+    pub layout: Option<LayoutArg>,
+    /// Number of stations, evenly spread end to end.
+    #[arg(long)]
+    pub stations: Option<usize>,
+    /// Hits per station.
+    #[arg(long)]
+    pub hits: Option<usize>,
+    /// Sample rate, Hz.
+    #[arg(long)]
+    pub fs: Option<u32>,
+    /// WAV encoding.
+    #[arg(long, value_enum)]
+    pub encoding: Option<EncodingArg>,
+    /// Damping ratio of the flexible modes.
+    #[arg(long)]
+    pub damping: Option<f64>,
+    /// Make a hit double: STATION:HIT (repeatable).
+    #[arg(long, value_name = "STATION:HIT")]
+    pub double_hit: Vec<String>,
+    /// Make a hit overload channel A: STATION:HIT (repeatable).
+    #[arg(long, value_name = "STATION:HIT")]
+    pub overload: Vec<String>,
+    /// Noise rms on both channels, V.
+    #[arg(long)]
+    pub noise: Option<f64>,
+    /// Mains hum amplitude on both channels, V.
+    #[arg(long)]
+    pub hum: Option<f64>,
+    /// Random seed.
+    #[arg(long)]
+    pub seed: Option<u64>,
+}
+
+fn station_hit(s: &str) -> Result<(u32, usize)> {
+    let (a, b) = s
+        .split_once(':')
+        .ok_or_else(|| anyhow!("expected STATION:HIT, got {s:?}"))?;
+    Ok((a.trim().parse()?, b.trim().parse()?))
+}
+
+/// `tapgrid demo`.
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Output folder (default: a folder in the system temp dir).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+}
+
+/// Runs a parsed command line.
+pub fn run(cli: Cli) -> Result<()> {
+    match cli.command {
+        Command::Analyze(a) => analyze(&a.input, &a.out, &a.setup),
+        Command::Import(a) => import(a),
+        Command::Verdict(a) => verdict(a),
+        Command::Simulate(a) => simulate(a),
+        Command::Demo(a) => {
+            let dir = demo_session_dir()?;
+            let out = a.out.unwrap_or_else(|| std::env::temp_dir().join("tapgrid-demo"));
+            println!("demo session: {}", dir.display());
+            analyze(&dir, &out, &SetupArgs::default())
+        }
+    }
+}
+
+/// The bundled demo session: next to the executable's source tree or the working folder.
+fn demo_session_dir() -> Result<PathBuf> {
+    let rel = Path::new("sample-sessions").join("pump-shaft");
+    let candidates = [
+        std::env::current_dir().ok().map(|d| d.join(&rel)),
+        Some(Path::new(env!("CARGO_MANIFEST_DIR")).join(&rel)),
+    ];
+    candidates
+        .into_iter()
+        .flatten()
+        .find(|p| Session::is_session(p))
+        .ok_or_else(|| anyhow!("the demo session {} was not found", rel.display()))
+}
+
+fn analyze(input: &Path, out: &Path, args: &SetupArgs) -> Result<()> {
+    let spacing = args.spacing.unwrap_or(Setup::default().spacing_m);
+    let (data, session) = Dataset::open(input, spacing)?;
+    let base = session.map(|s| s.manifest.setup).unwrap_or_default();
+    let setup = args.apply(base)?;
+    let a = analysis::run(&data, &setup)?;
+    report::write_outputs(&a, out)?;
+    print!("{}", report::summary(&a));
+    println!("wrote {} and {}", out.join("frf.csv").display(), out.join("result.json").display());
+    Ok(())
+}
+
+fn import(a: ImportArgs) -> Result<()> {
+    let setup = a.setup.apply(Setup::default())?;
+    let set = WavSet::scan(&a.wavset, setup.spacing_m)?;
+    let data = Dataset::from_wavset(&set);
+    // Analyse first so a set that cannot be analysed makes no half session.
+    let result = analysis::run(&data, &setup)?;
+    let mut s = Session::import_wavset(&set, &a.session, setup, Part { name: a.part, notes: String::new() })?;
+    s.manifest.hits = result.saved_hits();
+    s.save()?;
+    print!("{}", report::summary(&result));
+    println!("session written to {}", a.session.display());
+    Ok(())
+}
+
+fn verdict(a: VerdictArgs) -> Result<()> {
+    let mut s = Session::open(&a.session)?;
+    let v = match a.verdict {
+        VerdictArg::Accept => Some(true),
+        VerdictArg::Reject => Some(false),
+        VerdictArg::Auto => None,
+    };
+    s.set_override(a.station, a.hit, v)
+        .map_err(|m| anyhow!("{}: {m}", a.session.display()))?;
+    let data = Dataset::from_session(&s);
+    let result = analysis::run(&data, &s.manifest.setup)?;
+    s.manifest.hits = result.saved_hits();
+    s.save()?;
+    print!("{}", report::summary(&result));
+    Ok(())
+}
+
+fn simulate(a: SimulateArgs) -> Result<()> {
+    let mut sc = match &a.scenario {
+        Some(p) => {
+            let text = std::fs::read_to_string(p).with_context(|| format!("{}: cannot read", p.display()))?;
+            serde_json::from_str::<Scenario>(&text)
+                .with_context(|| format!("{}: not a valid scenario", p.display()))?
+        }
+        None => Scenario::pump_shaft(),
+    };
+    if let Some(l) = a.layout {
+        sc.layout = l.into();
+    }
+    if let Some(n) = a.stations {
+        if n < 2 {
+            bail!("--stations must be at least 2");
+        }
+        let l = sc.shaft.length_m();
+        sc.stations_m = (0..n).map(|i| l * i as f64 / (n - 1) as f64).collect();
+        sc.drive_station = sc.drive_station.min(n as u32);
+        sc.reference_station = sc.reference_station.min(n as u32);
+    }
+    if let Some(h) = a.hits {
+        sc.hits_per_station = h;
+    }
+    if let Some(fs) = a.fs {
+        sc.rig.sample_rate_hz = fs;
+    }
+    if let Some(e) = a.encoding {
+        sc.rig.encoding = e.into();
+    }
+    if let Some(z) = a.damping {
+        sc.damping_ratio = z;
+    }
+    for d in &a.double_hit {
+        sc.double_hits.push(station_hit(d)?);
+    }
+    for o in &a.overload {
+        sc.overloads.push(station_hit(o)?);
+    }
+    if let Some(n) = a.noise {
+        sc.rig.noise_volts = [n, n];
+    }
+    if let Some(h) = a.hum {
+        sc.rig.hum_volts = h;
+    }
+    if let Some(s) = a.seed {
+        sc.seed = s;
+    }
+    let truth = sc.write(&a.out)?;
+    println!(
+        "wrote {} stations × {} hits to {}; modes below 0.45 fs:",
+        sc.stations_m.len(),
+        sc.hits_per_station,
+        a.out.display()
+    );
+    for m in &truth.modes {
+        println!("  {:9.2} Hz  ζ = {:.4}", m.frequency_hz, m.damping_ratio);
+    }
+    Ok(())
+}

@@ -1,0 +1,399 @@
+//! Two-node Timoshenko beam elements (Friedman & Kosmatka 1993; Davis, Henshell & Warburton 1972),
+//! assembled for a stepped shaft with rigid discs and spring supports, and the generalized
+//! symmetric eigenproblem K φ = ω² M φ solved with nalgebra (Cholesky + symmetric eigen).
+
+use nalgebra::{DMatrix, DVector};
+use serde::{Deserialize, Serialize};
+
+/// Isotropic material.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Material {
+    /// Young's modulus, Pa.
+    pub youngs_modulus_pa: f64,
+    /// Density, kg/m³.
+    pub density_kg_m3: f64,
+    /// Poisson's ratio.
+    pub poisson_ratio: f64,
+}
+
+impl Material {
+    /// Structural steel: E = 210 GPa, ρ = 7850 kg/m³, ν = 0.3 (field notes §8).
+    pub const STEEL: Material = Material {
+        youngs_modulus_pa: 210e9,
+        density_kg_m3: 7850.0,
+        poisson_ratio: 0.3,
+    };
+}
+
+/// A cylindrical section of the shaft.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Section {
+    /// Length, m.
+    pub length_m: f64,
+    /// Outer diameter, m.
+    pub outer_diameter_m: f64,
+    /// Inner diameter (0 for solid), m.
+    #[serde(default)]
+    pub inner_diameter_m: f64,
+    /// Overrides the shaft material for this section.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub material: Option<Material>,
+}
+
+/// A rigid disc or added mass.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Disc {
+    /// Position from the left end, m.
+    pub position_m: f64,
+    /// Mass, kg.
+    pub mass_kg: f64,
+    /// Polar moment of inertia, kg·m² (enters gyroscopic terms only; unused without rotation).
+    #[serde(default)]
+    pub polar_inertia_kg_m2: f64,
+    /// Transverse (diametral) moment of inertia, kg·m².
+    #[serde(default)]
+    pub transverse_inertia_kg_m2: f64,
+}
+
+/// A lateral spring support (bearing or suspension).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Support {
+    /// Position from the left end, m.
+    pub position_m: f64,
+    /// Stiffness, N/m.
+    pub stiffness_n_per_m: f64,
+}
+
+/// A shaft: sections left to right, discs and supports.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Shaft {
+    /// Default material.
+    pub material: Material,
+    /// Sections, left to right.
+    pub sections: Vec<Section>,
+    /// Discs and added masses.
+    #[serde(default)]
+    pub discs: Vec<Disc>,
+    /// Supports; none = free-free.
+    #[serde(default)]
+    pub supports: Vec<Support>,
+}
+
+/// Which beam theory the elements use.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BeamTheory {
+    /// Shear deformation and rotary inertia included.
+    Timoshenko,
+    /// Classical Euler–Bernoulli (Φ = 0, no rotary inertia).
+    EulerBernoulli,
+}
+
+/// Shear coefficient of a circular tube (Cowper 1966, from memory per field notes §5):
+/// κ = 6(1+ν)(1+m²)² / [(7+6ν)(1+m²)² + (20+12ν)m²], m = Di/Do; solid: 6(1+ν)/(7+6ν).
+pub fn cowper_kappa(poisson: f64, inner_over_outer: f64) -> f64 {
+    let m2 = inner_over_outer * inner_over_outer;
+    let a = (1.0 + m2) * (1.0 + m2);
+    6.0 * (1.0 + poisson) * a / ((7.0 + 6.0 * poisson) * a + (20.0 + 12.0 * poisson) * m2)
+}
+
+/// An assembled finite-element model.
+#[derive(Debug, Clone)]
+pub struct FeModel {
+    /// Node positions, m; DOFs are [w_0, θ_0, w_1, θ_1, …].
+    pub nodes_m: Vec<f64>,
+    /// Stiffness matrix.
+    pub k: DMatrix<f64>,
+    /// Mass matrix.
+    pub m: DMatrix<f64>,
+}
+
+/// A mode of the model.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BeamMode {
+    /// Natural frequency, Hz.
+    pub frequency_hz: f64,
+    /// A rigid-body mode of an unsupported shaft.
+    pub rigid_body: bool,
+    /// Lateral displacement at each node, mass-normalised (φᵀMφ = 1, 1/√kg).
+    pub displacement: Vec<f64>,
+}
+
+impl Shaft {
+    /// Total length, m.
+    pub fn length_m(&self) -> f64 {
+        self.sections.iter().map(|s| s.length_m).sum()
+    }
+
+    /// Checks the geometry; the message names the bad item.
+    pub fn validate(&self) -> Result<(), String> {
+        if self.sections.is_empty() {
+            return Err("the shaft has no sections".into());
+        }
+        for (i, s) in self.sections.iter().enumerate() {
+            if !(s.length_m.is_finite() && s.length_m > 0.0) {
+                return Err(format!("section {i}: length {} m must be positive", s.length_m));
+            }
+            if !(s.outer_diameter_m.is_finite() && s.outer_diameter_m > 0.0) {
+                return Err(format!("section {i}: outer diameter must be positive"));
+            }
+            if !(s.inner_diameter_m >= 0.0 && s.inner_diameter_m < s.outer_diameter_m) {
+                return Err(format!(
+                    "section {i}: inner diameter {} m must be ≥ 0 and below the outer {} m",
+                    s.inner_diameter_m, s.outer_diameter_m
+                ));
+            }
+        }
+        let l = self.length_m();
+        for (i, s) in self.supports.iter().enumerate() {
+            if !(0.0..=l).contains(&s.position_m) {
+                return Err(format!("support {i} at {} m is outside the part (0–{l} m)", s.position_m));
+            }
+            if !(s.stiffness_n_per_m >= 0.0) {
+                return Err(format!("support {i}: stiffness must be ≥ 0"));
+            }
+        }
+        for (i, d) in self.discs.iter().enumerate() {
+            if !(0.0..=l).contains(&d.position_m) {
+                return Err(format!("disc {i} at {} m is outside the part (0–{l} m)", d.position_m));
+            }
+        }
+        Ok(())
+    }
+
+    /// Assembles K and M with elements no longer than `max_element_m`, with nodes also at `extra_nodes_m`.
+    pub fn assemble(
+        &self,
+        theory: BeamTheory,
+        max_element_m: f64,
+        extra_nodes_m: &[f64],
+    ) -> Result<FeModel, String> {
+        self.validate()?;
+        let l = self.length_m();
+        let mut breaks = vec![0.0];
+        let mut x = 0.0;
+        for s in &self.sections {
+            x += s.length_m;
+            breaks.push(x);
+        }
+        for &p in extra_nodes_m
+            .iter()
+            .chain(self.supports.iter().map(|s| &s.position_m))
+            .chain(self.discs.iter().map(|d| &d.position_m))
+        {
+            if (0.0..=l).contains(&p) {
+                breaks.push(p);
+            }
+        }
+        breaks.sort_by(f64::total_cmp);
+        breaks.dedup_by(|a, b| (*a - *b).abs() < 1e-9);
+        let mut nodes = vec![0.0];
+        for w in breaks.windows(2) {
+            let k = ((w[1] - w[0]) / max_element_m).ceil().max(1.0) as usize;
+            for j in 1..=k {
+                nodes.push(w[0] + (w[1] - w[0]) * j as f64 / k as f64);
+            }
+        }
+        let ndof = 2 * nodes.len();
+        let mut kg = DMatrix::<f64>::zeros(ndof, ndof);
+        let mut mg = DMatrix::<f64>::zeros(ndof, ndof);
+        for e in 0..nodes.len() - 1 {
+            let (x0, x1) = (nodes[e], nodes[e + 1]);
+            let sec = self.section_at(0.5 * (x0 + x1));
+            let (ke, me) = element(sec, sec.material.unwrap_or(self.material), x1 - x0, theory);
+            for i in 0..4 {
+                for j in 0..4 {
+                    kg[(2 * e + i, 2 * e + j)] += ke[i][j];
+                    mg[(2 * e + i, 2 * e + j)] += me[i][j];
+                }
+            }
+        }
+        let node_of = |p: f64| {
+            nodes
+                .iter()
+                .enumerate()
+                .min_by(|a, b| (a.1 - p).abs().total_cmp(&(b.1 - p).abs()))
+                .map_or(0, |(i, _)| i)
+        };
+        for s in &self.supports {
+            let n = node_of(s.position_m);
+            kg[(2 * n, 2 * n)] += s.stiffness_n_per_m;
+        }
+        for d in &self.discs {
+            let n = node_of(d.position_m);
+            mg[(2 * n, 2 * n)] += d.mass_kg;
+            mg[(2 * n + 1, 2 * n + 1)] += d.transverse_inertia_kg_m2;
+        }
+        Ok(FeModel { nodes_m: nodes, k: kg, m: mg })
+    }
+
+    fn section_at(&self, x: f64) -> &Section {
+        let mut acc = 0.0;
+        for s in &self.sections {
+            acc += s.length_m;
+            if x <= acc {
+                return s;
+            }
+        }
+        self.sections.last().expect("validated: at least one section")
+    }
+
+    /// Lowest `count` modes, with nodes at `extra_nodes_m` and elements ≤ L/`min_elements`.
+    pub fn modes(
+        &self,
+        theory: BeamTheory,
+        count: usize,
+        min_elements: usize,
+        extra_nodes_m: &[f64],
+    ) -> Result<(FeModel, Vec<BeamMode>), String> {
+        let fe = self.assemble(theory, self.length_m() / min_elements.max(1) as f64, extra_nodes_m)?;
+        let modes = fe.solve(count, self.supports.iter().all(|s| s.stiffness_n_per_m == 0.0))?;
+        Ok((fe, modes))
+    }
+}
+
+impl FeModel {
+    /// Solves K φ = ω² M φ for the lowest `count` modes. `free` marks an unsupported part, whose
+    /// two lowest modes are rigid-body modes.
+    pub fn solve(&self, count: usize, free: bool) -> Result<Vec<BeamMode>, String> {
+        let chol = self
+            .m
+            .clone()
+            .cholesky()
+            .ok_or("the mass matrix is not positive definite")?;
+        let l = chol.l();
+        // A = L⁻¹ K L⁻ᵀ is symmetric with the same eigenvalues.
+        let lk = l
+            .solve_lower_triangular(&self.k)
+            .ok_or("singular mass factor")?;
+        let a = l
+            .solve_lower_triangular(&lk.transpose())
+            .ok_or("singular mass factor")?;
+        let a = (&a + a.transpose()) * 0.5;
+        let eig = a.symmetric_eigen();
+        let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
+        order.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
+        let lt = l.transpose();
+        let mut out = Vec::new();
+        for (rank, &i) in order.iter().take(count).enumerate() {
+            let y: DVector<f64> = eig.eigenvectors.column(i).into_owned();
+            let phi = lt.solve_upper_triangular(&y).ok_or("singular mass factor")?;
+            let w2 = eig.eigenvalues[i].max(0.0);
+            let mut disp: Vec<f64> = (0..self.nodes_m.len()).map(|n| phi[2 * n]).collect();
+            // Sign: make the largest-magnitude displacement positive, so shapes compare stably.
+            let big = disp.iter().copied().fold(0.0f64, |m, v| if v.abs() > m.abs() { v } else { m });
+            if big < 0.0 {
+                disp.iter_mut().for_each(|v| *v = -*v);
+            }
+            out.push(BeamMode {
+                frequency_hz: w2.sqrt() / (2.0 * std::f64::consts::PI),
+                rigid_body: free && rank < 2,
+                displacement: disp,
+            });
+        }
+        Ok(out)
+    }
+
+    /// Index of the node at position `x` (within 1 µm), if any.
+    pub fn node_at(&self, x: f64) -> Option<usize> {
+        self.nodes_m.iter().position(|n| (n - x).abs() < 1e-6)
+    }
+}
+
+/// Element stiffness and mass (translational + rotary) per field notes §5.
+fn element(s: &Section, mat: Material, le: f64, theory: BeamTheory) -> ([[f64; 4]; 4], [[f64; 4]; 4]) {
+    let (d, di) = (s.outer_diameter_m, s.inner_diameter_m);
+    let area = std::f64::consts::PI / 4.0 * (d * d - di * di);
+    let inertia = std::f64::consts::PI / 64.0 * (d.powi(4) - di.powi(4));
+    let e = mat.youngs_modulus_pa;
+    let rho = mat.density_kg_m3;
+    let g = e / (2.0 * (1.0 + mat.poisson_ratio));
+    let (phi, rotary) = match theory {
+        BeamTheory::Timoshenko => {
+            let kappa = cowper_kappa(mat.poisson_ratio, di / d);
+            (12.0 * e * inertia / (kappa * g * area * le * le), true)
+        }
+        BeamTheory::EulerBernoulli => (0.0, false),
+    };
+    let l = le;
+    let c = e * inertia / ((1.0 + phi) * l.powi(3));
+    let k = [
+        [12.0 * c, 6.0 * l * c, -12.0 * c, 6.0 * l * c],
+        [6.0 * l * c, (4.0 + phi) * l * l * c, -6.0 * l * c, (2.0 - phi) * l * l * c],
+        [-12.0 * c, -6.0 * l * c, 12.0 * c, -6.0 * l * c],
+        [6.0 * l * c, (2.0 - phi) * l * l * c, -6.0 * l * c, (4.0 + phi) * l * l * c],
+    ];
+    let p2 = phi * phi;
+    let mt = rho * area * l / (210.0 * (1.0 + phi).powi(2));
+    let m1 = 70.0 * p2 + 147.0 * phi + 78.0;
+    let m2 = (35.0 * p2 + 77.0 * phi + 44.0) * l / 4.0;
+    let m3 = 35.0 * p2 + 63.0 * phi + 27.0;
+    let m4 = (35.0 * p2 + 63.0 * phi + 26.0) * l / 4.0;
+    let m5 = (7.0 * p2 + 14.0 * phi + 8.0) * l * l / 4.0;
+    let m6 = (7.0 * p2 + 14.0 * phi + 6.0) * l * l / 4.0;
+    let mut m = [
+        [m1, m2, m3, -m4],
+        [m2, m5, m4, -m6],
+        [m3, m4, m1, -m2],
+        [-m4, -m6, -m2, m5],
+    ];
+    for row in m.iter_mut() {
+        for v in row.iter_mut() {
+            *v *= mt;
+        }
+    }
+    if rotary {
+        let mr = rho * inertia / (30.0 * (1.0 + phi).powi(2) * l);
+        let a = (3.0 - 15.0 * phi) * l;
+        let b = (4.0 + 5.0 * phi + 10.0 * p2) * l * l;
+        let cc = (-1.0 - 5.0 * phi + 5.0 * p2) * l * l;
+        let r = [
+            [36.0, a, -36.0, a],
+            [a, b, -a, cc],
+            [-36.0, -a, 36.0, -a],
+            [a, cc, -a, b],
+        ];
+        for i in 0..4 {
+            for j in 0..4 {
+                m[i][j] += mr * r[i][j];
+            }
+        }
+    }
+    (k, m)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn solid(l: f64, d: f64) -> Shaft {
+        Shaft {
+            material: Material::STEEL,
+            sections: vec![Section { length_m: l, outer_diameter_m: d, inner_diameter_m: 0.0, material: None }],
+            discs: vec![],
+            supports: vec![],
+        }
+    }
+
+    #[test]
+    fn free_free_matches_field_notes_check_values() {
+        // Field notes §8 [der]: D = 50 mm, L = 1 m free-free, EB 230.2/634.6/1244.1 Hz,
+        // Timoshenko 228.7/622.9/1200.9 Hz.
+        let s = solid(1.0, 0.05);
+        let (_, eb) = s.modes(BeamTheory::EulerBernoulli, 5, 80, &[]).unwrap();
+        let (_, ti) = s.modes(BeamTheory::Timoshenko, 5, 80, &[]).unwrap();
+        assert!(eb[0].rigid_body && eb[1].rigid_body && !eb[2].rigid_body);
+        for (m, want) in eb[2..5].iter().zip([230.2, 634.6, 1244.1]) {
+            assert!((m.frequency_hz / want - 1.0).abs() < 1e-3, "{} vs {want}", m.frequency_hz);
+        }
+        for (m, want) in ti[2..5].iter().zip([228.7, 622.9, 1200.9]) {
+            assert!((m.frequency_hz / want - 1.0).abs() < 2e-3, "{} vs {want}", m.frequency_hz);
+        }
+    }
+
+    #[test]
+    fn kappa_solid() {
+        // Cowper 1966 (from memory, field notes §5): 0.886 at ν = 0.3.
+        assert!((cowper_kappa(0.3, 0.0) - 0.886).abs() < 1e-3);
+    }
+}

@@ -1,0 +1,3 @@
+//! The shaft model: Timoshenko beam finite elements of a stepped shaft with discs and supports.
+
+pub mod beam;

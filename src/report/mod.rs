@@ -1,0 +1,217 @@
+//! Files for people and other tools: `frf.csv` and `result.json`.
+
+use std::fmt::Write as _;
+use std::path::Path;
+
+use serde::Serialize;
+
+use crate::acquire::InputError;
+use crate::acquire::wavset::PositionSource;
+use crate::analysis::Analysis;
+use crate::session::atomic;
+use crate::setup::Setup;
+
+/// Header of `frf.csv` (a stable interface).
+pub const FRF_CSV_HEADER: &str = "station,frequency_hz,h_re,h_im,coherence";
+
+/// `frf.csv`: one row per station and spectral line inside the band, SI units.
+pub fn frf_csv(a: &Analysis) -> String {
+    let rows: usize = a
+        .stations
+        .iter()
+        .map(|s| s.result.frf.as_ref().map_or(0, |f| f.freq_hz.len()))
+        .sum();
+    let mut out = String::with_capacity(64 * rows + 64);
+    out.push_str(FRF_CSV_HEADER);
+    out.push('\n');
+    for s in &a.stations {
+        if let Some(f) = &s.result.frf {
+            for i in 0..f.freq_hz.len() {
+                let _ = writeln!(
+                    out,
+                    "{},{},{:e},{:e},{}",
+                    s.station, f.freq_hz[i], f.h[i].re, f.h[i].im, f.coherence[i]
+                );
+            }
+        }
+    }
+    out
+}
+
+#[derive(Serialize)]
+struct HitOut {
+    station: u32,
+    index: usize,
+    accepted: bool,
+    reasons: Vec<&'static str>,
+    explanations: Vec<&'static str>,
+    overridden: bool,
+    time_s: f64,
+    peak_a_fs: f64,
+    peak_b_fs: f64,
+    pulse_width_s: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    second_impact_s: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    force_drop_db: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    frac: Option<f64>,
+}
+
+#[derive(Serialize)]
+struct StationOut {
+    station: u32,
+    position_m: f64,
+    position_source: PositionSource,
+    accepted_hits: usize,
+    hits: usize,
+}
+
+#[derive(Serialize)]
+struct SettingsOut<'a> {
+    #[serde(flatten)]
+    setup: &'a Setup,
+    sample_rate_hz: u32,
+    record_samples: usize,
+    frequency_resolution_hz: f64,
+    band_used_hz: [f64; 2],
+    exponential_tau_s: Option<f64>,
+    frf_quantity: &'static str,
+    frf_unit: &'static str,
+}
+
+#[derive(Serialize)]
+struct ResultOut<'a> {
+    tapgrid_version: &'static str,
+    hits: Vec<HitOut>,
+    stations: Vec<StationOut>,
+    modes: Vec<serde_json::Value>,
+    settings: SettingsOut<'a>,
+    warnings: Vec<String>,
+}
+
+/// `result.json` as a string.
+pub fn result_json(a: &Analysis) -> String {
+    let first = a.stations.first().map(|s| &s.result);
+    let tau = first.map(|r| r.exp_tau_s).filter(|t| t.is_finite());
+    let out = ResultOut {
+        tapgrid_version: env!("CARGO_PKG_VERSION"),
+        hits: a
+            .stations
+            .iter()
+            .flat_map(|s| {
+                s.result.hits.iter().map(move |h| HitOut {
+                    station: s.station,
+                    index: h.index,
+                    accepted: h.accepted,
+                    reasons: h.reasons.iter().map(|r| r.word()).collect(),
+                    explanations: h.reasons.iter().map(|r| r.sentence()).collect(),
+                    overridden: h.override_accept.is_some(),
+                    time_s: h.time_s,
+                    peak_a_fs: h.peak_a_fs,
+                    peak_b_fs: h.peak_b_fs,
+                    pulse_width_s: h.pulse_width_s,
+                    second_impact_s: h.second_impact_s,
+                    force_drop_db: h.force_drop_db.filter(|v| v.is_finite()),
+                    frac: h.frac,
+                })
+            })
+            .collect(),
+        stations: a
+            .stations
+            .iter()
+            .map(|s| StationOut {
+                station: s.station,
+                position_m: s.position_m,
+                position_source: s.position_source,
+                accepted_hits: s.result.hits.iter().filter(|h| h.accepted).count(),
+                hits: s.result.hits.len(),
+            })
+            .collect(),
+        modes: Vec::new(),
+        settings: SettingsOut {
+            setup: &a.setup,
+            sample_rate_hz: a.sample_rate_hz,
+            record_samples: first.map_or(0, |r| r.record_samples),
+            frequency_resolution_hz: first.map_or(0.0, |r| r.df_hz),
+            band_used_hz: a.setup.band(a.sample_rate_hz),
+            exponential_tau_s: tau,
+            frf_quantity: match a.setup.layout {
+                crate::setup::Layout::Hammer => "accelerance",
+                crate::setup::Layout::Sensor => "transmissibility",
+            },
+            frf_unit: a.setup.layout.frf_unit(),
+        },
+        warnings: a.warnings(),
+    };
+    serde_json::to_string_pretty(&out).unwrap_or_else(|e| format!("{{\"error\":\"{e}\"}}"))
+}
+
+/// Writes `frf.csv` and `result.json` into `dir` (created if needed), atomically.
+pub fn write_outputs(a: &Analysis, dir: &Path) -> Result<(), InputError> {
+    std::fs::create_dir_all(dir)
+        .map_err(|e| InputError::new(dir, format!("cannot create output folder: {e}")))?;
+    for (name, text) in [("frf.csv", frf_csv(a)), ("result.json", result_json(a))] {
+        let p = dir.join(name);
+        atomic::write_bytes(&p, text.as_bytes())
+            .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
+    }
+    Ok(())
+}
+
+/// A short plain-text summary for the terminal.
+pub fn summary(a: &Analysis) -> String {
+    let mut s = String::new();
+    let [lo, hi] = a.setup.band(a.sample_rate_hz);
+    let first = a.stations.first().map(|s| &s.result);
+    let _ = writeln!(
+        s,
+        "layout {:?}, {} stations, {} Hz, record {} samples (Δf = {:.4} Hz), band {lo}–{hi} Hz, estimator {:?}",
+        a.setup.layout,
+        a.stations.len(),
+        a.sample_rate_hz,
+        first.map_or(0, |r| r.record_samples),
+        first.map_or(0.0, |r| r.df_hz),
+        a.setup.estimator
+    );
+    let _ = writeln!(s, "station  position_m  accepted/hits  min coherence  problems");
+    for st in &a.stations {
+        let acc = st.result.hits.iter().filter(|h| h.accepted).count();
+        let minc = st
+            .result
+            .frf
+            .as_ref()
+            .map(|f| f.coherence.iter().copied().fold(1.0, f64::min));
+        let mut probs: Vec<String> = Vec::new();
+        for h in &st.result.hits {
+            if !h.reasons.is_empty() {
+                let w: Vec<&str> = h.reasons.iter().map(|r| r.word()).collect();
+                probs.push(format!(
+                    "hit {} {}{}",
+                    h.index,
+                    w.join("+"),
+                    match h.override_accept {
+                        Some(true) => " (kept by override)",
+                        _ => "",
+                    }
+                ));
+            } else if h.override_accept == Some(false) {
+                probs.push(format!("hit {} rejected by override", h.index));
+            }
+        }
+        let _ = writeln!(
+            s,
+            "{:>7}  {:>10.4}  {:>6}/{:<6}  {:>13}  {}",
+            st.station,
+            st.position_m,
+            acc,
+            st.result.hits.len(),
+            minc.map_or("—".to_string(), |c| format!("{c:.3}")),
+            probs.join(", ")
+        );
+    }
+    for w in a.warnings() {
+        let _ = writeln!(s, "note: {w}");
+    }
+    s
+}

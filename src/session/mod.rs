@@ -1,0 +1,258 @@
+//! The saved test: a folder with `session.json` (the manifest), `raw/` recordings that are never
+//! modified after capture or import, and derived results. Every write is atomic.
+
+pub mod atomic;
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+use crate::acquire::InputError;
+use crate::acquire::wav::{SampleEncoding, probe};
+use crate::acquire::wavset::{PositionSource, WavSet};
+use crate::setup::Setup;
+use crate::signal::Reason;
+
+/// Manifest file name inside a session folder.
+pub const MANIFEST: &str = "session.json";
+/// The `format` value of a manifest.
+pub const FORMAT: &str = "tapgrid-session";
+/// Schema this build writes and reads.
+pub const SCHEMA_VERSION: u32 = 1;
+
+/// The part under test.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+#[serde(default)]
+pub struct Part {
+    /// Name or tag of the part.
+    pub name: String,
+    /// Free notes (suspension, tip, hammer mass…).
+    pub notes: String,
+}
+
+/// A measurement station.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Station {
+    /// Station number.
+    pub station: u32,
+    /// Position along the part, m.
+    pub position_m: f64,
+    /// Where the position came from.
+    pub position_source: PositionSource,
+    /// Optional label.
+    #[serde(default)]
+    pub label: Option<String>,
+}
+
+/// A raw recording held by the session.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Recording {
+    /// Station it belongs to.
+    pub station: u32,
+    /// Path relative to the session folder.
+    pub file: String,
+    /// Sample rate, Hz.
+    pub sample_rate_hz: u32,
+    /// Channels in the file.
+    pub channels: usize,
+    /// Encoding.
+    pub encoding: SampleEncoding,
+    /// Frames.
+    pub frames: usize,
+    /// File size in bytes, checked on open.
+    pub bytes: u64,
+}
+
+/// A hit as saved: its automatic verdict and a person's override.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SavedHit {
+    /// Station.
+    pub station: u32,
+    /// 0-based order in the station's recording.
+    pub index: usize,
+    /// Trigger time in the recording, s.
+    pub time_s: f64,
+    /// Final verdict.
+    pub accepted: bool,
+    /// Automatic reasons.
+    pub reasons: Vec<Reason>,
+    /// A person's decision (`true` accept, `false` reject), `None` = automatic.
+    #[serde(rename = "override")]
+    pub override_accept: Option<bool>,
+}
+
+/// The manifest.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Manifest {
+    /// Always [`FORMAT`].
+    pub format: String,
+    /// Schema version.
+    pub schema_version: u32,
+    /// Program that wrote it.
+    pub created_by: String,
+    /// Part.
+    pub part: Part,
+    /// Setup used for analysis.
+    pub setup: Setup,
+    /// Stations.
+    pub stations: Vec<Station>,
+    /// Raw recordings.
+    pub recordings: Vec<Recording>,
+    /// Hits with verdicts and overrides.
+    pub hits: Vec<SavedHit>,
+}
+
+/// An open session.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Session {
+    /// Its folder.
+    pub dir: PathBuf,
+    /// Its manifest.
+    pub manifest: Manifest,
+}
+
+impl Session {
+    /// True when `dir` holds a session manifest.
+    pub fn is_session(dir: &Path) -> bool {
+        dir.join(MANIFEST).is_file()
+    }
+
+    /// Opens a session, checking the format, the schema version and the raw files.
+    pub fn open(dir: &Path) -> Result<Self, InputError> {
+        let path = dir.join(MANIFEST);
+        let text = std::fs::read_to_string(&path)
+            .map_err(|e| InputError::new(&path, format!("cannot read: {e}")))?;
+        let value: serde_json::Value = serde_json::from_str(&text)
+            .map_err(|e| InputError::new(&path, format!("is not valid JSON: {e}")))?;
+        let value = migrate(value).map_err(|m| InputError::new(&path, m))?;
+        let manifest: Manifest = serde_json::from_value(value)
+            .map_err(|e| InputError::new(&path, format!("is not a valid session manifest: {e}")))?;
+        for r in &manifest.recordings {
+            let p = dir.join(&r.file);
+            let meta = std::fs::metadata(&p).map_err(|e| {
+                InputError::new(&p, format!("raw recording listed in the manifest is missing: {e}"))
+            })?;
+            if meta.len() != r.bytes {
+                return Err(InputError::new(
+                    &p,
+                    format!(
+                        "raw recording is {} bytes but the manifest recorded {}: it was changed after capture",
+                        meta.len(),
+                        r.bytes
+                    ),
+                ));
+            }
+        }
+        manifest.setup.validate().map_err(|m| InputError::new(&path, m))?;
+        Ok(Self { dir: dir.to_path_buf(), manifest })
+    }
+
+    /// Imports a WAV set into a new session folder: copies the recordings into `raw/`
+    /// (the originals are only read) and writes the manifest. Hits are filled by the caller.
+    pub fn import_wavset(
+        set: &WavSet,
+        dir: &Path,
+        setup: Setup,
+        part: Part,
+    ) -> Result<Self, InputError> {
+        if dir.join(MANIFEST).exists() {
+            return Err(InputError::new(dir, "already holds a session; choose a new folder"));
+        }
+        let raw = dir.join("raw");
+        std::fs::create_dir_all(&raw)
+            .map_err(|e| InputError::new(&raw, format!("cannot create folder: {e}")))?;
+        let mut recordings = Vec::new();
+        let mut stations = Vec::new();
+        for s in &set.stations {
+            let name = format!("station-{:03}.wav", s.station);
+            let dst = raw.join(&name);
+            let bytes = atomic::copy_file(&s.path, &dst)
+                .map_err(|e| InputError::new(&dst, format!("cannot copy recording: {e}")))?;
+            let info = probe(&dst)?;
+            recordings.push(Recording {
+                station: s.station,
+                file: format!("raw/{name}"),
+                sample_rate_hz: info.sample_rate_hz,
+                channels: info.channels,
+                encoding: info.encoding,
+                frames: info.frames,
+                bytes,
+            });
+            stations.push(Station {
+                station: s.station,
+                position_m: s.position_m,
+                position_source: s.position_source,
+                label: None,
+            });
+        }
+        let session = Self {
+            dir: dir.to_path_buf(),
+            manifest: Manifest {
+                format: FORMAT.into(),
+                schema_version: SCHEMA_VERSION,
+                created_by: format!("tapgrid {}", env!("CARGO_PKG_VERSION")),
+                part,
+                setup,
+                stations,
+                recordings,
+                hits: Vec::new(),
+            },
+        };
+        session.save()?;
+        Ok(session)
+    }
+
+    /// Writes the manifest atomically.
+    pub fn save(&self) -> Result<(), InputError> {
+        let path = self.dir.join(MANIFEST);
+        let text = serde_json::to_string_pretty(&self.manifest)
+            .map_err(|e| InputError::new(&path, format!("cannot encode manifest: {e}")))?;
+        atomic::write_bytes(&path, text.as_bytes())
+            .map_err(|e| InputError::new(&path, format!("cannot write: {e}")))
+    }
+
+    /// Overrides saved for each station: hit index → accept.
+    pub fn overrides(&self) -> BTreeMap<u32, BTreeMap<usize, bool>> {
+        let mut out: BTreeMap<u32, BTreeMap<usize, bool>> = BTreeMap::new();
+        for h in &self.manifest.hits {
+            if let Some(v) = h.override_accept {
+                out.entry(h.station).or_default().insert(h.index, v);
+            }
+        }
+        out
+    }
+
+    /// Sets (or clears, with `None`) a person's verdict on a hit; the caller re-analyses and saves.
+    pub fn set_override(
+        &mut self,
+        station: u32,
+        index: usize,
+        accept: Option<bool>,
+    ) -> Result<(), String> {
+        let h = self
+            .manifest
+            .hits
+            .iter_mut()
+            .find(|h| h.station == station && h.index == index)
+            .ok_or_else(|| format!("station {station} has no hit {index}"))?;
+        h.override_accept = accept;
+        Ok(())
+    }
+}
+
+/// Brings a manifest of an older schema up to [`SCHEMA_VERSION`], or says why it cannot.
+fn migrate(value: serde_json::Value) -> Result<serde_json::Value, String> {
+    let format = value.get("format").and_then(|v| v.as_str());
+    if format != Some(FORMAT) {
+        return Err(format!("is not a tapgrid session manifest (format {format:?}, expected {FORMAT:?})"));
+    }
+    match value.get("schema_version").and_then(|v| v.as_u64()) {
+        Some(v) if v == SCHEMA_VERSION as u64 => Ok(value),
+        Some(v) if v > SCHEMA_VERSION as u64 => Err(format!(
+            "was written with session schema {v}, newer than this tapgrid reads ({SCHEMA_VERSION}); update tapgrid"
+        )),
+        Some(v) => Err(format!("session schema {v} is not known to this tapgrid (it reads {SCHEMA_VERSION})")),
+        None => Err("has no schema_version".into()),
+    }
+}

@@ -1,0 +1,174 @@
+//! Software triggering on channel A and pulse location within a record.
+
+use crate::setup::{Slope, TriggerLevel};
+
+/// Robust noise rms of a signal: median absolute deviation × 1.4826 (Gaussian consistency;
+/// common practice). Hits are sparse in a tap recording, so the median sees the noise floor.
+pub fn robust_noise_rms(x: &[f64]) -> f64 {
+    if x.is_empty() {
+        return 0.0;
+    }
+    // Subsample long files: the statistic converges long before a million samples.
+    let step = (x.len() / 200_000).max(1);
+    let mut v: Vec<f64> = x.iter().step_by(step).copied().collect();
+    let mid = v.len() / 2;
+    let med = *v.select_nth_unstable_by(mid, f64::total_cmp).1;
+    for e in v.iter_mut() {
+        *e = (*e - med).abs();
+    }
+    *v.select_nth_unstable_by(mid, f64::total_cmp).1 * 1.4826
+}
+
+/// The trigger level in full-scale units for this channel.
+pub fn level_of(x: &[f64], level: TriggerLevel) -> f64 {
+    match level {
+        TriggerLevel::FractionOfRange(f) => f,
+        TriggerLevel::NoiseMultiple(k) => k * robust_noise_rms(x),
+    }
+}
+
+/// Sample indices where `x` crosses the level with the given slope, at least `holdoff` apart.
+pub fn find_triggers(x: &[f64], level: f64, slope: Slope, holdoff: usize) -> Vec<usize> {
+    let s = slope.sign();
+    let mut out = Vec::new();
+    let mut i = 1;
+    while i < x.len() {
+        if s * x[i - 1] < level && s * x[i] >= level {
+            out.push(i);
+            i += holdoff.max(1);
+        } else {
+            i += 1;
+        }
+    }
+    out
+}
+
+/// A force pulse located in a record (indices into the record).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Pulse {
+    /// First sample above 5 % of the peak.
+    pub start: usize,
+    /// Sample of the peak.
+    pub peak: usize,
+    /// First sample after the peak below 5 % of the peak.
+    pub end: usize,
+    /// Peak value, polarity-adjusted (positive), full-scale units.
+    pub peak_value: f64,
+}
+
+impl Pulse {
+    /// Width in samples (at 5 % of peak).
+    pub fn width(&self) -> usize {
+        (self.end - self.start).max(1)
+    }
+}
+
+/// Locates the pulse that fired the trigger at `trigger` within `rec`.
+/// `max_len` bounds the search for the peak (soft tips give pulses of several ms).
+pub fn find_pulse(rec: &[f64], trigger: usize, sign: f64, max_len: usize) -> Pulse {
+    let stop = (trigger + max_len).min(rec.len());
+    let mut peak = trigger.min(rec.len().saturating_sub(1));
+    let mut pv = f64::MIN;
+    for (i, v) in rec.iter().enumerate().take(stop).skip(trigger) {
+        if sign * v > pv {
+            pv = sign * v;
+            peak = i;
+        }
+    }
+    let thr = 0.05 * pv;
+    let mut start = peak;
+    while start > 0 && sign * rec[start - 1] > thr {
+        start -= 1;
+    }
+    let mut end = peak;
+    while end + 1 < rec.len() && sign * rec[end] > thr {
+        end += 1;
+    }
+    Pulse {
+        start,
+        peak,
+        end,
+        peak_value: pv,
+    }
+}
+
+/// After the pulse, the first sample exceeding `fraction` of its peak: a second impact.
+pub fn second_impact(rec: &[f64], pulse: &Pulse, sign: f64, fraction: f64) -> Option<usize> {
+    let thr = fraction * pulse.peak_value;
+    rec.iter()
+        .enumerate()
+        .skip(pulse.end + 1)
+        .find(|(_, v)| sign * **v > thr)
+        .map(|(i, _)| i)
+}
+
+/// Largest absolute sample.
+pub fn peak_abs(x: &[f64]) -> f64 {
+    x.iter().fold(0.0, |m, v| m.max(v.abs()))
+}
+
+/// A clipped ("flat-topped") record: ≥ 3 identical samples at the record's extreme, entered by a
+/// step of at least 1 % of that extreme, with the extreme above 25 % of full scale. Smooth peaks
+/// of slow sinusoids can repeat a quantised value, but they approach it in tiny steps; a converter
+/// that clips arrives at its limit in a jump (common practice).
+pub fn flat_top(x: &[f64]) -> bool {
+    let m = peak_abs(x);
+    if m < 0.25 {
+        return false;
+    }
+    let mut i = 0;
+    while i < x.len() {
+        if x[i].abs() == m {
+            let s = i;
+            while i < x.len() && x[i] == x[s] {
+                i += 1;
+            }
+            let run = i - s;
+            let step = if s > 0 { (x[s] - x[s - 1]).abs() } else { m };
+            if run >= 3 && step >= 0.01 * m {
+                return true;
+            }
+        } else {
+            i += 1;
+        }
+    }
+    false
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn triggers_respect_holdoff_and_slope() {
+        let mut x = vec![0.0; 1000];
+        x[100] = 0.5;
+        x[101] = 0.2;
+        x[105] = 0.5; // within hold-off: ringing, not a new hit
+        x[600] = 0.5;
+        assert_eq!(find_triggers(&x, 0.1, Slope::Rising, 200), vec![100, 600]);
+        let neg: Vec<f64> = x.iter().map(|v| -v).collect();
+        assert_eq!(find_triggers(&neg, 0.1, Slope::Falling, 200), vec![100, 600]);
+        assert!(find_triggers(&neg, 0.1, Slope::Rising, 200).is_empty());
+    }
+
+    #[test]
+    fn noise_rms_of_gaussian_like_signal() {
+        // A uniform distribution on [-a, a] has MAD a/2, so the estimate is 1.4826·a/2 (exact).
+        let x: Vec<f64> = (0..10001).map(|i| (i as f64 / 10000.0) * 2.0 - 1.0).collect();
+        assert!((robust_noise_rms(&x) - 0.7413).abs() < 1e-3);
+    }
+
+    #[test]
+    fn flat_top_detects_clipping_not_slow_sines() {
+        let clipped: Vec<f64> = (0..200)
+            .map(|i| (1.3 * (i as f64 * 0.05).sin()).clamp(-0.9, 0.9))
+            .collect();
+        assert!(flat_top(&clipped));
+        // A slow sine quantised to 16 bits repeats its peak value but is not clipped.
+        let slow: Vec<f64> = (0..20000)
+            .map(|i| ((0.5 * (i as f64 * 2e-4).sin()) * 32768.0).round() / 32768.0)
+            .collect();
+        assert!(!flat_top(&slow));
+    }
+}

@@ -1,0 +1,11 @@
+//! The signal chain: hit detection, windows, spectra, FRF estimators and per-hit verdicts.
+
+pub mod frf;
+pub mod hits;
+pub mod station;
+pub mod verdict;
+pub mod window;
+
+pub use frf::{CrossSpectra, SpectrumPlan};
+pub use station::{HitReport, StationFrf, StationResult, analyze_station};
+pub use verdict::Reason;

@@ -1,0 +1,367 @@
+//! One station's recording → hits → verdicts → averaged spectra and FRF.
+
+use std::collections::BTreeMap;
+
+use serde::{Deserialize, Serialize};
+
+use super::frf::{CrossSpectra, SpectrumPlan};
+use super::hits::{find_pulse, find_triggers, flat_top, level_of, peak_abs, second_impact};
+use super::verdict::Reason;
+use super::window::{apply_exponential, exponential_tau_s, force_window};
+use crate::Complex64;
+use crate::setup::{Layout, Setup};
+
+/// The verdict and measurements of one hit.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HitReport {
+    /// 0-based order of the hit within its station's recording.
+    pub index: usize,
+    /// Trigger time from the start of the recording, s.
+    pub time_s: f64,
+    /// First sample of the record in the recording; `None` when the record did not fit.
+    pub record_start: Option<usize>,
+    /// Automatic reasons for rejection (empty = good).
+    pub reasons: Vec<Reason>,
+    /// A person's decision, which wins over the automatic one: `Some(true)` accept, `Some(false)` reject.
+    pub override_accept: Option<bool>,
+    /// Whether the hit enters the averages.
+    pub accepted: bool,
+    /// Channel A peak, fraction of full scale.
+    pub peak_a_fs: f64,
+    /// Channel B peak, fraction of full scale.
+    pub peak_b_fs: f64,
+    /// Force pulse width at 5 % of peak, s (hammer layout).
+    pub pulse_width_s: Option<f64>,
+    /// Delay of a second impact after the first pulse's peak, s.
+    pub second_impact_s: Option<f64>,
+    /// Drop of the force auto-spectrum across the band, dB (hammer layout).
+    pub force_drop_db: Option<f64>,
+    /// FRAC of this hit's FRF against the station's other hits.
+    pub frac: Option<f64>,
+    /// Median |log-magnitude| deviation from the station's other hits, dB.
+    pub deviation_db: Option<f64>,
+}
+
+/// Averaged spectra and FRF of a station over its accepted hits.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StationFrf {
+    /// Frequencies of the lines, Hz.
+    pub freq_hz: Vec<f64>,
+    /// FRF B/A by the setup's estimator: accelerance (m/s²)/N or transmissibility.
+    pub h: Vec<Complex64>,
+    /// Ordinary coherence.
+    pub coherence: Vec<f64>,
+    /// Averaged auto-spectrum of channel A (unit²·s²).
+    pub gaa: Vec<f64>,
+    /// Averaged auto-spectrum of channel B.
+    pub gbb: Vec<f64>,
+    /// Averaged cross-spectrum conj(A)·B.
+    pub gab: Vec<Complex64>,
+    /// Hits averaged.
+    pub hits_averaged: usize,
+}
+
+/// Everything the chain learned about one station.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StationResult {
+    /// Every hit found, good or bad, in recording order.
+    pub hits: Vec<HitReport>,
+    /// The FRF, when at least one hit was accepted.
+    pub frf: Option<StationFrf>,
+    /// Record length, samples.
+    pub record_samples: usize,
+    /// Line spacing, Hz.
+    pub df_hz: f64,
+    /// Exponential window time constant, s (∞ = none); needed to correct damping.
+    pub exp_tau_s: f64,
+    /// Trigger level used, full-scale units.
+    pub trigger_level_fs: f64,
+}
+
+struct Candidate {
+    a: Vec<Complex64>,
+    b: Vec<Complex64>,
+}
+
+/// Analyses one station's recording (`a`, `b` in full-scale units at `fs`).
+/// `overrides` maps hit index → accept (true) / reject (false).
+/// Errors are sentences for the user (the caller names the file).
+pub fn analyze_station(
+    a: &[f64],
+    b: &[f64],
+    fs: u32,
+    setup: &Setup,
+    overrides: &BTreeMap<usize, bool>,
+    plan: &mut Option<SpectrumPlan>,
+) -> Result<StationResult, String> {
+    let n = setup.record_samples(fs);
+    let dt = 1.0 / fs as f64;
+    let df = fs as f64 / n as f64;
+    let pre = ((setup.trigger.pretrigger_fraction * n as f64).round() as usize).min(n - 1);
+    let [lo, hi] = setup.band(fs);
+    let k_lo = (lo / df).ceil().max(1.0) as usize;
+    let k_hi = ((hi / df).floor() as usize).min(n / 2);
+    if k_lo > k_hi {
+        return Err(format!(
+            "the band {lo}:{hi} Hz holds no spectral line at {df:.4} Hz spacing"
+        ));
+    }
+    let lines = k_lo..k_hi + 1;
+    let freq_hz: Vec<f64> = lines.clone().map(|k| k as f64 * df).collect();
+
+    if plan.as_ref().is_none_or(|p| p.len() != n) {
+        *plan = Some(SpectrumPlan::new(n));
+    }
+    let plan = plan.as_mut().expect("plan set above");
+
+    let level = level_of(a, setup.trigger.level);
+    let holdoff = setup
+        .trigger
+        .holdoff_s
+        .map(|h| (h * fs as f64).round() as usize)
+        .unwrap_or(n - pre);
+    let triggers = find_triggers(a, level, setup.trigger.slope, holdoff);
+    if triggers.is_empty() {
+        return Err(format!(
+            "no hit found: channel A never crossed the trigger level ({:.3} % of full scale, {:?} slope)",
+            level * 100.0,
+            setup.trigger.slope
+        ));
+    }
+
+    let sign = setup.trigger.slope.sign();
+    let q = &setup.quality;
+    let scale_a = setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit();
+    let scale_b = setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit();
+    let post_s = (n - pre) as f64 * dt;
+    let tau = exponential_tau_s(post_s, setup.windows.exponential_end);
+    let max_pulse = (0.02 * fs as f64) as usize;
+
+    let mut hits = Vec::with_capacity(triggers.len());
+    let mut cands: Vec<Option<Candidate>> = Vec::with_capacity(triggers.len());
+    for (index, &trig) in triggers.iter().enumerate() {
+        let mut rep = HitReport {
+            index,
+            time_s: trig as f64 * dt,
+            record_start: None,
+            reasons: Vec::new(),
+            override_accept: overrides.get(&index).copied(),
+            accepted: false,
+            peak_a_fs: 0.0,
+            peak_b_fs: 0.0,
+            pulse_width_s: None,
+            second_impact_s: None,
+            force_drop_db: None,
+            frac: None,
+            deviation_db: None,
+        };
+        let Some(start) = trig.checked_sub(pre).filter(|s| s + n <= a.len()) else {
+            rep.reasons.push(Reason::Truncated);
+            hits.push(rep);
+            cands.push(None);
+            continue;
+        };
+        rep.record_start = Some(start);
+        let ra = &a[start..start + n];
+        let rb = &b[start..start + n];
+        rep.peak_a_fs = peak_abs(ra);
+        rep.peak_b_fs = peak_abs(rb);
+        if rep.peak_a_fs >= q.overload_fraction
+            || rep.peak_b_fs >= q.overload_fraction
+            || flat_top(ra)
+            || flat_top(rb)
+        {
+            rep.reasons.push(Reason::Overload);
+        }
+        if rep.peak_a_fs < q.weak_fraction {
+            rep.reasons.push(Reason::Weak);
+        }
+
+        let mut xa: Vec<f64>;
+        let mut xb: Vec<f64>;
+        match setup.layout {
+            Layout::Hammer => {
+                let pulse = find_pulse(ra, pre, sign, max_pulse);
+                let width = pulse.width();
+                rep.pulse_width_s = Some(width as f64 * dt);
+                if let Some(i2) = second_impact(ra, &pulse, sign, q.double_hit_fraction) {
+                    rep.reasons.push(Reason::DoubleHit);
+                    rep.second_impact_s = Some((i2 - pulse.peak) as f64 * dt);
+                }
+                let lead = width;
+                let wstart = pulse.start.saturating_sub(lead);
+                let unity = setup
+                    .windows
+                    .force_unity_s
+                    .map(|s| (s * fs as f64).round() as usize)
+                    .unwrap_or(4 * width)
+                    .max(1);
+                let taper = setup
+                    .windows
+                    .force_taper_s
+                    .map(|s| (s * fs as f64).round() as usize)
+                    .unwrap_or(width);
+                let base_end = wstart.saturating_sub(taper);
+                let (ma, mb) = baseline(ra, rb, base_end);
+                let fw = force_window(n, wstart, unity, taper);
+                xa = ra
+                    .iter()
+                    .zip(&fw)
+                    .map(|(v, w)| (v - ma) * scale_a * w)
+                    .collect();
+                xb = rb.iter().map(|v| (v - mb) * scale_b).collect();
+            }
+            Layout::Sensor => {
+                let (ma, mb) = baseline(ra, rb, pre.saturating_sub(pre / 10));
+                xa = ra.iter().map(|v| (v - ma) * scale_a).collect();
+                xb = rb.iter().map(|v| (v - mb) * scale_b).collect();
+            }
+        }
+        apply_exponential(&mut xa, pre, dt, tau);
+        apply_exponential(&mut xb, pre, dt, tau);
+        let sa = plan.lines(&xa, dt, lines.clone());
+        let sb = plan.lines(&xb, dt, lines.clone());
+        if setup.layout == Layout::Hammer && !rep.reasons.contains(&Reason::DoubleHit) {
+            let (mx, mn) = sa.iter().fold((0.0f64, f64::INFINITY), |(mx, mn), c| {
+                let p = c.norm_sqr();
+                (mx.max(p), mn.min(p))
+            });
+            let drop = if mn > 0.0 {
+                10.0 * (mx / mn).log10()
+            } else {
+                f64::INFINITY
+            };
+            rep.force_drop_db = Some(drop);
+            if drop > q.rolloff_db {
+                rep.reasons.push(Reason::TipRolloff);
+            }
+        }
+        hits.push(rep);
+        cands.push(Some(Candidate { a: sa, b: sb }));
+    }
+
+    flag_outliers(&mut hits, &cands, setup);
+
+    let mut sums = CrossSpectra::new(freq_hz.len());
+    for (rep, c) in hits.iter_mut().zip(&cands) {
+        rep.accepted = c.is_some() && rep.override_accept.unwrap_or(rep.reasons.is_empty());
+        if rep.accepted
+            && let Some(c) = c
+        {
+            sums.add(&c.a, &c.b);
+        }
+    }
+    let frf = (sums.count > 0).then(|| {
+        let (gaa, gbb, gab) = sums.averaged();
+        StationFrf {
+            h: sums.estimate(setup.estimator),
+            coherence: sums.coherence(),
+            freq_hz,
+            gaa,
+            gbb,
+            gab,
+            hits_averaged: sums.count,
+        }
+    });
+    Ok(StationResult {
+        hits,
+        frf,
+        record_samples: n,
+        df_hz: df,
+        exp_tau_s: tau,
+        trigger_level_fs: level,
+    })
+}
+
+fn baseline(ra: &[f64], rb: &[f64], end: usize) -> (f64, f64) {
+    if end < 8 {
+        return (0.0, 0.0);
+    }
+    let m = |x: &[f64]| x[..end].iter().sum::<f64>() / end as f64;
+    (m(ra), m(rb))
+}
+
+/// Leave-one-out comparison of each candidate hit's FRF with the others' H1. The worst hit is
+/// flagged when it breaks a limit *and* stands clearly apart (3× the others' median badness), so
+/// a uniformly noisy station keeps its hits; repeated while three or more candidates remain.
+fn flag_outliers(hits: &mut [HitReport], cands: &[Option<Candidate>], setup: &Setup) {
+    let q = &setup.quality;
+    let in_pool = |h: &HitReport| match h.override_accept {
+        Some(v) => v,
+        None => h.reasons.is_empty(),
+    };
+    let mut pool: Vec<usize> = (0..hits.len())
+        .filter(|&i| cands[i].is_some() && in_pool(&hits[i]))
+        .collect();
+    let Some(first) = pool.first().and_then(|&i| cands[i].as_ref()) else {
+        return;
+    };
+    let nl = first.a.len();
+    loop {
+        if pool.len() < 3 {
+            return;
+        }
+        let mut total = CrossSpectra::new(nl);
+        for &i in &pool {
+            let c = cands[i].as_ref().expect("pool holds candidates");
+            total.add(&c.a, &c.b);
+        }
+        let mut badness = Vec::with_capacity(pool.len());
+        for &i in &pool {
+            let c = cands[i].as_ref().expect("pool holds candidates");
+            let (mut num, mut ei, mut eo) = (Complex64::new(0.0, 0.0), 0.0, 0.0);
+            let mut devs = Vec::with_capacity(nl);
+            for k in 0..nl {
+                let gaa = total.gaa[k] - c.a[k].norm_sqr();
+                let gab = total.gab[k] - c.a[k].conj() * c.b[k];
+                if gaa <= 0.0 || c.a[k].norm_sqr() <= 0.0 {
+                    continue;
+                }
+                let ho = gab / gaa;
+                let hi = c.b[k] / c.a[k];
+                num += hi.conj() * ho;
+                ei += hi.norm_sqr();
+                eo += ho.norm_sqr();
+                if ho.norm() > 0.0 && hi.norm() > 0.0 {
+                    devs.push((20.0 * (hi.norm() / ho.norm()).log10()).abs());
+                }
+            }
+            let frac = if ei * eo > 0.0 {
+                num.norm_sqr() / (ei * eo)
+            } else {
+                0.0
+            };
+            let dev = if devs.is_empty() {
+                0.0
+            } else {
+                let m = devs.len() / 2;
+                *devs.select_nth_unstable_by(m, f64::total_cmp).1
+            };
+            hits[i].frac = Some(frac);
+            hits[i].deviation_db = Some(dev);
+            let b = ((1.0 - frac) / (1.0 - q.outlier_min_frac).max(1e-12))
+                .max(dev / q.outlier_max_db.max(1e-12));
+            badness.push(b);
+        }
+        let (wi, &wb) = badness
+            .iter()
+            .enumerate()
+            .max_by(|x, y| x.1.total_cmp(y.1))
+            .expect("pool is not empty");
+        let mut others: Vec<f64> = badness
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| *i != wi)
+            .map(|(_, b)| *b)
+            .collect();
+        let m = others.len() / 2;
+        let med = *others.select_nth_unstable_by(m, f64::total_cmp).1;
+        let hit = pool[wi];
+        if wb >= 1.0 && wb > 3.0 * med && hits[hit].override_accept.is_none() {
+            hits[hit].reasons.push(Reason::Outlier);
+            pool.remove(wi);
+        } else {
+            return;
+        }
+    }
+}
