@@ -2,8 +2,8 @@
 //!
 //! A structure (any [`FrfModel`]: the beam model's modes, or an M–C–K system in tests) is excited
 //! by half-sine hammer pulses. Each recording is synthesised in the frequency domain over the
-//! whole file — `X(ω) = H(ω)·F(ω)` with the pulses' exact Fourier transforms — which is the
-//! sampled output of an ideal anti-alias filter. Then the audio chain: AC coupling (first-order
+//! whole file — `X(ω) = H(ω)·F(ω)` with the pulses' exact Fourier transforms — through a
+//! zero-phase anti-alias filter flat to 0.45 fs. Then the audio chain: AC coupling (first-order
 //! high-pass), mains hum coherent on both channels, noise, clipping at full scale and quantisation.
 
 use std::path::Path;
@@ -203,13 +203,20 @@ pub fn synthesize(
             }
         }
         let f = f / dt;
-        let hp = match rig.ac_corner_hz {
+        let mut hp = match rig.ac_corner_hz {
             Some(fc) => {
                 let jw = Complex64::new(0.0, w);
                 jw / (jw + TAU * fc)
             }
             None => Complex64::new(1.0, 0.0),
         };
+        // Anti-alias filter: flat to 0.45 fs, raised-cosine to zero at Nyquist, zero phase (a
+        // linear-phase converter filter with its delay removed). A brick wall would make the
+        // band-limited pulse pre-ring as 1/t for tenths of a second; this keeps it to a few ms.
+        let f_rel = k as f64 / m as f64;
+        if f_rel > 0.45 {
+            hp *= 0.5 * (1.0 + (std::f64::consts::PI * (f_rel - 0.45) / 0.05).cos());
+        }
         let (a, b) = match pickup {
             Pickup::ForceAndResponse { response } => {
                 (f, model.accelerance(response, force_dof, w) * f)
