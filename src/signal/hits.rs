@@ -107,8 +107,8 @@ pub fn peak_abs(x: &[f64]) -> f64 {
     x.iter().fold(0.0, |m, v| m.max(v.abs()))
 }
 
-/// A clipped ("flat-topped") record: ≥ 3 identical samples at the record's extreme, entered by a
-/// step of at least 1 % of that extreme, with the extreme above 25 % of full scale. Smooth peaks
+/// A clipped ("flat-topped") record: ≥ 3 identical samples at the record's extreme, approached by
+/// a step of at least 1 % of that extreme, with the extreme above 25 % of full scale. Smooth peaks
 /// of slow sinusoids can repeat a quantised value, but they approach it in tiny steps; a converter
 /// that clips arrives at its limit in a jump (common practice).
 pub fn flat_top(x: &[f64]) -> bool {
@@ -124,7 +124,10 @@ pub fn flat_top(x: &[f64]) -> bool {
                 i += 1;
             }
             let run = i - s;
-            let step = if s > 0 { (x[s] - x[s - 1]).abs() } else { m };
+            // How fast the signal approached the plateau: a clipped wave was moving fast one or
+            // two samples before; a smooth, quantised crest creeps up by a quantum or so.
+            let d = |k: usize| if s >= k { (x[s + 1 - k] - x[s - k]).abs() } else { m };
+            let step = d(1).max(d(2));
             if run >= 3 && step >= 0.01 * m {
                 return true;
             }
