@@ -445,7 +445,7 @@ fn simulate(a: SimulateArgs) -> Result<()> {
         None => Scenario::pump_shaft(),
     };
     if let Some(l) = a.layout {
-        sc.layout = l.into();
+        sc.set_layout(l.into());
     }
     if let Some(n) = a.stations {
         if n < 2 {

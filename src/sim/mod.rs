@@ -100,7 +100,8 @@ pub struct Rig {
     pub encoding: SampleEncoding,
     /// Volts at digital full scale.
     pub full_scale_volts: f64,
-    /// Channel A sensitivity, mV per SI unit.
+    /// Channel A sensitivity, mV per SI unit (the hammer in the hammer layout, the reference
+    /// accelerometer in the sensor layout).
     pub sensitivity_a_mv: f64,
     /// Channel B sensitivity, mV per SI unit.
     pub sensitivity_b_mv: f64,
@@ -366,6 +367,16 @@ impl Scenario {
         } else {
             Err(format!("station {st} is not among stations 1–{}", self.stations_m.len()))
         }
+    }
+
+    /// The usual demo rig for a layout: a 2.25 mV/N hammer and 1.02 mV/(m/s²) (10 mV/g)
+    /// accelerometers; in the sensor layout both channels are accelerometers.
+    pub fn set_layout(&mut self, layout: Layout) {
+        self.layout = layout;
+        self.rig.sensitivity_a_mv = match layout {
+            Layout::Hammer => 2.25,
+            Layout::Sensor => 1.02,
+        };
     }
 
     /// Writes the WAV set (`station-NN.wav`, `stations.csv`) and `truth.json` into `dir`.
