@@ -74,6 +74,16 @@ fn describe(e: hound::Error) -> String {
     }
 }
 
+/// An error while reading sample data: the header was fine, so a short read means truncation.
+fn describe_data(e: hound::Error) -> String {
+    match e {
+        hound::Error::IoError(io) => {
+            format!("the WAV file is truncated: its data ends before its header says ({io})")
+        }
+        other => describe(other),
+    }
+}
+
 /// Reads the header and checks the encoding is one tapgrid accepts.
 pub fn probe(path: &Path) -> Result<WavInfo, InputError> {
     let r = open(path)?;
@@ -147,7 +157,7 @@ pub fn read_two_channels(path: &Path, a: usize, b: usize) -> Result<TwoChannels,
         ($t:ty, $scale:expr) => {{
             let scale: f64 = $scale;
             for s in r.samples::<$t>() {
-                let v = s.map_err(|e| InputError::new(path, describe(e)))? as f64 * scale;
+                let v = s.map_err(|e| InputError::new(path, describe_data(e)))? as f64 * scale;
                 let ch = k % nch;
                 if ch == a {
                     ca.push(v);
