@@ -64,7 +64,11 @@ impl Dataset {
             .stations
             .iter()
             .filter_map(|st| {
-                let rec = s.manifest.recordings.iter().find(|r| r.station == st.station)?;
+                let rec = s
+                    .manifest
+                    .recordings
+                    .iter()
+                    .find(|r| r.station == st.station)?;
                 Some(StationSource {
                     station: st.station,
                     position_m: st.position_m,
@@ -74,7 +78,10 @@ impl Dataset {
                 })
             })
             .collect();
-        Self { stations, origin: s.dir.clone() }
+        Self {
+            stations,
+            origin: s.dir.clone(),
+        }
     }
 
     /// Opens a path that is either a session folder or a WAV set folder.
@@ -85,7 +92,10 @@ impl Dataset {
         } else if path.is_dir() {
             Ok((Self::from_wavset(&WavSet::scan(path, spacing_m)?), None))
         } else {
-            Err(InputError::new(path, "is not a folder (expected a WAV set or a session folder)"))
+            Err(InputError::new(
+                path,
+                "is not a folder (expected a WAV set or a session folder)",
+            ))
         }
     }
 }
@@ -162,6 +172,9 @@ impl Analysis {
     }
 }
 
+/// One worker's output for a station: its sample rate and result, or the error naming its file.
+type Slot = Option<Result<(u32, StationResult), InputError>>;
+
 /// Decodes and analyses every station, using up to `available_parallelism` threads.
 pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     setup
@@ -171,32 +184,40 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
         return Err(InputError::new(&data.origin, "holds no station recordings"));
     }
     let next = AtomicUsize::new(0);
-    let out: Mutex<Vec<Option<Result<(u32, StationResult), InputError>>>> =
-        Mutex::new(vec![None; data.stations.len()]);
+    let out: Mutex<Vec<Slot>> = Mutex::new(vec![None; data.stations.len()]);
     let workers = std::thread::available_parallelism()
         .map(|n| n.get())
         .unwrap_or(1)
         .min(data.stations.len());
-    let rates: Mutex<Vec<u32>> = Mutex::new(vec![0; data.stations.len()]);
     std::thread::scope(|scope| {
         for w in 0..workers {
-            let (next, out, rates) = (&next, &out, &rates);
+            let (next, out) = (&next, &out);
             std::thread::Builder::new()
                 .name(format!("tapgrid-analysis-{w}"))
                 .spawn_scoped(scope, move || {
                     let mut plan: Option<SpectrumPlan> = None;
                     loop {
                         let i = next.fetch_add(1, Ordering::Relaxed);
-                        let Some(src) = data.stations.get(i) else { break };
-                        let r = read_two_channels(&src.path, setup.channel_a.index, setup.channel_b.index)
-                            .and_then(|rec| {
-                                if let Ok(mut g) = rates.lock() {
-                                    g[i] = rec.info.sample_rate_hz;
-                                }
-                                analyze_station(&rec.a, &rec.b, rec.info.sample_rate_hz, setup, &src.overrides, &mut plan)
-                                    .map(|res| (rec.info.sample_rate_hz, res))
-                                    .map_err(|m| InputError::new(&src.path, m))
-                            });
+                        let Some(src) = data.stations.get(i) else {
+                            break;
+                        };
+                        let r = read_two_channels(
+                            &src.path,
+                            setup.channel_a.index,
+                            setup.channel_b.index,
+                        )
+                        .and_then(|rec| {
+                            analyze_station(
+                                &rec.a,
+                                &rec.b,
+                                rec.info.sample_rate_hz,
+                                setup,
+                                &src.overrides,
+                                &mut plan,
+                            )
+                            .map(|res| (rec.info.sample_rate_hz, res))
+                            .map_err(|m| InputError::new(&src.path, m))
+                        });
                         if let Ok(mut g) = out.lock() {
                             g[i] = Some(r);
                         }
@@ -209,13 +230,17 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     let mut stations = Vec::with_capacity(results.len());
     let mut rate = None;
     for (src, r) in data.stations.iter().zip(results) {
-        let (fs, result) = r.unwrap_or_else(|| Err(InputError::new(&src.path, "was not analysed")))?;
+        let (fs, result) =
+            r.unwrap_or_else(|| Err(InputError::new(&src.path, "was not analysed")))?;
         match rate {
             None => rate = Some((fs, src.path.clone())),
             Some((r0, ref p0)) if r0 != fs => {
                 return Err(InputError::new(
                     &src.path,
-                    format!("sample rate {fs} Hz differs from {r0} Hz in {}", p0.display()),
+                    format!(
+                        "sample rate {fs} Hz differs from {r0} Hz in {}",
+                        p0.display()
+                    ),
                 ));
             }
             _ => {}

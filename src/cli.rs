@@ -160,8 +160,10 @@ fn pair<T: std::str::FromStr>(text: &str, what: &str) -> Result<(T, T)> {
     let mut it = text.split(',').map(str::trim);
     match (it.next(), it.next(), it.next()) {
         (Some(a), Some(b), None) => Ok((
-            a.parse().map_err(|_| anyhow!("--{what}: cannot read {a:?}"))?,
-            b.parse().map_err(|_| anyhow!("--{what}: cannot read {b:?}"))?,
+            a.parse()
+                .map_err(|_| anyhow!("--{what}: cannot read {a:?}"))?,
+            b.parse()
+                .map_err(|_| anyhow!("--{what}: cannot read {b:?}"))?,
         )),
         _ => bail!("--{what} takes two values separated by a comma, got {text:?}"),
     }
@@ -196,7 +198,11 @@ impl SetupArgs {
             let (lo, hi) = b
                 .split_once(':')
                 .ok_or_else(|| anyhow!("--band takes LO:HI in Hz, got {b:?}"))?;
-            let p = |x: &str| x.trim().parse::<f64>().map_err(|_| anyhow!("--band: cannot read {x:?}"));
+            let p = |x: &str| {
+                x.trim()
+                    .parse::<f64>()
+                    .map_err(|_| anyhow!("--band: cannot read {x:?}"))
+            };
             s.band_hz = Some([p(lo)?, p(hi)?]);
         }
         if let Some(r) = self.record_length {
@@ -371,7 +377,9 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Simulate(a) => simulate(a),
         Command::Demo(a) => {
             let dir = demo_session_dir()?;
-            let out = a.out.unwrap_or_else(|| std::env::temp_dir().join("tapgrid-demo"));
+            let out = a
+                .out
+                .unwrap_or_else(|| std::env::temp_dir().join("tapgrid-demo"));
             println!("demo session: {}", dir.display());
             analyze(&dir, &out, &SetupArgs::default())
         }
@@ -400,7 +408,11 @@ fn analyze(input: &Path, out: &Path, args: &SetupArgs) -> Result<()> {
     let a = analysis::run(&data, &setup)?;
     report::write_outputs(&a, out)?;
     print!("{}", report::summary(&a));
-    println!("wrote {} and {}", out.join("frf.csv").display(), out.join("result.json").display());
+    println!(
+        "wrote {} and {}",
+        out.join("frf.csv").display(),
+        out.join("result.json").display()
+    );
     Ok(())
 }
 
@@ -410,7 +422,15 @@ fn import(a: ImportArgs) -> Result<()> {
     let data = Dataset::from_wavset(&set);
     // Analyse first so a set that cannot be analysed makes no half session.
     let result = analysis::run(&data, &setup)?;
-    let mut s = Session::import_wavset(&set, &a.session, setup, Part { name: a.part, notes: String::new() })?;
+    let mut s = Session::import_wavset(
+        &set,
+        &a.session,
+        setup,
+        Part {
+            name: a.part,
+            notes: String::new(),
+        },
+    )?;
     s.manifest.hits = result.saved_hits();
     s.save()?;
     print!("{}", report::summary(&result));
@@ -438,7 +458,8 @@ fn verdict(a: VerdictArgs) -> Result<()> {
 fn simulate(a: SimulateArgs) -> Result<()> {
     let mut sc = match &a.scenario {
         Some(p) => {
-            let text = std::fs::read_to_string(p).with_context(|| format!("{}: cannot read", p.display()))?;
+            let text = std::fs::read_to_string(p)
+                .with_context(|| format!("{}: cannot read", p.display()))?;
             serde_json::from_str::<Scenario>(&text)
                 .with_context(|| format!("{}: not a valid scenario", p.display()))?
         }

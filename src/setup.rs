@@ -153,10 +153,9 @@ pub struct QualityLimits {
     pub double_hit_fraction: f64,
     /// Largest in-band drop of the force auto-spectrum, dB, before the tip is called too soft.
     pub rolloff_db: f64,
-    /// A hit whose FRF correlates (FRAC) below this with the station's other hits is an outlier.
-    pub outlier_min_frac: f64,
-    /// …or whose median log-magnitude deviation from the others exceeds this many dB.
-    pub outlier_max_db: f64,
+    /// A hit is an outlier when more than this fraction of its response energy is not explained
+    /// by the FRF of the station's other hits (and it stands clearly apart from them).
+    pub outlier_max_residual: f64,
 }
 
 impl Default for QualityLimits {
@@ -166,8 +165,7 @@ impl Default for QualityLimits {
             weak_fraction: 0.10,
             double_hit_fraction: 0.10,
             rolloff_db: 20.0,
-            outlier_min_frac: 0.90,
-            outlier_max_db: 3.0,
+            outlier_max_residual: 0.10,
         }
     }
 }
@@ -286,7 +284,9 @@ impl Setup {
         }
         let e = self.windows.exponential_end;
         if !(e > 0.0 && e <= 1.0) {
-            return Err(format!("exponential window end value {e} must be in (0, 1]"));
+            return Err(format!(
+                "exponential window end value {e} must be in (0, 1]"
+            ));
         }
         if let Some([lo, hi]) = self.band_hz
             && !(lo >= 0.0 && hi > lo && hi.is_finite())
@@ -300,7 +300,10 @@ impl Setup {
             ));
         }
         if !(self.spacing_m.is_finite() && self.spacing_m > 0.0) {
-            return Err(format!("station spacing {} m must be positive", self.spacing_m));
+            return Err(format!(
+                "station spacing {} m must be positive",
+                self.spacing_m
+            ));
         }
         Ok(())
     }

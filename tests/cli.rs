@@ -1,5 +1,7 @@
 //! The command line on the real binary, over small generated sets.
 
+#![allow(clippy::unwrap_used, clippy::expect_used)]
+
 use std::path::{Path, PathBuf};
 
 use assert_cmd::Command;
@@ -38,7 +40,14 @@ fn analyze_writes_frf_csv_and_result_json() {
     small(Layout::Hammer, &set);
     let out = t.path().join("out");
     bin()
-        .args(["analyze", set.to_str().unwrap(), "--out", out.to_str().unwrap(), "--band", "10:3000"])
+        .args([
+            "analyze",
+            set.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--band",
+            "10:3000",
+        ])
         .args(["--sensitivity", "2.25mV/N,1.02mV/(m/s^2)"])
         .assert()
         .success()
@@ -48,7 +57,12 @@ fn analyze_writes_frf_csv_and_result_json() {
     assert_eq!(hits.len(), 12);
     for h in hits {
         let (s, i) = (h["station"].as_u64().unwrap(), h["index"].as_u64().unwrap());
-        let reasons: Vec<&str> = h["reasons"].as_array().unwrap().iter().map(|x| x.as_str().unwrap()).collect();
+        let reasons: Vec<&str> = h["reasons"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_str().unwrap())
+            .collect();
         match (s, i) {
             (2, 1) => assert_eq!(reasons, ["double_hit"]),
             (3, 0) => assert!(reasons.contains(&"overload")),
@@ -65,12 +79,20 @@ fn analyze_writes_frf_csv_and_result_json() {
 
     let csv = std::fs::read_to_string(out.join("frf.csv")).unwrap();
     let mut lines = csv.lines();
-    assert_eq!(lines.next().unwrap(), "station,frequency_hz,h_re,h_im,coherence");
-    let rows: Vec<Vec<f64>> = lines.map(|l| l.split(',').map(|x| x.parse().unwrap()).collect()).collect();
+    assert_eq!(
+        lines.next().unwrap(),
+        "station,frequency_hz,h_re,h_im,coherence"
+    );
+    let rows: Vec<Vec<f64>> = lines
+        .map(|l| l.split(',').map(|x| x.parse().unwrap()).collect())
+        .collect();
     let df = r["settings"]["frequency_resolution_hz"].as_f64().unwrap();
     let per_station = ((3000.0 / df).floor() - (10.0 / df).ceil() + 1.0) as usize;
     assert_eq!(rows.len(), 4 * per_station);
-    assert!(rows.iter().all(|r| r[1] >= 10.0 && r[1] <= 3000.0 && (0.0..=1.0).contains(&r[4])));
+    assert!(
+        rows.iter()
+            .all(|r| r[1] >= 10.0 && r[1] <= 3000.0 && (0.0..=1.0).contains(&r[4]))
+    );
 
     // Driving point (station 1 is the reference): |H| peaks at the truth's flexible modes, within
     // two lines, and Im H > 0 there (Ewins 2000 sign convention).
@@ -82,8 +104,15 @@ fn analyze_writes_frf_csv_and_result_json() {
             continue;
         }
         let near: Vec<&&Vec<f64>> = st1.iter().filter(|r| (r[1] - f).abs() < 0.02 * f).collect();
-        let peak = near.iter().max_by(|a, b| a[2].hypot(a[3]).total_cmp(&b[2].hypot(b[3]))).unwrap();
-        assert!((peak[1] - f).abs() <= 2.0 * df, "peak at {} for mode {f}", peak[1]);
+        let peak = near
+            .iter()
+            .max_by(|a, b| a[2].hypot(a[3]).total_cmp(&b[2].hypot(b[3])))
+            .unwrap();
+        assert!(
+            (peak[1] - f).abs() <= 2.0 * df,
+            "peak at {} for mode {f}",
+            peak[1]
+        );
         assert!(peak[3] > 0.0, "Im A at {f} Hz");
     }
 }
@@ -96,15 +125,33 @@ fn sensitivities_scale_the_frf() {
     small(Layout::Hammer, &set);
     let run = |extra: &[&str], out: &str| {
         let o = t.path().join(out);
-        bin().args(["analyze", set.to_str().unwrap(), "--out", o.to_str().unwrap(), "--band", "100:200"]).args(extra).assert().success();
+        bin()
+            .args([
+                "analyze",
+                set.to_str().unwrap(),
+                "--out",
+                o.to_str().unwrap(),
+                "--band",
+                "100:200",
+            ])
+            .args(extra)
+            .assert()
+            .success();
         let csv = std::fs::read_to_string(o.join("frf.csv")).unwrap();
-        csv.lines().skip(1).map(|l| l.split(',').nth(2).unwrap().parse::<f64>().unwrap()).collect::<Vec<f64>>()
+        csv.lines()
+            .skip(1)
+            .map(|l| l.split(',').nth(2).unwrap().parse::<f64>().unwrap())
+            .collect::<Vec<f64>>()
     };
     let plain = run(&[], "o1");
     let units = run(&["--sensitivity", "2.25mV/N,100mV/g"], "o2");
     let k = 2.25 / (100.0 / 9.80665);
     for (p, u) in plain.iter().zip(&units) {
-        assert!((u - p * k).abs() <= 1e-6 * p.abs().max(1e-12), "{u} vs {}", p * k);
+        assert!(
+            (u - p * k).abs() <= 1e-6 * p.abs().max(1e-12),
+            "{u} vs {}",
+            p * k
+        );
     }
 }
 
@@ -115,7 +162,16 @@ fn sensor_layout_gives_unit_transmissibility_at_the_reference() {
     small(Layout::Sensor, &set);
     let out = t.path().join("out");
     bin()
-        .args(["analyze", set.to_str().unwrap(), "--out", out.to_str().unwrap(), "--layout", "sensor", "--band", "100:3000"])
+        .args([
+            "analyze",
+            set.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--layout",
+            "sensor",
+            "--band",
+            "100:3000",
+        ])
         .assert()
         .success();
     let csv = std::fs::read_to_string(out.join("frf.csv")).unwrap();
@@ -123,7 +179,10 @@ fn sensor_layout_gives_unit_transmissibility_at_the_reference() {
         let v: Vec<f64> = l.split(',').map(|x| x.parse().unwrap()).collect();
         // Roving sensor on the reference station: T = 1 and γ² = 1 (field notes §4).
         // Independent noise on the channels (30 µV) leaves a few per cent at quiet lines.
-        assert!((v[2] - 1.0).abs() < 0.05 && v[3].abs() < 0.05 && v[4] > 0.99, "{l}");
+        assert!(
+            (v[2] - 1.0).abs() < 0.05 && v[3].abs() < 0.05 && v[4] > 0.99,
+            "{l}"
+        );
     }
     let r = read_json(out.join("result.json"));
     assert_eq!(r["settings"]["frf_quantity"], "transmissibility");
@@ -136,7 +195,16 @@ fn import_override_and_reanalyse_a_session() {
     small(Layout::Hammer, &set);
     let ses = t.path().join("session");
     bin()
-        .args(["import", set.to_str().unwrap(), "--session", ses.to_str().unwrap(), "--band", "10:3000", "--part", "test shaft"])
+        .args([
+            "import",
+            set.to_str().unwrap(),
+            "--session",
+            ses.to_str().unwrap(),
+            "--band",
+            "10:3000",
+            "--part",
+            "test shaft",
+        ])
         .assert()
         .success();
     // Raw recordings are byte-for-byte copies.
@@ -149,19 +217,63 @@ fn import_override_and_reanalyse_a_session() {
     assert_eq!(m["schema_version"], 1);
     assert_eq!(m["hits"].as_array().unwrap().len(), 12);
     // Keep the double hit by a person's decision.
-    bin().args(["verdict", ses.to_str().unwrap(), "--station", "2", "--hit", "1", "--set", "accept"]).assert().success();
+    bin()
+        .args([
+            "verdict",
+            ses.to_str().unwrap(),
+            "--station",
+            "2",
+            "--hit",
+            "1",
+            "--set",
+            "accept",
+        ])
+        .assert()
+        .success();
     let out = t.path().join("out");
-    bin().args(["analyze", ses.to_str().unwrap(), "--out", out.to_str().unwrap()]).assert().success();
+    bin()
+        .args([
+            "analyze",
+            ses.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .assert()
+        .success();
     let r = read_json(out.join("result.json"));
-    let h = r["hits"].as_array().unwrap().iter().find(|h| h["station"] == 2 && h["index"] == 1).unwrap().clone();
+    let h = r["hits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|h| h["station"] == 2 && h["index"] == 1)
+        .unwrap()
+        .clone();
     assert_eq!(h["accepted"], true);
     assert_eq!(h["overridden"], true);
     assert_eq!(h["reasons"][0], "double_hit");
     assert_eq!(r["stations"][1]["accepted_hits"], 3);
     // And back to automatic.
-    bin().args(["verdict", ses.to_str().unwrap(), "--station", "2", "--hit", "1", "--set", "auto"]).assert().success();
+    bin()
+        .args([
+            "verdict",
+            ses.to_str().unwrap(),
+            "--station",
+            "2",
+            "--hit",
+            "1",
+            "--set",
+            "auto",
+        ])
+        .assert()
+        .success();
     let m = read_json(ses.join("session.json"));
-    let h = m["hits"].as_array().unwrap().iter().find(|h| h["station"] == 2 && h["index"] == 1).unwrap().clone();
+    let h = m["hits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|h| h["station"] == 2 && h["index"] == 1)
+        .unwrap()
+        .clone();
     assert_eq!(h["accepted"], false);
     assert!(h["override"].is_null());
 }
@@ -171,9 +283,25 @@ fn simulate_command_writes_a_set() {
     let t = tempfile::tempdir().unwrap();
     let out = t.path().join("sim");
     bin()
-        .args(["simulate", "--out", out.to_str().unwrap(), "--stations", "3", "--hits", "2", "--fs", "8000", "--encoding", "float32"])
+        .args([
+            "simulate",
+            "--out",
+            out.to_str().unwrap(),
+            "--stations",
+            "3",
+            "--hits",
+            "2",
+            "--fs",
+            "8000",
+            "--encoding",
+            "float32",
+        ])
         .assert()
         .success()
         .stdout(predicate::str::contains("Hz"));
-    assert!(out.join("station-03.wav").is_file() && out.join("truth.json").is_file() && out.join("stations.csv").is_file());
+    assert!(
+        out.join("station-03.wav").is_file()
+            && out.join("truth.json").is_file()
+            && out.join("stations.csv").is_file()
+    );
 }

@@ -1,5 +1,7 @@
 //! Bad input: each case exits with code 2 and one clear message naming the file, never a panic.
 
+#![allow(clippy::unwrap_used, clippy::expect_used)]
+
 use std::path::Path;
 
 use assert_cmd::Command;
@@ -16,7 +18,9 @@ fn pulse_train(fs: u32, seconds: f64) -> (Vec<f64>, Vec<f64>) {
         }
         for k in 0..(fs as usize / 2) {
             let t = k as f64 / fs as f64;
-            b[i0 + k] += 0.2 * (-(20.0 + h as f64) * t).exp() * (2.0 * std::f64::consts::PI * 300.0 * t).sin();
+            b[i0 + k] += 0.2
+                * (-(20.0 + h as f64) * t).exp()
+                * (2.0 * std::f64::consts::PI * 300.0 * t).sin();
         }
     }
     (a, b)
@@ -28,7 +32,12 @@ fn good_wav(path: &Path, fs: u32) {
 }
 
 fn hound_wav(path: &Path, channels: u16, bits: u16, fs: u32) {
-    let spec = hound::WavSpec { channels, sample_rate: fs, bits_per_sample: bits, sample_format: hound::SampleFormat::Int };
+    let spec = hound::WavSpec {
+        channels,
+        sample_rate: fs,
+        bits_per_sample: bits,
+        sample_format: hound::SampleFormat::Int,
+    };
     let mut w = hound::WavWriter::create(path, spec).unwrap();
     for i in 0..fs {
         for _ in 0..channels {
@@ -44,16 +53,27 @@ fn hound_wav(path: &Path, channels: u16, bits: u16, fs: u32) {
 
 /// Runs `analyze` and checks: exit 2, the message names `names` and says `says`, no panic.
 fn fails(dir: &Path, extra: &[&str], names: &str, says: &str) {
-    let out = dir.parent().unwrap().join(format!("{}-out", dir.file_name().unwrap().to_string_lossy()));
+    let out = dir.parent().unwrap().join(format!(
+        "{}-out",
+        dir.file_name().unwrap().to_string_lossy()
+    ));
     let a = Command::cargo_bin("tapgrid")
         .unwrap()
-        .args(["analyze", dir.to_str().unwrap(), "--out", out.to_str().unwrap()])
+        .args([
+            "analyze",
+            dir.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ])
         .args(extra)
         .assert()
         .code(2);
     let err = String::from_utf8_lossy(&a.get_output().stderr).to_string();
     assert!(err.contains(names), "message {err:?} should name {names:?}");
-    assert!(err.to_lowercase().contains(&says.to_lowercase()), "message {err:?} should say {says:?}");
+    assert!(
+        err.to_lowercase().contains(&says.to_lowercase()),
+        "message {err:?} should say {says:?}"
+    );
     assert!(!err.contains("panicked"), "{err}");
     assert_eq!(err.trim().lines().count(), 1, "one line: {err:?}");
 }
@@ -70,7 +90,16 @@ fn a_good_set_passes() {
     let d = case(&t, "good");
     good_wav(&d.join("st1.wav"), 8000);
     good_wav(&d.join("st2.wav"), 8000);
-    Command::cargo_bin("tapgrid").unwrap().args(["analyze", d.to_str().unwrap(), "--out", t.path().join("o").to_str().unwrap()]).assert().success();
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args([
+            "analyze",
+            d.to_str().unwrap(),
+            "--out",
+            t.path().join("o").to_str().unwrap(),
+        ])
+        .assert()
+        .success();
 }
 
 #[test]
@@ -154,7 +183,13 @@ fn file_with_no_hit() {
     let t = tempfile::tempdir().unwrap();
     let d = case(&t, "nohit");
     let quiet = vec![1e-4; 16000];
-    write_channels(&d.join("p1.wav"), 8000, SampleEncoding::Int16, &[&quiet, &quiet]).unwrap();
+    write_channels(
+        &d.join("p1.wav"),
+        8000,
+        SampleEncoding::Int16,
+        &[&quiet, &quiet],
+    )
+    .unwrap();
     fails(&d, &[], "p1.wav", "no hit");
 }
 
@@ -163,7 +198,12 @@ fn nan_and_infinity_in_float_wav() {
     let t = tempfile::tempdir().unwrap();
     for (name, bad) in [("nan", f32::NAN), ("inf", f32::INFINITY)] {
         let d = case(&t, name);
-        let spec = hound::WavSpec { channels: 2, sample_rate: 8000, bits_per_sample: 32, sample_format: hound::SampleFormat::Float };
+        let spec = hound::WavSpec {
+            channels: 2,
+            sample_rate: 8000,
+            bits_per_sample: 32,
+            sample_format: hound::SampleFormat::Float,
+        };
         let mut w = hound::WavWriter::create(d.join("p1.wav"), spec).unwrap();
         for i in 0..16000 {
             w.write_sample(if i == 777 { bad } else { 0.0f32 }).unwrap();
@@ -185,11 +225,19 @@ fn unwritable_output_folder() {
     let out = blocker.join("out");
     let a = Command::cargo_bin("tapgrid")
         .unwrap()
-        .args(["analyze", d.to_str().unwrap(), "--out", out.to_str().unwrap()])
+        .args([
+            "analyze",
+            d.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ])
         .assert()
         .code(2);
     let err = String::from_utf8_lossy(&a.get_output().stderr).to_string();
-    assert!(err.contains("blocker") && err.contains("cannot create output folder"), "{err}");
+    assert!(
+        err.contains("blocker") && err.contains("cannot create output folder"),
+        "{err}"
+    );
 }
 
 #[test]
@@ -197,11 +245,20 @@ fn bad_options_and_sessions() {
     let t = tempfile::tempdir().unwrap();
     let d = case(&t, "opts");
     good_wav(&d.join("p1.wav"), 8000);
-    fails(&d, &["--sensitivity", "2.25mV/g,10"], "--sensitivity A", "measures N");
+    fails(
+        &d,
+        &["--sensitivity", "2.25mV/g,10"],
+        "--sensitivity A",
+        "measures N",
+    );
     fails(&d, &["--band", "500:100"], "band", "low < high");
     // A manifest from a newer schema is refused with a reason.
     let s = case(&t, "newer");
-    std::fs::write(s.join("session.json"), r#"{"format":"tapgrid-session","schema_version":99}"#).unwrap();
+    std::fs::write(
+        s.join("session.json"),
+        r#"{"format":"tapgrid-session","schema_version":99}"#,
+    )
+    .unwrap();
     fails(&s, &[], "session.json", "newer");
     let s = case(&t, "notjson");
     std::fs::write(s.join("session.json"), "{").unwrap();

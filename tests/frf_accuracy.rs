@@ -2,6 +2,8 @@
 //! force and exponential windows on. The exponential window's effect is the Laplace shift
 //! theorem (field notes §1): the windowed records' FRF is s'²α(s') with s' = jω + 1/τ.
 
+#![allow(clippy::unwrap_used, clippy::expect_used)]
+
 mod common;
 
 use std::collections::BTreeMap;
@@ -19,8 +21,14 @@ const TAU: f64 = 2.0 * std::f64::consts::PI;
 
 fn setup_for(rig: &tapgrid::sim::Rig, band: [f64; 2]) -> Setup {
     Setup {
-        channel_a: Channel { index: 0, sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_a_mv) },
-        channel_b: Channel { index: 1, sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_b_mv) },
+        channel_a: Channel {
+            index: 0,
+            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_a_mv),
+        },
+        channel_b: Channel {
+            index: 1,
+            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_b_mv),
+        },
         full_scale_volts: rig.full_scale_volts,
         band_hz: Some(band),
         ..Setup::default()
@@ -33,21 +41,42 @@ fn away_from_antiresonances(f: &[f64], mag: &[f64]) -> Vec<bool> {
         .filter(|&i| mag[i] < mag[i - 1] && mag[i] < mag[i + 1])
         .map(|i| f[i])
         .collect();
-    f.iter().map(|&x| mins.iter().all(|&m| (x - m).abs() > 0.05 * m)).collect()
+    f.iter()
+        .map(|&x| mins.iter().all(|&m| (x - m).abs() > 0.05 * m))
+        .collect()
 }
 
 fn check(model: &MatrixModel, resp: usize, force: usize, fs: u32, band: [f64; 2]) -> (f64, f64) {
     // A 24-bit-grade chain (10 nV noise): the test is of the windows and estimators, not of noise.
-    let rig = tapgrid::sim::Rig { noise_volts: [1e-8, 1e-8], ..clean_rig(fs) };
+    let rig = tapgrid::sim::Rig {
+        noise_volts: [1e-8, 1e-8],
+        ..clean_rig(fs)
+    };
     // Hits 4 s apart: the slowest mode (σ = 2.5 /s) has rung down to 5e-5 before the next record.
     let imp = impacts(3, 0.2, 4.0, 200.0, 2e-4);
-    let (a, b) = synthesize(model, Pickup::ForceAndResponse { response: resp }, force, &imp, 12.2, &rig, &mut Rng::new(7));
+    let (a, b) = synthesize(
+        model,
+        Pickup::ForceAndResponse { response: resp },
+        force,
+        &imp,
+        12.2,
+        &rig,
+        &mut Rng::new(7),
+    );
     let setup = setup_for(&rig, band);
     let r = analyze_station(&a, &b, fs, &setup, &BTreeMap::new(), &mut None).unwrap();
-    assert_eq!(r.hits.iter().filter(|h| h.accepted).count(), 3, "{:?}", r.hits);
+    assert_eq!(
+        r.hits.iter().filter(|h| h.accepted).count(),
+        3,
+        "{:?}",
+        r.hits
+    );
     let frf = r.frf.unwrap();
-    let exp: Vec<Complex64> =
-        frf.freq_hz.iter().map(|&f| model.windowed_accelerance(resp, force, TAU * f, r.exp_tau_s)).collect();
+    let exp: Vec<Complex64> = frf
+        .freq_hz
+        .iter()
+        .map(|&f| model.windowed_accelerance(resp, force, TAU * f, r.exp_tau_s))
+        .collect();
     let mags: Vec<f64> = exp.iter().map(|c| c.norm()).collect();
     let keep = away_from_antiresonances(&frf.freq_hz, &mags);
     let (mut worst_db, mut worst_deg) = (0.0f64, 0.0f64);
@@ -92,7 +121,10 @@ fn three_dof_driving_point_and_transfer_within_half_db_and_two_degrees() {
         // above it a transfer accelerance sits > 45 dB below its peaks, where the leakage of the
         // record's residual ringing (1 % exponential end value) reaches a degree of phase.
         let (db, deg) = check(&model, r, f, 16384, [20.0, 1400.0]);
-        assert!(db < 0.5 && deg < 2.0, "H({r},{f}) worst {db:.3} dB, {deg:.3}°");
+        assert!(
+            db < 0.5 && deg < 2.0,
+            "H({r},{f}) worst {db:.3} dB, {deg:.3}°"
+        );
     }
 }
 
@@ -102,8 +134,24 @@ fn driving_point_accelerance_has_positive_imaginary_part_at_resonances() {
     let model = three_dof();
     let rig = clean_rig(16384);
     let imp = impacts(3, 0.2, 2.0, 200.0, 2e-4);
-    let (a, b) = synthesize(&model, Pickup::ForceAndResponse { response: 1 }, 1, &imp, 6.2, &rig, &mut Rng::new(3));
-    let r = analyze_station(&a, &b, 16384, &setup_for(&rig, [20.0, 3000.0]), &BTreeMap::new(), &mut None).unwrap();
+    let (a, b) = synthesize(
+        &model,
+        Pickup::ForceAndResponse { response: 1 },
+        1,
+        &imp,
+        6.2,
+        &rig,
+        &mut Rng::new(3),
+    );
+    let r = analyze_station(
+        &a,
+        &b,
+        16384,
+        &setup_for(&rig, [20.0, 3000.0]),
+        &BTreeMap::new(),
+        &mut None,
+    )
+    .unwrap();
     let frf = r.frf.unwrap();
     // Undamped natural frequencies from the generalized eigenproblem (nalgebra).
     let l = model.m.clone().cholesky().unwrap();
@@ -113,8 +161,16 @@ fn driving_point_accelerance_has_positive_imaginary_part_at_resonances() {
     for w2 in eig.eigenvalues.iter() {
         let f = w2.sqrt() / TAU;
         let i = frf.freq_hz.iter().position(|&x| x >= f).unwrap();
-        let pick = if (frf.freq_hz[i] - f).abs() < (frf.freq_hz[i - 1] - f).abs() { i } else { i - 1 };
-        assert!(frf.h[pick].im > 0.0, "Im A at {f:.1} Hz is {}", frf.h[pick].im);
+        let pick = if (frf.freq_hz[i] - f).abs() < (frf.freq_hz[i - 1] - f).abs() {
+            i
+        } else {
+            i - 1
+        };
+        assert!(
+            frf.h[pick].im > 0.0,
+            "Im A at {f:.1} Hz is {}",
+            frf.h[pick].im
+        );
     }
 }
 
@@ -127,7 +183,15 @@ fn exponential_window_shifts_the_pole_by_one_over_tau_and_correction_undoes_it()
     let rig = clean_rig(16384);
     let imp = impacts(2, 0.2, 2.5, 200.0, 2e-4);
     let (a, b) = record(&model, &imp, 5.2, &rig, 11);
-    let r = analyze_station(&a, &b, 16384, &setup_for(&rig, [50.0, 600.0]), &BTreeMap::new(), &mut None).unwrap();
+    let r = analyze_station(
+        &a,
+        &b,
+        16384,
+        &setup_for(&rig, [50.0, 600.0]),
+        &BTreeMap::new(),
+        &mut None,
+    )
+    .unwrap();
     let tau = r.exp_tau_s;
     let frf = r.frf.unwrap();
     let wn = TAU * fnat;
@@ -136,7 +200,11 @@ fn exponential_window_shifts_the_pole_by_one_over_tau_and_correction_undoes_it()
     let (f_w, z_w) = (lam_w.norm() / TAU, -lam_w.re / lam_w.norm());
     // The measured FRF peaks as the shifted pole predicts: half-power width matches ζ'.
     let mags: Vec<f64> = frf.h.iter().map(|c| c.norm()).collect();
-    let (ip, &pk) = mags.iter().enumerate().max_by(|a, b| a.1.total_cmp(b.1)).unwrap();
+    let (ip, &pk) = mags
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1.total_cmp(b.1))
+        .unwrap();
     let half = pk / 2f64.sqrt();
     let interp = |i0: usize, i1: usize| {
         let (f0, f1, m0, m1) = (frf.freq_hz[i0], frf.freq_hz[i1], mags[i0], mags[i1]);
@@ -152,8 +220,14 @@ fn exponential_window_shifts_the_pole_by_one_over_tau_and_correction_undoes_it()
     }
     let (f1, f2) = (interp(lo, lo + 1), interp(hi - 1, hi));
     let zeta_half_power = (f2 - f1) / (2.0 * fnat);
-    assert!((zeta_half_power / z_w - 1.0).abs() < 0.05, "half-power ζ {zeta_half_power} vs shifted {z_w}");
+    assert!(
+        (zeta_half_power / z_w - 1.0).abs() < 0.05,
+        "half-power ζ {zeta_half_power} vs shifted {z_w}"
+    );
     assert!(z_w > 2.0 * zeta, "the window must add visible damping here");
     let (f_back, z_back) = correct_damping(f_w, z_w, tau);
-    assert!((f_back / fnat - 1.0).abs() < 1e-12 && (z_back / zeta - 1.0).abs() < 1e-9, "{f_back} {z_back}");
+    assert!(
+        (f_back / fnat - 1.0).abs() < 1e-12 && (z_back / zeta - 1.0).abs() < 1e-9,
+        "{f_back} {z_back}"
+    );
 }

@@ -1,13 +1,19 @@
 //! H1, H2 and coherence against SciPy (scipy.signal.welch / csd / coherence) on the same records.
 //! Fixture written by scripts/make_scipy_fixtures.py; the SciPy version is recorded inside it.
 
+#![allow(clippy::unwrap_used, clippy::expect_used)]
+
 use serde_json::Value;
 use tapgrid::Complex64;
 use tapgrid::setup::Estimator;
 use tapgrid::signal::{CrossSpectra, SpectrumPlan};
 
 fn col(v: &Value, k: &str) -> Vec<f64> {
-    v[k].as_array().unwrap().iter().map(|x| x.as_f64().unwrap()).collect()
+    v[k].as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_f64().unwrap())
+        .collect()
 }
 
 fn rel(a: Complex64, b: Complex64) -> f64 {
@@ -16,7 +22,11 @@ fn rel(a: Complex64, b: Complex64) -> f64 {
 
 #[test]
 fn h1_h2_coherence_match_scipy_to_1e9() {
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/fixtures/scipy_frf.json")).unwrap();
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/scipy_frf.json"
+    ))
+    .unwrap();
     let v: Value = serde_json::from_str(&text).unwrap();
     let n = v["n"].as_u64().unwrap() as usize;
     let fs = v["fs"].as_f64().unwrap();
@@ -28,7 +38,13 @@ fn h1_h2_coherence_match_scipy_to_1e9() {
         v[k].as_array()
             .unwrap()
             .iter()
-            .map(|r| r.as_array().unwrap().iter().map(|x| x.as_f64().unwrap()).collect())
+            .map(|r| {
+                r.as_array()
+                    .unwrap()
+                    .iter()
+                    .map(|x| x.as_f64().unwrap())
+                    .collect()
+            })
             .collect()
     };
     for (a, b) in recs("a").iter().zip(recs("b").iter()) {
@@ -39,7 +55,13 @@ fn h1_h2_coherence_match_scipy_to_1e9() {
     let h1 = sums.estimate(Estimator::H1);
     let h2 = sums.estimate(Estimator::H2);
     let coh = sums.coherence();
-    let (h1r, h1i, h2r, h2i, c) = (col(&v, "h1_re"), col(&v, "h1_im"), col(&v, "h2_re"), col(&v, "h2_im"), col(&v, "coherence"));
+    let (h1r, h1i, h2r, h2i, c) = (
+        col(&v, "h1_re"),
+        col(&v, "h1_im"),
+        col(&v, "h2_re"),
+        col(&v, "h2_im"),
+        col(&v, "coherence"),
+    );
     let f = col(&v, "frequency_hz");
     let mut worst = 0.0f64;
     // DC and Nyquist lines of a zero-mean boxcar record are near zero in both tools; skip them.

@@ -1,6 +1,8 @@
 //! WAV round trips for the four accepted encodings, plain and extensible headers, and channel
 //! mapping in 4-channel files (RIFF/WAVE as specified by Microsoft's multimedia docs; hound decodes).
 
+#![allow(clippy::unwrap_used, clippy::expect_used)]
+
 use std::io::Write;
 
 use tapgrid::acquire::wav::{SampleEncoding, read_two_channels, write_channels};
@@ -8,7 +10,9 @@ use tapgrid::acquire::wav::{SampleEncoding, read_two_channels, write_channels};
 fn ramp(n: usize, bits: u32, k: i64) -> Vec<f64> {
     // Values exactly representable in `bits`: integers / 2^(bits-1).
     let full = (1i64 << (bits - 1)) as f64;
-    (0..n as i64).map(|i| (((i * k) % (2 * full as i64 - 1)) - (full as i64 - 1)) as f64 / full).collect()
+    (0..n as i64)
+        .map(|i| (((i * k) % (2 * full as i64 - 1)) - (full as i64 - 1)) as f64 / full)
+        .collect()
 }
 
 #[test]
@@ -35,7 +39,9 @@ fn round_trip_all_encodings() {
 #[test]
 fn four_channel_mapping() {
     let dir = tempfile::tempdir().unwrap();
-    let chans: Vec<Vec<f64>> = (0..4).map(|c| vec![(c as f64 + 1.0) * 0.125; 100]).collect();
+    let chans: Vec<Vec<f64>> = (0..4)
+        .map(|c| vec![(c as f64 + 1.0) * 0.125; 100])
+        .collect();
     let refs: Vec<&[f64]> = chans.iter().map(|c| c.as_slice()).collect();
     let p = dir.path().join("four.wav");
     write_channels(&p, 48_000, SampleEncoding::Int24, &refs).unwrap();
@@ -64,7 +70,13 @@ fn hand_wav(path: &std::path::Path, bits: u16, float: bool, extensible: bool, fr
         }
     }
     let mut fmt = Vec::new();
-    let tag: u16 = if extensible { 0xFFFE } else if float { 3 } else { 1 };
+    let tag: u16 = if extensible {
+        0xFFFE
+    } else if float {
+        3
+    } else {
+        1
+    };
     fmt.extend_from_slice(&tag.to_le_bytes());
     fmt.extend_from_slice(&ch.to_le_bytes());
     fmt.extend_from_slice(&48_000u32.to_le_bytes());
@@ -77,7 +89,9 @@ fn hand_wav(path: &std::path::Path, bits: u16, float: bool, extensible: bool, fr
         fmt.extend_from_slice(&3u32.to_le_bytes()); // front left | front right
         let sub: u16 = if float { 3 } else { 1 };
         fmt.extend_from_slice(&sub.to_le_bytes());
-        fmt.extend_from_slice(&[0x00, 0x00, 0x00, 0x00, 0x10, 0x00, 0x80, 0x00, 0x00, 0xAA, 0x00, 0x38, 0x9B, 0x71]);
+        fmt.extend_from_slice(&[
+            0x00, 0x00, 0x00, 0x00, 0x10, 0x00, 0x80, 0x00, 0x00, 0xAA, 0x00, 0x38, 0x9B, 0x71,
+        ]);
     }
     let mut out = Vec::new();
     out.extend_from_slice(b"RIFF");
@@ -88,7 +102,10 @@ fn hand_wav(path: &std::path::Path, bits: u16, float: bool, extensible: bool, fr
     out.extend_from_slice(b"data");
     out.extend_from_slice(&(data.len() as u32).to_le_bytes());
     out.extend_from_slice(&data);
-    std::fs::File::create(path).unwrap().write_all(&out).unwrap();
+    std::fs::File::create(path)
+        .unwrap()
+        .write_all(&out)
+        .unwrap();
 }
 
 #[test]
@@ -96,22 +113,35 @@ fn plain_and_extensible_headers_decode_alike() {
     let dir = tempfile::tempdir().unwrap();
     let frames = [[1000i64, -2000], [-4_194_304, 4_194_303], [0, 1]];
     for bits in [16u16, 24, 32] {
-        let fr: Vec<[i64; 2]> = frames.iter().map(|f| [f[0] >> (24 - bits.min(24)), f[1] >> (24 - bits.min(24))]).collect();
+        let fr: Vec<[i64; 2]> = frames
+            .iter()
+            .map(|f| [f[0] >> (24 - bits.min(24)), f[1] >> (24 - bits.min(24))])
+            .collect();
         let p1 = dir.path().join(format!("plain{bits}.wav"));
         let p2 = dir.path().join(format!("ext{bits}.wav"));
         hand_wav(&p1, bits, false, false, &fr);
         hand_wav(&p2, bits, false, true, &fr);
-        let (r1, r2) = (read_two_channels(&p1, 0, 1).unwrap(), read_two_channels(&p2, 0, 1).unwrap());
+        let (r1, r2) = (
+            read_two_channels(&p1, 0, 1).unwrap(),
+            read_two_channels(&p2, 0, 1).unwrap(),
+        );
         assert_eq!(r1.a, r2.a);
         assert_eq!(r1.b, r2.b);
         let full = (1i64 << (bits - 1)) as f64;
-        assert_eq!(r1.a[0], fr[0][0] as f64 / full, "{bits}-bit scaling to full scale");
+        assert_eq!(
+            r1.a[0],
+            fr[0][0] as f64 / full,
+            "{bits}-bit scaling to full scale"
+        );
     }
     let p1 = dir.path().join("plainf.wav");
     let p2 = dir.path().join("extf.wav");
     hand_wav(&p1, 32, true, false, &[[500, -250]]);
     hand_wav(&p2, 32, true, true, &[[500, -250]]);
-    let (r1, r2) = (read_two_channels(&p1, 0, 1).unwrap(), read_two_channels(&p2, 0, 1).unwrap());
+    let (r1, r2) = (
+        read_two_channels(&p1, 0, 1).unwrap(),
+        read_two_channels(&p2, 0, 1).unwrap(),
+    );
     assert_eq!((r1.a[0], r1.b[0]), (0.5, -0.25));
     assert_eq!((r2.a[0], r2.b[0]), (0.5, -0.25));
 }

@@ -90,10 +90,7 @@ pub fn probe(path: &Path) -> Result<WavInfo, InputError> {
     info_of(path, &r)
 }
 
-fn info_of<R: std::io::Read>(
-    path: &Path,
-    r: &hound::WavReader<R>,
-) -> Result<WavInfo, InputError> {
+fn info_of<R: std::io::Read>(path: &Path, r: &hound::WavReader<R>) -> Result<WavInfo, InputError> {
     let spec = r.spec();
     let encoding = match (spec.sample_format, spec.bits_per_sample) {
         (hound::SampleFormat::Int, 16) => SampleEncoding::Int16,
@@ -174,7 +171,7 @@ pub fn read_two_channels(path: &Path, a: usize, b: usize) -> Result<TwoChannels,
         SampleEncoding::Int32 => decode!(i32, 1.0 / 2_147_483_648.0),
         SampleEncoding::Float32 => decode!(f32, 1.0),
     }
-    if k % nch != 0 {
+    if !k.is_multiple_of(nch) {
         return Err(InputError::new(
             path,
             "the WAV file is truncated: its last frame is incomplete",
@@ -207,7 +204,10 @@ pub fn write_channels(
 ) -> Result<(), InputError> {
     assert!(!channels.is_empty(), "write_channels needs a channel");
     let n = channels[0].len();
-    assert!(channels.iter().all(|c| c.len() == n), "channel lengths differ");
+    assert!(
+        channels.iter().all(|c| c.len() == n),
+        "channel lengths differ"
+    );
     let (bits, fmt) = encoding.spec();
     let spec = hound::WavSpec {
         channels: channels.len() as u16,
@@ -228,7 +228,7 @@ pub fn write_channels(
                         .map_err(map)?,
                     SampleEncoding::Int24 => w
                         .write_sample(
-                            (v * 8_388_608.0).round().clamp(-8_388_608.0, 8_388_607.0) as i32,
+                            (v * 8_388_608.0).round().clamp(-8_388_608.0, 8_388_607.0) as i32
                         )
                         .map_err(map)?,
                     SampleEncoding::Int32 => w

@@ -65,16 +65,30 @@ pub fn station_number(stem: &str) -> Option<u32> {
 pub fn read_stations_csv(path: &Path) -> Result<BTreeMap<u32, f64>, InputError> {
     let text = std::fs::read_to_string(path)
         .map_err(|e| InputError::new(path, format!("cannot read: {e}")))?;
-    let mut lines = text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty());
+    let mut lines = text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.trim().is_empty());
     let header: Vec<String> = match lines.next() {
-        Some((_, h)) => h.split(',').map(|s| s.trim().to_ascii_lowercase()).collect(),
-        None => return Err(InputError::new(path, "is empty; expected header station,position_m")),
+        Some((_, h)) => h
+            .split(',')
+            .map(|s| s.trim().to_ascii_lowercase())
+            .collect(),
+        None => {
+            return Err(InputError::new(
+                path,
+                "is empty; expected header station,position_m",
+            ));
+        }
     };
     let col = |name: &str| header.iter().position(|h| h == name);
     let (Some(ci), Some(pi)) = (col("station"), col("position_m")) else {
         return Err(InputError::new(
             path,
-            format!("header must name columns station and position_m, found {:?}", header.join(",")),
+            format!(
+                "header must name columns station and position_m, found {:?}",
+                header.join(",")
+            ),
         ));
     };
     let mut out = BTreeMap::new();
@@ -82,13 +96,30 @@ pub fn read_stations_csv(path: &Path) -> Result<BTreeMap<u32, f64>, InputError> 
         let cells: Vec<&str> = line.split(',').map(str::trim).collect();
         let get = |i: usize| cells.get(i).copied().unwrap_or("");
         let st: u32 = get(ci).parse().map_err(|_| {
-            InputError::new(path, format!("line {}: station {:?} is not a whole number", n + 1, get(ci)))
+            InputError::new(
+                path,
+                format!(
+                    "line {}: station {:?} is not a whole number",
+                    n + 1,
+                    get(ci)
+                ),
+            )
         })?;
-        let x: f64 = get(pi).parse().ok().filter(|v: &f64| v.is_finite()).ok_or_else(|| {
-            InputError::new(path, format!("line {}: position_m {:?} is not a number", n + 1, get(pi)))
-        })?;
+        let x: f64 = get(pi)
+            .parse()
+            .ok()
+            .filter(|v: &f64| v.is_finite())
+            .ok_or_else(|| {
+                InputError::new(
+                    path,
+                    format!("line {}: position_m {:?} is not a number", n + 1, get(pi)),
+                )
+            })?;
         if out.insert(st, x).is_some() {
-            return Err(InputError::new(path, format!("line {}: station {st} is listed twice", n + 1)));
+            return Err(InputError::new(
+                path,
+                format!("line {}: station {st} is listed twice", n + 1),
+            ));
         }
     }
     Ok(out)
@@ -129,10 +160,17 @@ impl WavSet {
             }
         }
         if by_station.is_empty() {
-            return Err(InputError::new(dir, "holds no .wav files (a WAV set has one WAV file per station)"));
+            return Err(InputError::new(
+                dir,
+                "holds no .wav files (a WAV set has one WAV file per station)",
+            ));
         }
         let csv_path = dir.join("stations.csv");
-        let positions = if csv_path.is_file() { Some(read_stations_csv(&csv_path)?) } else { None };
+        let positions = if csv_path.is_file() {
+            Some(read_stations_csv(&csv_path)?)
+        } else {
+            None
+        };
         let mut stations = Vec::with_capacity(by_station.len());
         let mut rate: Option<(u32, PathBuf)> = None;
         for (st, path) in by_station {
@@ -164,10 +202,20 @@ impl WavSet {
                 },
                 None => (st as f64 * spacing_m, PositionSource::Spacing),
             };
-            stations.push(StationFile { station: st, position_m, position_source, path, info });
+            stations.push(StationFile {
+                station: st,
+                position_m,
+                position_source,
+                path,
+                info,
+            });
         }
         let sample_rate_hz = rate.map(|r| r.0).unwrap_or(0);
-        Ok(Self { dir: dir.to_path_buf(), stations, sample_rate_hz })
+        Ok(Self {
+            dir: dir.to_path_buf(),
+            stations,
+            sample_rate_hz,
+        })
     }
 }
 

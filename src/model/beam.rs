@@ -132,7 +132,10 @@ impl Shaft {
         }
         for (i, s) in self.sections.iter().enumerate() {
             if !(s.length_m.is_finite() && s.length_m > 0.0) {
-                return Err(format!("section {i}: length {} m must be positive", s.length_m));
+                return Err(format!(
+                    "section {i}: length {} m must be positive",
+                    s.length_m
+                ));
             }
             if !(s.outer_diameter_m.is_finite() && s.outer_diameter_m > 0.0) {
                 return Err(format!("section {i}: outer diameter must be positive"));
@@ -147,15 +150,21 @@ impl Shaft {
         let l = self.length_m();
         for (i, s) in self.supports.iter().enumerate() {
             if !(0.0..=l).contains(&s.position_m) {
-                return Err(format!("support {i} at {} m is outside the part (0–{l} m)", s.position_m));
+                return Err(format!(
+                    "support {i} at {} m is outside the part (0–{l} m)",
+                    s.position_m
+                ));
             }
-            if !(s.stiffness_n_per_m >= 0.0) {
+            if s.stiffness_n_per_m.is_nan() || s.stiffness_n_per_m < 0.0 {
                 return Err(format!("support {i}: stiffness must be ≥ 0"));
             }
         }
         for (i, d) in self.discs.iter().enumerate() {
             if !(0.0..=l).contains(&d.position_m) {
-                return Err(format!("disc {i} at {} m is outside the part (0–{l} m)", d.position_m));
+                return Err(format!(
+                    "disc {i} at {} m is outside the part (0–{l} m)",
+                    d.position_m
+                ));
             }
         }
         Ok(())
@@ -224,7 +233,11 @@ impl Shaft {
             mg[(2 * n, 2 * n)] += d.mass_kg;
             mg[(2 * n + 1, 2 * n + 1)] += d.transverse_inertia_kg_m2;
         }
-        Ok(FeModel { nodes_m: nodes, k: kg, m: mg })
+        Ok(FeModel {
+            nodes_m: nodes,
+            k: kg,
+            m: mg,
+        })
     }
 
     fn section_at(&self, x: f64) -> &Section {
@@ -235,7 +248,9 @@ impl Shaft {
                 return s;
             }
         }
-        self.sections.last().expect("validated: at least one section")
+        self.sections
+            .last()
+            .expect("validated: at least one section")
     }
 
     /// Lowest `count` modes, with nodes at `extra_nodes_m` and elements ≤ L/`min_elements`.
@@ -246,8 +261,15 @@ impl Shaft {
         min_elements: usize,
         extra_nodes_m: &[f64],
     ) -> Result<(FeModel, Vec<BeamMode>), String> {
-        let fe = self.assemble(theory, self.length_m() / min_elements.max(1) as f64, extra_nodes_m)?;
-        let modes = fe.solve(count, self.supports.iter().all(|s| s.stiffness_n_per_m == 0.0))?;
+        let fe = self.assemble(
+            theory,
+            self.length_m() / min_elements.max(1) as f64,
+            extra_nodes_m,
+        )?;
+        let modes = fe.solve(
+            count,
+            self.supports.iter().all(|s| s.stiffness_n_per_m == 0.0),
+        )?;
         Ok((fe, modes))
     }
 }
@@ -277,11 +299,16 @@ impl FeModel {
         let mut out = Vec::new();
         for (rank, &i) in order.iter().take(count).enumerate() {
             let y: DVector<f64> = eig.eigenvectors.column(i).into_owned();
-            let phi = lt.solve_upper_triangular(&y).ok_or("singular mass factor")?;
+            let phi = lt
+                .solve_upper_triangular(&y)
+                .ok_or("singular mass factor")?;
             let w2 = eig.eigenvalues[i].max(0.0);
             let mut disp: Vec<f64> = (0..self.nodes_m.len()).map(|n| phi[2 * n]).collect();
             // Sign: make the largest-magnitude displacement positive, so shapes compare stably.
-            let big = disp.iter().copied().fold(0.0f64, |m, v| if v.abs() > m.abs() { v } else { m });
+            let big = disp
+                .iter()
+                .copied()
+                .fold(0.0f64, |m, v| if v.abs() > m.abs() { v } else { m });
             if big < 0.0 {
                 disp.iter_mut().for_each(|v| *v = -*v);
             }
@@ -301,7 +328,12 @@ impl FeModel {
 }
 
 /// Element stiffness and mass (translational + rotary) per field notes §5.
-fn element(s: &Section, mat: Material, le: f64, theory: BeamTheory) -> ([[f64; 4]; 4], [[f64; 4]; 4]) {
+fn element(
+    s: &Section,
+    mat: Material,
+    le: f64,
+    theory: BeamTheory,
+) -> ([[f64; 4]; 4], [[f64; 4]; 4]) {
     let (d, di) = (s.outer_diameter_m, s.inner_diameter_m);
     let area = std::f64::consts::PI / 4.0 * (d * d - di * di);
     let inertia = std::f64::consts::PI / 64.0 * (d.powi(4) - di.powi(4));
@@ -319,9 +351,19 @@ fn element(s: &Section, mat: Material, le: f64, theory: BeamTheory) -> ([[f64; 4
     let c = e * inertia / ((1.0 + phi) * l.powi(3));
     let k = [
         [12.0 * c, 6.0 * l * c, -12.0 * c, 6.0 * l * c],
-        [6.0 * l * c, (4.0 + phi) * l * l * c, -6.0 * l * c, (2.0 - phi) * l * l * c],
+        [
+            6.0 * l * c,
+            (4.0 + phi) * l * l * c,
+            -6.0 * l * c,
+            (2.0 - phi) * l * l * c,
+        ],
         [-12.0 * c, -6.0 * l * c, 12.0 * c, -6.0 * l * c],
-        [6.0 * l * c, (2.0 - phi) * l * l * c, -6.0 * l * c, (4.0 + phi) * l * l * c],
+        [
+            6.0 * l * c,
+            (2.0 - phi) * l * l * c,
+            -6.0 * l * c,
+            (4.0 + phi) * l * l * c,
+        ],
     ];
     let p2 = phi * phi;
     let mt = rho * area * l / (210.0 * (1.0 + phi).powi(2));
@@ -369,7 +411,12 @@ mod tests {
     fn solid(l: f64, d: f64) -> Shaft {
         Shaft {
             material: Material::STEEL,
-            sections: vec![Section { length_m: l, outer_diameter_m: d, inner_diameter_m: 0.0, material: None }],
+            sections: vec![Section {
+                length_m: l,
+                outer_diameter_m: d,
+                inner_diameter_m: 0.0,
+                material: None,
+            }],
             discs: vec![],
             supports: vec![],
         }
@@ -384,10 +431,18 @@ mod tests {
         let (_, ti) = s.modes(BeamTheory::Timoshenko, 5, 80, &[]).unwrap();
         assert!(eb[0].rigid_body && eb[1].rigid_body && !eb[2].rigid_body);
         for (m, want) in eb[2..5].iter().zip([230.2, 634.6, 1244.1]) {
-            assert!((m.frequency_hz / want - 1.0).abs() < 1e-3, "{} vs {want}", m.frequency_hz);
+            assert!(
+                (m.frequency_hz / want - 1.0).abs() < 1e-3,
+                "{} vs {want}",
+                m.frequency_hz
+            );
         }
         for (m, want) in ti[2..5].iter().zip([228.7, 622.9, 1200.9]) {
-            assert!((m.frequency_hz / want - 1.0).abs() < 2e-3, "{} vs {want}", m.frequency_hz);
+            assert!(
+                (m.frequency_hz / want - 1.0).abs() < 2e-3,
+                "{} vs {want}",
+                m.frequency_hz
+            );
         }
     }
 

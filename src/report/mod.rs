@@ -55,7 +55,7 @@ struct HitOut {
     #[serde(skip_serializing_if = "Option::is_none")]
     force_drop_db: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
-    frac: Option<f64>,
+    residual_fraction: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -113,7 +113,7 @@ pub fn result_json(a: &Analysis) -> String {
                     pulse_width_s: h.pulse_width_s,
                     second_impact_s: h.second_impact_s,
                     force_drop_db: h.force_drop_db.filter(|v| v.is_finite()),
-                    frac: h.frac,
+                    residual_fraction: h.residual_fraction,
                 })
             })
             .collect(),
@@ -174,7 +174,10 @@ pub fn summary(a: &Analysis) -> String {
         first.map_or(0.0, |r| r.df_hz),
         a.setup.estimator
     );
-    let _ = writeln!(s, "station  position_m  accepted/hits  min coherence  problems");
+    let _ = writeln!(
+        s,
+        "station  position_m  accepted/hits  min coherence  problems"
+    );
     for st in &a.stations {
         let acc = st.result.hits.iter().filter(|h| h.accepted).count();
         let minc = st

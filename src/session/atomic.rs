@@ -32,7 +32,11 @@ where
         drop(f);
         fs::rename(&tmp, path)?;
         if let Some(dir) = path.parent() {
-            let dir = if dir.as_os_str().is_empty() { Path::new(".") } else { dir };
+            let dir = if dir.as_os_str().is_empty() {
+                Path::new(".")
+            } else {
+                dir
+            };
             // Persist the rename itself; not every platform can open a directory, so best effort.
             if let Ok(d) = File::open(dir) {
                 let _ = d.sync_all();

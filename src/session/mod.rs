@@ -131,7 +131,10 @@ impl Session {
         for r in &manifest.recordings {
             let p = dir.join(&r.file);
             let meta = std::fs::metadata(&p).map_err(|e| {
-                InputError::new(&p, format!("raw recording listed in the manifest is missing: {e}"))
+                InputError::new(
+                    &p,
+                    format!("raw recording listed in the manifest is missing: {e}"),
+                )
             })?;
             if meta.len() != r.bytes {
                 return Err(InputError::new(
@@ -144,8 +147,14 @@ impl Session {
                 ));
             }
         }
-        manifest.setup.validate().map_err(|m| InputError::new(&path, m))?;
-        Ok(Self { dir: dir.to_path_buf(), manifest })
+        manifest
+            .setup
+            .validate()
+            .map_err(|m| InputError::new(&path, m))?;
+        Ok(Self {
+            dir: dir.to_path_buf(),
+            manifest,
+        })
     }
 
     /// Imports a WAV set into a new session folder: copies the recordings into `raw/`
@@ -157,7 +166,10 @@ impl Session {
         part: Part,
     ) -> Result<Self, InputError> {
         if dir.join(MANIFEST).exists() {
-            return Err(InputError::new(dir, "already holds a session; choose a new folder"));
+            return Err(InputError::new(
+                dir,
+                "already holds a session; choose a new folder",
+            ));
         }
         let raw = dir.join("raw");
         std::fs::create_dir_all(&raw)
@@ -245,14 +257,18 @@ impl Session {
 fn migrate(value: serde_json::Value) -> Result<serde_json::Value, String> {
     let format = value.get("format").and_then(|v| v.as_str());
     if format != Some(FORMAT) {
-        return Err(format!("is not a tapgrid session manifest (format {format:?}, expected {FORMAT:?})"));
+        return Err(format!(
+            "is not a tapgrid session manifest (format {format:?}, expected {FORMAT:?})"
+        ));
     }
     match value.get("schema_version").and_then(|v| v.as_u64()) {
         Some(v) if v == SCHEMA_VERSION as u64 => Ok(value),
         Some(v) if v > SCHEMA_VERSION as u64 => Err(format!(
             "was written with session schema {v}, newer than this tapgrid reads ({SCHEMA_VERSION}); update tapgrid"
         )),
-        Some(v) => Err(format!("session schema {v} is not known to this tapgrid (it reads {SCHEMA_VERSION})")),
+        Some(v) => Err(format!(
+            "session schema {v} is not known to this tapgrid (it reads {SCHEMA_VERSION})"
+        )),
         None => Err("has no schema_version".into()),
     }
 }

@@ -42,7 +42,11 @@ impl SpectrumPlan {
     /// # Panics
     /// If `x` is not the planned length (a bug in the caller).
     pub fn lines(&mut self, x: &[f64], dt: f64, lines: std::ops::Range<usize>) -> Vec<Complex64> {
-        assert_eq!(x.len(), self.input.len(), "record length differs from the plan");
+        assert_eq!(
+            x.len(),
+            self.input.len(),
+            "record length differs from the plan"
+        );
         self.input.copy_from_slice(x);
         self.fft
             .process_with_scratch(&mut self.input, &mut self.output, &mut self.scratch)

@@ -126,7 +126,13 @@ pub fn flat_top(x: &[f64]) -> bool {
             let run = i - s;
             // How fast the signal approached the plateau: a clipped wave was moving fast one or
             // two samples before; a smooth, quantised crest creeps up by a quantum or so.
-            let d = |k: usize| if s >= k { (x[s + 1 - k] - x[s - k]).abs() } else { m };
+            let d = |k: usize| {
+                if s >= k {
+                    (x[s + 1 - k] - x[s - k]).abs()
+                } else {
+                    m
+                }
+            };
             let step = d(1).max(d(2));
             if run >= 3 && step >= 0.01 * m {
                 return true;
@@ -151,14 +157,19 @@ mod tests {
         x[600] = 0.5;
         assert_eq!(find_triggers(&x, 0.1, Slope::Rising, 200), vec![100, 600]);
         let neg: Vec<f64> = x.iter().map(|v| -v).collect();
-        assert_eq!(find_triggers(&neg, 0.1, Slope::Falling, 200), vec![100, 600]);
+        assert_eq!(
+            find_triggers(&neg, 0.1, Slope::Falling, 200),
+            vec![100, 600]
+        );
         assert!(find_triggers(&neg, 0.1, Slope::Rising, 200).is_empty());
     }
 
     #[test]
     fn noise_rms_of_gaussian_like_signal() {
         // A uniform distribution on [-a, a] has MAD a/2, so the estimate is 1.4826·a/2 (exact).
-        let x: Vec<f64> = (0..10001).map(|i| (i as f64 / 10000.0) * 2.0 - 1.0).collect();
+        let x: Vec<f64> = (0..10001)
+            .map(|i| (i as f64 / 10000.0) * 2.0 - 1.0)
+            .collect();
         assert!((robust_noise_rms(&x) - 0.7413).abs() < 1e-3);
     }
 

@@ -36,10 +36,8 @@ pub struct HitReport {
     pub second_impact_s: Option<f64>,
     /// Drop of the force auto-spectrum across the band, dB (hammer layout).
     pub force_drop_db: Option<f64>,
-    /// FRAC of this hit's FRF against the station's other hits.
-    pub frac: Option<f64>,
-    /// Median |log-magnitude| deviation from the station's other hits, dB.
-    pub deviation_db: Option<f64>,
+    /// Fraction of this hit's response energy that the station's other hits' FRF does not explain.
+    pub residual_fraction: Option<f64>,
 }
 
 /// Averaged spectra and FRF of a station over its accepted hits.
@@ -152,8 +150,7 @@ pub fn analyze_station(
             pulse_width_s: None,
             second_impact_s: None,
             force_drop_db: None,
-            frac: None,
-            deviation_db: None,
+            residual_fraction: None,
         };
         let Some(start) = trig.checked_sub(pre).filter(|s| s + n <= a.len()) else {
             rep.reasons.push(Reason::Truncated);
@@ -281,11 +278,14 @@ fn baseline(ra: &[f64], rb: &[f64], end: usize) -> (f64, f64) {
     (m(ra), m(rb))
 }
 
-/// Leave-one-out comparison of each candidate hit's FRF with the others' H1. The worst hit is
-/// flagged when it breaks a limit *and* stands clearly apart (3× the others' median badness), so
-/// a uniformly noisy station keeps its hits; repeated while three or more candidates remain.
+/// Leave-one-out comparison of each candidate hit with the station's other hits: the fraction of
+/// the hit's response energy that the others' H1 does not explain, r = Σ|B − H·A|² / Σ|B|².
+/// Weighting by the hit's own spectra keeps lines where channel A is near zero (antiresonances
+/// of a reference, force-spectrum nulls) from dominating. The worst hit is flagged when r exceeds
+/// the limit *and* stands clearly apart (3× the others' median), so a uniformly noisy station keeps
+/// its hits; repeated while three or more candidates remain.
 fn flag_outliers(hits: &mut [HitReport], cands: &[Option<Candidate>], setup: &Setup) {
-    let q = &setup.quality;
+    let limit = setup.quality.outlier_max_residual;
     let in_pool = |h: &HitReport| match h.override_accept {
         Some(v) => v,
         None => h.reasons.is_empty(),
@@ -306,58 +306,37 @@ fn flag_outliers(hits: &mut [HitReport], cands: &[Option<Candidate>], setup: &Se
             let c = cands[i].as_ref().expect("pool holds candidates");
             total.add(&c.a, &c.b);
         }
-        let mut badness = Vec::with_capacity(pool.len());
+        let mut residual = Vec::with_capacity(pool.len());
         for &i in &pool {
             let c = cands[i].as_ref().expect("pool holds candidates");
-            let (mut num, mut ei, mut eo) = (Complex64::new(0.0, 0.0), 0.0, 0.0);
-            let mut devs = Vec::with_capacity(nl);
+            let (mut miss, mut energy) = (0.0, 0.0);
             for k in 0..nl {
                 let gaa = total.gaa[k] - c.a[k].norm_sqr();
                 let gab = total.gab[k] - c.a[k].conj() * c.b[k];
-                if gaa <= 0.0 || c.a[k].norm_sqr() <= 0.0 {
-                    continue;
-                }
-                let ho = gab / gaa;
-                let hi = c.b[k] / c.a[k];
-                num += hi.conj() * ho;
-                ei += hi.norm_sqr();
-                eo += ho.norm_sqr();
-                if ho.norm() > 0.0 && hi.norm() > 0.0 {
-                    devs.push((20.0 * (hi.norm() / ho.norm()).log10()).abs());
+                energy += c.b[k].norm_sqr();
+                if gaa > 0.0 {
+                    miss += (c.b[k] - gab / gaa * c.a[k]).norm_sqr();
                 }
             }
-            let frac = if ei * eo > 0.0 {
-                num.norm_sqr() / (ei * eo)
-            } else {
-                0.0
-            };
-            let dev = if devs.is_empty() {
-                0.0
-            } else {
-                let m = devs.len() / 2;
-                *devs.select_nth_unstable_by(m, f64::total_cmp).1
-            };
-            hits[i].frac = Some(frac);
-            hits[i].deviation_db = Some(dev);
-            let b = ((1.0 - frac) / (1.0 - q.outlier_min_frac).max(1e-12))
-                .max(dev / q.outlier_max_db.max(1e-12));
-            badness.push(b);
+            let r = if energy > 0.0 { miss / energy } else { 0.0 };
+            hits[i].residual_fraction = Some(r);
+            residual.push(r);
         }
-        let (wi, &wb) = badness
+        let (wi, &worst) = residual
             .iter()
             .enumerate()
             .max_by(|x, y| x.1.total_cmp(y.1))
             .expect("pool is not empty");
-        let mut others: Vec<f64> = badness
+        let mut others: Vec<f64> = residual
             .iter()
             .enumerate()
             .filter(|(i, _)| *i != wi)
-            .map(|(_, b)| *b)
+            .map(|(_, r)| *r)
             .collect();
         let m = others.len() / 2;
         let med = *others.select_nth_unstable_by(m, f64::total_cmp).1;
         let hit = pool[wi];
-        if wb >= 1.0 && wb > 3.0 * med && hits[hit].override_accept.is_none() {
+        if worst > limit && worst > 3.0 * med && hits[hit].override_accept.is_none() {
             hits[hit].reasons.push(Reason::Outlier);
             pool.remove(wi);
         } else {

@@ -42,7 +42,9 @@ impl Reason {
             Reason::Overload => {
                 "A channel reached full scale (or was clipped flat). Tap softer or lower the input gain."
             }
-            Reason::Weak => "The hit is weak (peak below 10 % of full scale). Tap harder or raise the gain.",
+            Reason::Weak => {
+                "The hit is weak (peak below 10 % of full scale). Tap harder or raise the gain."
+            }
             Reason::TipRolloff => {
                 "The force spectrum drops too far inside the band: use a harder tip or narrow the band."
             }

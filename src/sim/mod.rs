@@ -197,7 +197,8 @@ pub fn synthesize(
         let w = TAU * k as f64 * fs / m as f64;
         let mut f = Complex64::new(0.0, 0.0);
         for imp in impacts {
-            f += half_sine_ft(imp.peak_n, imp.duration_s, w) * Complex64::from_polar(1.0, -w * imp.time_s);
+            f += half_sine_ft(imp.peak_n, imp.duration_s, w)
+                * Complex64::from_polar(1.0, -w * imp.time_s);
             if let Some((delay, ratio)) = imp.second {
                 f += half_sine_ft(imp.peak_n * ratio, imp.duration_s, w)
                     * Complex64::from_polar(1.0, -w * (imp.time_s + delay));
@@ -247,8 +248,10 @@ pub fn synthesize(
         let t = i as f64 * dt;
         let hum = rig.hum_volts
             * ((TAU * rig.hum_hz * t).sin() + 0.3 * (TAU * 3.0 * rig.hum_hz * t + 0.4).sin());
-        *a = ((*a + hum + rig.noise_volts[0] * rng.normal()) / rig.full_scale_volts).clamp(-1.0, 1.0);
-        *b = ((*b + hum + rig.noise_volts[1] * rng.normal()) / rig.full_scale_volts).clamp(-1.0, 1.0);
+        *a = ((*a + hum + rig.noise_volts[0] * rng.normal()) / rig.full_scale_volts)
+            .clamp(-1.0, 1.0);
+        *b = ((*b + hum + rig.noise_volts[1] * rng.normal()) / rig.full_scale_volts)
+            .clamp(-1.0, 1.0);
     }
     (va, vb)
 }
@@ -304,7 +307,12 @@ impl Default for Scenario {
 impl Scenario {
     /// The demo: a small stepped pump shaft, 0.9 m, on soft cords in a repair shop (invented).
     pub fn pump_shaft() -> Self {
-        let sec = |l, d| Section { length_m: l, outer_diameter_m: d, inner_diameter_m: 0.0, material: None };
+        let sec = |l, d| Section {
+            length_m: l,
+            outer_diameter_m: d,
+            inner_diameter_m: 0.0,
+            material: None,
+        };
         let k_cord = 4.0e3; // N/m per cord: suspension modes of a few Hz
         Self {
             part_name: "PS-40 pump shaft (demo, simulated)".into(),
@@ -314,8 +322,14 @@ impl Scenario {
                 sections: vec![sec(0.15, 0.035), sec(0.60, 0.045), sec(0.15, 0.035)],
                 discs: vec![],
                 supports: vec![
-                    Support { position_m: 0.2, stiffness_n_per_m: k_cord },
-                    Support { position_m: 0.7, stiffness_n_per_m: k_cord },
+                    Support {
+                        position_m: 0.2,
+                        stiffness_n_per_m: k_cord,
+                    },
+                    Support {
+                        position_m: 0.7,
+                        stiffness_n_per_m: k_cord,
+                    },
                 ],
             },
             stations_m: (0..10).map(|i| i as f64 * 0.1).collect(),
@@ -323,7 +337,10 @@ impl Scenario {
             drive_station: 10,
             damping_ratio: 0.004,
             suspension_damping_ratio: 0.03,
-            rig: Rig { encoding: SampleEncoding::Int16, ..Rig::default() },
+            rig: Rig {
+                encoding: SampleEncoding::Int16,
+                ..Rig::default()
+            },
             hits_per_station: 3,
             hit_interval_s: 1.7,
             lead_s: 0.4,
@@ -338,11 +355,16 @@ impl Scenario {
 
     /// The modal truth at the stations, from the Timoshenko model (modes below 0.45 fs).
     pub fn modal_model(&self) -> Result<ModalModel, String> {
-        let (fe, modes) = self.shaft.modes(BeamTheory::Timoshenko, 40, 120, &self.stations_m)?;
+        let (fe, modes) = self
+            .shaft
+            .modes(BeamTheory::Timoshenko, 40, 120, &self.stations_m)?;
         let nodes: Vec<usize> = self
             .stations_m
             .iter()
-            .map(|&x| fe.node_at(x).ok_or(format!("station at {x} m is outside the shaft")))
+            .map(|&x| {
+                fe.node_at(x)
+                    .ok_or(format!("station at {x} m is outside the shaft"))
+            })
             .collect::<Result<_, _>>()?;
         let fmax = 0.45 * self.rig.sample_rate_hz as f64;
         let mut out = Vec::new();
@@ -353,7 +375,11 @@ impl Scenario {
             let suspension = i < 2 && m.frequency_hz < 50.0;
             out.push(TruthMode {
                 frequency_hz: m.frequency_hz,
-                damping_ratio: if suspension { self.suspension_damping_ratio } else { self.damping_ratio },
+                damping_ratio: if suspension {
+                    self.suspension_damping_ratio
+                } else {
+                    self.damping_ratio
+                },
                 shape: nodes.iter().map(|&n| m.displacement[n]).collect(),
             });
         }
@@ -365,7 +391,10 @@ impl Scenario {
         if i >= 1 && i <= self.stations_m.len() {
             Ok(i - 1)
         } else {
-            Err(format!("station {st} is not among stations 1–{}", self.stations_m.len()))
+            Err(format!(
+                "station {st} is not among stations 1–{}",
+                self.stations_m.len()
+            ))
         }
     }
 
@@ -384,8 +413,12 @@ impl Scenario {
         let model = self.modal_model().map_err(|m| InputError::new(dir, m))?;
         std::fs::create_dir_all(dir)
             .map_err(|e| InputError::new(dir, format!("cannot create folder: {e}")))?;
-        let reference = self.station_index(self.reference_station).map_err(|m| InputError::new(dir, m))?;
-        let drive = self.station_index(self.drive_station).map_err(|m| InputError::new(dir, m))?;
+        let reference = self
+            .station_index(self.reference_station)
+            .map_err(|m| InputError::new(dir, m))?;
+        let drive = self
+            .station_index(self.drive_station)
+            .map_err(|m| InputError::new(dir, m))?;
         let mut rng = Rng::new(self.seed);
         let mut hits = Vec::new();
         let duration = self.lead_s + self.hits_per_station as f64 * self.hit_interval_s;
@@ -398,19 +431,44 @@ impl Scenario {
                 let double = self.double_hits.contains(&(st, h));
                 let overload = self.overloads.contains(&(st, h));
                 let imp = Impact {
-                    time_s: self.lead_s + h as f64 * self.hit_interval_s + 0.05 * self.jitter * rng.uniform(),
-                    peak_n: if overload { 1.6 * full_scale_n } else { self.force_n * jit(&mut rng) },
+                    time_s: self.lead_s
+                        + h as f64 * self.hit_interval_s
+                        + 0.05 * self.jitter * rng.uniform(),
+                    peak_n: if overload {
+                        1.6 * full_scale_n
+                    } else {
+                        self.force_n * jit(&mut rng)
+                    },
                     duration_s: self.pulse_s * (1.0 + 0.5 * (jit(&mut rng) - 1.0)),
                     second: double.then_some((2.0e-3, 0.3)),
                 };
-                hits.push(TruthHit { station: st, index: h, impact: imp, double_hit: double, overload });
+                hits.push(TruthHit {
+                    station: st,
+                    index: h,
+                    impact: imp,
+                    double_hit: double,
+                    overload,
+                });
                 impacts.push(imp);
             }
             let (pickup, force_dof) = match self.layout {
-                Layout::Hammer => (Pickup::ForceAndResponse { response: reference }, j),
-                Layout::Sensor => (Pickup::TwoResponses { reference, roving: j }, drive),
+                Layout::Hammer => (
+                    Pickup::ForceAndResponse {
+                        response: reference,
+                    },
+                    j,
+                ),
+                Layout::Sensor => (
+                    Pickup::TwoResponses {
+                        reference,
+                        roving: j,
+                    },
+                    drive,
+                ),
             };
-            let (a, b) = synthesize(&model, pickup, force_dof, &impacts, duration, &self.rig, &mut rng);
+            let (a, b) = synthesize(
+                &model, pickup, force_dof, &impacts, duration, &self.rig, &mut rng,
+            );
             let path = dir.join(format!("station-{st:02}.wav"));
             write_channels(&path, self.rig.sample_rate_hz, self.rig.encoding, &[&a, &b])?;
         }
@@ -419,14 +477,18 @@ impl Scenario {
             csv.push_str(&format!("{},{}\n", j + 1, x));
         }
         let p = dir.join("stations.csv");
-        atomic::write_bytes(&p, csv.as_bytes()).map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
+        atomic::write_bytes(&p, csv.as_bytes())
+            .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
         let truth = Truth {
             scenario: self.clone(),
             modes: model
                 .modes
                 .iter()
                 .map(|m| {
-                    let big = m.shape.iter().fold(0.0f64, |a, v| if v.abs() > a.abs() { *v } else { a });
+                    let big = m
+                        .shape
+                        .iter()
+                        .fold(0.0f64, |a, v| if v.abs() > a.abs() { *v } else { a });
                     TruthModeOut {
                         frequency_hz: m.frequency_hz,
                         damping_ratio: m.damping_ratio,
@@ -438,8 +500,10 @@ impl Scenario {
             hits,
         };
         let p = dir.join("truth.json");
-        let text = serde_json::to_string_pretty(&truth).map_err(|e| InputError::new(&p, e.to_string()))?;
-        atomic::write_bytes(&p, text.as_bytes()).map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
+        let text =
+            serde_json::to_string_pretty(&truth).map_err(|e| InputError::new(&p, e.to_string()))?;
+        atomic::write_bytes(&p, text.as_bytes())
+            .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
         Ok(truth)
     }
 }
@@ -497,10 +561,14 @@ mod tests {
             for i in 0..=n {
                 let t = tc * i as f64 / n as f64;
                 let wt = if i == 0 || i == n { 0.5 } else { 1.0 };
-                acc += Complex64::from_polar(p * (std::f64::consts::PI * t / tc).sin() * wt, -w * t);
+                acc +=
+                    Complex64::from_polar(p * (std::f64::consts::PI * t / tc).sin() * wt, -w * t);
             }
             acc *= tc / n as f64;
-            assert!((half_sine_ft(p, tc, w) - acc).norm() < 1e-6 * acc.norm().max(1e-3), "w={w}");
+            assert!(
+                (half_sine_ft(p, tc, w) - acc).norm() < 1e-6 * acc.norm().max(1e-3),
+                "w={w}"
+            );
         }
     }
 }

@@ -1,5 +1,6 @@
 //! Shared helpers for integration tests: analytic structures and quick records.
 #![allow(dead_code)]
+#![allow(clippy::unwrap_used, clippy::expect_used)]
 
 use nalgebra::DMatrix;
 use tapgrid::Complex64;
@@ -54,18 +55,41 @@ pub fn clean_rig(fs: u32) -> Rig {
 /// Impacts every `interval` s from `t0`, all of peak `peak_n` and duration `tc`.
 pub fn impacts(count: usize, t0: f64, interval: f64, peak_n: f64, tc: f64) -> Vec<Impact> {
     (0..count)
-        .map(|i| Impact { time_s: t0 + i as f64 * interval, peak_n, duration_s: tc, second: None })
+        .map(|i| Impact {
+            time_s: t0 + i as f64 * interval,
+            peak_n,
+            duration_s: tc,
+            second: None,
+        })
         .collect()
 }
 
 /// A single-mode structure with unit modal mass at its one DOF.
 pub fn sdof(f_hz: f64, zeta: f64) -> tapgrid::sim::ModalModel {
     tapgrid::sim::ModalModel {
-        modes: vec![tapgrid::sim::TruthMode { frequency_hz: f_hz, damping_ratio: zeta, shape: vec![1.0] }],
+        modes: vec![tapgrid::sim::TruthMode {
+            frequency_hz: f_hz,
+            damping_ratio: zeta,
+            shape: vec![1.0],
+        }],
     }
 }
 
 /// Records the driving point of `model` (DOF 0) for the given impacts.
-pub fn record(model: &dyn FrfModel, imp: &[Impact], duration: f64, rig: &Rig, seed: u64) -> (Vec<f64>, Vec<f64>) {
-    synthesize(model, Pickup::ForceAndResponse { response: 0 }, 0, imp, duration, rig, &mut Rng::new(seed))
+pub fn record(
+    model: &dyn FrfModel,
+    imp: &[Impact],
+    duration: f64,
+    rig: &Rig,
+    seed: u64,
+) -> (Vec<f64>, Vec<f64>) {
+    synthesize(
+        model,
+        Pickup::ForceAndResponse { response: 0 },
+        0,
+        imp,
+        duration,
+        rig,
+        &mut Rng::new(seed),
+    )
 }
