@@ -172,6 +172,40 @@ impl Analysis {
     }
 }
 
+/// Decodes every recording with the same threads as [`run`] and nothing else; returns the frames
+/// decoded. The benchmark's baseline: the chain cannot be faster than reading its input.
+pub fn decode_all(data: &Dataset, setup: &Setup) -> Result<usize, InputError> {
+    let next = AtomicUsize::new(0);
+    let total = AtomicUsize::new(0);
+    let first_err: Mutex<Option<InputError>> = Mutex::new(None);
+    let workers = std::thread::available_parallelism()
+        .map(|n| n.get())
+        .unwrap_or(1)
+        .min(data.stations.len().max(1));
+    std::thread::scope(|scope| {
+        for _ in 0..workers {
+            scope.spawn(|| {
+                while let Some(src) = data.stations.get(next.fetch_add(1, Ordering::Relaxed)) {
+                    match read_two_channels(&src.path, setup.channel_a.index, setup.channel_b.index) {
+                        Ok(r) => {
+                            total.fetch_add(r.a.len(), Ordering::Relaxed);
+                        }
+                        Err(e) => {
+                            if let Ok(mut g) = first_err.lock() {
+                                g.get_or_insert(e);
+                            }
+                        }
+                    }
+                }
+            });
+        }
+    });
+    match first_err.into_inner().ok().flatten() {
+        Some(e) => Err(e),
+        None => Ok(total.into_inner()),
+    }
+}
+
 /// One worker's output for a station: its sample rate and result, or the error naming its file.
 type Slot = Option<Result<(u32, StationResult), InputError>>;
 

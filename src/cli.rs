@@ -36,6 +36,16 @@ pub enum Command {
     Simulate(SimulateArgs),
     /// Analyse the bundled demo session and print its summary.
     Demo(DemoArgs),
+    /// Benchmark helper: decode every recording of a set (both channels) and nothing else.
+    #[command(hide = true)]
+    BenchDecode(BenchDecodeArgs),
+}
+
+/// `tapgrid bench-decode`.
+#[derive(Debug, Args)]
+pub struct BenchDecodeArgs {
+    /// A WAV set or session folder.
+    pub input: PathBuf,
 }
 
 /// Layout choice on the command line.
@@ -348,6 +358,9 @@ pub struct SimulateArgs {
     /// Mains hum amplitude on both channels, V.
     #[arg(long)]
     pub hum: Option<f64>,
+    /// Mean time between hits, s.
+    #[arg(long)]
+    pub interval: Option<f64>,
     /// Random seed.
     #[arg(long)]
     pub seed: Option<u64>,
@@ -375,6 +388,12 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Import(a) => import(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
+        Command::BenchDecode(a) => {
+            let (data, _) = Dataset::open(&a.input, Setup::default().spacing_m)?;
+            let frames = analysis::decode_all(&data, &Setup::default())?;
+            println!("decoded {frames} frames");
+            Ok(())
+        }
         Command::Demo(a) => {
             let dir = demo_session_dir()?;
             let out = a
@@ -503,6 +522,9 @@ fn simulate(a: SimulateArgs) -> Result<()> {
     }
     if let Some(s) = a.seed {
         sc.seed = s;
+    }
+    if let Some(i) = a.interval {
+        sc.hit_interval_s = i;
     }
     let truth = sc.write(&a.out)?;
     println!(

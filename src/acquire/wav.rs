@@ -74,16 +74,6 @@ fn describe(e: hound::Error) -> String {
     }
 }
 
-/// An error while reading sample data: the header was fine, so a short read means truncation.
-fn describe_data(e: hound::Error) -> String {
-    match e {
-        hound::Error::IoError(io) => {
-            format!("the WAV file is truncated: its data ends before its header says ({io})")
-        }
-        other => describe(other),
-    }
-}
-
 /// Reads the header and checks the encoding is one tapgrid accepts.
 pub fn probe(path: &Path) -> Result<WavInfo, InputError> {
     let r = open(path)?;
@@ -130,10 +120,52 @@ fn info_of<R: std::io::Read>(path: &Path, r: &hound::WavReader<R>) -> Result<Wav
     })
 }
 
+/// Takes two channels (at byte offsets `oa`, `ob` in each frame) out of interleaved sample data.
+fn deinterleave<F: Fn(&[u8]) -> f64>(
+    data: &[u8],
+    stride: usize,
+    oa: usize,
+    ob: usize,
+    scale: f64,
+    get: F,
+) -> (Vec<f64>, Vec<f64>) {
+    let frames = data.len() / stride;
+    let mut ca = Vec::with_capacity(frames);
+    let mut cb = Vec::with_capacity(frames);
+    for f in data.chunks_exact(stride) {
+        ca.push(get(&f[oa..]) * scale);
+        cb.push(get(&f[ob..]) * scale);
+    }
+    (ca, cb)
+}
+
+/// Offset and length of the `data` chunk of a RIFF/WAVE file.
+fn data_chunk(bytes: &[u8]) -> Option<(usize, usize)> {
+    if bytes.len() < 12 || &bytes[0..4] != b"RIFF" || &bytes[8..12] != b"WAVE" {
+        return None;
+    }
+    let mut pos = 12usize;
+    while pos + 8 <= bytes.len() {
+        let id = &bytes[pos..pos + 4];
+        let size = u32::from_le_bytes(bytes[pos + 4..pos + 8].try_into().ok()?) as usize;
+        if id == b"data" {
+            return Some((pos + 8, size));
+        }
+        pos = pos.checked_add(8 + size + (size & 1))?;
+    }
+    None
+}
+
 /// Decodes channels `a` and `b` (0-based) of a WAV file to full-scale units.
+///
+/// hound validates the header; the sample data is then decoded in one pass straight from the
+/// file's bytes, which is several times faster than a per-sample iterator on long recordings.
 pub fn read_two_channels(path: &Path, a: usize, b: usize) -> Result<TwoChannels, InputError> {
-    let mut r = open(path)?;
+    let bytes = std::fs::read(path).map_err(|e| InputError::new(path, format!("cannot read: {e}")))?;
+    let r = hound::WavReader::new(std::io::Cursor::new(&bytes[..]))
+        .map_err(|e| InputError::new(path, describe(e)))?;
     let info = info_of(path, &r)?;
+    drop(r);
     for (name, idx) in [("A", a), ("B", b)] {
         if idx >= info.channels {
             return Err(InputError::new(
@@ -146,50 +178,61 @@ pub fn read_two_channels(path: &Path, a: usize, b: usize) -> Result<TwoChannels,
             ));
         }
     }
-    let nch = info.channels;
-    let mut ca = Vec::with_capacity(info.frames);
-    let mut cb = Vec::with_capacity(info.frames);
-    let mut k = 0usize;
-    macro_rules! decode {
-        ($t:ty, $scale:expr) => {{
-            let scale: f64 = $scale;
-            for s in r.samples::<$t>() {
-                let v = s.map_err(|e| InputError::new(path, describe_data(e)))? as f64 * scale;
-                let ch = k % nch;
-                if ch == a {
-                    ca.push(v);
-                } else if ch == b {
-                    cb.push(v);
-                }
-                k += 1;
-            }
-        }};
+    let (off, len) = data_chunk(&bytes)
+        .ok_or_else(|| InputError::new(path, "not a readable WAV file (no data chunk)"))?;
+    if off + len > bytes.len() {
+        return Err(InputError::new(
+            path,
+            format!(
+                "the WAV file is truncated: its data ends {} bytes before its header says",
+                off + len - bytes.len()
+            ),
+        ));
     }
-    match info.encoding {
-        SampleEncoding::Int16 => decode!(i16, 1.0 / 32768.0),
-        SampleEncoding::Int24 => decode!(i32, 1.0 / 8_388_608.0),
-        SampleEncoding::Int32 => decode!(i32, 1.0 / 2_147_483_648.0),
-        SampleEncoding::Float32 => decode!(f32, 1.0),
-    }
-    if !k.is_multiple_of(nch) {
+    let width = match info.encoding {
+        SampleEncoding::Int16 => 2,
+        SampleEncoding::Int24 => 3,
+        SampleEncoding::Int32 | SampleEncoding::Float32 => 4,
+    };
+    let stride = width * info.channels;
+    if !len.is_multiple_of(stride) {
         return Err(InputError::new(
             path,
             "the WAV file is truncated: its last frame is incomplete",
         ));
     }
+    let data = &bytes[off..off + len];
+    let frames = len / stride;
+    let (oa, ob) = (a * width, b * width);
+    let (ca, cb) = match info.encoding {
+        SampleEncoding::Int16 => deinterleave(data, stride, oa, ob, 1.0 / 32768.0, |x| {
+            i16::from_le_bytes([x[0], x[1]]) as f64
+        }),
+        SampleEncoding::Int24 => deinterleave(data, stride, oa, ob, 1.0 / 8_388_608.0, |x| {
+            (i32::from_le_bytes([0, x[0], x[1], x[2]]) >> 8) as f64
+        }),
+        SampleEncoding::Int32 => deinterleave(data, stride, oa, ob, 1.0 / 2_147_483_648.0, |x| {
+            i32::from_le_bytes([x[0], x[1], x[2], x[3]]) as f64
+        }),
+        SampleEncoding::Float32 => deinterleave(data, stride, oa, ob, 1.0, |x| {
+            f32::from_le_bytes([x[0], x[1], x[2], x[3]]) as f64
+        }),
+    };
     if info.encoding == SampleEncoding::Float32 {
         for (name, ch) in [("A", &ca), ("B", &cb)] {
             if let Some(i) = ch.iter().position(|v| !v.is_finite()) {
                 return Err(InputError::new(
                     path,
-                    format!(
-                        "channel {name} holds a non-finite sample (NaN or infinity) at frame {i}"
-                    ),
+                    format!("channel {name} holds a non-finite sample (NaN or infinity) at frame {i}"),
                 ));
             }
         }
     }
-    Ok(TwoChannels { info, a: ca, b: cb })
+    Ok(TwoChannels {
+        info: WavInfo { frames, ..info },
+        a: ca,
+        b: cb,
+    })
 }
 
 /// Encodes channels (full-scale units, clipped to ±1) into a WAV file, atomically.

@@ -15,27 +15,55 @@ use crate::setup::Setup;
 pub const FRF_CSV_HEADER: &str = "station,frequency_hz,h_re,h_im,coherence";
 
 /// `frf.csv`: one row per station and spectral line inside the band, SI units.
+/// Stations are formatted on parallel threads: on a 40-station test the text is ~20 MB.
 pub fn frf_csv(a: &Analysis) -> String {
-    let rows: usize = a
-        .stations
-        .iter()
-        .map(|s| s.result.frf.as_ref().map_or(0, |f| f.freq_hz.len()))
-        .sum();
-    let mut out = String::with_capacity(64 * rows + 64);
+    let workers = std::thread::available_parallelism().map_or(1, |n| n.get()).max(1);
+    let chunk = a.stations.len().div_ceil(workers).max(1);
+    let blocks: Vec<String> = std::thread::scope(|scope| {
+        let handles: Vec<_> = a
+            .stations
+            .chunks(chunk)
+            .map(|group| {
+                scope.spawn(move || {
+                    let mut out = String::new();
+                    for s in group {
+                        station_rows(&mut out, s);
+                    }
+                    out
+                })
+            })
+            .collect();
+        handles
+            .into_iter()
+            .map(|h| h.join().unwrap_or_default())
+            .collect()
+    });
+    let mut out = String::with_capacity(blocks.iter().map(String::len).sum::<usize>() + 64);
     out.push_str(FRF_CSV_HEADER);
     out.push('\n');
-    for s in &a.stations {
-        if let Some(f) = &s.result.frf {
-            for i in 0..f.freq_hz.len() {
-                let _ = writeln!(
-                    out,
-                    "{},{},{:e},{:e},{}",
-                    s.station, f.freq_hz[i], f.h[i].re, f.h[i].im, f.coherence[i]
-                );
-            }
-        }
+    for b in blocks {
+        out.push_str(&b);
     }
     out
+}
+
+fn station_rows(out: &mut String, s: &crate::analysis::StationAnalysis) {
+    // zmij/itoa print the shortest text that reads back to the same f64, several times faster
+    // than `{}` formatting on the ~10⁶ numbers of a large test.
+    let mut fb = zmij::Buffer::new();
+    let mut ib = itoa::Buffer::new();
+    let station = ib.format(s.station).to_string();
+    if let Some(f) = &s.result.frf {
+        out.reserve(72 * f.freq_hz.len());
+        for i in 0..f.freq_hz.len() {
+            out.push_str(&station);
+            for v in [f.freq_hz[i], f.h[i].re, f.h[i].im, f.coherence[i]] {
+                out.push(',');
+                out.push_str(fb.format(v));
+            }
+            out.push('\n');
+        }
+    }
 }
 
 #[derive(Serialize)]

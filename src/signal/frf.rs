@@ -47,7 +47,18 @@ impl SpectrumPlan {
             self.input.len(),
             "record length differs from the plan"
         );
-        self.input.copy_from_slice(x);
+        self.lines_of(|buf| buf.copy_from_slice(x), dt, lines)
+    }
+
+    /// Like [`Self::lines`], but `fill` writes the record straight into the FFT's input buffer
+    /// (it must write every sample).
+    pub fn lines_of(
+        &mut self,
+        fill: impl FnOnce(&mut [f64]),
+        dt: f64,
+        lines: std::ops::Range<usize>,
+    ) -> Vec<Complex64> {
+        fill(&mut self.input);
         self.fft
             .process_with_scratch(&mut self.input, &mut self.output, &mut self.scratch)
             .expect("buffer sizes come from the plan");

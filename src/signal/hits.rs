@@ -112,7 +112,11 @@ pub fn peak_abs(x: &[f64]) -> f64 {
 /// of slow sinusoids can repeat a quantised value, but they approach it in tiny steps; a converter
 /// that clips arrives at its limit in a jump (common practice).
 pub fn flat_top(x: &[f64]) -> bool {
-    let m = peak_abs(x);
+    flat_top_at(x, peak_abs(x))
+}
+
+/// [`flat_top`] with the record's largest absolute sample `m` already known.
+pub fn flat_top_at(x: &[f64], m: f64) -> bool {
     if m < 0.25 {
         return false;
     }

@@ -5,9 +5,9 @@ use std::collections::BTreeMap;
 use serde::{Deserialize, Serialize};
 
 use super::frf::{CrossSpectra, SpectrumPlan};
-use super::hits::{find_pulse, find_triggers, flat_top, level_of, peak_abs, second_impact};
+use super::hits::{find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact};
 use super::verdict::Reason;
-use super::window::{apply_exponential, exponential_tau_s, force_window};
+use super::window::{exponential, exponential_tau_s, force_window};
 use crate::Complex64;
 use crate::setup::{Layout, Setup};
 
@@ -134,6 +134,7 @@ pub fn analyze_station(
     let post_s = (n - pre) as f64 * dt;
     let tau = exponential_tau_s(post_s, setup.windows.exponential_end);
     let max_pulse = (0.02 * fs as f64) as usize;
+    let ew = exponential(n, pre, dt, tau);
 
     let mut hits = Vec::with_capacity(triggers.len());
     let mut cands: Vec<Option<Candidate>> = Vec::with_capacity(triggers.len());
@@ -165,8 +166,8 @@ pub fn analyze_station(
         rep.peak_b_fs = peak_abs(rb);
         if rep.peak_a_fs >= q.overload_fraction
             || rep.peak_b_fs >= q.overload_fraction
-            || flat_top(ra)
-            || flat_top(rb)
+            || flat_top_at(ra, rep.peak_a_fs)
+            || flat_top_at(rb, rep.peak_b_fs)
         {
             rep.reasons.push(Reason::Overload);
         }
@@ -174,9 +175,9 @@ pub fn analyze_station(
             rep.reasons.push(Reason::Weak);
         }
 
-        let mut xa: Vec<f64>;
-        let mut xb: Vec<f64>;
-        match setup.layout {
+        // Each channel is baseline-removed, scaled to SI units and windowed in one pass, straight
+        // into the FFT's input buffer.
+        let (sa, sb) = match setup.layout {
             Layout::Hammer => {
                 let pulse = find_pulse(ra, pre, sign, max_pulse);
                 let width = pulse.width();
@@ -198,26 +199,29 @@ pub fn analyze_station(
                     .force_taper_s
                     .map(|s| (s * fs as f64).round() as usize)
                     .unwrap_or(width);
-                let base_end = wstart.saturating_sub(taper);
-                let (ma, mb) = baseline(ra, rb, base_end);
-                let fw = force_window(n, wstart, unity, taper);
-                xa = ra
-                    .iter()
-                    .zip(&fw)
-                    .map(|(v, w)| (v - ma) * scale_a * w)
-                    .collect();
-                xb = rb.iter().map(|v| (v - mb) * scale_b).collect();
+                let (ma, mb) = baseline(ra, rb, wstart.saturating_sub(taper));
+                let (lo, fw) = force_window(n, wstart, unity, taper);
+                let sa = plan.lines_of(
+                    |x| {
+                        x.fill(0.0);
+                        for (k, w) in fw.iter().enumerate() {
+                            let i = lo + k;
+                            x[i] = (ra[i] - ma) * scale_a * w * ew[i];
+                        }
+                    },
+                    dt,
+                    lines.clone(),
+                );
+                let sb = plan.lines_of(|x| windowed(x, rb, mb, scale_b, &ew), dt, lines.clone());
+                (sa, sb)
             }
             Layout::Sensor => {
                 let (ma, mb) = baseline(ra, rb, pre.saturating_sub(pre / 10));
-                xa = ra.iter().map(|v| (v - ma) * scale_a).collect();
-                xb = rb.iter().map(|v| (v - mb) * scale_b).collect();
+                let sa = plan.lines_of(|x| windowed(x, ra, ma, scale_a, &ew), dt, lines.clone());
+                let sb = plan.lines_of(|x| windowed(x, rb, mb, scale_b, &ew), dt, lines.clone());
+                (sa, sb)
             }
-        }
-        apply_exponential(&mut xa, pre, dt, tau);
-        apply_exponential(&mut xb, pre, dt, tau);
-        let sa = plan.lines(&xa, dt, lines.clone());
-        let sb = plan.lines(&xb, dt, lines.clone());
+        };
         if setup.layout == Layout::Hammer && !rep.reasons.contains(&Reason::DoubleHit) {
             let (mx, mn) = sa.iter().fold((0.0f64, f64::INFINITY), |(mx, mn), c| {
                 let p = c.norm_sqr();
@@ -268,6 +272,13 @@ pub fn analyze_station(
         exp_tau_s: tau,
         trigger_level_fs: level,
     })
+}
+
+/// `out = (raw − mean) · scale · w`.
+fn windowed(out: &mut [f64], raw: &[f64], mean: f64, scale: f64, w: &[f64]) {
+    for ((o, r), w) in out.iter_mut().zip(raw).zip(w) {
+        *o = (r - mean) * scale * w;
+    }
 }
 
 fn baseline(ra: &[f64], rb: &[f64], end: usize) -> (f64, f64) {

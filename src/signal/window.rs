@@ -1,23 +1,31 @@
 //! Force and exponential windows, and the damping correction for the exponential window.
 
 /// Force window: zero, cosine rise over `taper`, unity for `unity` samples from `start`, cosine
-/// fall over `taper`, zero (Fladung 1997: "length" is the unity part).
-pub fn force_window(n: usize, start: usize, unity: usize, taper: usize) -> Vec<f64> {
-    let mut w = vec![0.0; n];
-    let end = (start + unity).min(n);
-    for (i, wi) in w.iter_mut().enumerate().take(end).skip(start) {
-        let _ = i;
-        *wi = 1.0;
-    }
-    for k in 1..=taper {
-        let v = 0.5 * (1.0 + (std::f64::consts::PI * k as f64 / (taper + 1) as f64).cos());
-        if let Some(i) = start.checked_sub(k) {
-            w[i] = v;
-        }
-        if end + k - 1 < n {
-            w[end + k - 1] = v;
-        }
-    }
+/// fall over `taper`, zero (Fladung 1997: "length" is the unity part). Returns the first index
+/// and the values of the non-zero stretch, clipped to a record of `n` samples.
+pub fn force_window(n: usize, start: usize, unity: usize, taper: usize) -> (usize, Vec<f64>) {
+    let lo = start.saturating_sub(taper);
+    let hi = (start + unity + taper).min(n);
+    let taper_value =
+        |k: usize| 0.5 * (1.0 + (std::f64::consts::PI * k as f64 / (taper + 1) as f64).cos());
+    let w = (lo..hi)
+        .map(|i| {
+            if i < start {
+                taper_value(start - i)
+            } else if i < start + unity {
+                1.0
+            } else {
+                taper_value(i + 1 - start - unity)
+            }
+        })
+        .collect();
+    (lo, w)
+}
+
+/// The exponential window over a record of `n` samples: 1 before `t0`, `exp(−(i − t0)·dt/τ)` after.
+pub fn exponential(n: usize, t0: usize, dt: f64, tau_s: f64) -> Vec<f64> {
+    let mut w = vec![1.0; n];
+    apply_exponential(&mut w, t0, dt, tau_s);
     w
 }
 
@@ -73,11 +81,16 @@ mod tests {
 
     #[test]
     fn force_window_shape() {
-        let w = force_window(20, 5, 4, 2);
+        let (lo, part) = force_window(20, 5, 4, 2);
+        let mut w = vec![0.0; 20];
+        w[lo..lo + part.len()].copy_from_slice(&part);
         assert_eq!(&w[5..9], &[1.0; 4]);
         assert_eq!(w[0], 0.0);
-        assert!(w[4] > w[3] && w[4] < 1.0);
-        assert!(w[9] > w[10] && w[9] < 1.0);
+        assert!(w[4] > w[3] && w[3] > 0.0 && w[4] < 1.0);
+        assert!(w[9] > w[10] && w[10] > 0.0 && w[9] < 1.0);
         assert_eq!(w[11], 0.0);
+        // Symmetric tapers.
+        assert_eq!(w[4], w[9]);
+        assert_eq!(w[3], w[10]);
     }
 }

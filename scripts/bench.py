@@ -1,0 +1,56 @@
+#!/usr/bin/env python3
+"""Benchmark of the analysis stage (decode + hits + FRFs), run by scripts/bench.sh.
+
+Generates a 40-station × 5-hit set (2 channels, 51.2 kHz, 24-bit, 65536-sample ≈ 1.28 s records)
+with `tapgrid simulate`, then times, in the same run and on the same files:
+  tapgrid analyze (everything, including writing frf.csv and result.json),
+  tapgrid bench-decode (the bare WAV decode, same threads),
+  the numpy/scipy pipeline of scripts/bench_reference.py (with and without writing frf.csv).
+Each is run REPEAT times; the median wall time is reported, and the ratios.
+"""
+import os
+import pathlib
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+
+ROOT = pathlib.Path(__file__).resolve().parent.parent
+BIN = ROOT / "target" / "release" / "tapgrid"
+REPEAT = int(os.environ.get("REPEAT", "5"))
+
+
+def timed(cmd):
+    times = []
+    for _ in range(REPEAT):
+        t0 = time.perf_counter()
+        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times)
+
+
+def main():
+    tmp = pathlib.Path(tempfile.mkdtemp(prefix="tapgrid-bench-"))
+    s = tmp / "set"
+    subprocess.run([BIN, "simulate", "--out", s, "--stations", "40", "--hits", "5", "--fs", "51200",
+                    "--encoding", "int24", "--interval", "1.5"], check=True, stdout=subprocess.DEVNULL)
+    size = sum(p.stat().st_size for p in s.glob("*.wav"))
+    py = sys.executable
+    rows = {
+        "tapgrid analyze": timed([BIN, "analyze", s, "--out", tmp / "o1"]),
+        "bare decode (tapgrid bench-decode)": timed([BIN, "bench-decode", s]),
+        "numpy/scipy pipeline, with frf.csv": timed([py, ROOT / "scripts" / "bench_reference.py", s, tmp / "o2"]),
+        "numpy/scipy pipeline, no csv": timed([py, ROOT / "scripts" / "bench_reference.py", s, tmp / "o3", "--no-csv"]),
+    }
+    print(f"set: 40 stations x 5 hits, 51.2 kHz, 24-bit, {size / 1e6:.0f} MB of WAV; {os.cpu_count()} cores; median of {REPEAT}")
+    for k, v in rows.items():
+        print(f"  {k:40s} {v:7.3f} s")
+    a = rows["tapgrid analyze"]
+    print(f"  analyze / bare decode                    {a / rows['bare decode (tapgrid bench-decode)']:7.2f}x  (target <= 2)")
+    print(f"  numpy-scipy (csv) / analyze              {rows['numpy/scipy pipeline, with frf.csv'] / a:7.1f}x  (target >= 20)")
+    print(f"  numpy-scipy (no csv) / analyze           {rows['numpy/scipy pipeline, no csv'] / a:7.1f}x")
+
+
+if __name__ == "__main__":
+    main()
