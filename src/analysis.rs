@@ -7,7 +7,7 @@ use std::sync::Mutex;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 use crate::acquire::InputError;
-use crate::acquire::wav::read_two_channels;
+use crate::acquire::wav::Decoder;
 use crate::acquire::wavset::{PositionSource, WavSet};
 use crate::session::{SavedHit, Session};
 use crate::setup::Setup;
@@ -172,42 +172,61 @@ impl Analysis {
     }
 }
 
+/// Runs `work` on every station on up to `available_parallelism` named threads; each thread
+/// keeps its own state `S` (FFT plan, decode buffers) across the stations it takes. Results come
+/// back in station order.
+fn per_station<S: Default, T: Send>(
+    data: &Dataset,
+    work: impl Fn(&mut S, &StationSource) -> T + Sync,
+) -> Vec<T> {
+    let next = AtomicUsize::new(0);
+    let out: Mutex<Vec<Option<T>>> = Mutex::new((0..data.stations.len()).map(|_| None).collect());
+    let workers = std::thread::available_parallelism()
+        .map_or(1, |n| n.get())
+        .min(data.stations.len().max(1));
+    std::thread::scope(|scope| {
+        for w in 0..workers {
+            let (next, out, work) = (&next, &out, &work);
+            std::thread::Builder::new()
+                .name(format!("tapgrid-analysis-{w}"))
+                .spawn_scoped(scope, move || {
+                    let mut state = S::default();
+                    loop {
+                        let i = next.fetch_add(1, Ordering::Relaxed);
+                        let Some(src) = data.stations.get(i) else {
+                            break;
+                        };
+                        let r = work(&mut state, src);
+                        if let Ok(mut g) = out.lock() {
+                            g[i] = Some(r);
+                        }
+                    }
+                })
+                .expect("spawning an analysis thread");
+        }
+    });
+    out.into_inner()
+        .unwrap_or_default()
+        .into_iter()
+        .map(|r| r.expect("every station was taken by a worker"))
+        .collect()
+}
+
 /// Decodes every recording with the same threads as [`run`] and nothing else; returns the frames
 /// decoded. The benchmark's baseline: the chain cannot be faster than reading its input.
 pub fn decode_all(data: &Dataset, setup: &Setup) -> Result<usize, InputError> {
-    let next = AtomicUsize::new(0);
-    let total = AtomicUsize::new(0);
-    let first_err: Mutex<Option<InputError>> = Mutex::new(None);
-    let workers = std::thread::available_parallelism()
-        .map(|n| n.get())
-        .unwrap_or(1)
-        .min(data.stations.len().max(1));
-    std::thread::scope(|scope| {
-        for _ in 0..workers {
-            scope.spawn(|| {
-                while let Some(src) = data.stations.get(next.fetch_add(1, Ordering::Relaxed)) {
-                    match read_two_channels(&src.path, setup.channel_a.index, setup.channel_b.index) {
-                        Ok(r) => {
-                            total.fetch_add(r.a.len(), Ordering::Relaxed);
-                        }
-                        Err(e) => {
-                            if let Ok(mut g) = first_err.lock() {
-                                g.get_or_insert(e);
-                            }
-                        }
-                    }
-                }
-            });
-        }
+    let frames = per_station(data, |dec: &mut Decoder, src| {
+        dec.decode(&src.path, setup.channel_a.index, setup.channel_b.index)
+            .map(|info| info.frames)
     });
-    match first_err.into_inner().ok().flatten() {
-        Some(e) => Err(e),
-        None => Ok(total.into_inner()),
-    }
+    frames.into_iter().sum()
 }
 
-/// One worker's output for a station: its sample rate and result, or the error naming its file.
-type Slot = Option<Result<(u32, StationResult), InputError>>;
+#[derive(Default)]
+struct Worker {
+    decoder: Decoder,
+    plan: Option<SpectrumPlan>,
+}
 
 /// Decodes and analyses every station, using up to `available_parallelism` threads.
 pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
@@ -217,55 +236,25 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     if data.stations.is_empty() {
         return Err(InputError::new(&data.origin, "holds no station recordings"));
     }
-    let next = AtomicUsize::new(0);
-    let out: Mutex<Vec<Slot>> = Mutex::new(vec![None; data.stations.len()]);
-    let workers = std::thread::available_parallelism()
-        .map(|n| n.get())
-        .unwrap_or(1)
-        .min(data.stations.len());
-    std::thread::scope(|scope| {
-        for w in 0..workers {
-            let (next, out) = (&next, &out);
-            std::thread::Builder::new()
-                .name(format!("tapgrid-analysis-{w}"))
-                .spawn_scoped(scope, move || {
-                    let mut plan: Option<SpectrumPlan> = None;
-                    loop {
-                        let i = next.fetch_add(1, Ordering::Relaxed);
-                        let Some(src) = data.stations.get(i) else {
-                            break;
-                        };
-                        let r = read_two_channels(
-                            &src.path,
-                            setup.channel_a.index,
-                            setup.channel_b.index,
-                        )
-                        .and_then(|rec| {
-                            analyze_station(
-                                &rec.a,
-                                &rec.b,
-                                rec.info.sample_rate_hz,
-                                setup,
-                                &src.overrides,
-                                &mut plan,
-                            )
-                            .map(|res| (rec.info.sample_rate_hz, res))
-                            .map_err(|m| InputError::new(&src.path, m))
-                        });
-                        if let Ok(mut g) = out.lock() {
-                            g[i] = Some(r);
-                        }
-                    }
-                })
-                .expect("spawning an analysis thread");
-        }
+    let results = per_station(data, |w: &mut Worker, src| {
+        let info = w
+            .decoder
+            .decode(&src.path, setup.channel_a.index, setup.channel_b.index)?;
+        analyze_station(
+            &w.decoder.a,
+            &w.decoder.b,
+            info.sample_rate_hz,
+            setup,
+            &src.overrides,
+            &mut w.plan,
+        )
+        .map(|res| (info.sample_rate_hz, res))
+        .map_err(|m| InputError::new(&src.path, m))
     });
-    let results = out.into_inner().unwrap_or_default();
     let mut stations = Vec::with_capacity(results.len());
     let mut rate = None;
     for (src, r) in data.stations.iter().zip(results) {
-        let (fs, result) =
-            r.unwrap_or_else(|| Err(InputError::new(&src.path, "was not analysed")))?;
+        let (fs, result) = r?;
         match rate {
             None => rate = Some((fs, src.path.clone())),
             Some((r0, ref p0)) if r0 != fs => {

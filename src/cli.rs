@@ -424,8 +424,18 @@ fn analyze(input: &Path, out: &Path, args: &SetupArgs) -> Result<()> {
     let (data, session) = Dataset::open(input, spacing)?;
     let base = session.map(|s| s.manifest.setup).unwrap_or_default();
     let setup = args.apply(base)?;
+    let t0 = std::time::Instant::now();
     let a = analysis::run(&data, &setup)?;
+    let t1 = std::time::Instant::now();
     report::write_outputs(&a, out)?;
+    let t2 = std::time::Instant::now();
+    if std::env::var_os("TAPGRID_TIMING").is_some() {
+        eprintln!(
+            "timing: decode+chain {:.3} s, outputs {:.3} s",
+            (t1 - t0).as_secs_f64(),
+            (t2 - t1).as_secs_f64()
+        );
+    }
     print!("{}", report::summary(&a));
     println!(
         "wrote {} and {}",

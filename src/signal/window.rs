@@ -82,7 +82,7 @@ mod tests {
     #[test]
     fn force_window_shape() {
         let (lo, part) = force_window(20, 5, 4, 2);
-        let mut w = vec![0.0; 20];
+        let mut w = [0.0; 20];
         w[lo..lo + part.len()].copy_from_slice(&part);
         assert_eq!(&w[5..9], &[1.0; 4]);
         assert_eq!(w[0], 0.0);
