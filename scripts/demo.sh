@@ -3,5 +3,7 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 scripts/setup-system.sh
+# setup-system.sh may have just installed rustup
+[ -f "$HOME/.cargo/env" ] && . "$HOME/.cargo/env"
 cargo build --release --locked
 exec target/release/tapgrid demo "$@"

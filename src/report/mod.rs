@@ -223,11 +223,12 @@ pub fn summary(a: &Analysis) -> String {
     );
     for st in &a.stations {
         let acc = st.result.hits.iter().filter(|h| h.accepted).count();
-        let minc = st
-            .result
-            .frf
-            .as_ref()
-            .map(|f| f.coherence.iter().copied().fold(1.0, f64::min));
+        // The share of the band with good coherence says more than its minimum, which always
+        // sits in an antiresonance.
+        let good = st.result.frf.as_ref().map(|f| {
+            f.coherence.iter().filter(|&&c| c >= 0.9).count() as f64
+                / f.coherence.len().max(1) as f64
+        });
         let mut probs: Vec<String> = Vec::new();
         for h in &st.result.hits {
             if !h.reasons.is_empty() {
@@ -247,12 +248,12 @@ pub fn summary(a: &Analysis) -> String {
         }
         let _ = writeln!(
             s,
-            "{:>7}  {:>10.4}  {:>6}/{:<6}  {:>13}  {}",
+            "{:>7}  {:>10.4}  {:>6}/{:<6}  {:>18}  {}",
             st.station,
             st.position_m,
             acc,
             st.result.hits.len(),
-            minc.map_or("—".to_string(), |c| format!("{c:.3}")),
+            good.map_or("—".to_string(), |g| format!("{:.0} %", 100.0 * g)),
             probs.join(", ")
         );
     }
