@@ -219,7 +219,7 @@ pub fn summary(a: &Analysis) -> String {
     );
     let _ = writeln!(
         s,
-        "station  position_m  accepted/hits  min coherence  problems"
+        "station  position_m  accepted/hits  band with γ² ≥ 0.9  problems"
     );
     for st in &a.stations {
         let acc = st.result.hits.iter().filter(|h| h.accepted).count();
@@ -253,7 +253,7 @@ pub fn summary(a: &Analysis) -> String {
             st.position_m,
             acc,
             st.result.hits.len(),
-            good.map_or("—".to_string(), |g| format!("{:.0} %", 100.0 * g)),
+            good.map_or("—".to_string(), |g| format!("{:.1} %", 100.0 * g)),
             probs.join(", ")
         );
     }
