@@ -8,6 +8,7 @@ use clap::{Args, Parser, Subcommand, ValueEnum};
 use crate::acquire::wav::SampleEncoding;
 use crate::acquire::wavset::WavSet;
 use crate::analysis::{self, Dataset};
+use crate::modal::{FrfSet, Method, ModalResult, ModalSettings, Selection};
 use crate::report;
 use crate::session::{Part, Session};
 use crate::setup::{Estimator, Layout, Setup, Slope, TriggerLevel};
@@ -268,12 +269,60 @@ impl SetupArgs {
 pub struct AnalyzeArgs {
     /// A WAV set folder or a session folder.
     pub input: PathBuf,
-    /// Output folder for frf.csv and result.json.
+    /// Output folder for frf.csv, result.json and stabilization.csv.
     #[arg(long)]
     pub out: PathBuf,
+    /// Modes to report: auto, a count N (the N most stable), or frequencies F1,F2,… (Hz).
+    #[arg(long, default_value = "auto")]
+    pub modes: String,
+    /// Extraction method.
+    #[arg(long, value_enum, default_value = "lscf")]
+    pub method: MethodArg,
+    /// Highest LSCF model order.
+    #[arg(long, default_value_t = 64)]
+    pub max_order: usize,
     /// Setup.
     #[command(flatten)]
     pub setup: SetupArgs,
+}
+
+/// Modal method.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum MethodArg {
+    /// Global LSCF fit with stabilization diagram and LSFD residues.
+    Lscf,
+    /// Peak picking with quadrature shapes and half-power damping.
+    Peak,
+}
+
+fn modal_settings(a: &AnalyzeArgs) -> Result<ModalSettings> {
+    let selection = match a.modes.trim() {
+        "auto" => Selection::Auto,
+        t if !t.contains(',') && !t.contains('.') && t.parse::<usize>().is_ok() => {
+            Selection::Count(t.parse()?)
+        }
+        t => Selection::Near(
+            t.split(',')
+                .map(|x| {
+                    x.trim()
+                        .parse::<f64>()
+                        .map_err(|_| anyhow!("--modes: cannot read {x:?}; use auto, N or F1,F2,…"))
+                })
+                .collect::<Result<_>>()?,
+        ),
+    };
+    if !(2..=200).contains(&a.max_order) {
+        bail!("--max-order must be between 2 and 200");
+    }
+    Ok(ModalSettings {
+        method: match a.method {
+            MethodArg::Lscf => Method::Lscf,
+            MethodArg::Peak => Method::Peak,
+        },
+        selection,
+        max_order: a.max_order,
+        ..ModalSettings::default()
+    })
 }
 
 /// `tapgrid import`.
@@ -384,7 +433,10 @@ pub struct DemoArgs {
 /// Runs a parsed command line.
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
-        Command::Analyze(a) => analyze(&a.input, &a.out, &a.setup),
+        Command::Analyze(a) => {
+            let m = modal_settings(&a)?;
+            analyze(&a.input, &a.out, &a.setup, &m)
+        }
         Command::Import(a) => import(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
@@ -400,7 +452,7 @@ pub fn run(cli: Cli) -> Result<()> {
                 .out
                 .unwrap_or_else(|| std::env::temp_dir().join("tapgrid-demo"));
             println!("demo session: {}", dir.display());
-            analyze(&dir, &out, &SetupArgs::default())
+            analyze(&dir, &out, &SetupArgs::default(), &ModalSettings::default())
         }
     }
 }
@@ -419,7 +471,7 @@ fn demo_session_dir() -> Result<PathBuf> {
         .ok_or_else(|| anyhow!("the demo session {} was not found", rel.display()))
 }
 
-fn analyze(input: &Path, out: &Path, args: &SetupArgs) -> Result<()> {
+fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal: &ModalSettings) -> Result<()> {
     let spacing = args.spacing.unwrap_or(Setup::default().spacing_m);
     let (data, session) = Dataset::open(input, spacing)?;
     let base = session.map(|s| s.manifest.setup).unwrap_or_default();
@@ -427,16 +479,23 @@ fn analyze(input: &Path, out: &Path, args: &SetupArgs) -> Result<()> {
     let t0 = std::time::Instant::now();
     let a = analysis::run(&data, &setup)?;
     let t1 = std::time::Instant::now();
-    report::write_outputs(&a, out)?;
+    let modes = match FrfSet::from_analysis(&a) {
+        Some(set) => crate::modal::extract(&set, modal).map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))?,
+        None => ModalResult::default(),
+    };
+    let t1b = std::time::Instant::now();
+    report::write_outputs(&a, &modes, out)?;
     let t2 = std::time::Instant::now();
     if std::env::var_os("TAPGRID_TIMING").is_some() {
         eprintln!(
-            "timing: decode+chain {:.3} s, outputs {:.3} s",
+            "timing: decode+chain {:.3} s, modal {:.3} s, outputs {:.3} s",
             (t1 - t0).as_secs_f64(),
-            (t2 - t1).as_secs_f64()
+            (t1b - t1).as_secs_f64(),
+            (t2 - t1b).as_secs_f64()
         );
     }
     print!("{}", report::summary(&a));
+    print!("{}", report::modes_summary(&modes));
     println!(
         "wrote {} and {}",
         out.join("frf.csv").display(),

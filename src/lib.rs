@@ -23,6 +23,7 @@
 pub mod acquire;
 pub mod analysis;
 pub mod cli;
+pub mod modal;
 pub mod model;
 pub mod report;
 pub mod session;

@@ -8,6 +8,8 @@ use serde::Serialize;
 use crate::acquire::InputError;
 use crate::acquire::wavset::PositionSource;
 use crate::analysis::Analysis;
+use crate::modal::lscf::Stabilization;
+use crate::modal::{DampingSource, Method, ModalResult};
 use crate::session::atomic;
 use crate::setup::Setup;
 
@@ -115,13 +117,124 @@ struct ResultOut<'a> {
     tapgrid_version: &'static str,
     hits: Vec<HitOut>,
     stations: Vec<StationOut>,
-    modes: Vec<serde_json::Value>,
+    modes: Vec<ModeOut>,
+    auto_mac: Vec<Vec<f64>>,
+    modal_warnings: Vec<String>,
     settings: SettingsOut<'a>,
     warnings: Vec<String>,
 }
 
+/// `stabilization.csv`: every pole of every order, header
+/// `order,frequency_hz,damping_ratio,status,mpc` (as measured, exponential window included).
+pub fn stabilization_csv(st: &Stabilization) -> String {
+    let mut out = String::from("order,frequency_hz,damping_ratio,status,mpc\n");
+    for p in &st.poles {
+        let _ = writeln!(
+            out,
+            "{},{},{},{},{}",
+            p.order,
+            p.frequency_hz,
+            p.damping_ratio,
+            p.status.word(),
+            p.mpc
+        );
+    }
+    out
+}
+
+/// `indicators.csv`: `frequency_hz,sum_abs_h,mif,sum_response_autospectra`.
+pub fn indicators_csv(m: &ModalResult) -> String {
+    let i = &m.indicators;
+    let mut out = String::from("frequency_hz,sum_abs_h,mif,sum_response_autospectra\n");
+    for k in 0..i.freq_hz.len() {
+        let _ = writeln!(
+            out,
+            "{},{},{},{}",
+            i.freq_hz[k], i.sum_abs[k], i.mif[k], i.sum_response_autospectra[k]
+        );
+    }
+    out
+}
+
+#[derive(Serialize)]
+struct ShapePoint {
+    station: u32,
+    position_m: f64,
+    re: f64,
+    im: f64,
+}
+
+#[derive(Serialize)]
+struct ModeOut {
+    frequency_hz: f64,
+    damping_ratio: Option<f64>,
+    method: Method,
+    mpc: f64,
+    mpd_deg: f64,
+    damping_source: Option<DampingSource>,
+    measured_frequency_hz: f64,
+    measured_damping_ratio: Option<f64>,
+    stable_orders: usize,
+    notes: Vec<String>,
+    shape: Vec<ShapePoint>,
+}
+
+fn modes_out(m: &ModalResult) -> Vec<ModeOut> {
+    m.modes
+        .iter()
+        .map(|md| ModeOut {
+            frequency_hz: md.frequency_hz,
+            damping_ratio: md.damping_ratio,
+            method: md.method,
+            mpc: md.mpc,
+            mpd_deg: md.mpd_deg,
+            damping_source: md.damping_source,
+            measured_frequency_hz: md.measured_frequency_hz,
+            measured_damping_ratio: md.measured_damping_ratio,
+            stable_orders: md.stable_orders,
+            notes: md.notes.clone(),
+            shape: md
+                .shape
+                .iter()
+                .enumerate()
+                .map(|(i, c)| ShapePoint {
+                    station: m.stations[i],
+                    position_m: m.positions_m[i],
+                    re: c.re,
+                    im: c.im,
+                })
+                .collect(),
+        })
+        .collect()
+}
+
+/// A table of the modes for the terminal.
+pub fn modes_summary(m: &ModalResult) -> String {
+    let mut s = String::new();
+    if m.modes.is_empty() {
+        let _ = writeln!(s, "no modes extracted");
+    } else {
+        let _ = writeln!(s, "mode  frequency_hz  damping_%   MPC   method");
+        for (i, md) in m.modes.iter().enumerate() {
+            let _ = writeln!(
+                s,
+                "{:>4}  {:>12.3}  {:>9}  {:.3}  {:?}",
+                i + 1,
+                md.frequency_hz,
+                md.damping_ratio.map_or("—".into(), |z| format!("{:.4}", 100.0 * z)),
+                md.mpc,
+                md.method
+            );
+        }
+    }
+    for w in &m.warnings {
+        let _ = writeln!(s, "note: {w}");
+    }
+    s
+}
+
 /// `result.json` as a string.
-pub fn result_json(a: &Analysis) -> String {
+pub fn result_json(a: &Analysis, m: &ModalResult) -> String {
     let first = a.stations.first().map(|s| &s.result);
     let tau = first.map(|r| r.exp_tau_s).filter(|t| t.is_finite());
     let out = ResultOut {
@@ -158,7 +271,9 @@ pub fn result_json(a: &Analysis) -> String {
                 hits: s.result.hits.len(),
             })
             .collect(),
-        modes: Vec::new(),
+        modes: modes_out(m),
+        auto_mac: m.auto_mac.clone(),
+        modal_warnings: m.warnings.clone(),
         settings: SettingsOut {
             setup: &a.setup,
             sample_rate_hz: a.sample_rate_hz,
@@ -178,15 +293,20 @@ pub fn result_json(a: &Analysis) -> String {
 }
 
 /// Writes `frf.csv` and `result.json` into `dir` (created if needed), atomically.
-pub fn write_outputs(a: &Analysis, dir: &Path) -> Result<(), InputError> {
+pub fn write_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<(), InputError> {
     std::fs::create_dir_all(dir)
         .map_err(|e| InputError::new(dir, format!("cannot create output folder: {e}")))?;
     let t = std::time::Instant::now();
     let csv = frf_csv(a);
     let t1 = t.elapsed();
-    let json = result_json(a);
+    let json = result_json(a, m);
     let t2 = t.elapsed();
-    for (name, text) in [("frf.csv", csv), ("result.json", json)] {
+    let mut files = vec![("frf.csv", csv), ("result.json", json)];
+    if let Some(st) = &m.stabilization {
+        files.push(("stabilization.csv", stabilization_csv(st)));
+    }
+    files.push(("indicators.csv", indicators_csv(m)));
+    for (name, text) in files {
         let p = dir.join(name);
         atomic::write_bytes(&p, text.as_bytes())
             .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;

@@ -1,0 +1,261 @@
+//! Least-squares complex frequency-domain estimator, single-reference form (Guillaume et al.,
+//! IMAC XXI 2003; z-domain derivation per Fasana, MSSP 23, 2009; recipe in field notes §3), with
+//! the stabilization diagram over every model order up to `max_order`.
+//!
+//! Speed: the normal-equation blocks R_o, S_o, T_o are Toeplitz in the z-domain basis, so they come
+//! from 4 sums of length p_max + 1 per output; the blocks of lower orders are their leading
+//! sub-blocks, and with R_o = L Lᵀ the reduced matrix of order p needs only the first p + 1 rows of
+//! X_o = L⁻¹S_o. One Cholesky and one triangular solve per output serve every order.
+
+use nalgebra::{DMatrix, DVector};
+use serde::{Deserialize, Serialize};
+
+use super::shape::{mac, mpc};
+use crate::Complex64;
+
+const TAU: f64 = 2.0 * std::f64::consts::PI;
+
+/// Criteria for calling a pole stable between successive orders (common practice: 1 %, 5 %, 0.98).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct StabilityCriteria {
+    /// Largest relative frequency change.
+    pub frequency: f64,
+    /// Largest relative damping change.
+    pub damping: f64,
+    /// Smallest MAC between the shapes.
+    pub mac: f64,
+}
+
+impl Default for StabilityCriteria {
+    fn default() -> Self {
+        Self {
+            frequency: 0.01,
+            damping: 0.05,
+            mac: 0.98,
+        }
+    }
+}
+
+/// How a pole compares with the nearest pole of the previous order.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PoleStatus {
+    /// No pole of the previous order is close.
+    New,
+    /// Frequency stable.
+    Frequency,
+    /// Frequency and damping stable.
+    FrequencyDamping,
+    /// Frequency, damping and shape stable.
+    FrequencyDampingShape,
+}
+
+impl PoleStatus {
+    /// Stable word used in files.
+    pub fn word(self) -> &'static str {
+        match self {
+            PoleStatus::New => "new",
+            PoleStatus::Frequency => "frequency",
+            PoleStatus::FrequencyDamping => "frequency_damping",
+            PoleStatus::FrequencyDampingShape => "frequency_damping_shape",
+        }
+    }
+}
+
+/// A pole of one model order.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Pole {
+    /// Model order it came from.
+    pub order: usize,
+    /// Continuous-time pole λ (rad/s) of the data as measured (exponential window included).
+    pub lambda: Complex64,
+    /// |λ|/2π, Hz.
+    pub frequency_hz: f64,
+    /// −Re λ/|λ| as measured.
+    pub damping_ratio: f64,
+    /// Comparison with the previous order.
+    pub status: PoleStatus,
+    /// Unscaled shape over the outputs, B_o(z) at the pole.
+    pub shape: Vec<Complex64>,
+    /// MPC of that shape.
+    pub mpc: f64,
+}
+
+/// Every pole of every order.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Stabilization {
+    /// Poles, by order then frequency.
+    pub poles: Vec<Pole>,
+    /// Highest order computed.
+    pub max_order: usize,
+}
+
+/// Runs LSCF for orders 1..=`max_order` on FRFs `h[o][k]` at `freq_hz[k]` with per-line weights
+/// `weight[o][k]` (W, not W²). Poles outside the band or unstable are dropped.
+///
+/// # Panics
+/// If the arrays disagree in size (a bug in the caller).
+pub fn stabilization(
+    freq_hz: &[f64],
+    h: &[Vec<Complex64>],
+    weight: &[Vec<f64>],
+    max_order: usize,
+    criteria: StabilityCriteria,
+) -> Result<Stabilization, String> {
+    let nf = freq_hz.len();
+    let no = h.len();
+    assert!(no > 0 && weight.len() == no && h.iter().all(|v| v.len() == nf));
+    if nf < 2 * max_order + 2 {
+        return Err(format!(
+            "the band holds {nf} lines, too few for model order {max_order} (need ≥ {})",
+            2 * max_order + 2
+        ));
+    }
+    let (f_lo, f_hi) = (freq_hz[0], freq_hz[nf - 1]);
+    let dt = 1.0 / (2.0 * f_hi);
+    let z: Vec<Complex64> = freq_hz
+        .iter()
+        .map(|f| Complex64::from_polar(1.0, TAU * f * dt))
+        .collect();
+    let np = max_order + 1;
+
+    // Per output: R_o (to factor), X_o = L⁻¹S_o, and ΣT_o.
+    let mut tsum = DMatrix::<f64>::zeros(np, np);
+    let mut factors: Vec<(DMatrix<f64>, DMatrix<f64>)> = Vec::with_capacity(no);
+    for o in 0..no {
+        let mut r = vec![Complex64::new(0.0, 0.0); np];
+        let mut s = vec![Complex64::new(0.0, 0.0); np];
+        let mut u = vec![Complex64::new(0.0, 0.0); np];
+        let mut t = vec![Complex64::new(0.0, 0.0); np];
+        for k in 0..nf {
+            let w2 = weight[o][k] * weight[o][k];
+            let hk = h[o][k];
+            let (a, b, c) = (w2 * hk, w2 * hk.conj(), w2 * hk.norm_sqr());
+            let mut zp = Complex64::new(1.0, 0.0);
+            for d in 0..np {
+                r[d] += zp * w2;
+                s[d] += zp * a;
+                u[d] += zp * b;
+                t[d] += zp * c;
+                zp *= z[k];
+            }
+        }
+        let rm = DMatrix::from_fn(np, np, |i, j| r[i.abs_diff(j)].re);
+        let sm = DMatrix::from_fn(np, np, |i, j| if j >= i { -s[j - i].re } else { -u[i - j].re });
+        tsum += DMatrix::from_fn(np, np, |i, j| t[i.abs_diff(j)].re);
+        let chol = rm
+            .cholesky()
+            .ok_or_else(|| format!("output {o}: the weighted basis is singular (too few valid lines?)"))?;
+        let l = chol.l();
+        let x = l
+            .solve_lower_triangular(&sm)
+            .ok_or_else(|| format!("output {o}: singular factor"))?;
+        factors.push((l, x));
+    }
+
+    let mut gsum = DMatrix::<f64>::zeros(np, np);
+    let mut out = Stabilization {
+        poles: Vec::new(),
+        max_order,
+    };
+    let mut prev: Vec<Pole> = Vec::new();
+    for i in 0..np {
+        // Rank-one updates with row i of every X_o: after them, gsum's leading (i+1)-block is
+        // Σ_o S_oᵀ R_o⁻¹ S_o of order i.
+        for (_, x) in &factors {
+            let row = x.row(i);
+            gsum.ger(1.0, &row.transpose(), &row.transpose(), 1.0);
+        }
+        let p = i;
+        if p == 0 {
+            continue;
+        }
+        let m = (tsum.view((0, 0), (p + 1, p + 1)) - gsum.view((0, 0), (p + 1, p + 1))) * 2.0;
+        let a11 = m.view((0, 0), (p, p)).into_owned();
+        let a12 = m.view((0, p), (p, 1)).into_owned();
+        let Some(sol) = a11.lu().solve(&(-a12)) else {
+            continue;
+        };
+        let mut alpha = DVector::<f64>::zeros(p + 1);
+        alpha.rows_mut(0, p).copy_from(&sol.column(0));
+        alpha[p] = 1.0;
+        // Frobenius companion of z^p + α_{p−1} z^{p−1} + … + α_0.
+        let mut comp = DMatrix::<f64>::zeros(p, p);
+        for j in 0..p {
+            comp[(0, j)] = -alpha[p - 1 - j];
+        }
+        for j in 1..p {
+            comp[(j, j - 1)] = 1.0;
+        }
+        let roots = comp.complex_eigenvalues();
+        // β_o = −R_o⁻¹S_oα = −L⁻ᵀ(X_o α) on the leading blocks.
+        let betas: Vec<DVector<f64>> = factors
+            .iter()
+            .map(|(l, x)| {
+                let y = x.view((0, 0), (p + 1, p + 1)) * &alpha;
+                l.view((0, 0), (p + 1, p + 1))
+                    .tr_solve_lower_triangular(&(-y))
+                    .unwrap_or_else(|| DVector::zeros(p + 1))
+            })
+            .collect();
+        let mut here: Vec<Pole> = Vec::new();
+        for zr in roots.iter() {
+            let zr = Complex64::new(zr.re, zr.im);
+            if zr.im <= 0.0 || zr.norm() >= 1.0 {
+                continue;
+            }
+            let lam = zr.ln() / dt;
+            let f = lam.norm() / TAU;
+            if f < f_lo || f > f_hi {
+                continue;
+            }
+            let shape: Vec<Complex64> = betas
+                .iter()
+                .map(|b| {
+                    let mut acc = Complex64::new(0.0, 0.0);
+                    for r in (0..=p).rev() {
+                        acc = acc * zr + b[r];
+                    }
+                    acc
+                })
+                .collect();
+            here.push(Pole {
+                order: p,
+                lambda: lam,
+                frequency_hz: f,
+                damping_ratio: -lam.re / lam.norm(),
+                status: PoleStatus::New,
+                mpc: mpc(&shape),
+                shape,
+            });
+        }
+        here.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+        for pole in &mut here {
+            pole.status = classify(pole, &prev, criteria);
+        }
+        out.poles.extend(here.iter().cloned());
+        prev = here;
+    }
+    Ok(out)
+}
+
+fn classify(p: &Pole, prev: &[Pole], c: StabilityCriteria) -> PoleStatus {
+    let Some(q) = prev.iter().min_by(|a, b| {
+        (a.frequency_hz - p.frequency_hz)
+            .abs()
+            .total_cmp(&(b.frequency_hz - p.frequency_hz).abs())
+    }) else {
+        return PoleStatus::New;
+    };
+    if (q.frequency_hz - p.frequency_hz).abs() > c.frequency * p.frequency_hz {
+        return PoleStatus::New;
+    }
+    if (q.damping_ratio - p.damping_ratio).abs() > c.damping * p.damping_ratio.abs() {
+        return PoleStatus::Frequency;
+    }
+    if mac(&q.shape, &p.shape) < c.mac {
+        return PoleStatus::FrequencyDamping;
+    }
+    PoleStatus::FrequencyDampingShape
+}

@@ -1,0 +1,629 @@
+//! Modal extraction: mode indicators, peak picking with quadrature sign, half-power damping, the
+//! global LSCF fit with its stabilization diagram, automatic pole choice, LSFD residues and shapes.
+
+pub mod lscf;
+pub mod lsfd;
+pub mod shape;
+
+use serde::{Deserialize, Serialize};
+
+use crate::Complex64;
+use crate::analysis::Analysis;
+use crate::setup::Layout;
+use crate::signal::window::correct_damping;
+use lscf::{PoleStatus, Stabilization, StabilityCriteria};
+use shape::{mac, mean_phase_deviation_deg, mpc, normalise};
+
+/// How modes are extracted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum Method {
+    /// Global LSCF poles + LSFD residues (roving-hammer layout).
+    #[default]
+    Lscf,
+    /// Peaks of the mode indicator, quadrature shapes, half-power damping.
+    Peak,
+}
+
+/// Which modes to report.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum Selection {
+    /// Every mode that passes the physical checks.
+    #[default]
+    Auto,
+    /// The N best (most stable) modes.
+    Count(usize),
+    /// The modes nearest these frequencies, Hz.
+    Near(Vec<f64>),
+}
+
+/// Where a damping value came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DampingSource {
+    /// From the fitted pole.
+    Pole,
+    /// Half-power width of the accelerance indicator.
+    HalfPower,
+    /// Half-power width of the summed response auto-spectra (sensor layout; no force known).
+    ResponseAutospectrum,
+}
+
+/// Settings of the modal stage.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ModalSettings {
+    /// Method.
+    pub method: Method,
+    /// Which modes.
+    pub selection: Selection,
+    /// Highest LSCF model order.
+    pub max_order: usize,
+    /// Stability criteria.
+    pub criteria: StabilityCriteria,
+    /// Weight lines by 1/σ_H from coherence (Bendat & Piersol), else uniformly.
+    pub coherence_weighting: bool,
+    /// Fewest fully stable orders a physical mode needs.
+    pub min_stable_orders: usize,
+    /// Mains frequencies whose harmonics, when undamped, are hum and not modes.
+    pub mains_hz: Vec<f64>,
+}
+
+impl Default for ModalSettings {
+    fn default() -> Self {
+        Self {
+            method: Method::Lscf,
+            selection: Selection::Auto,
+            max_order: 64,
+            criteria: StabilityCriteria::default(),
+            coherence_weighting: true,
+            min_stable_orders: 8,
+            mains_hz: vec![50.0, 60.0],
+        }
+    }
+}
+
+/// One mode.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Mode {
+    /// Natural frequency, Hz (exponential window removed).
+    pub frequency_hz: f64,
+    /// Damping ratio (exponential window removed); `None` where it is not known.
+    pub damping_ratio: Option<f64>,
+    /// Method.
+    pub method: Method,
+    /// Where the damping came from.
+    pub damping_source: Option<DampingSource>,
+    /// Modal phase collinearity of the complex shape.
+    pub mpc: f64,
+    /// Mean phase deviation, degrees.
+    pub mpd_deg: f64,
+    /// Shape over the stations: rotated to its principal axis, signed by the reference
+    /// convention (reference station positive), largest magnitude 1.
+    pub shape: Vec<Complex64>,
+    /// Frequency as measured (window included), Hz.
+    pub measured_frequency_hz: f64,
+    /// Damping as measured (window included).
+    pub measured_damping_ratio: Option<f64>,
+    /// Orders over which the pole was fully stable (LSCF).
+    pub stable_orders: usize,
+    /// Notes for the reader.
+    pub notes: Vec<String>,
+}
+
+/// The FRFs of a test, station by station on common lines.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FrfSet {
+    /// Layout.
+    pub layout: Layout,
+    /// Lines, Hz.
+    pub freq_hz: Vec<f64>,
+    /// Stations with an FRF.
+    pub stations: Vec<u32>,
+    /// Their positions, m.
+    pub positions_m: Vec<f64>,
+    /// FRF per station.
+    pub h: Vec<Vec<Complex64>>,
+    /// Coherence per station.
+    pub coherence: Vec<Vec<f64>>,
+    /// Hits averaged per station.
+    pub hits: Vec<usize>,
+    /// Averaged channel-A auto-spectrum per station.
+    pub gaa: Vec<Vec<f64>>,
+    /// Averaged channel-B auto-spectrum per station.
+    pub gbb: Vec<Vec<f64>>,
+    /// Exponential window time constant, s.
+    pub exp_tau_s: f64,
+    /// Index (into `stations`) of the reference station, when known.
+    pub reference: Option<usize>,
+    /// Line spacing, Hz.
+    pub df_hz: f64,
+}
+
+impl FrfSet {
+    /// Gathers the stations of an analysis that have an FRF.
+    pub fn from_analysis(a: &Analysis) -> Option<Self> {
+        let with: Vec<_> = a.stations.iter().filter(|s| s.result.frf.is_some()).collect();
+        let first = with.first()?;
+        let f0 = first.result.frf.as_ref()?;
+        let mut set = FrfSet {
+            layout: a.setup.layout,
+            freq_hz: f0.freq_hz.clone(),
+            stations: Vec::new(),
+            positions_m: Vec::new(),
+            h: Vec::new(),
+            coherence: Vec::new(),
+            hits: Vec::new(),
+            gaa: Vec::new(),
+            gbb: Vec::new(),
+            exp_tau_s: first.result.exp_tau_s,
+            reference: None,
+            df_hz: first.result.df_hz,
+        };
+        for s in with {
+            let f = s.result.frf.as_ref()?;
+            set.stations.push(s.station);
+            set.positions_m.push(s.position_m);
+            set.h.push(f.h.clone());
+            set.coherence.push(f.coherence.clone());
+            set.hits.push(f.hits_averaged);
+            set.gaa.push(f.gaa.clone());
+            set.gbb.push(f.gbb.clone());
+        }
+        set.reference = a
+            .setup
+            .reference_station
+            .and_then(|r| set.stations.iter().position(|&s| s == r));
+        Some(set)
+    }
+
+    /// Per-line weights 1/σ_H with σ_H² ≈ (1 − γ²)/(2nγ²)·|H|² (Bendat & Piersol 2010), or 1.
+    fn weights(&self, coherence: bool) -> Vec<Vec<f64>> {
+        (0..self.h.len())
+            .map(|o| {
+                let hmax = self.h[o].iter().fold(0.0f64, |m, c| m.max(c.norm()));
+                let n = self.hits[o].max(1) as f64;
+                self.h[o]
+                    .iter()
+                    .zip(&self.coherence[o])
+                    .map(|(h, &g)| {
+                        let mag = h.norm().max(1e-6 * hmax).max(f64::MIN_POSITIVE);
+                        if coherence {
+                            let g = g.clamp(1e-3, 1.0 - 1e-6);
+                            (2.0 * n * g / (1.0 - g)).sqrt() / mag
+                        } else {
+                            1.0 / hmax.max(f64::MIN_POSITIVE)
+                        }
+                    })
+                    .collect()
+            })
+            .collect()
+    }
+}
+
+/// Mode indicators over the band.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Indicators {
+    /// Lines, Hz.
+    pub freq_hz: Vec<f64>,
+    /// Σ_j |H_j| (hammer) — peaks at modes.
+    pub sum_abs: Vec<f64>,
+    /// MIF = 1 − Σ|Re H_j||H_j| / Σ|H_j|² (Williams, Crowley & Vold 1985, from memory) — dips at modes.
+    pub mif: Vec<f64>,
+    /// Σ_j G_bb,j: response auto-spectra (sensor layout: the modes' indicator; T's peaks are not modes).
+    pub sum_response_autospectra: Vec<f64>,
+}
+
+/// Computes the indicators.
+pub fn indicators(set: &FrfSet) -> Indicators {
+    let nf = set.freq_hz.len();
+    let mut ind = Indicators {
+        freq_hz: set.freq_hz.clone(),
+        sum_abs: vec![0.0; nf],
+        mif: vec![0.0; nf],
+        sum_response_autospectra: vec![0.0; nf],
+    };
+    for k in 0..nf {
+        let (mut re_abs, mut sq) = (0.0, 0.0);
+        for o in 0..set.h.len() {
+            let h = set.h[o][k];
+            ind.sum_abs[k] += h.norm();
+            re_abs += h.re.abs() * h.norm();
+            sq += h.norm_sqr();
+            ind.sum_response_autospectra[k] += set.gbb[o][k];
+        }
+        ind.mif[k] = if sq > 0.0 { 1.0 - re_abs / sq } else { 0.0 };
+    }
+    ind
+}
+
+/// All the modal stage produced.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct ModalResult {
+    /// Modes by frequency.
+    pub modes: Vec<Mode>,
+    /// The stabilization diagram (LSCF).
+    pub stabilization: Option<Stabilization>,
+    /// Indicators.
+    pub indicators: Indicators,
+    /// Stations of the shapes.
+    pub stations: Vec<u32>,
+    /// Positions, m.
+    pub positions_m: Vec<f64>,
+    /// Per-station LSFD fit error Σ|H − H_syn|²/Σ|H|².
+    pub fit_error: Vec<f64>,
+    /// Synthesized FRF per station (LSCF).
+    pub synthesized: Vec<Vec<Complex64>>,
+    /// MAC between every pair of modes.
+    pub auto_mac: Vec<Vec<f64>>,
+    /// Things the reader must know.
+    pub warnings: Vec<String>,
+}
+
+/// Extracts modes from a test's FRFs.
+pub fn extract(set: &FrfSet, s: &ModalSettings) -> Result<ModalResult, String> {
+    let ind = indicators(set);
+    let mut res = ModalResult {
+        indicators: ind,
+        stations: set.stations.clone(),
+        positions_m: set.positions_m.clone(),
+        ..ModalResult::default()
+    };
+    let method = if set.layout == Layout::Sensor {
+        if s.method == Method::Lscf {
+            res.warnings.push(
+                "roving-sensor layout: transmissibility poles are the reference's antiresonances, so modes come \
+                 from peaks of the summed response auto-spectra (peak method); no modal scaling"
+                    .into(),
+            );
+        }
+        Method::Peak
+    } else {
+        s.method
+    };
+    match method {
+        Method::Peak => peak_modes(set, &mut res, s),
+        Method::Lscf => lscf_modes(set, &mut res, s)?,
+    }
+    res.modes.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    res.auto_mac = res
+        .modes
+        .iter()
+        .map(|a| res.modes.iter().map(|b| mac(&a.shape, &b.shape)).collect())
+        .collect();
+    Ok(res)
+}
+
+/// Local maxima of `y` standing at least 3 dB above the higher of their two flanking minima.
+fn prominent_peaks(y: &[f64]) -> Vec<usize> {
+    let n = y.len();
+    let mut out = Vec::new();
+    for i in 1..n.saturating_sub(1) {
+        if !(y[i] > y[i - 1] && y[i] >= y[i + 1]) {
+            continue;
+        }
+        let mut l = i;
+        let mut lmin = y[i];
+        while l > 0 && y[l - 1] <= y[i] {
+            l -= 1;
+            lmin = lmin.min(y[l]);
+        }
+        let mut r = i;
+        let mut rmin = y[i];
+        while r + 1 < n && y[r + 1] <= y[i] {
+            r += 1;
+            rmin = rmin.min(y[r]);
+        }
+        if y[i] >= std::f64::consts::SQRT_2 * lmin.max(rmin) {
+            out.push(i);
+        }
+    }
+    out
+}
+
+/// Parabolic interpolation of ln(y) around line i: (fractional offset, peak value).
+fn interpolate_peak(y: &[f64], i: usize) -> (f64, f64) {
+    if i == 0 || i + 1 >= y.len() || y[i - 1] <= 0.0 || y[i + 1] <= 0.0 {
+        return (0.0, y[i]);
+    }
+    let (a, b, c) = (y[i - 1].ln(), y[i].ln(), y[i + 1].ln());
+    let den = a - 2.0 * b + c;
+    if den >= 0.0 {
+        return (0.0, y[i]);
+    }
+    let d = 0.5 * (a - c) / den;
+    (d, (b - 0.25 * (a - c) * d).exp())
+}
+
+/// Half-power width of the peak at line i of a magnitude-like `y` (`power`: y is already a
+/// power, so its half-power level is y/2 rather than y/√2). Returns (f1, f2).
+fn half_power(f: &[f64], y: &[f64], i: usize, peak: f64, power: bool) -> Option<(f64, f64)> {
+    let level = if power { peak / 2.0 } else { peak / std::f64::consts::SQRT_2 };
+    let mut l = i;
+    while l > 0 && y[l] > level {
+        l -= 1;
+    }
+    let mut r = i;
+    while r + 1 < y.len() && y[r] > level {
+        r += 1;
+    }
+    if y[l] > level || y[r] > level || l == i || r == i {
+        return None;
+    }
+    let cross = |a: usize, b: usize| f[a] + (level - y[a]) * (f[b] - f[a]) / (y[b] - y[a]);
+    Some((cross(l, l + 1), cross(r - 1, r)))
+}
+
+fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) {
+    let sensor = set.layout == Layout::Sensor;
+    let y = if sensor {
+        &res.indicators.sum_response_autospectra
+    } else {
+        &res.indicators.sum_abs
+    };
+    let f = &set.freq_hz;
+    let mut peaks = prominent_peaks(y);
+    // Rank by height for Count/Near selections.
+    let mut chosen: Vec<usize> = match &s.selection {
+        Selection::Auto => peaks.clone(),
+        Selection::Count(n) => {
+            peaks.sort_by(|a, b| y[*b].total_cmp(&y[*a]));
+            peaks.into_iter().take(*n).collect()
+        }
+        Selection::Near(list) => list
+            .iter()
+            .filter_map(|&target| {
+                peaks
+                    .iter()
+                    .copied()
+                    .min_by(|a, b| (f[*a] - target).abs().total_cmp(&(f[*b] - target).abs()))
+            })
+            .collect(),
+    };
+    chosen.sort_unstable();
+    chosen.dedup();
+    for i in chosen {
+        let (d, pk) = interpolate_peak(y, i);
+        let fm = f[i] + d * set.df_hz;
+        let zeta_m = half_power(f, y, i, pk, sensor).map(|(f1, f2)| (f2 - f1) / (2.0 * fm));
+        let (fc, zc) = match zeta_m {
+            Some(z) => {
+                let (fc, zc) = correct_damping(fm, z, set.exp_tau_s);
+                (fc, Some(zc))
+            }
+            None => (fm, None),
+        };
+        let window_zeta = if set.exp_tau_s.is_finite() {
+            1.0 / (set.exp_tau_s * 2.0 * std::f64::consts::PI * fm)
+        } else {
+            0.0
+        };
+        if is_hum(fc, zc.unwrap_or(0.0), window_zeta, set.df_hz, &s.mains_hz) {
+            continue;
+        }
+        if sensor && zc.is_none() {
+            res.warnings.push(format!(
+                "a response peak at {fm:.2} Hz has no half-power points in the band; not reported as a mode"
+            ));
+            continue;
+        }
+        // A structural resonance is coherent at its peak; hum lines (random phase from hit to hit),
+        // noise spikes and force-spectrum nulls are not.
+        let coh = set.coherence.iter().map(|c| c[i]).sum::<f64>() / set.coherence.len() as f64;
+        if !sensor && coh < 0.8 {
+            continue;
+        }
+        let raw: Vec<Complex64> = set
+            .h
+            .iter()
+            .map(|h| {
+                if sensor {
+                    // In-phase / out-of-phase sign of the transmissibility.
+                    Complex64::new(h[i].norm() * h[i].re.signum(), 0.0)
+                } else {
+                    // Quadrature: signed Im(accelerance) at the peak (Ewins 2000).
+                    Complex64::new(h[i].im, 0.0)
+                }
+            })
+            .collect();
+        let mut notes = vec![
+            "peak picking: a single peak may hide two closely spaced modes (e.g. two bending planes); the lscf method resolves them"
+                .to_string(),
+        ];
+        if zeta_m.is_none() {
+            notes.push("half-power points not found inside the band: damping unknown".into());
+        }
+        if sensor {
+            notes.push("roving sensor: damping from the response auto-spectra; shapes are unscaled".into());
+        }
+        res.modes.push(Mode {
+            frequency_hz: fc,
+            damping_ratio: zc,
+            method: Method::Peak,
+            damping_source: zc.map(|_| {
+                if sensor {
+                    DampingSource::ResponseAutospectrum
+                } else {
+                    DampingSource::HalfPower
+                }
+            }),
+            mpc: mpc(&raw),
+            mpd_deg: mean_phase_deviation_deg(&raw),
+            shape: normalise(&raw, set.reference),
+            measured_frequency_hz: fm,
+            measured_damping_ratio: zeta_m,
+            stable_orders: 0,
+            notes,
+        });
+    }
+}
+
+/// An undamped line at a mains harmonic: hum, not a mode. `window_zeta` is the damping the
+/// exponential window alone gives a pure line; an estimate well below it is a line, not a mode.
+fn is_hum(f: f64, zeta_true: f64, window_zeta: f64, df: f64, mains: &[f64]) -> bool {
+    let tol = (0.5 * df).max(0.3);
+    zeta_true < 3e-4f64.max(0.75 * window_zeta)
+        && mains.iter().any(|&m| {
+            let k = (f / m).round();
+            k >= 1.0 && (f - k * m).abs() <= tol
+        })
+}
+
+struct Cluster {
+    members: Vec<usize>,
+}
+
+fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<(), String> {
+    let w = set.weights(s.coherence_weighting);
+    let stab = lscf::stabilization(&set.freq_hz, &set.h, &w, s.max_order, s.criteria)?;
+    let poles = &stab.poles;
+    // Fully stable poles, clustered by frequency (gaps over 0.2 %), split where one order would
+    // give two poles to a cluster (two close modes).
+    let mut idx: Vec<usize> = (0..poles.len())
+        .filter(|&i| poles[i].status == PoleStatus::FrequencyDampingShape)
+        .collect();
+    idx.sort_by(|&a, &b| poles[a].frequency_hz.total_cmp(&poles[b].frequency_hz));
+    let mut clusters: Vec<Cluster> = Vec::new();
+    for &i in &idx {
+        match clusters.last_mut() {
+            Some(c)
+                if poles[i].frequency_hz
+                    - poles[*c.members.last().expect("clusters are never empty")].frequency_hz
+                    <= 0.002 * poles[i].frequency_hz =>
+            {
+                c.members.push(i)
+            }
+            _ => clusters.push(Cluster { members: vec![i] }),
+        }
+    }
+    let mut split: Vec<Cluster> = Vec::new();
+    while let Some(c) = clusters.pop() {
+        let mut orders: Vec<usize> = c.members.iter().map(|&i| poles[i].order).collect();
+        orders.sort_unstable();
+        let dup = orders.windows(2).any(|w| w[0] == w[1]);
+        if dup && c.members.len() >= 4 {
+            let (g, _) = c
+                .members
+                .windows(2)
+                .enumerate()
+                .map(|(k, w)| (k, poles[w[1]].frequency_hz - poles[w[0]].frequency_hz))
+                .fold((0, f64::MIN), |a, b| if b.1 > a.1 { b } else { a });
+            let (l, r) = c.members.split_at(g + 1);
+            clusters.push(Cluster { members: l.to_vec() });
+            clusters.push(Cluster { members: r.to_vec() });
+        } else {
+            split.push(c);
+        }
+    }
+    split.sort_by(|a, b| poles[a.members[0]].frequency_hz.total_cmp(&poles[b.members[0]].frequency_hz));
+
+    // Candidate modes: the median member of each cluster.
+    struct Cand {
+        pole: usize,
+        size: usize,
+    }
+    let median = |c: &Cluster| {
+        let mut m = c.members.clone();
+        m.sort_by(|&a, &b| poles[a].frequency_hz.total_cmp(&poles[b].frequency_hz));
+        m[m.len() / 2]
+    };
+    let mean_gaa: Vec<f64> = (0..set.freq_hz.len())
+        .map(|k| set.gaa.iter().map(|g| g[k]).sum::<f64>() / set.gaa.len() as f64)
+        .collect();
+    let mut sorted_gaa = mean_gaa.clone();
+    sorted_gaa.sort_by(f64::total_cmp);
+    let gaa_median = sorted_gaa[sorted_gaa.len() / 2];
+    let physical = |p: usize| {
+        let pole = &poles[p];
+        let (fc, zc) = correct_damping(pole.frequency_hz, pole.damping_ratio, set.exp_tau_s);
+        let k = set.freq_hz.partition_point(|&x| x < fc).min(set.freq_hz.len() - 1);
+        zc > 1e-5
+            && zc < 0.2
+            && !is_hum(
+                fc,
+                zc,
+                1.0 / (set.exp_tau_s * 2.0 * std::f64::consts::PI * fc),
+                set.df_hz,
+                &s.mains_hz,
+            )
+            && mean_gaa[k] > 0.01 * gaa_median
+            && pole.mpc > 0.5
+    };
+    let mut cands: Vec<Cand> = match &s.selection {
+        Selection::Auto => split
+            .iter()
+            .filter(|c| c.members.len() >= s.min_stable_orders)
+            .map(|c| Cand { pole: median(c), size: c.members.len() })
+            .filter(|c| physical(c.pole))
+            .collect(),
+        Selection::Count(n) => {
+            let mut v: Vec<Cand> = split
+                .iter()
+                .map(|c| Cand { pole: median(c), size: c.members.len() })
+                .filter(|c| physical(c.pole))
+                .collect();
+            v.sort_by(|a, b| b.size.cmp(&a.size));
+            v.truncate(*n);
+            v
+        }
+        Selection::Near(list) => list
+            .iter()
+            .filter_map(|&target| {
+                split
+                    .iter()
+                    .min_by(|a, b| {
+                        (poles[median(a)].frequency_hz - target)
+                            .abs()
+                            .total_cmp(&(poles[median(b)].frequency_hz - target).abs())
+                    })
+                    .map(|c| Cand { pole: median(c), size: c.members.len() })
+            })
+            .collect(),
+    };
+    cands.sort_by(|a, b| poles[a.pole].frequency_hz.total_cmp(&poles[b.pole].frequency_hz));
+    cands.dedup_by_key(|c| c.pole);
+    let lambdas: Vec<Complex64> = cands.iter().map(|c| poles[c.pole].lambda).collect();
+    if lambdas.is_empty() {
+        res.warnings.push("no stable physical pole was found in the band".into());
+    }
+    let mut fits = Vec::with_capacity(set.h.len());
+    for o in 0..set.h.len() {
+        let fit = lsfd::fit_output(&set.freq_hz, &set.h[o], &w[o], &lambdas, set.exp_tau_s)
+            .ok_or_else(|| format!("station {}: the residue fit is singular", set.stations[o]))?;
+        fits.push(fit);
+    }
+    for (r, c) in cands.iter().enumerate() {
+        let pole = &poles[c.pole];
+        let raw: Vec<Complex64> = fits.iter().map(|f| f.residues[r]).collect();
+        let (fc, zc) = correct_damping(pole.frequency_hz, pole.damping_ratio, set.exp_tau_s);
+        let close = cands.iter().any(|o| {
+            o.pole != c.pole && (poles[o.pole].frequency_hz / pole.frequency_hz - 1.0).abs() < 0.02
+        });
+        let mut notes = Vec::new();
+        if close {
+            notes.push("closely spaced pair: resolved by the global fit".to_string());
+        }
+        let m = mpc(&raw);
+        if m < 0.9 {
+            notes.push(format!("complex shape (MPC {m:.2}): check for noise or a neighbouring mode"));
+        }
+        res.modes.push(Mode {
+            frequency_hz: fc,
+            damping_ratio: Some(zc),
+            method: Method::Lscf,
+            damping_source: Some(DampingSource::Pole),
+            mpc: m,
+            mpd_deg: mean_phase_deviation_deg(&raw),
+            shape: normalise(&raw, set.reference),
+            measured_frequency_hz: pole.frequency_hz,
+            measured_damping_ratio: Some(pole.damping_ratio),
+            stable_orders: c.size,
+            notes,
+        });
+    }
+    res.fit_error = fits.iter().map(|f| f.fit_error).collect();
+    res.synthesized = fits.into_iter().map(|f| f.synthesized).collect();
+    res.stabilization = Some(stab);
+    Ok(())
+}
