@@ -74,7 +74,8 @@ fn analyze_writes_frf_csv_and_result_json() {
     assert_eq!(st.len(), 4);
     assert_eq!(st[1]["position_m"].as_f64().unwrap(), 0.3);
     assert_eq!(st[1]["accepted_hits"].as_u64().unwrap(), 2);
-    assert!(r["modes"].as_array().unwrap().is_empty());
+    // The modal stage reports the truth's flexible modes inside the band (details in modal tests).
+    assert!(!r["modes"].as_array().unwrap().is_empty());
     assert!(r["settings"].is_object());
 
     let csv = std::fs::read_to_string(out.join("frf.csv")).unwrap();

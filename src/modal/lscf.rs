@@ -144,8 +144,18 @@ pub fn stabilization(
         let rm = DMatrix::from_fn(np, np, |i, j| r[i.abs_diff(j)].re);
         let sm = DMatrix::from_fn(np, np, |i, j| if j >= i { -s[j - i].re } else { -u[i - j].re });
         tsum += DMatrix::from_fn(np, np, |i, j| t[i.abs_diff(j)].re);
-        let chol = rm
-            .cholesky()
+        // A narrow band far from 0 Hz leaves R_o numerically singular at high orders; a tiny ridge
+        // keeps the low orders exact, and the high orders' poles then fail the stability tests.
+        let top = (0..np).map(|i| rm[(i, i)]).fold(0.0f64, f64::max);
+        let chol = [0.0, 1e-13, 1e-11, 1e-9]
+            .iter()
+            .find_map(|&ridge| {
+                let mut m = rm.clone();
+                for i in 0..np {
+                    m[(i, i)] += ridge * top;
+                }
+                m.cholesky()
+            })
             .ok_or_else(|| format!("output {o}: the weighted basis is singular (too few valid lines?)"))?;
         let l = chol.l();
         let x = l

@@ -476,7 +476,19 @@ struct Cluster {
 
 fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<(), String> {
     let w = set.weights(s.coherence_weighting);
-    let stab = lscf::stabilization(&set.freq_hz, &set.h, &w, s.max_order, s.criteria)?;
+    let fit_order = s.max_order.min(set.freq_hz.len().saturating_sub(2) / 2);
+    if fit_order < s.max_order {
+        res.warnings.push(format!(
+            "the band holds {} lines: model order limited to {fit_order} (asked {})",
+            set.freq_hz.len(),
+            s.max_order
+        ));
+    }
+    if fit_order < 2 {
+        res.warnings.push("the band is too narrow for a curve fit".into());
+        return Ok(());
+    }
+    let stab = lscf::stabilization(&set.freq_hz, &set.h, &w, fit_order, s.criteria)?;
     let poles = &stab.poles;
     // Fully stable poles, clustered by frequency (gaps over 0.2 %), split where one order would
     // give two poles to a cluster (two close modes).
