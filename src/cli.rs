@@ -480,7 +480,8 @@ fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal: &ModalSettings) ->
     let a = analysis::run(&data, &setup)?;
     let t1 = std::time::Instant::now();
     let modes = match FrfSet::from_analysis(&a) {
-        Some(set) => crate::modal::extract(&set, modal).map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))?,
+        Some(set) => crate::modal::extract(&set, modal)
+            .map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))?,
         None => ModalResult::default(),
     };
     let t1b = std::time::Instant::now();

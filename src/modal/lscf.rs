@@ -142,7 +142,11 @@ pub fn stabilization(
             }
         }
         let rm = DMatrix::from_fn(np, np, |i, j| r[i.abs_diff(j)].re);
-        let sm = DMatrix::from_fn(np, np, |i, j| if j >= i { -s[j - i].re } else { -u[i - j].re });
+        let sm = DMatrix::from_fn(
+            np,
+            np,
+            |i, j| if j >= i { -s[j - i].re } else { -u[i - j].re },
+        );
         tsum += DMatrix::from_fn(np, np, |i, j| t[i.abs_diff(j)].re);
         // A narrow band far from 0 Hz leaves R_o numerically singular at high orders; a tiny ridge
         // keeps the low orders exact, and the high orders' poles then fail the stability tests.
@@ -156,7 +160,9 @@ pub fn stabilization(
                 }
                 m.cholesky()
             })
-            .ok_or_else(|| format!("output {o}: the weighted basis is singular (too few valid lines?)"))?;
+            .ok_or_else(|| {
+                format!("output {o}: the weighted basis is singular (too few valid lines?)")
+            })?;
         let l = chol.l();
         let x = l
             .solve_lower_triangular(&sm)

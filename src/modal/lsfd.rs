@@ -36,7 +36,11 @@ pub fn fit_output(
 ) -> Option<OutputFit> {
     let n = lambda.len();
     let cols = 2 * n + 2;
-    let inv_tau = if exp_tau_s.is_finite() { 1.0 / exp_tau_s } else { 0.0 };
+    let inv_tau = if exp_tau_s.is_finite() {
+        1.0 / exp_tau_s
+    } else {
+        0.0
+    };
     let basis = |f: f64| -> Vec<Complex64> {
         let w = TAU * f;
         let s = Complex64::new(0.0, w);
@@ -65,7 +69,10 @@ pub fn fit_output(
             scale[c] += w2 * v.norm_sqr();
         }
     }
-    let scale: Vec<f64> = scale.iter().map(|s| if *s > 0.0 { 1.0 / s.sqrt() } else { 1.0 }).collect();
+    let scale: Vec<f64> = scale
+        .iter()
+        .map(|s| if *s > 0.0 { 1.0 / s.sqrt() } else { 1.0 })
+        .collect();
     for (k, b) in rows.iter().enumerate() {
         let w2 = weight[k] * weight[k];
         for i in 0..cols {
@@ -88,12 +95,18 @@ pub fn fit_output(
         .map(|c| c.solve(&atb))
         .or_else(|| ata.svd(true, true).solve(&atb, 1e-12).ok())?;
     let coef: Vec<f64> = (0..cols).map(|i| x[i] * scale[i]).collect();
-    let residues: Vec<Complex64> = (0..n).map(|r| Complex64::new(coef[2 * r], coef[2 * r + 1])).collect();
+    let residues: Vec<Complex64> = (0..n)
+        .map(|r| Complex64::new(coef[2 * r], coef[2 * r + 1]))
+        .collect();
     let synthesized: Vec<Complex64> = rows
         .iter()
         .map(|b| b.iter().zip(&coef).map(|(v, c)| v * *c).sum())
         .collect();
-    let num: f64 = h.iter().zip(&synthesized).map(|(a, b)| (a - b).norm_sqr()).sum();
+    let num: f64 = h
+        .iter()
+        .zip(&synthesized)
+        .map(|(a, b)| (a - b).norm_sqr())
+        .sum();
     let den: f64 = h.iter().map(|a| a.norm_sqr()).sum();
     Some(OutputFit {
         residues,

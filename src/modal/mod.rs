@@ -11,7 +11,7 @@ use crate::Complex64;
 use crate::analysis::Analysis;
 use crate::setup::Layout;
 use crate::signal::window::correct_damping;
-use lscf::{PoleStatus, Stabilization, StabilityCriteria};
+use lscf::{PoleStatus, StabilityCriteria, Stabilization};
 use shape::{mac, mean_phase_deviation_deg, mpc, normalise};
 
 /// How modes are extracted.
@@ -144,7 +144,11 @@ pub struct FrfSet {
 impl FrfSet {
     /// Gathers the stations of an analysis that have an FRF.
     pub fn from_analysis(a: &Analysis) -> Option<Self> {
-        let with: Vec<_> = a.stations.iter().filter(|s| s.result.frf.is_some()).collect();
+        let with: Vec<_> = a
+            .stations
+            .iter()
+            .filter(|s| s.result.frf.is_some())
+            .collect();
         let first = with.first()?;
         let f0 = first.result.frf.as_ref()?;
         let mut set = FrfSet {
@@ -286,7 +290,8 @@ pub fn extract(set: &FrfSet, s: &ModalSettings) -> Result<ModalResult, String> {
         Method::Peak => peak_modes(set, &mut res, s),
         Method::Lscf => lscf_modes(set, &mut res, s)?,
     }
-    res.modes.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    res.modes
+        .sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
     res.auto_mac = res
         .modes
         .iter()
@@ -339,7 +344,11 @@ fn interpolate_peak(y: &[f64], i: usize) -> (f64, f64) {
 /// Half-power width of the peak at line i of a magnitude-like `y` (`power`: y is already a
 /// power, so its half-power level is y/2 rather than y/√2). Returns (f1, f2).
 fn half_power(f: &[f64], y: &[f64], i: usize, peak: f64, power: bool) -> Option<(f64, f64)> {
-    let level = if power { peak / 2.0 } else { peak / std::f64::consts::SQRT_2 };
+    let level = if power {
+        peak / 2.0
+    } else {
+        peak / std::f64::consts::SQRT_2
+    };
     let mut l = i;
     while l > 0 && y[l] > level {
         l -= 1;
@@ -435,7 +444,9 @@ fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) {
             notes.push("half-power points not found inside the band: damping unknown".into());
         }
         if sensor {
-            notes.push("roving sensor: damping from the response auto-spectra; shapes are unscaled".into());
+            notes.push(
+                "roving sensor: damping from the response auto-spectra; shapes are unscaled".into(),
+            );
         }
         res.modes.push(Mode {
             frequency_hz: fc,
@@ -485,7 +496,8 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
         ));
     }
     if fit_order < 2 {
-        res.warnings.push("the band is too narrow for a curve fit".into());
+        res.warnings
+            .push("the band is too narrow for a curve fit".into());
         return Ok(());
     }
     let stab = lscf::stabilization(&set.freq_hz, &set.h, &w, fit_order, s.criteria)?;
@@ -522,13 +534,21 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
                 .map(|(k, w)| (k, poles[w[1]].frequency_hz - poles[w[0]].frequency_hz))
                 .fold((0, f64::MIN), |a, b| if b.1 > a.1 { b } else { a });
             let (l, r) = c.members.split_at(g + 1);
-            clusters.push(Cluster { members: l.to_vec() });
-            clusters.push(Cluster { members: r.to_vec() });
+            clusters.push(Cluster {
+                members: l.to_vec(),
+            });
+            clusters.push(Cluster {
+                members: r.to_vec(),
+            });
         } else {
             split.push(c);
         }
     }
-    split.sort_by(|a, b| poles[a.members[0]].frequency_hz.total_cmp(&poles[b.members[0]].frequency_hz));
+    split.sort_by(|a, b| {
+        poles[a.members[0]]
+            .frequency_hz
+            .total_cmp(&poles[b.members[0]].frequency_hz)
+    });
 
     // Candidate modes: the median member of each cluster.
     struct Cand {
@@ -549,7 +569,10 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
     let physical = |p: usize| {
         let pole = &poles[p];
         let (fc, zc) = correct_damping(pole.frequency_hz, pole.damping_ratio, set.exp_tau_s);
-        let k = set.freq_hz.partition_point(|&x| x < fc).min(set.freq_hz.len() - 1);
+        let k = set
+            .freq_hz
+            .partition_point(|&x| x < fc)
+            .min(set.freq_hz.len() - 1);
         zc > 1e-5
             && zc < 0.2
             && !is_hum(
@@ -563,16 +586,29 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
             && pole.mpc > 0.5
     };
     let mut cands: Vec<Cand> = match &s.selection {
+        // A physical pole stays to the highest orders; a pole that stood for two close modes at
+        // low orders vanishes once the model resolves them.
         Selection::Auto => split
             .iter()
             .filter(|c| c.members.len() >= s.min_stable_orders)
-            .map(|c| Cand { pole: median(c), size: c.members.len() })
+            .filter(|c| {
+                c.members
+                    .iter()
+                    .any(|&i| 4 * poles[i].order >= 3 * stab.max_order)
+            })
+            .map(|c| Cand {
+                pole: median(c),
+                size: c.members.len(),
+            })
             .filter(|c| physical(c.pole))
             .collect(),
         Selection::Count(n) => {
             let mut v: Vec<Cand> = split
                 .iter()
-                .map(|c| Cand { pole: median(c), size: c.members.len() })
+                .map(|c| Cand {
+                    pole: median(c),
+                    size: c.members.len(),
+                })
                 .filter(|c| physical(c.pole))
                 .collect();
             v.sort_by(|a, b| b.size.cmp(&a.size));
@@ -589,15 +625,23 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
                             .abs()
                             .total_cmp(&(poles[median(b)].frequency_hz - target).abs())
                     })
-                    .map(|c| Cand { pole: median(c), size: c.members.len() })
+                    .map(|c| Cand {
+                        pole: median(c),
+                        size: c.members.len(),
+                    })
             })
             .collect(),
     };
-    cands.sort_by(|a, b| poles[a.pole].frequency_hz.total_cmp(&poles[b.pole].frequency_hz));
+    cands.sort_by(|a, b| {
+        poles[a.pole]
+            .frequency_hz
+            .total_cmp(&poles[b.pole].frequency_hz)
+    });
     cands.dedup_by_key(|c| c.pole);
     let lambdas: Vec<Complex64> = cands.iter().map(|c| poles[c.pole].lambda).collect();
     if lambdas.is_empty() {
-        res.warnings.push("no stable physical pole was found in the band".into());
+        res.warnings
+            .push("no stable physical pole was found in the band".into());
     }
     let mut fits = Vec::with_capacity(set.h.len());
     for o in 0..set.h.len() {
@@ -618,7 +662,9 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
         }
         let m = mpc(&raw);
         if m < 0.9 {
-            notes.push(format!("complex shape (MPC {m:.2}): check for noise or a neighbouring mode"));
+            notes.push(format!(
+                "complex shape (MPC {m:.2}): check for noise or a neighbouring mode"
+            ));
         }
         res.modes.push(Mode {
             frequency_hz: fc,

@@ -67,7 +67,11 @@ pub fn mean_phase_deviation_deg(v: &[Complex64]) -> f64 {
             den += m;
         }
     }
-    if den > 0.0 { (num / den).to_degrees() } else { 0.0 }
+    if den > 0.0 {
+        (num / den).to_degrees()
+    } else {
+        0.0
+    }
 }
 
 /// Rotates a complex shape onto its principal axis, signs it so that entry `sign_ref` (the
@@ -116,7 +120,10 @@ mod tests {
     fn mpc_of_real_and_rotated_vectors_is_one() {
         let real = [c(1.0, 0.0), c(-0.5, 0.0), c(0.2, 0.0)];
         assert!((mpc(&real) - 1.0).abs() < 1e-14);
-        let rot: Vec<Complex64> = real.iter().map(|x| x * Complex64::from_polar(1.0, 0.7)).collect();
+        let rot: Vec<Complex64> = real
+            .iter()
+            .map(|x| x * Complex64::from_polar(1.0, 0.7))
+            .collect();
         assert!((mpc(&rot) - 1.0).abs() < 1e-12);
         assert!(mean_phase_deviation_deg(&rot) < 1e-9);
         // A circularly "travelling" vector (1, j) has MPC 0.

@@ -221,7 +221,8 @@ pub fn modes_summary(m: &ModalResult) -> String {
                 "{:>4}  {:>12.3}  {:>9}  {:.3}  {:?}",
                 i + 1,
                 md.frequency_hz,
-                md.damping_ratio.map_or("—".into(), |z| format!("{:.4}", 100.0 * z)),
+                md.damping_ratio
+                    .map_or("—".into(), |z| format!("{:.4}", 100.0 * z)),
                 md.mpc,
                 md.method
             );
