@@ -272,7 +272,8 @@ pub struct AnalyzeArgs {
     /// Output folder for frf.csv, result.json and stabilization.csv.
     #[arg(long)]
     pub out: PathBuf,
-    /// Modes to report: auto, a count N (the N most stable), or frequencies F1,F2,… (Hz).
+    /// Modes to report: auto, a count N (the N most stable), frequencies F1,F2,… (Hz), or none
+    /// (FRFs only).
     #[arg(long, default_value = "auto")]
     pub modes: String,
     /// Extraction method.
@@ -295,8 +296,9 @@ pub enum MethodArg {
     Peak,
 }
 
-fn modal_settings(a: &AnalyzeArgs) -> Result<ModalSettings> {
+fn modal_settings(a: &AnalyzeArgs) -> Result<Option<ModalSettings>> {
     let selection = match a.modes.trim() {
+        "none" => return Ok(None),
         "auto" => Selection::Auto,
         t if !t.contains(',') && !t.contains('.') && t.parse::<usize>().is_ok() => {
             Selection::Count(t.parse()?)
@@ -314,7 +316,7 @@ fn modal_settings(a: &AnalyzeArgs) -> Result<ModalSettings> {
     if !(2..=200).contains(&a.max_order) {
         bail!("--max-order must be between 2 and 200");
     }
-    Ok(ModalSettings {
+    Ok(Some(ModalSettings {
         method: match a.method {
             MethodArg::Lscf => Method::Lscf,
             MethodArg::Peak => Method::Peak,
@@ -322,7 +324,7 @@ fn modal_settings(a: &AnalyzeArgs) -> Result<ModalSettings> {
         selection,
         max_order: a.max_order,
         ..ModalSettings::default()
-    })
+    }))
 }
 
 /// `tapgrid import`.
@@ -435,7 +437,7 @@ pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Analyze(a) => {
             let m = modal_settings(&a)?;
-            analyze(&a.input, &a.out, &a.setup, &m)
+            analyze(&a.input, &a.out, &a.setup, m.as_ref())
         }
         Command::Import(a) => import(a),
         Command::Verdict(a) => verdict(a),
@@ -452,7 +454,12 @@ pub fn run(cli: Cli) -> Result<()> {
                 .out
                 .unwrap_or_else(|| std::env::temp_dir().join("tapgrid-demo"));
             println!("demo session: {}", dir.display());
-            analyze(&dir, &out, &SetupArgs::default(), &ModalSettings::default())
+            analyze(
+                &dir,
+                &out,
+                &SetupArgs::default(),
+                Some(&ModalSettings::default()),
+            )
         }
     }
 }
@@ -471,7 +478,12 @@ fn demo_session_dir() -> Result<PathBuf> {
         .ok_or_else(|| anyhow!("the demo session {} was not found", rel.display()))
 }
 
-fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal: &ModalSettings) -> Result<()> {
+fn analyze(
+    input: &Path,
+    out: &Path,
+    args: &SetupArgs,
+    modal: Option<&ModalSettings>,
+) -> Result<()> {
     let spacing = args.spacing.unwrap_or(Setup::default().spacing_m);
     let (data, session) = Dataset::open(input, spacing)?;
     let base = session.map(|s| s.manifest.setup).unwrap_or_default();
@@ -479,10 +491,10 @@ fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal: &ModalSettings) ->
     let t0 = std::time::Instant::now();
     let a = analysis::run(&data, &setup)?;
     let t1 = std::time::Instant::now();
-    let modes = match FrfSet::from_analysis(&a) {
-        Some(set) => crate::modal::extract(&set, modal)
+    let modes = match (modal, FrfSet::from_analysis(&a)) {
+        (Some(ms), Some(set)) => crate::modal::extract(&set, ms)
             .map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))?,
-        None => ModalResult::default(),
+        _ => ModalResult::default(),
     };
     let t1b = std::time::Instant::now();
     report::write_outputs(&a, &modes, out)?;
