@@ -611,7 +611,7 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
                 })
                 .filter(|c| physical(c.pole))
                 .collect();
-            v.sort_by(|a, b| b.size.cmp(&a.size));
+            v.sort_by_key(|c| std::cmp::Reverse(c.size));
             v.truncate(*n);
             v
         }
@@ -638,23 +638,39 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
             .total_cmp(&poles[b.pole].frequency_hz)
     });
     cands.dedup_by_key(|c| c.pole);
-    let lambdas: Vec<Complex64> = cands.iter().map(|c| poles[c.pole].lambda).collect();
-    if lambdas.is_empty() {
+    let chosen: Vec<(usize, usize)> = cands.iter().map(|c| (c.pole, c.size)).collect();
+    if chosen.is_empty() {
         res.warnings
             .push("no stable physical pole was found in the band".into());
     }
+    fit_chosen(set, res, &stab, &w, &chosen)?;
+    res.stabilization = Some(stab);
+    Ok(())
+}
+
+/// LSFD residues, shapes and synthesized FRFs for chosen poles (index into `stab.poles`, and the
+/// number of orders its cluster was stable over).
+fn fit_chosen(
+    set: &FrfSet,
+    res: &mut ModalResult,
+    stab: &Stabilization,
+    w: &[Vec<f64>],
+    chosen: &[(usize, usize)],
+) -> Result<(), String> {
+    let poles = &stab.poles;
+    let lambdas: Vec<Complex64> = chosen.iter().map(|c| poles[c.0].lambda).collect();
     let mut fits = Vec::with_capacity(set.h.len());
-    for o in 0..set.h.len() {
-        let fit = lsfd::fit_output(&set.freq_hz, &set.h[o], &w[o], &lambdas, set.exp_tau_s)
+    for (o, (h, wo)) in set.h.iter().zip(w).enumerate() {
+        let fit = lsfd::fit_output(&set.freq_hz, h, wo, &lambdas, set.exp_tau_s)
             .ok_or_else(|| format!("station {}: the residue fit is singular", set.stations[o]))?;
         fits.push(fit);
     }
-    for (r, c) in cands.iter().enumerate() {
-        let pole = &poles[c.pole];
+    for (r, &(pi, size)) in chosen.iter().enumerate() {
+        let pole = &poles[pi];
         let raw: Vec<Complex64> = fits.iter().map(|f| f.residues[r]).collect();
         let (fc, zc) = correct_damping(pole.frequency_hz, pole.damping_ratio, set.exp_tau_s);
-        let close = cands.iter().any(|o| {
-            o.pole != c.pole && (poles[o.pole].frequency_hz / pole.frequency_hz - 1.0).abs() < 0.02
+        let close = chosen.iter().any(|&(o, _)| {
+            o != pi && (poles[o].frequency_hz / pole.frequency_hz - 1.0).abs() < 0.02
         });
         let mut notes = Vec::new();
         if close {
@@ -676,12 +692,47 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
             shape: normalise(&raw, set.reference),
             measured_frequency_hz: pole.frequency_hz,
             measured_damping_ratio: Some(pole.damping_ratio),
-            stable_orders: c.size,
+            stable_orders: size,
             notes,
         });
     }
     res.fit_error = fits.iter().map(|f| f.fit_error).collect();
     res.synthesized = fits.into_iter().map(|f| f.synthesized).collect();
-    res.stabilization = Some(stab);
     Ok(())
+}
+
+/// Manual choice: modes from poles a person picked in the stabilization diagram (indices into
+/// `stab.poles`), with residues, shapes and synthesized FRFs as for the automatic choice.
+pub fn modes_from_poles(
+    set: &FrfSet,
+    s: &ModalSettings,
+    stab: &Stabilization,
+    picked: &[usize],
+) -> Result<ModalResult, String> {
+    let mut res = ModalResult {
+        indicators: indicators(set),
+        stations: set.stations.clone(),
+        positions_m: set.positions_m.clone(),
+        ..ModalResult::default()
+    };
+    let mut chosen: Vec<(usize, usize)> = picked
+        .iter()
+        .filter(|&&i| i < stab.poles.len())
+        .map(|&i| (i, 0))
+        .collect();
+    chosen.sort_by(|a, b| {
+        stab.poles[a.0]
+            .frequency_hz
+            .total_cmp(&stab.poles[b.0].frequency_hz)
+    });
+    chosen.dedup_by_key(|c| c.0);
+    let w = set.weights(s.coherence_weighting);
+    fit_chosen(set, &mut res, stab, &w, &chosen)?;
+    res.stabilization = Some(stab.clone());
+    res.auto_mac = res
+        .modes
+        .iter()
+        .map(|a| res.modes.iter().map(|b| mac(&a.shape, &b.shape)).collect())
+        .collect();
+    Ok(res)
 }
