@@ -11,28 +11,15 @@ use std::collections::BTreeMap;
 use common::*;
 use nalgebra::DMatrix;
 use tapgrid::Complex64;
-use tapgrid::setup::{Channel, Setup};
+use tapgrid::setup::{Layout, Setup};
 use tapgrid::signal::analyze_station;
 use tapgrid::signal::window::correct_damping;
 use tapgrid::sim::{Pickup, Rng, synthesize};
-use tapgrid::units::Sensitivity;
 
 const TAU: f64 = 2.0 * std::f64::consts::PI;
 
 fn setup_for(rig: &tapgrid::sim::Rig, band: [f64; 2]) -> Setup {
-    Setup {
-        channel_a: Channel {
-            index: 0,
-            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_a_mv),
-        },
-        channel_b: Channel {
-            index: 1,
-            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_b_mv),
-        },
-        full_scale_volts: rig.full_scale_volts,
-        band_hz: Some(band),
-        ..Setup::default()
-    }
+    rig.matching_setup(Layout::Hammer, band)
 }
 
 /// Lines at least 5 % in frequency away from every antiresonance (local minimum of |A|).

@@ -14,28 +14,16 @@ use tapgrid::analysis::{self, Analysis, Dataset, StationAnalysis};
 use tapgrid::modal::shape::{mac, mac_real};
 use tapgrid::modal::{FrfSet, Method, ModalResult, ModalSettings, extract};
 use tapgrid::model::beam::{Material, Section, Shaft, Support};
-use tapgrid::setup::{Channel, Layout, Setup};
+use tapgrid::setup::{Layout, Setup};
 use tapgrid::signal::analyze_station;
 use tapgrid::sim::{ModalModel, Pickup, Rig, Rng, Scenario, Truth, TruthMode, synthesize};
-use tapgrid::units::Sensitivity;
 
 const TAU: f64 = 2.0 * std::f64::consts::PI;
 
 fn setup_for(rig: &Rig, layout: Layout, reference: u32, band: [f64; 2]) -> Setup {
     Setup {
-        layout,
-        channel_a: Channel {
-            index: 0,
-            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_a_mv),
-        },
-        channel_b: Channel {
-            index: 1,
-            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_b_mv),
-        },
-        full_scale_volts: rig.full_scale_volts,
-        band_hz: Some(band),
         reference_station: Some(reference),
-        ..Setup::default()
+        ..rig.matching_setup(layout, band)
     }
 }
 

@@ -10,27 +10,14 @@ mod common;
 use std::collections::BTreeMap;
 
 use common::*;
-use tapgrid::setup::{Channel, Setup};
+use tapgrid::setup::{Layout, Setup};
 use tapgrid::signal::{Reason, analyze_station};
 use tapgrid::sim::{Impact, ModalModel, Pickup, Rig, Rng, TruthMode, synthesize};
-use tapgrid::units::Sensitivity;
 
 const FS: u32 = 16384;
 
 fn setup(rig: &Rig) -> Setup {
-    Setup {
-        channel_a: Channel {
-            index: 0,
-            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_a_mv),
-        },
-        channel_b: Channel {
-            index: 1,
-            sensitivity: Sensitivity::mv_per_unit(rig.sensitivity_b_mv),
-        },
-        full_scale_volts: rig.full_scale_volts,
-        band_hz: Some([20.0, 2000.0]),
-        ..Setup::default()
-    }
+    rig.matching_setup(Layout::Hammer, [20.0, 2000.0])
 }
 
 fn two_mode() -> ModalModel {

@@ -131,6 +131,29 @@ impl Default for Rig {
     }
 }
 
+impl Rig {
+    /// The analysis setup that matches this rig: channels 0/1 with the rig's sensitivities and
+    /// full scale, the given layout and band, everything else default.
+    pub fn matching_setup(&self, layout: Layout, band_hz: [f64; 2]) -> crate::setup::Setup {
+        use crate::setup::{Channel, Setup};
+        use crate::units::Sensitivity;
+        Setup {
+            layout,
+            channel_a: Channel {
+                index: 0,
+                sensitivity: Sensitivity::mv_per_unit(self.sensitivity_a_mv),
+            },
+            channel_b: Channel {
+                index: 1,
+                sensitivity: Sensitivity::mv_per_unit(self.sensitivity_b_mv),
+            },
+            full_scale_volts: self.full_scale_volts,
+            band_hz: Some(band_hz),
+            ..Setup::default()
+        }
+    }
+}
+
 /// A small deterministic random source (SplitMix64 and Box–Muller), stable across platforms.
 #[derive(Debug, Clone)]
 pub struct Rng(u64);
