@@ -165,6 +165,9 @@ pub struct SetupArgs {
     /// Station of the fixed (reference) accelerometer.
     #[arg(long, value_name = "STATION")]
     pub reference: Option<u32>,
+    /// Leave ringing carried over from earlier hits in the records (default: model and remove it).
+    #[arg(long)]
+    pub keep_carryover: bool,
 }
 
 fn pair<T: std::str::FromStr>(text: &str, what: &str) -> Result<(T, T)> {
@@ -258,6 +261,9 @@ impl SetupArgs {
         }
         if let Some(r) = self.reference {
             s.reference_station = Some(r);
+        }
+        if self.keep_carryover {
+            s.remove_carryover = false;
         }
         s.validate().map_err(|m| anyhow!("bad setup: {m}"))?;
         Ok(s)

@@ -205,6 +205,8 @@ pub struct Setup {
     pub estimator: Estimator,
     /// Quality limits.
     pub quality: QualityLimits,
+    /// Model and remove ringing carried over from earlier hits (see `signal::carryover`).
+    pub remove_carryover: bool,
 }
 
 impl Default for Setup {
@@ -227,6 +229,7 @@ impl Default for Setup {
             band_hz: None,
             estimator: Estimator::H1,
             quality: QualityLimits::default(),
+            remove_carryover: true,
         }
     }
 }

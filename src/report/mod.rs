@@ -88,6 +88,7 @@ struct HitOut {
     force_drop_db: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     residual_fraction: Option<f64>,
+    ringing_removed: bool,
 }
 
 #[derive(Serialize)]
@@ -258,6 +259,7 @@ pub fn result_json(a: &Analysis, m: &ModalResult) -> String {
                     second_impact_s: h.second_impact_s,
                     force_drop_db: h.force_drop_db.filter(|v| v.is_finite()),
                     residual_fraction: h.residual_fraction,
+                    ringing_removed: h.ringing_removed,
                 })
             })
             .collect(),

@@ -1,5 +1,6 @@
 //! The signal chain: hit detection, windows, spectra, FRF estimators and per-hit verdicts.
 
+pub mod carryover;
 pub mod frf;
 pub mod hits;
 pub mod station;

@@ -4,6 +4,7 @@ use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
+use super::carryover::{self, PulseSpan};
 use super::frf::{CrossSpectra, SpectrumPlan};
 use super::hits::{find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact};
 use super::verdict::Reason;
@@ -38,6 +39,8 @@ pub struct HitReport {
     pub force_drop_db: Option<f64>,
     /// Fraction of this hit's response energy that the station's other hits' FRF does not explain.
     pub residual_fraction: Option<f64>,
+    /// Ringing carried over from earlier hits was modelled and removed from this record.
+    pub ringing_removed: bool,
 }
 
 /// Averaged spectra and FRF of a station over its accepted hits.
@@ -129,6 +132,38 @@ pub fn analyze_station(
 
     let sign = setup.trigger.slope.sign();
     let q = &setup.quality;
+    let max_pulse_file = (0.02 * fs as f64) as usize;
+    let spans: Vec<PulseSpan> = triggers
+        .iter()
+        .map(|&t| match setup.layout {
+            Layout::Hammer => {
+                let p = find_pulse(a, t, sign, max_pulse_file);
+                PulseSpan {
+                    trigger: t,
+                    start: p.start,
+                    end: p.end + 1,
+                }
+            }
+            Layout::Sensor => PulseSpan {
+                trigger: t,
+                start: t.saturating_sub(fs as usize / 1000),
+                end: (t + 3 * fs as usize / 1000).min(a.len()),
+            },
+        })
+        .collect();
+    // Ringing from earlier hits: always on the response; on the reference too when it is an
+    // accelerometer (sensor layout).
+    let (corr_a, corr_b) = match (setup.remove_carryover, setup.layout) {
+        (false, _) => (vec![None; spans.len()], vec![None; spans.len()]),
+        (true, Layout::Hammer) => (
+            vec![None; spans.len()],
+            carryover::corrections(b, fs, &spans, pre, n, [lo, hi]),
+        ),
+        (true, Layout::Sensor) => (
+            carryover::corrections(a, fs, &spans, pre, n, [lo, hi]),
+            carryover::corrections(b, fs, &spans, pre, n, [lo, hi]),
+        ),
+    };
     let scale_a = setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit();
     let scale_b = setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit();
     let post_s = (n - pre) as f64 * dt;
@@ -152,6 +187,7 @@ pub fn analyze_station(
             second_impact_s: None,
             force_drop_db: None,
             residual_fraction: None,
+            ringing_removed: false,
         };
         let Some(start) = trig.checked_sub(pre).filter(|s| s + n <= a.len()) else {
             rep.reasons.push(Reason::Truncated);
@@ -162,6 +198,14 @@ pub fn analyze_station(
         rep.record_start = Some(start);
         let ra = &a[start..start + n];
         let rb = &b[start..start + n];
+        // Overload checks see the raw samples; the spectra see the samples with any carried-over
+        // ringing removed.
+        let fix = |raw: &[f64], c: &Option<Vec<f64>>| -> Option<Vec<f64>> {
+            c.as_ref()
+                .map(|c| raw.iter().zip(c).map(|(r, c)| r - c).collect())
+        };
+        let (fa, fb) = (fix(ra, &corr_a[index]), fix(rb, &corr_b[index]));
+        rep.ringing_removed = fa.is_some() || fb.is_some();
         rep.peak_a_fs = peak_abs(ra);
         rep.peak_b_fs = peak_abs(rb);
         if rep.peak_a_fs >= q.overload_fraction
@@ -177,6 +221,8 @@ pub fn analyze_station(
 
         // Each channel is baseline-removed, scaled to SI units and windowed in one pass, straight
         // into the FFT's input buffer.
+        let ra_w: &[f64] = fa.as_deref().unwrap_or(ra);
+        let rb_w: &[f64] = fb.as_deref().unwrap_or(rb);
         let (sa, sb) = match setup.layout {
             Layout::Hammer => {
                 let pulse = find_pulse(ra, pre, sign, max_pulse);
@@ -199,26 +245,26 @@ pub fn analyze_station(
                     .force_taper_s
                     .map(|s| (s * fs as f64).round() as usize)
                     .unwrap_or(width);
-                let (ma, mb) = baseline(ra, rb, wstart.saturating_sub(taper));
+                let (ma, mb) = baseline(ra_w, rb_w, wstart.saturating_sub(taper));
                 let (lo, fw) = force_window(n, wstart, unity, taper);
                 let sa = plan.lines_of(
                     |x| {
                         x.fill(0.0);
                         for (k, w) in fw.iter().enumerate() {
                             let i = lo + k;
-                            x[i] = (ra[i] - ma) * scale_a * w * ew[i];
+                            x[i] = (ra_w[i] - ma) * scale_a * w * ew[i];
                         }
                     },
                     dt,
                     lines.clone(),
                 );
-                let sb = plan.lines_of(|x| windowed(x, rb, mb, scale_b, &ew), dt, lines.clone());
+                let sb = plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, &ew), dt, lines.clone());
                 (sa, sb)
             }
             Layout::Sensor => {
-                let (ma, mb) = baseline(ra, rb, pre.saturating_sub(pre / 10));
-                let sa = plan.lines_of(|x| windowed(x, ra, ma, scale_a, &ew), dt, lines.clone());
-                let sb = plan.lines_of(|x| windowed(x, rb, mb, scale_b, &ew), dt, lines.clone());
+                let (ma, mb) = baseline(ra_w, rb_w, pre.saturating_sub(pre / 10));
+                let sa = plan.lines_of(|x| windowed(x, ra_w, ma, scale_a, &ew), dt, lines.clone());
+                let sb = plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, &ew), dt, lines.clone());
                 (sa, sb)
             }
         };

@@ -1,0 +1,213 @@
+//! Ringing carried over from earlier hits.
+//!
+//! A lightly damped part still rings when the next tap lands; that free decay is in the next
+//! record, uncorrelated with its force, and biases the FRF (most of all the damping of the modes
+//! that ring longest). Between two taps the response is a pure free decay, often a second long:
+//! its spectra give the ringing poles accurately (LSCF over the free-decay segments of the station,
+//! the same estimator as the modal stage); the decay is then fitted just before each tap and its
+//! continuation subtracted from that tap's record.
+
+use nalgebra::{DMatrix, DVector};
+
+use super::frf::SpectrumPlan;
+use super::window::{apply_exponential, exponential_tau_s};
+use crate::Complex64;
+use crate::modal::lscf::{PoleStatus, StabilityCriteria, stabilization};
+
+/// Where a hit's pulse lies in the recording (sample indices).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PulseSpan {
+    /// Trigger sample.
+    pub trigger: usize,
+    /// First sample of the pulse.
+    pub start: usize,
+    /// First sample after the pulse.
+    pub end: usize,
+}
+
+/// Carried-over ringing smaller than this fraction of a record's own peak is left alone (its bias
+/// on the FRF is then well under 1 %).
+pub const RINGING_THRESHOLD: f64 = 0.003;
+
+/// For each hit, the carried-over ringing of channel `x` over its record `[trigger − pre,
+/// trigger − pre + n)`, to subtract; `None` where there is none worth removing or it cannot be
+/// modelled. `band_hz` bounds the poles looked for.
+pub fn corrections(
+    x: &[f64],
+    fs: u32,
+    hits: &[PulseSpan],
+    pre: usize,
+    n: usize,
+    band_hz: [f64; 2],
+) -> Vec<Option<Vec<f64>>> {
+    let none = || vec![None; hits.len()];
+    let dt = 1.0 / fs as f64;
+    let guard = (0.002 * fs as f64) as usize;
+    // Which records carry ringing?
+    let flagged: Vec<bool> = hits
+        .iter()
+        .enumerate()
+        .map(|(i, h)| {
+            let Some(s) = h.trigger.checked_sub(pre) else {
+                return false;
+            };
+            if i == 0 || s + n > x.len() || h.start <= s + guard {
+                return false;
+            }
+            let pre_seg = &x[s..h.start - guard];
+            let mean = pre_seg.iter().sum::<f64>() / pre_seg.len() as f64;
+            let rms = (pre_seg.iter().map(|v| (v - mean).powi(2)).sum::<f64>()
+                / pre_seg.len() as f64)
+                .sqrt();
+            let peak = x[h.start..s + n]
+                .iter()
+                .fold(0.0f64, |m, v| m.max((v - mean).abs()));
+            rms * std::f64::consts::SQRT_2 > RINGING_THRESHOLD * peak
+        })
+        .collect();
+    if !flagged.iter().any(|&f| f) {
+        return none();
+    }
+    // Free-decay segments: after each pulse, up to the next pulse (or the end of the file).
+    let mut segs: Vec<(usize, usize)> = Vec::new();
+    for (i, h) in hits.iter().enumerate() {
+        let s = h.end + guard;
+        let e = hits
+            .get(i + 1)
+            .map_or(x.len(), |nx| nx.start.saturating_sub(guard));
+        if e > s {
+            segs.push((s, e));
+        }
+    }
+    let len = segs.iter().map(|(s, e)| e - s).min().unwrap_or(0);
+    if len < (0.2 * fs as f64) as usize || segs.len() < 2 {
+        return none();
+    }
+    let Some(poles) = decay_poles(x, &segs, len, dt, band_hz) else {
+        return none();
+    };
+    hits.iter()
+        .enumerate()
+        .map(|(i, h)| {
+            if !flagged[i] {
+                return None;
+            }
+            let s = h.trigger - pre;
+            fit_and_extrapolate(
+                x,
+                &poles,
+                h.start.saturating_sub(guard),
+                (0.3 / dt) as usize,
+                s,
+                n,
+                dt,
+            )
+        })
+        .collect()
+}
+
+/// True poles (rad/s) of the free decays, from LSCF over their spectra.
+fn decay_poles(
+    x: &[f64],
+    segs: &[(usize, usize)],
+    len: usize,
+    dt: f64,
+    band_hz: [f64; 2],
+) -> Option<Vec<Complex64>> {
+    let fs = 1.0 / dt;
+    let tau = exponential_tau_s(len as f64 * dt, 0.01);
+    let df = fs / len as f64;
+    let k_lo = ((band_hz[0] * 0.8) / df).ceil().max(1.0) as usize;
+    let k_hi = (((band_hz[1] * 1.1).min(0.45 * fs)) / df).floor() as usize;
+    if k_hi <= k_lo + 8 {
+        return None;
+    }
+    let lines = k_lo..k_hi + 1;
+    let freq: Vec<f64> = lines.clone().map(|k| k as f64 * df).collect();
+    let mut plan = SpectrumPlan::new(len);
+    let mut h = Vec::with_capacity(segs.len());
+    for &(s, _) in segs {
+        let mut seg: Vec<f64> = x[s..s + len].to_vec();
+        let mean = seg.iter().sum::<f64>() / len as f64;
+        seg.iter_mut().for_each(|v| *v -= mean);
+        apply_exponential(&mut seg, 0, dt, tau);
+        h.push(plan.lines(&seg, dt, lines.clone()));
+    }
+    // Relative weighting, as for FRFs of uniform coherence.
+    let w: Vec<Vec<f64>> = h
+        .iter()
+        .map(|v| {
+            let top = v.iter().fold(0.0f64, |m, c| m.max(c.norm()));
+            v.iter()
+                .map(|c| 1.0 / c.norm().max(1e-6 * top).max(f64::MIN_POSITIVE))
+                .collect()
+        })
+        .collect();
+    let order = 40.min(freq.len().saturating_sub(2) / 2);
+    if order < 4 {
+        return None;
+    }
+    let st = stabilization(&freq, &h, &w, order, StabilityCriteria::default()).ok()?;
+    // Poles stable at the highest orders: take those of the last order whose status is stable.
+    let top = st.poles.iter().map(|p| p.order).max()?;
+    let poles: Vec<Complex64> = st
+        .poles
+        .iter()
+        .filter(|p| p.order == top && p.status >= PoleStatus::FrequencyDamping)
+        .map(|p| p.lambda + 1.0 / tau)
+        .filter(|l| l.re < 0.0 && -l.re / l.norm() < 0.05)
+        .collect();
+    (!poles.is_empty()).then_some(poles)
+}
+
+/// Fits Σ_r (p_r Re e^{λ_r t} + q_r Im e^{λ_r t}) to `x` over the `m` samples before `anchor`
+/// (t = 0 at `anchor`), and returns the model over `[s, s + n)`.
+fn fit_and_extrapolate(
+    x: &[f64],
+    poles: &[Complex64],
+    anchor: usize,
+    m: usize,
+    s: usize,
+    n: usize,
+    dt: f64,
+) -> Option<Vec<f64>> {
+    let m = m.min(anchor);
+    if m < 4 * poles.len() + 8 {
+        return None;
+    }
+    let step = (m / 4000).max(1);
+    let rows: Vec<usize> = (anchor - m..anchor).step_by(step).collect();
+    let cols = 2 * poles.len() + 1;
+    let basis = |i: usize| -> Vec<f64> {
+        let t = (i as f64 - anchor as f64) * dt;
+        let mut b = Vec::with_capacity(cols);
+        for l in poles {
+            let e = (l * t).exp();
+            b.push(e.re);
+            b.push(e.im);
+        }
+        b.push(1.0);
+        b
+    };
+    let mut ata = DMatrix::<f64>::zeros(cols, cols);
+    let mut atb = DVector::<f64>::zeros(cols);
+    for &i in &rows {
+        let b = basis(i);
+        for r in 0..cols {
+            atb[r] += b[r] * x[i];
+            for c in 0..cols {
+                ata[(r, c)] += b[r] * b[c];
+            }
+        }
+    }
+    let coef = ata.svd(true, true).solve(&atb, 1e-12).ok()?;
+    Some(
+        (s..s + n)
+            .map(|i| {
+                let b = basis(i);
+                // The constant term is the baseline, which the chain removes itself.
+                (0..cols - 1).map(|c| b[c] * coef[c]).sum()
+            })
+            .collect(),
+    )
+}
