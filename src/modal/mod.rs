@@ -1,6 +1,7 @@
 //! Modal extraction: mode indicators, peak picking with quadrature sign, half-power damping, the
 //! global LSCF fit with its stabilization diagram, automatic pole choice, LSFD residues and shapes.
 
+pub mod circle;
 pub mod lscf;
 pub mod lsfd;
 pub mod shape;
@@ -46,6 +47,8 @@ pub enum DampingSource {
     Pole,
     /// Half-power width of the accelerance indicator.
     HalfPower,
+    /// Circle fit (Kennedy–Pancu) of the strongest station's mobility.
+    CircleFit,
     /// Half-power width of the summed response auto-spectra (sensor layout; no force known).
     ResponseAutospectrum,
 }
@@ -108,6 +111,10 @@ pub struct Mode {
     pub measured_damping_ratio: Option<f64>,
     /// Orders over which the pole was fully stable (LSCF).
     pub stable_orders: usize,
+    /// Damping by the half-power method (window removed), when it could be measured.
+    pub damping_half_power: Option<f64>,
+    /// Damping by circle fit of the strongest station's mobility (window removed).
+    pub damping_circle_fit: Option<f64>,
     /// Notes for the reader.
     pub notes: Vec<String>,
 }
@@ -436,6 +443,19 @@ fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) {
                 }
             })
             .collect();
+        let (hp_local, cf) = local_damping(set, fc);
+        let (zc, source) = match (cf, zc) {
+            (Some(c), _) if c > 0.0 => (Some(c), Some(DampingSource::CircleFit)),
+            (_, Some(z)) => (
+                Some(z),
+                Some(if sensor {
+                    DampingSource::ResponseAutospectrum
+                } else {
+                    DampingSource::HalfPower
+                }),
+            ),
+            _ => (None, None),
+        };
         let mut notes = vec![
             "peak picking: a single peak may hide two closely spaced modes (e.g. two bending planes); the lscf method resolves them"
                 .to_string(),
@@ -452,22 +472,56 @@ fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) {
             frequency_hz: fc,
             damping_ratio: zc,
             method: Method::Peak,
-            damping_source: zc.map(|_| {
-                if sensor {
-                    DampingSource::ResponseAutospectrum
-                } else {
-                    DampingSource::HalfPower
-                }
-            }),
+            damping_source: source,
             mpc: mpc(&raw),
             mpd_deg: mean_phase_deviation_deg(&raw),
             shape: normalise(&raw, set.reference),
             measured_frequency_hz: fm,
             measured_damping_ratio: zeta_m,
             stable_orders: 0,
+            damping_half_power: if sensor {
+                zc.filter(|_| cf.is_none())
+            } else {
+                hp_local
+            },
+            damping_circle_fit: cf,
             notes,
         });
     }
+}
+
+/// Half-power and circle-fit damping of the resonance near `f_hz` (hammer layout), both with the
+/// exponential window removed.
+fn local_damping(set: &FrfSet, f_hz: f64) -> (Option<f64>, Option<f64>) {
+    if set.layout == Layout::Sensor || set.freq_hz.len() < 8 {
+        return (None, None);
+    }
+    let k = set
+        .freq_hz
+        .partition_point(|&x| x < f_hz)
+        .clamp(1, set.freq_hz.len() - 2);
+    // The strongest station at the resonance carries the best signal.
+    let Some(o) =
+        (0..set.h.len()).max_by(|&a, &b| set.h[a][k].norm().total_cmp(&set.h[b][k].norm()))
+    else {
+        return (None, None);
+    };
+    let mags: Vec<f64> = set.h[o].iter().map(|c| c.norm()).collect();
+    let peak = (k.saturating_sub(2)..=(k + 2).min(mags.len() - 1))
+        .max_by(|&a, &b| mags[a].total_cmp(&mags[b]))
+        .unwrap_or(k);
+    let (d, pk) = interpolate_peak(&mags, peak);
+    let fm = set.freq_hz[peak] + d * set.df_hz;
+    let hp =
+        half_power(&set.freq_hz, &mags, peak, pk, false).map(|(f1, f2)| (f2 - f1) / (2.0 * fm));
+    let half = hp.map_or(3, |z| {
+        ((2.0 * z * fm / set.df_hz).round() as usize).clamp(3, 40)
+    });
+    let lo = peak.saturating_sub(half);
+    let hi = (peak + half).min(set.freq_hz.len() - 1);
+    let cf = circle::circle_fit(&set.freq_hz, &set.h[o], lo, hi);
+    let corr = |f: f64, z: f64| correct_damping(f, z, set.exp_tau_s).1;
+    (hp.map(|z| corr(fm, z)), cf.map(|(f, z)| corr(f, z)))
 }
 
 /// An undamped line at a mains harmonic: hum, not a mode. `window_zeta` is the damping the
@@ -672,6 +726,11 @@ fn fit_chosen(
         let close = chosen.iter().any(|&(o, _)| {
             o != pi && (poles[o].frequency_hz / pole.frequency_hz - 1.0).abs() < 0.02
         });
+        let (hp, cf) = if close {
+            (None, None)
+        } else {
+            local_damping(set, fc)
+        };
         let mut notes = Vec::new();
         if close {
             notes.push("closely spaced pair: resolved by the global fit".to_string());
@@ -693,6 +752,8 @@ fn fit_chosen(
             measured_frequency_hz: pole.frequency_hz,
             measured_damping_ratio: Some(pole.damping_ratio),
             stable_orders: size,
+            damping_half_power: hp,
+            damping_circle_fit: cf,
             notes,
         });
     }

@@ -176,6 +176,8 @@ struct ModeOut {
     measured_frequency_hz: f64,
     measured_damping_ratio: Option<f64>,
     stable_orders: usize,
+    damping_half_power: Option<f64>,
+    damping_circle_fit: Option<f64>,
     notes: Vec<String>,
     shape: Vec<ShapePoint>,
 }
@@ -193,6 +195,8 @@ fn modes_out(m: &ModalResult) -> Vec<ModeOut> {
             measured_frequency_hz: md.measured_frequency_hz,
             measured_damping_ratio: md.measured_damping_ratio,
             stable_orders: md.stable_orders,
+            damping_half_power: md.damping_half_power,
+            damping_circle_fit: md.damping_circle_fit,
             notes: md.notes.clone(),
             shape: md
                 .shape
