@@ -311,6 +311,7 @@ fn modal_settings(a: &AnalyzeArgs) -> Result<Option<ModalSettings>> {
         }
         t => Selection::Near(
             t.split(',')
+                .filter(|x| !x.trim().is_empty())
                 .map(|x| {
                     x.trim()
                         .parse::<f64>()

@@ -665,7 +665,20 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
                 })
                 .filter(|c| physical(c.pole))
                 .collect();
-            v.sort_by_key(|c| std::cmp::Reverse(c.size));
+            // "Best": well-stabilised modes first (at least the minimum stable orders), and among
+            // those the ones standing highest in the Σ|H| indicator.
+            let height = |c: &Cand| {
+                let f = poles[c.pole].frequency_hz;
+                let k = set
+                    .freq_hz
+                    .partition_point(|&x| x < f)
+                    .min(set.freq_hz.len() - 1);
+                res.indicators.sum_abs[k]
+            };
+            v.sort_by(|a, b| {
+                let (sa, sb) = (a.size >= s.min_stable_orders, b.size >= s.min_stable_orders);
+                sb.cmp(&sa).then(height(b).total_cmp(&height(a)))
+            });
             v.truncate(*n);
             v
         }
