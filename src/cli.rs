@@ -288,6 +288,15 @@ pub struct AnalyzeArgs {
     /// Highest LSCF model order.
     #[arg(long, default_value_t = 64)]
     pub max_order: usize,
+    /// Stability: largest relative frequency change between orders.
+    #[arg(long, default_value_t = 0.01)]
+    pub stable_frequency: f64,
+    /// Stability: largest relative damping change between orders.
+    #[arg(long, default_value_t = 0.05)]
+    pub stable_damping: f64,
+    /// Stability: smallest MAC between the shapes of successive orders.
+    #[arg(long, default_value_t = 0.98)]
+    pub stable_mac: f64,
     /// Setup.
     #[command(flatten)]
     pub setup: SetupArgs,
@@ -330,6 +339,11 @@ fn modal_settings(a: &AnalyzeArgs) -> Result<Option<ModalSettings>> {
         },
         selection,
         max_order: a.max_order,
+        criteria: crate::modal::lscf::StabilityCriteria {
+            frequency: a.stable_frequency,
+            damping: a.stable_damping,
+            mac: a.stable_mac,
+        },
         ..ModalSettings::default()
     }))
 }
@@ -508,9 +522,10 @@ fn analyze(
     let t2 = std::time::Instant::now();
     if std::env::var_os("TAPGRID_TIMING").is_some() {
         eprintln!(
-            "timing: decode+chain {:.3} s, modal {:.3} s, outputs {:.3} s",
+            "timing: decode+chain {:.3} s, modal {:.3} s (stabilization {:.3} s), outputs {:.3} s",
             (t1 - t0).as_secs_f64(),
             (t1b - t1).as_secs_f64(),
+            modes.stabilization_seconds,
             (t2 - t1b).as_secs_f64()
         );
     }

@@ -347,7 +347,14 @@ fn lscf_poles_of_a_three_dof_system_match_scipy_eig() {
         reference: Some(0),
         df_hz: 0.5,
     };
-    let m = extract(
+    // The global LSCF alone is exact on noise-free data; the local refinement (on by default)
+    // trades a few parts per million for robustness on measured data.
+    let lscf_only = ModalSettings {
+        max_order: 24,
+        refine_poles: false,
+        ..ModalSettings::default()
+    };
+    let refined = extract(
         &set,
         &ModalSettings {
             max_order: 24,
@@ -355,6 +362,11 @@ fn lscf_poles_of_a_three_dof_system_match_scipy_eig() {
         },
     )
     .unwrap();
+    let m = extract(&set, &lscf_only).unwrap();
+    for (a, b) in refined.modes.iter().zip(&m.modes) {
+        assert!((a.frequency_hz / b.frequency_hz - 1.0).abs() < 1e-4);
+        assert!((a.damping_ratio.unwrap() / b.damping_ratio.unwrap() - 1.0).abs() < 1e-2);
+    }
     assert_eq!(
         m.modes.len(),
         3,
@@ -441,8 +453,10 @@ fn free_free_beam_shapes_are_recovered_from_a_simulated_test() {
 #[test]
 fn carried_over_ringing_of_very_light_damping_is_removed() {
     // ζ = 0.05 % with taps 1.5 s apart: the lowest mode still rings at 25 % of its amplitude when
-    // the next tap lands (σ = ζω = 0.91 /s). Without the correction its damping comes out about
-    // twice the truth; with it the modes above it are within 10 % and the lowest one much closer.
+    // the next tap lands (σ = ζω = 0.91 /s), and at the record end (field notes §1: T ≥ 6/(ζω) =
+    // 6.6 s would be needed without a window). Through the exponential window, its correction and
+    // the removal of the carried-over ringing, every mode's damping must come out within 10 %, and
+    // the removal must make the hits agree better (higher coherence).
     let mut sc = pump(Layout::Hammer);
     sc.stations_m = (0..8).map(|i| i as f64 * 0.9 / 7.0).collect();
     sc.drive_station = 8;
@@ -458,60 +472,42 @@ fn carried_over_ringing_of_very_light_damping_is_removed() {
             remove_carryover: remove,
             ..setup_for(&sc.rig, Layout::Hammer, 1, band)
         };
-        let a = analysis::run(&Dataset::from_wavset(&set), &setup).unwrap();
-        let removed = a
-            .stations
+        analysis::run(&Dataset::from_wavset(&set), &setup).unwrap()
+    };
+    let (with, without) = (run(true), run(false));
+    let removed = |a: &Analysis| {
+        a.stations
             .iter()
             .flat_map(|s| &s.result.hits)
             .filter(|h| h.ringing_removed)
-            .count();
-        (
-            extract(
-                &FrfSet::from_analysis(&a).unwrap(),
-                &ModalSettings::default(),
-            )
-            .unwrap(),
-            removed,
-        )
+            .count()
     };
-    let (with, removed) = run(true);
-    let (without, none_removed) = run(false);
-    assert_eq!(none_removed, 0);
+    assert_eq!(removed(&without), 0);
     assert_eq!(
-        removed,
+        removed(&with),
         8 * 4,
         "every hit after the first of each station carries ringing"
     );
-    let err = |m: &ModalResult, f: f64| {
-        let md = m
-            .modes
-            .iter()
-            .min_by(|a, b| {
-                (a.frequency_hz - f)
-                    .abs()
-                    .total_cmp(&(b.frequency_hz - f).abs())
-            })
-            .unwrap();
-        assert!((md.frequency_hz / f - 1.0).abs() < 1e-3);
-        md.damping_ratio.unwrap() / 0.0005 - 1.0
+    let good_share = |a: &Analysis| {
+        let (mut good, mut all) = (0usize, 0usize);
+        for s in &a.stations {
+            let c = &s.result.frf.as_ref().unwrap().coherence;
+            good += c.iter().filter(|&&g| g >= 0.9).count();
+            all += c.len();
+        }
+        good as f64 / all as f64
     };
-    let flexible: Vec<f64> = truth
-        .modes
-        .iter()
-        .map(|m| m.frequency_hz)
-        .filter(|f| (band[0]..band[1]).contains(f))
-        .collect();
-    let (e_with, e_without) = (err(&with, flexible[0]), err(&without, flexible[0]));
     assert!(
-        e_with.abs() < 0.5 * e_without.abs(),
-        "lowest mode: {e_with:+.2} with, {e_without:+.2} without"
+        good_share(&with) > good_share(&without) + 0.01,
+        "{} vs {}",
+        good_share(&with),
+        good_share(&without)
     );
-    for &f in &flexible[1..] {
-        let e = err(&with, f);
-        assert!(
-            e.abs() < 0.10,
-            "mode {f:.1} Hz: damping error {:+.1} %",
-            100.0 * e
-        );
-    }
+    let m = extract(
+        &FrfSet::from_analysis(&with).unwrap(),
+        &ModalSettings::default(),
+    )
+    .unwrap();
+    let spurious = check_modes(&truth, &m, band, 0.995, true);
+    assert!(spurious <= 1);
 }

@@ -24,6 +24,8 @@ pub struct OutputFit {
     pub synthesized: Vec<Complex64>,
     /// Σ|H − H_syn|² / Σ|H|² over the band.
     pub fit_error: f64,
+    /// The weighted residual Σ W²|H − H_syn|² that the fit minimised.
+    pub weighted_residual: f64,
 }
 
 /// Fits residues for fixed measured poles `lambda` (rad/s, upper half plane) to one output's FRF.
@@ -108,11 +110,18 @@ pub fn fit_output(
         .map(|(a, b)| (a - b).norm_sqr())
         .sum();
     let den: f64 = h.iter().map(|a| a.norm_sqr()).sum();
+    let weighted_residual: f64 = h
+        .iter()
+        .zip(&synthesized)
+        .zip(weight)
+        .map(|((a, b), w)| w * w * (a - b).norm_sqr())
+        .sum();
     Some(OutputFit {
         residues,
         lower: coef[2 * n],
         upper: coef[2 * n + 1],
         synthesized,
         fit_error: if den > 0.0 { num / den } else { 0.0 },
+        weighted_residual,
     })
 }

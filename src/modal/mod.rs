@@ -4,6 +4,7 @@
 pub mod circle;
 pub mod lscf;
 pub mod lsfd;
+pub mod refine;
 pub mod shape;
 
 use serde::{Deserialize, Serialize};
@@ -14,6 +15,8 @@ use crate::setup::Layout;
 use crate::signal::window::correct_damping;
 use lscf::{PoleStatus, StabilityCriteria, Stabilization};
 use shape::{mac, mean_phase_deviation_deg, mpc, normalise};
+
+const TAU_F: f64 = 2.0 * std::f64::consts::PI;
 
 /// How modes are extracted.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
@@ -71,6 +74,8 @@ pub struct ModalSettings {
     pub min_stable_orders: usize,
     /// Mains frequencies whose harmonics, when undamped, are hum and not modes.
     pub mains_hz: Vec<f64>,
+    /// Refine each chosen pole by a local nonlinear fit (see `refine`).
+    pub refine_poles: bool,
 }
 
 impl Default for ModalSettings {
@@ -83,6 +88,7 @@ impl Default for ModalSettings {
             coherence_weighting: true,
             min_stable_orders: 8,
             mains_hz: vec![50.0, 60.0],
+            refine_poles: true,
         }
     }
 }
@@ -270,6 +276,8 @@ pub struct ModalResult {
     pub auto_mac: Vec<Vec<f64>>,
     /// Things the reader must know.
     pub warnings: Vec<String>,
+    /// Time spent on the stabilization diagram, s (what a band-edge drag recomputes).
+    pub stabilization_seconds: f64,
 }
 
 /// Extracts modes from a test's FRFs.
@@ -554,7 +562,9 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
             .push("the band is too narrow for a curve fit".into());
         return Ok(());
     }
+    let t0 = std::time::Instant::now();
     let stab = lscf::stabilization(&set.freq_hz, &set.h, &w, fit_order, s.criteria)?;
+    res.stabilization_seconds = t0.elapsed().as_secs_f64();
     let poles = &stab.poles;
     // Fully stable poles, clustered by frequency (gaps over 0.2 %), split where one order would
     // give two poles to a cluster (two close modes).
@@ -710,7 +720,7 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
         res.warnings
             .push("no stable physical pole was found in the band".into());
     }
-    fit_chosen(set, res, &stab, &w, &chosen)?;
+    fit_chosen(set, res, &stab, &w, &chosen, s.refine_poles)?;
     res.stabilization = Some(stab);
     Ok(())
 }
@@ -723,9 +733,32 @@ fn fit_chosen(
     stab: &Stabilization,
     w: &[Vec<f64>],
     chosen: &[(usize, usize)],
+    refine: bool,
 ) -> Result<(), String> {
     let poles = &stab.poles;
-    let lambdas: Vec<Complex64> = chosen.iter().map(|c| poles[c.0].lambda).collect();
+    let mut lambdas: Vec<Complex64> = chosen.iter().map(|c| poles[c.0].lambda).collect();
+    if refine {
+        // Local weights: signal-to-noise from coherence, each station scaled by its largest |H|,
+        // so that the fit near a peak follows the peak (no 1/|H| relative weighting there).
+        let local: Vec<Vec<f64>> = set
+            .h
+            .iter()
+            .zip(&set.coherence)
+            .map(|(h, c)| {
+                let top = h
+                    .iter()
+                    .fold(0.0f64, |m, v| m.max(v.norm()))
+                    .max(f64::MIN_POSITIVE);
+                c.iter()
+                    .map(|&g| {
+                        let g = g.clamp(1e-3, 1.0 - 1e-6);
+                        (g / (1.0 - g)).sqrt() / top
+                    })
+                    .collect()
+            })
+            .collect();
+        refine::refine_poles(&set.freq_hz, &set.h, &local, &mut lambdas, set.exp_tau_s);
+    }
     let mut fits = Vec::with_capacity(set.h.len());
     for (o, (h, wo)) in set.h.iter().zip(w).enumerate() {
         let fit = lsfd::fit_output(&set.freq_hz, h, wo, &lambdas, set.exp_tau_s)
@@ -735,7 +768,11 @@ fn fit_chosen(
     for (r, &(pi, size)) in chosen.iter().enumerate() {
         let pole = &poles[pi];
         let raw: Vec<Complex64> = fits.iter().map(|f| f.residues[r]).collect();
-        let (fc, zc) = correct_damping(pole.frequency_hz, pole.damping_ratio, set.exp_tau_s);
+        let (f_meas, z_meas) = (
+            lambdas[r].norm() / TAU_F,
+            -lambdas[r].re / lambdas[r].norm(),
+        );
+        let (fc, zc) = correct_damping(f_meas, z_meas, set.exp_tau_s);
         let close = chosen.iter().any(|&(o, _)| {
             o != pi && (poles[o].frequency_hz / pole.frequency_hz - 1.0).abs() < 0.02
         });
@@ -762,8 +799,8 @@ fn fit_chosen(
             mpc: m,
             mpd_deg: mean_phase_deviation_deg(&raw),
             shape: normalise(&raw, set.reference),
-            measured_frequency_hz: pole.frequency_hz,
-            measured_damping_ratio: Some(pole.damping_ratio),
+            measured_frequency_hz: f_meas,
+            measured_damping_ratio: Some(z_meas),
             stable_orders: size,
             damping_half_power: hp,
             damping_circle_fit: cf,
@@ -801,7 +838,7 @@ pub fn modes_from_poles(
     });
     chosen.dedup_by_key(|c| c.0);
     let w = set.weights(s.coherence_weighting);
-    fit_chosen(set, &mut res, stab, &w, &chosen)?;
+    fit_chosen(set, &mut res, stab, &w, &chosen, s.refine_poles)?;
     res.stabilization = Some(stab.clone());
     res.auto_mac = res
         .modes

@@ -98,6 +98,8 @@ struct StationOut {
     position_source: PositionSource,
     accepted_hits: usize,
     hits: usize,
+    /// LSFD fit error Σ|H − H_syn|²/Σ|H|² over the band, when modes were fitted.
+    fit_error: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -139,6 +141,25 @@ pub fn stabilization_csv(st: &Stabilization) -> String {
             p.status.word(),
             p.mpc
         );
+    }
+    out
+}
+
+/// `synthesized.csv`: the FRF rebuilt from the fitted modes and residuals, in the layout of
+/// `frf.csv` without the coherence column: `station,frequency_hz,h_re,h_im`.
+pub fn synthesized_csv(m: &ModalResult) -> String {
+    let mut out = String::from("station,frequency_hz,h_re,h_im\n");
+    let mut fb = zmij::Buffer::new();
+    for (i, syn) in m.synthesized.iter().enumerate() {
+        let st = m.stations[i].to_string();
+        for (f, h) in m.indicators.freq_hz.iter().zip(syn) {
+            out.push_str(&st);
+            for v in [*f, h.re, h.im] {
+                out.push(',');
+                out.push_str(fb.format(v));
+            }
+            out.push('\n');
+        }
     }
     out
 }
@@ -276,6 +297,11 @@ pub fn result_json(a: &Analysis, m: &ModalResult) -> String {
                 position_source: s.position_source,
                 accepted_hits: s.result.hits.iter().filter(|h| h.accepted).count(),
                 hits: s.result.hits.len(),
+                fit_error: m
+                    .stations
+                    .iter()
+                    .position(|&st| st == s.station)
+                    .and_then(|i| m.fit_error.get(i).copied()),
             })
             .collect(),
         modes: modes_out(m),
@@ -313,6 +339,9 @@ pub fn write_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<(), In
         files.push(("stabilization.csv", stabilization_csv(st)));
     }
     files.push(("indicators.csv", indicators_csv(m)));
+    if !m.synthesized.is_empty() {
+        files.push(("synthesized.csv", synthesized_csv(m)));
+    }
     for (name, text) in files {
         let p = dir.join(name);
         atomic::write_bytes(&p, text.as_bytes())

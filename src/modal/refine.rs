@@ -1,0 +1,162 @@
+//! Local refinement of fitted poles: each pole is moved (σ, ω_d) to minimise the residual of the
+//! LSFD fit over a narrow band around it, all stations together, the other poles held fixed.
+//!
+//! Why: the global LSCF minimises a linearised error over the whole band; for a very lightly
+//! damped mode whose peak spans a few lines that linearisation, and the thousands of lines far from
+//! the peak, bias the damping by tens of per cent once the exponential window's share is removed.
+//! The local fit minimises the true FRF error where the mode lives (a nonlinear least squares over
+//! two parameters per pole, by Nelder–Mead).
+
+use super::lsfd::fit_output;
+use crate::Complex64;
+
+const TAU: f64 = 2.0 * std::f64::consts::PI;
+
+/// Refines `lambda` (measured poles, rad/s) in place. `weight` are per-station, per-line weights
+/// for the local fit. Poles whose local band holds too few lines are left as they are.
+pub fn refine_poles(
+    freq_hz: &[f64],
+    h: &[Vec<Complex64>],
+    weight: &[Vec<f64>],
+    lambda: &mut [Complex64],
+    exp_tau_s: f64,
+) {
+    // Poles with a neighbour in their local band are refined twice (each sees the other's update);
+    // isolated poles converge in one pass. Within a pass the poles are independent (each sees the
+    // others as they were), so they are spread over the cores.
+    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
+    for sweep in 0..2 {
+        let current = lambda.to_vec();
+        let todo: Vec<usize> = (0..current.len())
+            .filter(|&r| sweep == 0 || !neighbours(&current, r).is_empty())
+            .collect();
+        if todo.is_empty() {
+            break;
+        }
+        let chunk = todo.len().div_ceil(workers).max(1);
+        let updates: Vec<(usize, Complex64)> = std::thread::scope(|scope| {
+            let handles: Vec<_> = todo
+                .chunks(chunk)
+                .map(|rs| {
+                    let current = &current;
+                    scope.spawn(move || {
+                        rs.iter()
+                            .filter_map(|&r| {
+                                refine_one(freq_hz, h, weight, current, r, exp_tau_s)
+                                    .map(|l| (r, l))
+                            })
+                            .collect::<Vec<_>>()
+                    })
+                })
+                .collect();
+            handles
+                .into_iter()
+                .flat_map(|h| h.join().unwrap_or_default())
+                .collect()
+        });
+        for (r, l) in updates {
+            lambda[r] = l;
+        }
+    }
+}
+
+fn half_band_hz(l: Complex64) -> f64 {
+    let f = l.im / TAU;
+    (0.03 * f).max(10.0 * -l.re / TAU)
+}
+
+fn neighbours(lambda: &[Complex64], r: usize) -> Vec<usize> {
+    let f = lambda[r].im / TAU;
+    let half = half_band_hz(lambda[r]);
+    (0..lambda.len())
+        .filter(|&q| q != r && (lambda[q].im / TAU - f).abs() < 2.0 * half)
+        .collect()
+}
+
+fn refine_one(
+    freq_hz: &[f64],
+    h: &[Vec<Complex64>],
+    weight: &[Vec<f64>],
+    lambda: &[Complex64],
+    r: usize,
+    exp_tau_s: f64,
+) -> Option<Complex64> {
+    let f = lambda[r].im / TAU;
+    let sigma = -lambda[r].re;
+    let half = half_band_hz(lambda[r]);
+    let lo = freq_hz.partition_point(|&x| x < f - half);
+    let hi = freq_hz.partition_point(|&x| x <= f + half);
+    if hi < lo + 12 {
+        return None;
+    }
+    let fs = &freq_hz[lo..hi];
+    // Only this pole and its neighbours enter the local model; the residual terms stand for
+    // every mode farther away.
+    let near = neighbours(lambda, r);
+    let objective = |ls: f64, wd: f64| -> f64 {
+        let mut poles: Vec<Complex64> = near.iter().map(|&q| lambda[q]).collect();
+        poles.push(Complex64::new(-ls.exp(), wd));
+        h.iter()
+            .zip(weight)
+            .map(|(ho, wo)| {
+                fit_output(fs, &ho[lo..hi], &wo[lo..hi], &poles, exp_tau_s)
+                    .map_or(f64::INFINITY, |fit| fit.weighted_residual)
+            })
+            .sum()
+    };
+    let start = [sigma.max(1e-6).ln(), lambda[r].im];
+    let step = [0.3, 0.2 * sigma.max(0.05 * TAU)];
+    let [ls, wd] = nelder_mead(objective, start, step, 40)?;
+    ((wd / lambda[r].im - 1.0).abs() < 0.01).then(|| Complex64::new(-ls.exp(), wd))
+}
+
+/// A small Nelder–Mead simplex minimiser in two dimensions.
+fn nelder_mead(
+    f: impl Fn(f64, f64) -> f64,
+    x0: [f64; 2],
+    step: [f64; 2],
+    iters: usize,
+) -> Option<[f64; 2]> {
+    let mut pts = [x0, [x0[0] + step[0], x0[1]], [x0[0], x0[1] + step[1]]];
+    let mut val = pts.map(|p| f(p[0], p[1]));
+    if !val.iter().all(|v| v.is_finite()) {
+        return None;
+    }
+    for _ in 0..iters {
+        let mut idx = [0usize, 1, 2];
+        idx.sort_by(|&a, &b| val[a].total_cmp(&val[b]));
+        let (b, m, w) = (idx[0], idx[1], idx[2]);
+        let c = [(pts[b][0] + pts[m][0]) / 2.0, (pts[b][1] + pts[m][1]) / 2.0];
+        let at = |t: f64| [c[0] + t * (pts[w][0] - c[0]), c[1] + t * (pts[w][1] - c[1])];
+        let xr = at(-1.0);
+        let fr = f(xr[0], xr[1]);
+        if fr < val[b] {
+            let xe = at(-2.0);
+            let fe = f(xe[0], xe[1]);
+            if fe < fr {
+                pts[w] = xe;
+                val[w] = fe;
+            } else {
+                pts[w] = xr;
+                val[w] = fr;
+            }
+        } else if fr < val[m] {
+            pts[w] = xr;
+            val[w] = fr;
+        } else {
+            let xc = at(0.5);
+            let fc = f(xc[0], xc[1]);
+            if fc < val[w] {
+                pts[w] = xc;
+                val[w] = fc;
+            } else {
+                for i in [m, w] {
+                    pts[i] = [(pts[i][0] + pts[b][0]) / 2.0, (pts[i][1] + pts[b][1]) / 2.0];
+                    val[i] = f(pts[i][0], pts[i][1]);
+                }
+            }
+        }
+    }
+    let best = (0..3).min_by(|&a, &b| val[a].total_cmp(&val[b]))?;
+    Some(pts[best])
+}
