@@ -307,12 +307,16 @@ pub fn extract(set: &FrfSet, s: &ModalSettings) -> Result<ModalResult, String> {
     }
     res.modes
         .sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
-    res.auto_mac = res
-        .modes
-        .iter()
-        .map(|a| res.modes.iter().map(|b| mac(&a.shape, &b.shape)).collect())
-        .collect();
+    res.auto_mac = auto_mac(&res.modes);
     Ok(res)
+}
+
+/// MAC between every pair of modes.
+fn auto_mac(modes: &[Mode]) -> Vec<Vec<f64>> {
+    modes
+        .iter()
+        .map(|a| modes.iter().map(|b| mac(&a.shape, &b.shape)).collect())
+        .collect()
 }
 
 /// Local maxima of `y` standing at least 3 dB above the higher of their two flanking minima.
@@ -840,10 +844,6 @@ pub fn modes_from_poles(
     let w = set.weights(s.coherence_weighting);
     fit_chosen(set, &mut res, stab, &w, &chosen, s.refine_poles)?;
     res.stabilization = Some(stab.clone());
-    res.auto_mac = res
-        .modes
-        .iter()
-        .map(|a| res.modes.iter().map(|b| mac(&a.shape, &b.shape)).collect())
-        .collect();
+    res.auto_mac = auto_mac(&res.modes);
     Ok(res)
 }
