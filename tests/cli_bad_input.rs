@@ -103,6 +103,67 @@ fn a_good_set_passes() {
 }
 
 #[test]
+fn stations_csv_with_a_byte_order_mark_and_extra_columns_is_read() {
+    let t = tempfile::tempdir().unwrap();
+    let d = case(&t, "csv");
+    good_wav(&d.join("st1.wav"), 8000);
+    good_wav(&d.join("st2.wav"), 8000);
+    std::fs::write(
+        d.join("stations.csv"),
+        "\u{feff}station,label,position_m\n1,left end,0.05\n2,bearing,0.35\n",
+    )
+    .unwrap();
+    let out = t.path().join("o");
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args([
+            "analyze",
+            d.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .assert()
+        .success();
+    let r: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    assert_eq!(r["stations"][1]["position_m"], 0.35);
+    assert_eq!(r["stations"][1]["position_source"], "csv");
+}
+
+#[test]
+fn stations_csv_missing_a_station_names_it() {
+    let t = tempfile::tempdir().unwrap();
+    let d = case(&t, "csvmiss");
+    good_wav(&d.join("st1.wav"), 8000);
+    good_wav(&d.join("st2.wav"), 8000);
+    std::fs::write(d.join("stations.csv"), "station,position_m\n1,0.0\n").unwrap();
+    fails(&d, &[], "stations.csv", "no position for station 2");
+}
+
+#[test]
+fn a_raw_recording_changed_after_capture_is_reported() {
+    let t = tempfile::tempdir().unwrap();
+    let d = case(&t, "set");
+    good_wav(&d.join("st1.wav"), 8000);
+    let ses = t.path().join("ses");
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args([
+            "import",
+            d.to_str().unwrap(),
+            "--session",
+            ses.to_str().unwrap(),
+        ])
+        .assert()
+        .success();
+    let raw = ses.join("raw/station-001.wav");
+    let mut bytes = std::fs::read(&raw).unwrap();
+    bytes.extend_from_slice(&[0, 0]);
+    std::fs::write(&raw, bytes).unwrap();
+    fails(&ses, &[], "station-001.wav", "changed after capture");
+}
+
+#[test]
 fn empty_folder() {
     let t = tempfile::tempdir().unwrap();
     let d = case(&t, "empty");

@@ -145,3 +145,26 @@ fn plain_and_extensible_headers_decode_alike() {
     assert_eq!((r1.a[0], r1.b[0]), (0.5, -0.25));
     assert_eq!((r2.a[0], r2.b[0]), (0.5, -0.25));
 }
+
+#[test]
+fn extra_chunks_before_the_data_are_skipped() {
+    // RIFF readers must skip unknown chunks (e.g. LIST/INFO written by recording software).
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("plain.wav");
+    hand_wav(&p, 16, false, false, &[[1000, -2000], [3000, -4000]]);
+    let mut b = std::fs::read(&p).unwrap();
+    let fmt_end = 12 + 8 + u32::from_le_bytes(b[16..20].try_into().unwrap()) as usize;
+    let list: Vec<u8> = [b"LIST".as_slice(), &10u32.to_le_bytes(), b"INFOab\0\0xy"].concat();
+    b.splice(fmt_end..fmt_end, list.iter().copied());
+    let riff = (b.len() - 8) as u32;
+    b[4..8].copy_from_slice(&riff.to_le_bytes());
+    let q = dir.path().join("list.wav");
+    std::fs::write(&q, &b).unwrap();
+    let (r1, r2) = (
+        read_two_channels(&p, 0, 1).unwrap(),
+        read_two_channels(&q, 0, 1).unwrap(),
+    );
+    assert_eq!(r1.a, r2.a);
+    assert_eq!(r1.b, r2.b);
+    assert_eq!(r2.a[1], 3000.0 / 32768.0);
+}
