@@ -168,6 +168,9 @@ pub struct SetupArgs {
     /// Leave ringing carried over from earlier hits in the records (default: model and remove it).
     #[arg(long)]
     pub keep_carryover: bool,
+    /// AC-coupling corner to undo (hammer layout): auto (from the hammer's tail), none, or Hz.
+    #[arg(long, value_name = "auto|none|HZ")]
+    pub ac_corner: Option<String>,
 }
 
 fn pair<T: std::str::FromStr>(text: &str, what: &str) -> Result<(T, T)> {
@@ -264,6 +267,20 @@ impl SetupArgs {
         }
         if self.keep_carryover {
             s.remove_carryover = false;
+        }
+        if let Some(c) = &self.ac_corner {
+            s.ac_coupling = match c.trim() {
+                "auto" => crate::setup::AcCoupling::Auto,
+                "none" => crate::setup::AcCoupling::None,
+                t => crate::setup::AcCoupling::CornerHz(
+                    t.parse::<f64>()
+                        .ok()
+                        .filter(|v| v.is_finite() && *v > 0.0)
+                        .ok_or_else(|| {
+                            anyhow!("--ac-corner takes auto, none or a corner in Hz, got {t:?}")
+                        })?,
+                ),
+            };
         }
         s.validate().map_err(|m| anyhow!("bad setup: {m}"))?;
         Ok(s)

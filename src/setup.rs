@@ -140,6 +140,19 @@ impl Default for Windows {
     }
 }
 
+/// The audio interface's AC coupling (a first-order high-pass on every channel).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case", tag = "kind", content = "corner_hz")]
+pub enum AcCoupling {
+    /// Estimate the corner from the hammer channel's tail after the pulses (hammer layout).
+    #[default]
+    Auto,
+    /// Leave the FRF as measured.
+    None,
+    /// A known corner frequency, Hz.
+    CornerHz(f64),
+}
+
 /// Per-hit quality limits (field notes §1; common practice).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(default)]
@@ -207,6 +220,8 @@ pub struct Setup {
     pub quality: QualityLimits,
     /// Model and remove ringing carried over from earlier hits (see `signal::carryover`).
     pub remove_carryover: bool,
+    /// AC coupling to undo in the hammer layout (see `signal::coupling`).
+    pub ac_coupling: AcCoupling,
 }
 
 impl Default for Setup {
@@ -230,6 +245,7 @@ impl Default for Setup {
             estimator: Estimator::H1,
             quality: QualityLimits::default(),
             remove_carryover: true,
+            ac_coupling: AcCoupling::Auto,
         }
     }
 }

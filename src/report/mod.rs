@@ -98,6 +98,7 @@ struct StationOut {
     position_source: PositionSource,
     accepted_hits: usize,
     hits: usize,
+    ac_corner_hz: Option<f64>,
     /// LSFD fit error Σ|H − H_syn|²/Σ|H|² over the band, when modes were fitted.
     fit_error: Option<f64>,
 }
@@ -297,6 +298,7 @@ pub fn result_json(a: &Analysis, m: &ModalResult) -> String {
                 position_source: s.position_source,
                 accepted_hits: s.result.hits.iter().filter(|h| h.accepted).count(),
                 hits: s.result.hits.len(),
+                ac_corner_hz: s.result.ac_corner_hz,
                 fit_error: m
                     .stations
                     .iter()

@@ -1,6 +1,7 @@
 //! The signal chain: hit detection, windows, spectra, FRF estimators and per-hit verdicts.
 
 pub mod carryover;
+pub mod coupling;
 pub mod frf;
 pub mod hits;
 pub mod station;

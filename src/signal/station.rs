@@ -5,12 +5,13 @@ use std::collections::BTreeMap;
 use serde::{Deserialize, Serialize};
 
 use super::carryover::{self, PulseSpan};
+use super::coupling;
 use super::frf::{CrossSpectra, SpectrumPlan};
 use super::hits::{find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact};
 use super::verdict::Reason;
 use super::window::{exponential, exponential_tau_s, force_window};
 use crate::Complex64;
-use crate::setup::{Layout, Setup};
+use crate::setup::{AcCoupling, Layout, Setup};
 
 /// The verdict and measurements of one hit.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -77,6 +78,8 @@ pub struct StationResult {
     pub exp_tau_s: f64,
     /// Trigger level used, full-scale units.
     pub trigger_level_fs: f64,
+    /// AC-coupling corner undone in the FRF, Hz (hammer layout), when there was one.
+    pub ac_corner_hz: Option<f64>,
 }
 
 struct Candidate {
@@ -170,6 +173,14 @@ pub fn analyze_station(
     let tau = exponential_tau_s(post_s, setup.windows.exponential_end);
     let max_pulse = (0.02 * fs as f64) as usize;
     let ew = exponential(n, pre, dt, tau);
+    // Undo the interface's high-pass, which the force window leaves in the response only (see
+    // `coupling`); in the sensor layout both channels are responses and it cancels.
+    let corner_hz = match (setup.layout, setup.ac_coupling) {
+        (Layout::Sensor, _) | (_, AcCoupling::None) => None,
+        (Layout::Hammer, AcCoupling::CornerHz(f)) => Some(f),
+        (Layout::Hammer, AcCoupling::Auto) => coupling::station_corner_hz(a, &spans, fs, sign, 3),
+    };
+    let unhp = corner_hz.map(|fc| coupling::inverse_factors(&freq_hz, fc, tau));
 
     let mut hits = Vec::with_capacity(triggers.len());
     let mut cands: Vec<Option<Candidate>> = Vec::with_capacity(triggers.len());
@@ -258,7 +269,11 @@ pub fn analyze_station(
                     dt,
                     lines.clone(),
                 );
-                let sb = plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, &ew), dt, lines.clone());
+                let mut sb =
+                    plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, &ew), dt, lines.clone());
+                if let Some(u) = &unhp {
+                    sb.iter_mut().zip(u).for_each(|(v, u)| *v *= u);
+                }
                 (sa, sb)
             }
             Layout::Sensor => {
@@ -317,6 +332,7 @@ pub fn analyze_station(
         df_hz: df,
         exp_tau_s: tau,
         trigger_level_fs: level,
+        ac_corner_hz: corner_hz,
     })
 }
 
