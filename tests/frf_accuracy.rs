@@ -33,6 +33,21 @@ fn away_from_antiresonances(f: &[f64], mag: &[f64]) -> Vec<bool> {
         .collect()
 }
 
+/// Worst |dB| and |degrees| of measured / expected over the lines away from antiresonances.
+fn worst_error(freq: &[f64], h: &[Complex64], exp: &[Complex64]) -> (f64, f64) {
+    let mags: Vec<f64> = exp.iter().map(|c| c.norm()).collect();
+    let keep = away_from_antiresonances(freq, &mags);
+    (0..exp.len())
+        .filter(|&i| keep[i])
+        .fold((0.0f64, 0.0f64), |(db, deg), i| {
+            let ratio = h[i] / exp[i];
+            (
+                db.max((20.0 * ratio.norm().log10()).abs()),
+                deg.max(ratio.arg().to_degrees().abs()),
+            )
+        })
+}
+
 fn check(model: &MatrixModel, resp: usize, force: usize, fs: u32, band: [f64; 2]) -> (f64, f64) {
     // A 24-bit-grade chain (10 nV noise): the test is of the windows and estimators, not of noise.
     let rig = tapgrid::sim::Rig {
@@ -64,18 +79,7 @@ fn check(model: &MatrixModel, resp: usize, force: usize, fs: u32, band: [f64; 2]
         .iter()
         .map(|&f| model.windowed_accelerance(resp, force, TAU * f, r.exp_tau_s))
         .collect();
-    let mags: Vec<f64> = exp.iter().map(|c| c.norm()).collect();
-    let keep = away_from_antiresonances(&frf.freq_hz, &mags);
-    let (mut worst_db, mut worst_deg) = (0.0f64, 0.0f64);
-    for i in 0..exp.len() {
-        if !keep[i] {
-            continue;
-        }
-        let ratio = frf.h[i] / exp[i];
-        worst_db = worst_db.max((20.0 * ratio.norm().log10()).abs());
-        worst_deg = worst_deg.max(ratio.arg().to_degrees().abs());
-    }
-    (worst_db, worst_deg)
+    worst_error(&frf.freq_hz, &frf.h, &exp)
 }
 
 fn three_dof() -> MatrixModel {
@@ -146,12 +150,7 @@ fn ac_coupling_is_found_and_undone_down_to_five_times_its_corner() {
         .iter()
         .map(|&f| model.windowed_accelerance(0, 0, TAU * f, r.exp_tau_s))
         .collect();
-    let mags: Vec<f64> = exp.iter().map(|c| c.norm()).collect();
-    let keep = away_from_antiresonances(&frf.freq_hz, &mags);
-    let worst = (0..exp.len())
-        .filter(|&i| keep[i])
-        .map(|i| (frf.h[i] / exp[i]).arg().to_degrees().abs())
-        .fold(0.0f64, f64::max);
+    let (_, worst) = worst_error(&frf.freq_hz, &frf.h, &exp);
     assert!(worst < 2.0, "worst phase {worst:.2}°");
     // Off, the error is there to see.
     let off = Setup {

@@ -7,7 +7,9 @@ use serde::{Deserialize, Serialize};
 use super::carryover::{self, PulseSpan};
 use super::coupling;
 use super::frf::{CrossSpectra, SpectrumPlan};
-use super::hits::{find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact};
+use super::hits::{
+    Pulse, find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact,
+};
 use super::verdict::Reason;
 use super::window::{exponential, exponential_tau_s, force_window};
 use crate::Complex64;
@@ -135,19 +137,24 @@ pub fn analyze_station(
 
     let sign = setup.trigger.slope.sign();
     let q = &setup.quality;
-    let max_pulse_file = (0.02 * fs as f64) as usize;
+    // Soft tips give pulses of several ms; 20 ms bounds the search for the peak.
+    let max_pulse = (0.02 * fs as f64) as usize;
+    // Each hammer pulse is located once, in the whole recording; the records and the carry-over
+    // and coupling models all use it.
+    let pulses: Vec<Option<Pulse>> = triggers
+        .iter()
+        .map(|&t| (setup.layout == Layout::Hammer).then(|| find_pulse(a, t, sign, max_pulse)))
+        .collect();
     let spans: Vec<PulseSpan> = triggers
         .iter()
-        .map(|&t| match setup.layout {
-            Layout::Hammer => {
-                let p = find_pulse(a, t, sign, max_pulse_file);
-                PulseSpan {
-                    trigger: t,
-                    start: p.start,
-                    end: p.end + 1,
-                }
-            }
-            Layout::Sensor => PulseSpan {
+        .zip(&pulses)
+        .map(|(&t, p)| match p {
+            Some(p) => PulseSpan {
+                trigger: t,
+                start: p.start,
+                end: p.end + 1,
+            },
+            None => PulseSpan {
                 trigger: t,
                 start: t.saturating_sub(fs as usize / 1000),
                 end: (t + 3 * fs as usize / 1000).min(a.len()),
@@ -171,7 +178,6 @@ pub fn analyze_station(
     let scale_b = setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit();
     let post_s = (n - pre) as f64 * dt;
     let tau = exponential_tau_s(post_s, setup.windows.exponential_end);
-    let max_pulse = (0.02 * fs as f64) as usize;
     let ew = exponential(n, pre, dt, tau);
     // Undo the interface's high-pass, which the force window leaves in the response only (see
     // `coupling`); in the sensor layout both channels are responses and it cancels.
@@ -236,7 +242,14 @@ pub fn analyze_station(
         let rb_w: &[f64] = fb.as_deref().unwrap_or(rb);
         let (sa, sb) = match setup.layout {
             Layout::Hammer => {
-                let pulse = find_pulse(ra, pre, sign, max_pulse);
+                // The file-level pulse, in record indices (clipped to the record).
+                let fp = pulses[index].expect("hammer layout locates every pulse");
+                let pulse = Pulse {
+                    start: fp.start.max(start) - start,
+                    peak: fp.peak.clamp(start, start + n - 1) - start,
+                    end: fp.end.clamp(start, start + n - 1) - start,
+                    peak_value: fp.peak_value,
+                };
                 let width = pulse.width();
                 rep.pulse_width_s = Some(width as f64 * dt);
                 if let Some(i2) = second_impact(ra, &pulse, sign, q.double_hit_fraction) {
