@@ -17,11 +17,21 @@ use crate::units::Sensitivity;
 
 /// tapgrid: impact modal testing of shafts and rotors.
 #[derive(Debug, Parser)]
-#[command(name = "tapgrid", version, about, long_about = None)]
+#[command(
+    name = "tapgrid",
+    version,
+    about,
+    long_about = "tapgrid: impact modal testing of shafts and rotors.\n\nWith no arguments it opens the \
+                  window on the bundled demo session; with a folder it opens that session or WAV set; \
+                  with a subcommand it runs headless.",
+    args_conflicts_with_subcommands = true
+)]
 pub struct Cli {
-    /// What to do.
+    /// A session or WAV set folder to open in the window.
+    pub open: Option<PathBuf>,
+    /// What to do (none: open the window).
     #[command(subcommand)]
-    pub command: Command,
+    pub command: Option<Command>,
 }
 
 /// Subcommands.
@@ -472,7 +482,15 @@ pub struct DemoArgs {
 
 /// Runs a parsed command line.
 pub fn run(cli: Cli) -> Result<()> {
-    match cli.command {
+    let Some(command) = cli.command else {
+        if let Some(p) = &cli.open
+            && !p.is_dir()
+        {
+            bail!("{}: is not a folder (expected a session or a WAV set folder)", p.display());
+        }
+        return crate::app::run(cli.open);
+    };
+    match command {
         Command::Analyze(a) => {
             let m = modal_settings(&a)?;
             analyze(&a.input, &a.out, &a.setup, m.as_ref())
@@ -502,18 +520,9 @@ pub fn run(cli: Cli) -> Result<()> {
     }
 }
 
-/// The bundled demo session: next to the executable's source tree or the working folder.
+/// The bundled demo session, or one the simulator makes on first use.
 fn demo_session_dir() -> Result<PathBuf> {
-    let rel = Path::new("sample-sessions").join("pump-shaft");
-    let candidates = [
-        std::env::current_dir().ok().map(|d| d.join(&rel)),
-        Some(Path::new(env!("CARGO_MANIFEST_DIR")).join(&rel)),
-    ];
-    candidates
-        .into_iter()
-        .flatten()
-        .find(|p| Session::is_session(p))
-        .ok_or_else(|| anyhow!("the demo session {} was not found", rel.display()))
+    Ok(crate::sim::demo::demo_session(&crate::sim::demo::default_root())?)
 }
 
 fn analyze(

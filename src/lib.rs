@@ -22,6 +22,7 @@
 
 pub mod acquire;
 pub mod analysis;
+pub mod app;
 pub mod cli;
 pub mod modal;
 pub mod model;

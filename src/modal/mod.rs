@@ -76,6 +76,8 @@ pub struct ModalSettings {
     pub mains_hz: Vec<f64>,
     /// Refine each chosen pole by a local nonlinear fit (see `refine`).
     pub refine_poles: bool,
+    /// Fit only the lines inside this band, Hz (`None`: the whole analysis band).
+    pub band_hz: Option<[f64; 2]>,
 }
 
 impl Default for ModalSettings {
@@ -89,6 +91,7 @@ impl Default for ModalSettings {
             min_stable_orders: 8,
             mains_hz: vec![50.0, 60.0],
             refine_poles: true,
+            band_hz: None,
         }
     }
 }
@@ -155,6 +158,30 @@ pub struct FrfSet {
 }
 
 impl FrfSet {
+    /// The same FRFs restricted to the lines inside `[lo, hi]` Hz.
+    pub fn within(&self, [lo, hi]: [f64; 2]) -> Result<Self, String> {
+        let k0 = self.freq_hz.partition_point(|&f| f < lo);
+        let k1 = self.freq_hz.partition_point(|&f| f <= hi);
+        if k1 <= k0 + 1 {
+            return Err(format!("the fit band {lo:.1}:{hi:.1} Hz holds fewer than two lines"));
+        }
+        let cut = |v: &Vec<f64>| v[k0..k1].to_vec();
+        Ok(Self {
+            layout: self.layout,
+            freq_hz: self.freq_hz[k0..k1].to_vec(),
+            stations: self.stations.clone(),
+            positions_m: self.positions_m.clone(),
+            h: self.h.iter().map(|h| h[k0..k1].to_vec()).collect(),
+            coherence: self.coherence.iter().map(cut).collect(),
+            hits: self.hits.clone(),
+            gaa: self.gaa.iter().map(cut).collect(),
+            gbb: self.gbb.iter().map(cut).collect(),
+            exp_tau_s: self.exp_tau_s,
+            reference: self.reference,
+            df_hz: self.df_hz,
+        })
+    }
+
     /// Gathers the stations of an analysis that have an FRF.
     pub fn from_analysis(a: &Analysis) -> Option<Self> {
         let with: Vec<_> = a
@@ -282,6 +309,14 @@ pub struct ModalResult {
 
 /// Extracts modes from a test's FRFs.
 pub fn extract(set: &FrfSet, s: &ModalSettings) -> Result<ModalResult, String> {
+    let narrowed;
+    let set = match s.band_hz {
+        Some(b) => {
+            narrowed = set.within(b)?;
+            &narrowed
+        }
+        None => set,
+    };
     let ind = indicators(set);
     let mut res = ModalResult {
         indicators: ind,
@@ -824,6 +859,14 @@ pub fn modes_from_poles(
     stab: &Stabilization,
     picked: &[usize],
 ) -> Result<ModalResult, String> {
+    let narrowed;
+    let set = match s.band_hz {
+        Some(b) => {
+            narrowed = set.within(b)?;
+            &narrowed
+        }
+        None => set,
+    };
     let mut res = ModalResult {
         indicators: indicators(set),
         stations: set.stations.clone(),

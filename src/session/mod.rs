@@ -224,6 +224,38 @@ impl Session {
             .map_err(|e| InputError::new(&path, format!("cannot write: {e}")))
     }
 
+    /// Copies the session (raw recordings byte for byte, then the manifest) into a new folder and
+    /// returns the copy; this session is left as it is.
+    pub fn save_as(&self, dir: &Path) -> Result<Self, InputError> {
+        if dir.join(MANIFEST).exists() {
+            return Err(InputError::new(
+                dir,
+                "already holds a session; choose a new folder",
+            ));
+        }
+        for r in &self.manifest.recordings {
+            let dst = dir.join(&r.file);
+            if let Some(parent) = dst.parent() {
+                std::fs::create_dir_all(parent)
+                    .map_err(|e| InputError::new(parent, format!("cannot create folder: {e}")))?;
+            }
+            let n = atomic::copy_file(&self.dir.join(&r.file), &dst)
+                .map_err(|e| InputError::new(&dst, format!("cannot copy recording: {e}")))?;
+            if n != r.bytes {
+                return Err(InputError::new(
+                    &dst,
+                    format!("copied {n} bytes, the manifest records {}", r.bytes),
+                ));
+            }
+        }
+        let copy = Self {
+            dir: dir.to_path_buf(),
+            manifest: self.manifest.clone(),
+        };
+        copy.save()?;
+        Ok(copy)
+    }
+
     /// Overrides saved for each station: hit index → accept.
     pub fn overrides(&self) -> BTreeMap<u32, BTreeMap<usize, bool>> {
         let mut out: BTreeMap<u32, BTreeMap<usize, bool>> = BTreeMap::new();

@@ -9,5 +9,5 @@ pub mod verdict;
 pub mod window;
 
 pub use frf::{CrossSpectra, SpectrumPlan};
-pub use station::{HitReport, StationFrf, StationResult, analyze_station};
+pub use station::{HitReport, HitTraces, StationFrf, StationResult, analyze_station, hit_traces};
 pub use verdict::Reason;

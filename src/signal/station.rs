@@ -44,6 +44,10 @@ pub struct HitReport {
     pub residual_fraction: Option<f64>,
     /// Ringing carried over from earlier hits was modelled and removed from this record.
     pub ringing_removed: bool,
+    /// Force window used (hammer layout): unity start, unity length and taper, in samples of
+    /// the record. Derived again on every analysis, so not saved.
+    #[serde(skip)]
+    pub force_window: Option<[usize; 3]>,
 }
 
 /// Averaged spectra and FRF of a station over its accepted hits.
@@ -205,6 +209,7 @@ pub fn analyze_station(
             force_drop_db: None,
             residual_fraction: None,
             ringing_removed: false,
+            force_window: None,
         };
         let Some(start) = trig.checked_sub(pre).filter(|s| s + n <= a.len()) else {
             rep.reasons.push(Reason::Truncated);
@@ -269,6 +274,7 @@ pub fn analyze_station(
                     .force_taper_s
                     .map(|s| (s * fs as f64).round() as usize)
                     .unwrap_or(width);
+                rep.force_window = Some([wstart, unity, taper]);
                 let (ma, mb) = baseline(ra_w, rb_w, wstart.saturating_sub(taper));
                 let (lo, fw) = force_window(n, wstart, unity, taper);
                 let sa = plan.lines_of(
@@ -346,6 +352,95 @@ pub fn analyze_station(
         exp_tau_s: tau,
         trigger_level_fs: level,
         ac_corner_hz: corner_hz,
+    })
+}
+
+/// One hit's record as the chain saw it, for display: both channels in engineering units with
+/// the pretrigger baseline removed, the windows applied to them, and the force auto-spectrum.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HitTraces {
+    /// Time of each sample from the trigger, s (negative in the pretrigger).
+    pub time_s: Vec<f64>,
+    /// Channel A (force N, or reference m/s²).
+    pub a: Vec<f64>,
+    /// Channel B (response m/s²).
+    pub b: Vec<f64>,
+    /// Window on channel A (force window × exponential in the hammer layout).
+    pub window_a: Vec<f64>,
+    /// Window on channel B (exponential).
+    pub window_b: Vec<f64>,
+    /// Samples before the trigger.
+    pub pretrigger_samples: usize,
+    /// Lines of the force spectrum, Hz (the analysis band).
+    pub spectrum_freq_hz: Vec<f64>,
+    /// Windowed channel-A auto-spectrum, dB relative to its largest line in the band.
+    pub spectrum_a_db: Vec<f64>,
+}
+
+/// Cuts hit `hit` of a station's recording (`a`, `b` in full-scale units) as
+/// [`analyze_station`] did. `None` when the hit's record did not fit in the recording.
+pub fn hit_traces(
+    a: &[f64],
+    b: &[f64],
+    fs: u32,
+    setup: &Setup,
+    hit: &HitReport,
+) -> Option<HitTraces> {
+    let n = setup.record_samples(fs);
+    let start = hit.record_start?;
+    if start + n > a.len() || start + n > b.len() {
+        return None;
+    }
+    let dt = 1.0 / fs as f64;
+    let pre = ((setup.trigger.pretrigger_fraction * n as f64).round() as usize).min(n - 1);
+    let scale_a = setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit();
+    let scale_b = setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit();
+    let tau = exponential_tau_s((n - pre) as f64 * dt, setup.windows.exponential_end);
+    let ew = exponential(n, pre, dt, tau);
+    let ra = &a[start..start + n];
+    let rb = &b[start..start + n];
+    let (window_a, base_end) = match hit.force_window {
+        Some([wstart, unity, taper]) => {
+            let (lo, fw) = force_window(n, wstart, unity, taper);
+            let mut w = vec![0.0; n];
+            for (k, v) in fw.iter().enumerate() {
+                w[lo + k] = v * ew[lo + k];
+            }
+            (w, wstart.saturating_sub(taper))
+        }
+        None => (ew.clone(), pre.saturating_sub(pre / 10)),
+    };
+    let (ma, mb) = baseline(ra, rb, base_end);
+    let ta: Vec<f64> = ra.iter().map(|v| (v - ma) * scale_a).collect();
+    let tb: Vec<f64> = rb.iter().map(|v| (v - mb) * scale_b).collect();
+    let [lo, hi] = setup.band(fs);
+    let df = fs as f64 / n as f64;
+    let k_lo = (lo / df).ceil().max(1.0) as usize;
+    let k_hi = ((hi / df).floor() as usize).min(n / 2);
+    let mut plan = SpectrumPlan::new(n);
+    let windowed_a: Vec<f64> = ta.iter().zip(&window_a).map(|(v, w)| v * w).collect();
+    let lines = plan.lines(&windowed_a, dt, k_lo..k_hi + 1);
+    let p: Vec<f64> = lines.iter().map(|c| c.norm_sqr()).collect();
+    let pmax = p.iter().copied().fold(0.0f64, f64::max);
+    let spectrum_a_db = p
+        .iter()
+        .map(|&v| {
+            if pmax > 0.0 && v > 0.0 {
+                10.0 * (v / pmax).log10()
+            } else {
+                -200.0
+            }
+        })
+        .collect();
+    Some(HitTraces {
+        time_s: (0..n).map(|i| (i as f64 - pre as f64) * dt).collect(),
+        a: ta,
+        b: tb,
+        window_a,
+        window_b: ew,
+        pretrigger_samples: pre,
+        spectrum_freq_hz: (k_lo..=k_hi).map(|k| k as f64 * df).collect(),
+        spectrum_a_db,
     })
 }
 

@@ -6,6 +6,8 @@
 //! zero-phase anti-alias filter flat to 0.45 fs. Then the audio chain: AC coupling (first-order
 //! high-pass), mains hum coherent on both channels, noise, clipping at full scale and quantisation.
 
+pub mod demo;
+
 use std::path::Path;
 
 use realfft::RealFftPlanner;

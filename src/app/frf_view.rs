@@ -1,0 +1,215 @@
+//! FRF review: magnitude (dB), phase and coherence on linked frequency axes, one station or
+//! several overlaid, and the mode indicator with the modes found.
+
+use eframe::egui::{self, RichText};
+use egui_plot::{Line, Plot, VLine};
+
+use super::plots::{self, ACCENT, FreqAxis, WARN};
+use super::{TapgridApp, station_map};
+use crate::setup::Layout;
+
+/// Draws the view.
+pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+    station_map::strip(ui, app, 96.0);
+    let Some(doc) = &app.doc else {
+        return;
+    };
+    let Some(frfs) = doc.frfs.clone() else {
+        ui.label(
+            doc.analysis_error
+                .clone()
+                .unwrap_or_else(|| "No FRF yet: the analysis is running or no hit was accepted.".into()),
+        );
+        return;
+    };
+    let modal = doc.modal.clone();
+    let layout = frfs.layout;
+    let (quantity, unit) = match layout {
+        Layout::Hammer => ("accelerance", "dB re 1 (m/s²)/N"),
+        Layout::Sensor => ("transmissibility", "dB re 1"),
+    };
+    let axis = FreqAxis {
+        log: app.settings.log_frequency,
+    };
+    egui::Panel::left("frf-options").default_size(230.0).show(ui, |ui| {
+        ui.heading("Show");
+        ui.checkbox(&mut app.settings.log_frequency, "log frequency axis");
+        ui.checkbox(&mut app.settings.show_phase, "phase plot");
+        ui.checkbox(&mut app.settings.overlay_all, "overlay every station");
+        ui.separator();
+        ui.label("Overlay stations:");
+        egui::ScrollArea::vertical().max_height(ui.available_height() - 40.0).show(ui, |ui| {
+            for &s in &frfs.stations {
+                let mut on = app.overlay.contains(&s);
+                if ui.checkbox(&mut on, format!("station {s}")).changed() {
+                    if on {
+                        app.overlay.insert(s);
+                    } else {
+                        app.overlay.remove(&s);
+                    }
+                }
+            }
+        });
+    });
+    let current = app.current_station;
+    let shown: Vec<usize> = (0..frfs.stations.len())
+        .filter(|&i| {
+            let s = frfs.stations[i];
+            app.settings.overlay_all || current == Some(s) || app.overlay.contains(&s)
+        })
+        .collect();
+    egui::CentralPanel::default().show(ui, |ui| {
+        if shown.is_empty() {
+            ui.label("The current station has no FRF (no accepted hit); pick another or overlay some.");
+        }
+        let n_plots = if app.settings.show_phase { 4.0 } else { 3.0 };
+        let h_each = ((ui.available_height() - 10.0 * n_plots) / n_plots).max(110.0);
+        let columns = ui.available_width() as usize;
+        let link = egui::Id::unique("frf-x");
+        let f = &frfs.freq_hz;
+        let readout = move |name: &str, x: f64, y: f64, yunit: &str| {
+            let fx = axis.f(x);
+            if name.is_empty() {
+                format!("{fx:.1} Hz\n{y:.2} {yunit}")
+            } else {
+                format!("{name}\n{fx:.1} Hz\n{y:.2} {yunit}")
+            }
+        };
+        let label = |yunit: &'static str| {
+            move |p: &egui_plot::HoverPosition<'_>| -> Option<String> {
+                Some(match p {
+                    egui_plot::HoverPosition::NearDataPoint { plot_name, position, .. } => {
+                        readout(plot_name, position.x, position.y, yunit)
+                    }
+                    egui_plot::HoverPosition::Elsewhere { position } => {
+                        readout("", position.x, position.y, yunit)
+                    }
+                })
+            }
+        };
+        let mode_lines = |p: &mut egui_plot::PlotUi<'_>| {
+            if let Some(m) = &modal {
+                for (k, md) in m.modes.iter().enumerate() {
+                    p.vline(
+                        VLine::new(format!("mode {}", k + 1), axis.x(md.measured_frequency_hz))
+                            .color(WARN.gamma_multiply(0.6)),
+                    );
+                }
+            }
+        };
+        // Magnitude
+        let id = egui::Id::unique("frf-mag");
+        let bounds = plots::last_bounds(ui.ctx(), id);
+        let mut lines = Vec::with_capacity(shown.len());
+        for (n, &i) in shown.iter().enumerate() {
+            let h = &frfs.h[i];
+            let pts = app.plot_scratch.reduced(f, |k| plots::db(h[k].norm()), axis, bounds, columns);
+            lines.push((n, i, pts));
+        }
+        let r = axis
+            .configure(Plot::new(id))
+            .height(h_each)
+            .link_axis(link, [true, false])
+            .link_cursor(link, [true, false])
+            .y_axis_label(format!("{quantity} ({unit})"))
+            .label_formatter(label(unit))
+            .show(ui, |p| {
+                for (n, i, pts) in lines {
+                    let c = if current == Some(frfs.stations[i]) { ACCENT } else { plots::trace_color(n) };
+                    p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
+                }
+                mode_lines(p);
+            });
+        let b = *r.transform.bounds();
+        plots::keep_bounds(ui.ctx(), id, b);
+        // Phase
+        if app.settings.show_phase {
+            let id = egui::Id::unique("frf-phase");
+            let mut lines = Vec::with_capacity(shown.len());
+            for (n, &i) in shown.iter().enumerate() {
+                let h = &frfs.h[i];
+                let pts = app.plot_scratch.reduced(f, |k| h[k].arg().to_degrees(), axis, Some(b), columns);
+                lines.push((n, i, pts));
+            }
+            axis.configure(Plot::new(id))
+                .height(h_each)
+                .link_axis(link, [true, false])
+                .link_cursor(link, [true, false])
+                .include_y(-180.0)
+                .include_y(180.0)
+                .y_axis_label("phase (degrees)")
+                .label_formatter(label("°"))
+                .show(ui, |p| {
+                    for (n, i, pts) in lines {
+                        let c = if current == Some(frfs.stations[i]) { ACCENT } else { plots::trace_color(n) };
+                        p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
+                    }
+                    mode_lines(p);
+                });
+        }
+        // Coherence
+        let id = egui::Id::unique("frf-coh");
+        let mut lines = Vec::with_capacity(shown.len());
+        for (n, &i) in shown.iter().enumerate() {
+            let c = &frfs.coherence[i];
+            let pts = app.plot_scratch.reduced(f, |k| c[k], axis, Some(b), columns);
+            lines.push((n, i, pts));
+        }
+        axis.configure(Plot::new(id))
+            .height(h_each)
+            .link_axis(link, [true, false])
+            .link_cursor(link, [true, false])
+            .include_y(0.0)
+            .include_y(1.05)
+            .y_axis_label("coherence γ² (0…1)")
+            .label_formatter(label(""))
+            .show(ui, |p| {
+                for (n, i, pts) in lines {
+                    let c = if current == Some(frfs.stations[i]) { ACCENT } else { plots::trace_color(n) };
+                    p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
+                }
+                mode_lines(p);
+            });
+        // Mode indicator
+        let id = egui::Id::unique("frf-mif");
+        let ind = crate::modal::indicators(&frfs);
+        let (name, yunit, vals): (&str, &str, Vec<f64>) = match layout {
+            Layout::Hammer => (
+                "Σ|H| over stations",
+                "dB re 1 (m/s²)/N",
+                ind.sum_abs.iter().map(|v| plots::db(*v)).collect(),
+            ),
+            Layout::Sensor => (
+                "Σ response auto-spectra",
+                "dB re 1 (m/s²)²/Hz",
+                ind.sum_response_autospectra.iter().map(|v| 10.0 * v.max(1e-300).log10()).collect(),
+            ),
+        };
+        let pts = app.plot_scratch.reduced(f, |k| vals[k], axis, Some(b), columns);
+        axis.configure(Plot::new(id))
+            .height(h_each)
+            .link_axis(link, [true, false])
+            .link_cursor(link, [true, false])
+            .y_axis_label(format!("mode indicator ({yunit})"))
+            .label_formatter(label(yunit))
+            .show(ui, |p| {
+                p.line(Line::new(name, pts).color(ACCENT));
+                if let Some(m) = &modal {
+                    for (k, md) in m.modes.iter().enumerate() {
+                        p.vline(
+                            VLine::new(format!("mode {} — {:.1} Hz", k + 1, md.frequency_hz), axis.x(md.measured_frequency_hz))
+                                .color(WARN),
+                        );
+                    }
+                }
+            });
+        if let Some(m) = &modal {
+            ui.horizontal_wrapped(|ui| {
+                ui.label(RichText::new("Modes:").strong());
+                for (k, md) in m.modes.iter().enumerate() {
+                    ui.label(format!("{} — {:.1} Hz", k + 1, md.frequency_hz));
+                }
+            });
+        }
+    });
+}

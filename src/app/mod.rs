@@ -1,0 +1,1126 @@
+//! The desktop GUI (eframe + egui_plot). The only layer that knows egui.
+//!
+//! Shape of the code: [`TapgridApp`] holds a persisted [`Settings`] and runtime state beside it;
+//! views draw and push [`Command`]s, which [`TapgridApp::apply`] carries out after the frame; the
+//! numeric work runs on the [`worker`] thread and comes back through [`TapgridApp::logic`].
+
+mod fit_view;
+mod frf_view;
+mod help;
+mod hits_view;
+mod modes_view;
+mod plots;
+pub mod reduce;
+mod setup_view;
+mod station_map;
+pub mod worker;
+
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use eframe::egui;
+use serde::{Deserialize, Serialize};
+
+use crate::analysis::{Analysis, Dataset};
+use crate::modal::{FrfSet, ModalResult, ModalSettings};
+use crate::session::{Part, Session};
+use crate::setup::Setup;
+use crate::signal::HitTraces;
+use worker::{Job, Outcome, Worker};
+
+/// Key under which [`Settings`] persist in eframe's storage.
+pub const SETTINGS_KEY: &str = "tapgrid-settings";
+
+/// The views, in the order of their tabs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+pub enum View {
+    /// Part, stations, channels, trigger, windows, band.
+    Setup,
+    /// The part's outline with a cell per station.
+    #[default]
+    Stations,
+    /// The current station's hits.
+    Hits,
+    /// Magnitude, phase, coherence.
+    Frf,
+    /// Stabilization diagram.
+    Fit,
+    /// Mode table, animation, MAC.
+    Modes,
+}
+
+impl View {
+    /// All views in tab order.
+    pub const ALL: [View; 6] = [
+        View::Setup,
+        View::Stations,
+        View::Hits,
+        View::Frf,
+        View::Fit,
+        View::Modes,
+    ];
+
+    /// Tab label.
+    pub fn label(self) -> &'static str {
+        match self {
+            View::Setup => "Test setup",
+            View::Stations => "Station map",
+            View::Hits => "Hit check",
+            View::Frf => "FRF review",
+            View::Fit => "Pole picking",
+            View::Modes => "Mode shapes",
+        }
+    }
+}
+
+/// What persists between runs.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Settings {
+    /// Dark theme.
+    pub dark: bool,
+    /// View shown.
+    pub view: View,
+    /// Recently opened folders, newest first.
+    pub recent: Vec<PathBuf>,
+    /// The safety cautions were read (first start shows them).
+    pub cautions_read: bool,
+    /// Logarithmic frequency axes.
+    pub log_frequency: bool,
+    /// Overlay every station in the FRF review.
+    pub overlay_all: bool,
+    /// Animation amplitude, fraction of the plot's half-height.
+    pub amplitude: f32,
+    /// Animation speed, cycles per second.
+    pub speed_hz: f32,
+    /// Show the phase plot in the FRF review.
+    pub show_phase: bool,
+}
+
+impl Default for Settings {
+    fn default() -> Self {
+        Self {
+            dark: true,
+            view: View::Stations,
+            recent: Vec::new(),
+            cautions_read: false,
+            log_frequency: false,
+            overlay_all: false,
+            amplitude: 0.8,
+            speed_hz: 0.5,
+            show_phase: true,
+        }
+    }
+}
+
+/// The open test and what has been computed from it.
+pub struct Document {
+    /// Folder it came from.
+    pub path: PathBuf,
+    /// The session, when the folder is one (else a WAV set being replayed).
+    pub session: Option<Session>,
+    /// The recordings.
+    pub data: Dataset,
+    /// Setup being edited (the analysis follows it).
+    pub setup: Setup,
+    /// Part.
+    pub part: Part,
+    /// Station labels (by station number).
+    pub labels: std::collections::BTreeMap<u32, String>,
+    /// Modal settings.
+    pub modal_settings: ModalSettings,
+    /// Latest analysis.
+    pub analysis: Option<Arc<Analysis>>,
+    /// Its FRFs.
+    pub frfs: Option<Arc<FrfSet>>,
+    /// Latest fit.
+    pub modal: Option<Arc<ModalResult>>,
+    /// Why the latest fit failed.
+    pub modal_error: Option<String>,
+    /// Why the latest analysis failed.
+    pub analysis_error: Option<String>,
+    /// Poles a person picked (indices into the diagram); `None` = automatic choice.
+    pub picked: Option<Vec<usize>>,
+    /// The bundled demo: never written back.
+    pub read_only: bool,
+    /// Changed since the last save.
+    pub dirty: bool,
+}
+
+impl Document {
+    fn new(path: PathBuf, data: Dataset, session: Option<Session>, read_only: bool) -> Self {
+        let (setup, part, labels) = match &session {
+            Some(s) => (
+                s.manifest.setup.clone(),
+                s.manifest.part.clone(),
+                s.manifest
+                    .stations
+                    .iter()
+                    .filter_map(|st| st.label.clone().map(|l| (st.station, l)))
+                    .collect(),
+            ),
+            None => (
+                Setup::default(),
+                Part {
+                    name: path
+                        .file_name()
+                        .map(|n| n.to_string_lossy().into_owned())
+                        .unwrap_or_default(),
+                    notes: String::new(),
+                },
+                Default::default(),
+            ),
+        };
+        Self {
+            path,
+            session,
+            data,
+            setup,
+            part,
+            labels,
+            modal_settings: ModalSettings::default(),
+            analysis: None,
+            frfs: None,
+            modal: None,
+            modal_error: None,
+            analysis_error: None,
+            picked: None,
+            read_only,
+            dirty: false,
+        }
+    }
+
+    /// Index of a station in the dataset.
+    pub fn station_index(&self, station: u32) -> Option<usize> {
+        self.data.stations.iter().position(|s| s.station == station)
+    }
+
+    /// The analysed station, when analysed.
+    pub fn station_analysis(&self, station: u32) -> Option<&crate::analysis::StationAnalysis> {
+        self.analysis
+            .as_ref()?
+            .stations
+            .iter()
+            .find(|s| s.station == station)
+    }
+
+    /// The session manifest as it should be written now.
+    fn session_to_write(&self) -> Option<Session> {
+        let mut s = self.session.clone()?;
+        s.manifest.setup = self.setup.clone();
+        s.manifest.part = self.part.clone();
+        for st in &mut s.manifest.stations {
+            if let Some(src) = self.data.stations.iter().find(|d| d.station == st.station) {
+                st.position_m = src.position_m;
+                st.position_source = src.position_source;
+            }
+            st.label = self.labels.get(&st.station).cloned();
+        }
+        if let Some(a) = &self.analysis {
+            s.manifest.hits = a.saved_hits();
+        }
+        Some(s)
+    }
+}
+
+/// What a view asks for; applied after the frame.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Command {
+    /// Open a session or WAV set folder.
+    Open(PathBuf),
+    /// Write the session.
+    Save,
+    /// Write the test as a session in a new folder.
+    SaveAs(PathBuf),
+    /// Ask for a path (open, import, save as).
+    AskPath(PathPurpose),
+    /// Show a view.
+    Show(View),
+    /// Go to a station.
+    GoStation(u32),
+    /// Next station.
+    NextStation,
+    /// Previous station.
+    PrevStation,
+    /// Next hit of the station.
+    NextHit,
+    /// Previous hit.
+    PrevHit,
+    /// Select a hit.
+    SelectHit(usize),
+    /// A person's verdict on a hit (`None` = back to automatic).
+    SetVerdict {
+        /// Station.
+        station: u32,
+        /// Hit index.
+        hit: usize,
+        /// Accept, reject or automatic.
+        accept: Option<bool>,
+    },
+    /// Verdict on the current hit.
+    VerdictCurrent(bool),
+    /// The setup changed: analyse again.
+    Reanalyse,
+    /// Take or drop the mode of the pole column nearest this frequency (Hz), within a tolerance.
+    TogglePole {
+        /// Frequency clicked, Hz.
+        frequency_hz: f64,
+        /// Half-width of the column, Hz.
+        tolerance_hz: f64,
+    },
+    /// Back to the automatic pole choice.
+    AutoPoles,
+    /// Fit band (`None`: the analysis band); fits again.
+    SetFitBand(Option<[f64; 2]>),
+    /// Play or pause the animation.
+    TogglePlay,
+    /// Open or close the help.
+    ToggleHelp,
+    /// Choose the mode to animate.
+    SelectMode(usize),
+}
+
+/// Why a path is being asked for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PathPurpose {
+    /// Open a session or WAV set.
+    Open,
+    /// Import (replay) a WAV set.
+    Import,
+    /// Save as a new session.
+    SaveAs,
+}
+
+struct PathDialog {
+    purpose: PathPurpose,
+    text: String,
+}
+
+/// A line in the message bar.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Message {
+    /// Text.
+    pub text: String,
+    /// An error (else a notice).
+    pub error: bool,
+}
+
+/// The application.
+pub struct TapgridApp {
+    /// Persisted settings.
+    pub settings: Settings,
+    /// The open test.
+    pub doc: Option<Document>,
+    /// Station shown.
+    pub current_station: Option<u32>,
+    /// Hit shown (index within the station).
+    pub current_hit: usize,
+    /// Mode animated.
+    pub selected_mode: usize,
+    /// The animation runs.
+    pub playing: bool,
+    /// Animation phase, radians.
+    pub phase_rad: f64,
+    /// Stations overlaid in the FRF review (besides the current one).
+    pub overlay: BTreeSet<u32>,
+    /// Station for measured vs synthesized.
+    pub synth_station: Option<u32>,
+    /// Help panel open.
+    pub show_help: bool,
+    /// Messages for the person.
+    pub messages: Vec<Message>,
+    /// Cut hits of one station for the hit view.
+    traces: Option<(u32, Arc<Vec<Option<HitTraces>>>)>,
+    traces_requested: Option<(u32, u64)>,
+    analysis_stamp: u64,
+    worker: Worker,
+    commands: Vec<Command>,
+    dialog: Option<PathDialog>,
+    last_time: Option<f64>,
+    fit_band_edit: Option<[f64; 2]>,
+    plot_scratch: plots::Scratch,
+}
+
+impl TapgridApp {
+    /// A new app that will open `path` (or nothing).
+    pub fn new(ctx: &egui::Context, settings: Settings, path: Option<PathBuf>) -> Self {
+        let repaint_ctx = ctx.clone();
+        let worker = Worker::start(move || repaint_ctx.request_repaint());
+        let mut app = Self {
+            settings,
+            doc: None,
+            current_station: None,
+            current_hit: 0,
+            selected_mode: 0,
+            playing: true,
+            phase_rad: 0.0,
+            overlay: BTreeSet::new(),
+            synth_station: None,
+            show_help: false,
+            messages: Vec::new(),
+            traces: None,
+            traces_requested: None,
+            analysis_stamp: 0,
+            worker,
+            commands: Vec::new(),
+            dialog: None,
+            last_time: None,
+            fit_band_edit: None,
+            plot_scratch: plots::Scratch::default(),
+        };
+        style(ctx, app.settings.dark);
+        if let Some(p) = path {
+            app.commands.push(Command::Open(p));
+        }
+        app
+    }
+
+    /// The eframe entry: settings from storage, the demo when no path is given.
+    pub fn from_creation(cc: &eframe::CreationContext<'_>, path: Option<PathBuf>) -> Self {
+        let settings = cc
+            .storage
+            .and_then(|s| eframe::get_value::<Settings>(s, SETTINGS_KEY))
+            .unwrap_or_default();
+        Self::new(&cc.egui_ctx, settings, path)
+    }
+
+    /// Queues a command (tests and views).
+    pub fn push(&mut self, c: Command) {
+        self.commands.push(c);
+    }
+
+    /// What the worker is busy with.
+    pub fn busy(&self) -> Option<&'static str> {
+        self.worker.busy()
+    }
+
+    /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
+    pub fn logic(&mut self, ctx: &egui::Context) {
+        let deadline = std::time::Instant::now() + std::time::Duration::from_millis(4);
+        while let Some(o) = self.worker.try_recv() {
+            self.receive(o);
+            if std::time::Instant::now() > deadline {
+                ctx.request_repaint();
+                break;
+            }
+        }
+        let now = ctx.input(|i| i.time);
+        if let Some(t0) = self.last_time
+            && self.playing
+            && self.settings.view == View::Modes
+        {
+            let dt = (now - t0).clamp(0.0, 0.1);
+            self.phase_rad = (self.phase_rad
+                + std::f64::consts::TAU * self.settings.speed_hz as f64 * dt)
+                % std::f64::consts::TAU;
+        }
+        self.last_time = Some(now);
+        if self.playing && self.settings.view == View::Modes {
+            ctx.request_repaint();
+        }
+        if self.worker.busy().is_some() {
+            ctx.request_repaint_after(std::time::Duration::from_millis(100));
+        }
+        self.apply_pending(ctx);
+    }
+
+    fn apply_pending(&mut self, ctx: &egui::Context) {
+        let cmds = std::mem::take(&mut self.commands);
+        for c in cmds {
+            self.apply(ctx, c);
+        }
+    }
+
+    /// Draws the whole window into `ui`.
+    pub fn show(&mut self, ui: &mut egui::Ui) {
+        let ctx = ui.ctx().clone();
+        self.shortcuts(&ctx);
+        egui::Panel::top("tapgrid-top").show(ui, |ui| self.top_bar(ui));
+        egui::Panel::bottom("tapgrid-status").show(ui, |ui| self.status_bar(ui));
+        if self.show_help {
+            egui::Panel::right("tapgrid-help")
+                .default_size(380.0)
+                .show(ui, |ui| help::panel(ui, &mut self.commands));
+        }
+        egui::CentralPanel::default().show(ui, |ui| {
+            if self.doc.is_none() {
+                ui.centered_and_justified(|ui| {
+                    if let Some(what) = self.worker.busy() {
+                        ui.label(egui::RichText::new(format!("{what}…")).size(22.0));
+                    } else {
+                        ui.label(
+                            egui::RichText::new("Open a session or a WAV set (File menu)")
+                                .size(22.0),
+                        );
+                    }
+                });
+                return;
+            }
+            match self.settings.view {
+                View::Setup => setup_view::show(ui, self),
+                View::Stations => station_map::show(ui, self),
+                View::Hits => hits_view::show(ui, self),
+                View::Frf => frf_view::show(ui, self),
+                View::Fit => fit_view::show(ui, self),
+                View::Modes => modes_view::show(ui, self),
+            }
+        });
+        if !self.settings.cautions_read {
+            help::first_start(&ctx, &mut self.settings.cautions_read);
+        }
+        self.path_dialog(&ctx);
+        self.apply_pending(&ctx);
+    }
+
+    fn top_bar(&mut self, ui: &mut egui::Ui) {
+        ui.horizontal_wrapped(|ui| {
+            ui.menu_button("File", |ui| {
+                if ui.button("Open folder…").clicked() {
+                    self.commands.push(Command::AskPath(PathPurpose::Open));
+                }
+                if ui.button("Replay a WAV set…").clicked() {
+                    self.commands.push(Command::AskPath(PathPurpose::Import));
+                }
+                let can_save = self.doc.as_ref().is_some_and(|d| !d.read_only);
+                if ui
+                    .add_enabled(can_save, egui::Button::new("Save"))
+                    .clicked()
+                {
+                    self.commands.push(Command::Save);
+                }
+                if ui
+                    .add_enabled(self.doc.is_some(), egui::Button::new("Save as new session…"))
+                    .clicked()
+                {
+                    self.commands.push(Command::AskPath(PathPurpose::SaveAs));
+                }
+                ui.separator();
+                ui.label("Recent");
+                for p in self.settings.recent.clone() {
+                    if ui.button(p.display().to_string()).clicked() {
+                        self.commands.push(Command::Open(p));
+                    }
+                }
+            });
+            let theme = if self.settings.dark {
+                "Light theme"
+            } else {
+                "Dark theme"
+            };
+            if ui.button(theme).clicked() {
+                self.settings.dark = !self.settings.dark;
+                style(ui.ctx(), self.settings.dark);
+            }
+            if ui.button("Help").clicked() {
+                self.commands.push(Command::ToggleHelp);
+            }
+            ui.separator();
+            for v in View::ALL {
+                let sel = self.settings.view == v;
+                if ui
+                    .add(egui::Button::selectable(
+                        sel,
+                        egui::RichText::new(v.label()).size(17.0),
+                    ))
+                    .clicked()
+                {
+                    self.commands.push(Command::Show(v));
+                }
+            }
+        });
+    }
+
+    fn status_bar(&mut self, ui: &mut egui::Ui) {
+        ui.horizontal(|ui| {
+            if let Some(what) = self.worker.busy() {
+                ui.spinner();
+                ui.label(format!("{what}…"));
+                ui.separator();
+            }
+            if let Some(d) = &self.doc {
+                let mut title = d.part.name.clone();
+                if d.read_only {
+                    title.push_str("  (demo: read-only, use Save as)");
+                } else if d.dirty {
+                    title.push_str("  (unsaved changes)");
+                }
+                ui.label(egui::RichText::new(title).strong());
+                ui.label(d.path.display().to_string());
+                if let Some(st) = self.current_station {
+                    ui.separator();
+                    ui.label(format!("station {st}"));
+                }
+            }
+            if let Some(m) = self.messages.last() {
+                ui.separator();
+                let color = if m.error {
+                    plots::BAD
+                } else {
+                    ui.visuals().text_color()
+                };
+                ui.label(egui::RichText::new(&m.text).color(color));
+                if ui.small_button("dismiss").clicked() {
+                    self.messages.pop();
+                }
+            }
+        });
+    }
+
+    fn shortcuts(&mut self, ctx: &egui::Context) {
+        if ctx.egui_wants_keyboard_input() {
+            return;
+        }
+        use egui::Key;
+        let pressed = |k| ctx.input(|i| i.key_pressed(k));
+        let cmd = ctx.input(|i| i.modifiers.command);
+        if cmd && pressed(Key::S) {
+            self.commands.push(Command::Save);
+            return;
+        }
+        if cmd && pressed(Key::O) {
+            self.commands.push(Command::AskPath(PathPurpose::Open));
+            return;
+        }
+        for (k, c) in [
+            (Key::ArrowRight, Command::NextStation),
+            (Key::ArrowLeft, Command::PrevStation),
+            (Key::N, Command::NextStation),
+            (Key::P, Command::PrevStation),
+            (Key::ArrowDown, Command::NextHit),
+            (Key::ArrowUp, Command::PrevHit),
+            (Key::A, Command::VerdictCurrent(true)),
+            (Key::R, Command::VerdictCurrent(false)),
+            (Key::Space, Command::TogglePlay),
+            (Key::F1, Command::ToggleHelp),
+        ] {
+            if pressed(k) {
+                self.commands.push(c);
+            }
+        }
+        for (k, v) in [
+            (Key::Num1, View::Setup),
+            (Key::Num2, View::Stations),
+            (Key::Num3, View::Hits),
+            (Key::Num4, View::Frf),
+            (Key::Num5, View::Fit),
+            (Key::Num6, View::Modes),
+        ] {
+            if pressed(k) {
+                self.commands.push(Command::Show(v));
+            }
+        }
+    }
+
+    fn path_dialog(&mut self, ctx: &egui::Context) {
+        let Some(d) = &mut self.dialog else {
+            return;
+        };
+        let title = match d.purpose {
+            PathPurpose::Open => "Open a session or WAV set folder",
+            PathPurpose::Import => "Replay a WAV set folder",
+            PathPurpose::SaveAs => "Save as a new session folder",
+        };
+        let mut close = false;
+        let mut go = None;
+        egui::Window::new(title)
+            .collapsible(false)
+            .resizable(false)
+            .anchor(egui::Align2::CENTER_CENTER, [0.0, 0.0])
+            .show(ctx, |ui| {
+                ui.label("Folder:");
+                let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(520.0));
+                let enter = r.lost_focus() && ui.input(|i| i.key_pressed(egui::Key::Enter));
+                ui.horizontal(|ui| {
+                    if ui.button("OK").clicked() || enter {
+                        go = Some(PathBuf::from(d.text.trim()));
+                    }
+                    if ui.button("Cancel").clicked() {
+                        close = true;
+                    }
+                });
+            });
+        if let Some(p) = go {
+            let purpose = d.purpose;
+            self.dialog = None;
+            if !p.as_os_str().is_empty() {
+                self.commands.push(match purpose {
+                    PathPurpose::Open | PathPurpose::Import => Command::Open(p),
+                    PathPurpose::SaveAs => Command::SaveAs(p),
+                });
+            }
+        } else if close {
+            self.dialog = None;
+        }
+    }
+
+    fn note(&mut self, text: impl Into<String>, error: bool) {
+        self.messages.push(Message {
+            text: text.into(),
+            error,
+        });
+        if self.messages.len() > 50 {
+            self.messages.remove(0);
+        }
+    }
+
+    fn request_analysis(&mut self) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        let generation = self.worker.next_generation();
+        self.worker.send(Job::Analyze {
+            generation,
+            data: d.data.clone(),
+            setup: d.setup.clone(),
+            modal: d.modal_settings.clone(),
+        });
+    }
+
+    fn request_fit(&mut self) {
+        let Some(d) = &self.doc else {
+            return;
+        };
+        let Some(frfs) = d.frfs.clone() else {
+            return;
+        };
+        let picked = match (&d.picked, d.modal.as_ref().and_then(|m| m.stabilization.clone())) {
+            (Some(p), Some(stab)) => Some((Arc::new(stab), p.clone())),
+            _ => None,
+        };
+        let generation = self.worker.next_generation();
+        let modal = d.modal_settings.clone();
+        self.worker.send(Job::Fit {
+            generation,
+            frfs,
+            modal,
+            picked,
+        });
+    }
+
+    fn receive(&mut self, o: Outcome) {
+        match o {
+            Outcome::Opened {
+                path,
+                data,
+                session,
+            } => {
+                let read_only = is_bundled_demo(&path);
+                let doc = Document::new(path.clone(), data, session.map(|s| *s), read_only);
+                self.current_station = doc.data.stations.first().map(|s| s.station);
+                self.current_hit = 0;
+                self.selected_mode = 0;
+                self.overlay.clear();
+                self.traces = None;
+                self.traces_requested = None;
+                self.synth_station = None;
+                self.fit_band_edit = None;
+                self.doc = Some(doc);
+                self.settings.recent.retain(|p| p != &path);
+                self.settings.recent.insert(0, path.clone());
+                self.settings.recent.truncate(8);
+                self.note(format!("opened {}", path.display()), false);
+                self.request_analysis();
+            }
+            Outcome::Analyzed {
+                generation,
+                analysis,
+                frfs,
+                modal,
+            } => {
+                if !self.worker.is_latest_analysis(generation) {
+                    return;
+                }
+                let Some(d) = &mut self.doc else {
+                    return;
+                };
+                d.analysis = Some(analysis);
+                d.frfs = frfs;
+                d.analysis_error = None;
+                d.picked = None;
+                match modal {
+                    Ok(m) => {
+                        d.modal = Some(m);
+                        d.modal_error = None;
+                    }
+                    Err(e) => {
+                        d.modal = None;
+                        d.modal_error = Some(e);
+                    }
+                }
+                self.analysis_stamp += 1;
+                self.autosave();
+            }
+            Outcome::Fitted { generation, modal } => {
+                if !self.worker.is_latest_fit(generation) {
+                    return;
+                }
+                let Some(d) = &mut self.doc else {
+                    return;
+                };
+                match modal {
+                    Ok(m) => {
+                        d.modal = Some(m);
+                        d.modal_error = None;
+                    }
+                    Err(e) => {
+                        d.modal_error = Some(e.clone());
+                        self.note(format!("fit failed: {e}"), true);
+                    }
+                }
+            }
+            Outcome::Traces { station, traces } => {
+                self.traces = Some((station, Arc::new(traces)));
+            }
+            Outcome::Saved(s) => {
+                let dir = s.dir.clone();
+                if let Some(d) = &mut self.doc {
+                    d.data = Dataset::from_session(&s);
+                    d.path = dir.clone();
+                    d.session = Some(*s);
+                    d.read_only = false;
+                    d.dirty = false;
+                }
+                self.settings.recent.retain(|p| p != &dir);
+                self.settings.recent.insert(0, dir.clone());
+                self.note(format!("saved as {}", dir.display()), false);
+            }
+            Outcome::Skipped => {}
+            Outcome::Failed { what, message } => {
+                if what == "Analysing"
+                    && let Some(d) = &mut self.doc
+                {
+                    d.analysis_error = Some(message.clone());
+                }
+                self.note(format!("{what} failed: {message}"), true);
+            }
+        }
+    }
+
+    /// Sessions (not the read-only demo) keep the person's verdicts and setup on disk as soon
+    /// as the analysis that reflects them is in.
+    fn autosave(&mut self) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        if !d.dirty || d.read_only {
+            return;
+        }
+        if let Some(s) = d.session_to_write() {
+            match s.save() {
+                Ok(()) => {
+                    d.session = Some(s);
+                    d.dirty = false;
+                }
+                Err(e) => self.note(format!("could not save: {e}"), true),
+            }
+        }
+    }
+
+    /// The cut hits of the current station, when loaded for the latest analysis.
+    pub fn current_traces(&mut self) -> Option<Arc<Vec<Option<HitTraces>>>> {
+        let st = self.current_station?;
+        let d = self.doc.as_ref()?;
+        let sa = d.station_analysis(st)?;
+        if self.traces_requested != Some((st, self.analysis_stamp)) {
+            self.traces_requested = Some((st, self.analysis_stamp));
+            let job = Job::Traces {
+                station: st,
+                path: sa.path.clone(),
+                setup: d.setup.clone(),
+                hits: sa.result.hits.clone(),
+            };
+            self.worker.send(job);
+        }
+        match &self.traces {
+            Some((s, t)) if *s == st => Some(t.clone()),
+            _ => None,
+        }
+    }
+
+    fn stations(&self) -> Vec<u32> {
+        self.doc
+            .as_ref()
+            .map(|d| d.data.stations.iter().map(|s| s.station).collect())
+            .unwrap_or_default()
+    }
+
+    /// Carries out one command.
+    pub fn apply(&mut self, ctx: &egui::Context, c: Command) {
+        match c {
+            Command::Open(p) => self.worker.send(Job::Open(p)),
+            Command::Save => self.save(),
+            Command::SaveAs(dir) => self.save_as(dir),
+            Command::AskPath(purpose) => {
+                let text = match purpose {
+                    PathPurpose::SaveAs => self
+                        .doc
+                        .as_ref()
+                        .map(|d| {
+                            let name = d
+                                .path
+                                .file_name()
+                                .map(|n| n.to_string_lossy().into_owned())
+                                .unwrap_or_else(|| "session".into());
+                            std::env::current_dir()
+                                .unwrap_or_default()
+                                .join(format!("{name}-session"))
+                                .display()
+                                .to_string()
+                        })
+                        .unwrap_or_default(),
+                    _ => std::env::current_dir()
+                        .unwrap_or_default()
+                        .display()
+                        .to_string(),
+                };
+                self.dialog = Some(PathDialog { purpose, text });
+            }
+            Command::Show(v) => self.settings.view = v,
+            Command::GoStation(s) => {
+                self.current_station = Some(s);
+                self.current_hit = 0;
+            }
+            Command::NextStation | Command::PrevStation => {
+                let st = self.stations();
+                if st.is_empty() {
+                    return;
+                }
+                let i = self
+                    .current_station
+                    .and_then(|c| st.iter().position(|&s| s == c))
+                    .unwrap_or(0);
+                let j = if c == Command::NextStation {
+                    (i + 1).min(st.len() - 1)
+                } else {
+                    i.saturating_sub(1)
+                };
+                self.current_station = Some(st[j]);
+                self.current_hit = 0;
+            }
+            Command::NextHit | Command::PrevHit => {
+                let n = self
+                    .current_station
+                    .and_then(|s| self.doc.as_ref()?.station_analysis(s))
+                    .map_or(0, |s| s.result.hits.len());
+                if n == 0 {
+                    return;
+                }
+                self.current_hit = if c == Command::NextHit {
+                    (self.current_hit + 1).min(n - 1)
+                } else {
+                    self.current_hit.saturating_sub(1)
+                };
+            }
+            Command::SelectHit(h) => self.current_hit = h,
+            Command::SetVerdict {
+                station,
+                hit,
+                accept,
+            } => self.set_verdict(station, hit, accept),
+            Command::VerdictCurrent(accept) => {
+                if let Some(st) = self.current_station {
+                    self.set_verdict(st, self.current_hit, Some(accept));
+                }
+            }
+            Command::Reanalyse => {
+                if let Some(d) = &mut self.doc {
+                    d.dirty = true;
+                }
+                self.request_analysis();
+            }
+            Command::TogglePole {
+                frequency_hz,
+                tolerance_hz,
+            } => self.toggle_pole(frequency_hz, tolerance_hz),
+            Command::AutoPoles => {
+                if let Some(d) = &mut self.doc {
+                    d.picked = None;
+                }
+                self.request_fit();
+            }
+            Command::SetFitBand(b) => {
+                if let Some(d) = &mut self.doc {
+                    d.modal_settings.band_hz = b;
+                    d.picked = None;
+                }
+                self.request_fit();
+            }
+            Command::TogglePlay => self.playing = !self.playing,
+            Command::ToggleHelp => self.show_help = !self.show_help,
+            Command::SelectMode(m) => self.selected_mode = m,
+        }
+        ctx.request_repaint();
+    }
+
+    fn set_verdict(&mut self, station: u32, hit: usize, accept: Option<bool>) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        let Some(i) = d.station_index(station) else {
+            return;
+        };
+        let known = d
+            .station_analysis(station)
+            .is_some_and(|s| hit < s.result.hits.len());
+        if !known {
+            return;
+        }
+        let ov = &mut d.data.stations[i].overrides;
+        match accept {
+            Some(v) => {
+                ov.insert(hit, v);
+            }
+            None => {
+                ov.remove(&hit);
+            }
+        }
+        d.dirty = true;
+        self.request_analysis();
+    }
+
+    fn toggle_pole(&mut self, f: f64, tol: f64) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        let Some(m) = d.modal.clone() else {
+            return;
+        };
+        let Some(stab) = &m.stabilization else {
+            self.note("no stabilization diagram (peak method): nothing to pick", true);
+            return;
+        };
+        let mut picked = d
+            .picked
+            .clone()
+            .unwrap_or_else(|| fit_view::poles_of_modes(&m, stab));
+        if let Some(k) = picked
+            .iter()
+            .position(|&p| (stab.poles[p].frequency_hz - f).abs() <= tol)
+        {
+            picked.remove(k);
+        } else if let Some(p) = fit_view::best_pole_near(stab, f, tol) {
+            picked.push(p);
+        } else {
+            self.note(format!("no pole within {tol:.1} Hz of {f:.1} Hz"), true);
+            return;
+        }
+        d.picked = Some(picked);
+        self.request_fit();
+    }
+
+    fn save(&mut self) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        if d.read_only || d.session.is_none() {
+            self.commands.push(Command::AskPath(PathPurpose::SaveAs));
+            return;
+        }
+        if let Some(s) = d.session_to_write() {
+            match s.save() {
+                Ok(()) => {
+                    d.session = Some(s);
+                    d.dirty = false;
+                    self.note("saved", false);
+                }
+                Err(e) => self.note(format!("could not save: {e}"), true),
+            }
+        }
+    }
+
+    fn save_as(&mut self, dir: PathBuf) {
+        let Some(d) = &self.doc else {
+            return;
+        };
+        if let Some(s) = d.session_to_write() {
+            self.worker.send(Job::SaveAs {
+                session: Box::new(s),
+                dir,
+            });
+        } else {
+            let hits = d.analysis.as_ref().map(|a| a.saved_hits()).unwrap_or_default();
+            self.worker.send(Job::CreateSession {
+                wavset: d.data.origin.clone(),
+                dir,
+                setup: d.setup.clone(),
+                part: d.part.clone(),
+                hits,
+            });
+        }
+    }
+}
+
+impl eframe::App for TapgridApp {
+    fn logic(&mut self, ctx: &egui::Context, _frame: &mut eframe::Frame) {
+        TapgridApp::logic(self, ctx);
+    }
+
+    fn ui(&mut self, ui: &mut egui::Ui, _frame: &mut eframe::Frame) {
+        self.show(ui);
+    }
+
+    fn save(&mut self, storage: &mut dyn eframe::Storage) {
+        eframe::set_value(storage, SETTINGS_KEY, &self.settings);
+    }
+}
+
+/// True for the bundled sample session (opened read-only so the repository copy stays as it is).
+fn is_bundled_demo(path: &Path) -> bool {
+    let bundled = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-sessions");
+    let canon = |p: &Path| std::fs::canonicalize(p).ok();
+    match (canon(path), canon(&bundled)) {
+        (Some(p), Some(b)) => p.starts_with(b),
+        _ => false,
+    }
+}
+
+/// Theme and text sizes readable at arm's length.
+pub fn style(ctx: &egui::Context, dark: bool) {
+    ctx.set_theme(if dark {
+        egui::Theme::Dark
+    } else {
+        egui::Theme::Light
+    });
+    ctx.all_styles_mut(|s| {
+        use egui::{FontFamily, FontId, TextStyle};
+        s.text_styles = [
+            (TextStyle::Heading, FontId::new(24.0, FontFamily::Proportional)),
+            (TextStyle::Body, FontId::new(16.0, FontFamily::Proportional)),
+            (TextStyle::Button, FontId::new(16.0, FontFamily::Proportional)),
+            (TextStyle::Monospace, FontId::new(15.0, FontFamily::Monospace)),
+            (TextStyle::Small, FontId::new(13.0, FontFamily::Proportional)),
+        ]
+        .into();
+        s.spacing.item_spacing = egui::vec2(10.0, 6.0);
+        s.spacing.button_padding = egui::vec2(8.0, 4.0);
+    });
+}
+
+/// Opens the window: on `path`, else on the demo session (made by the simulator if this
+/// installation has none).
+pub fn run(path: Option<PathBuf>) -> anyhow::Result<()> {
+    let path = match path {
+        Some(p) => p,
+        None => crate::sim::demo::demo_session(&crate::sim::demo::default_root())?,
+    };
+    let options = eframe::NativeOptions {
+        viewport: egui::ViewportBuilder::default()
+            .with_title("tapgrid — impact modal testing")
+            .with_inner_size([1600.0, 1000.0])
+            .with_min_inner_size([900.0, 600.0]),
+        renderer: eframe::Renderer::Glow,
+        ..Default::default()
+    };
+    eframe::run_native(
+        "tapgrid",
+        options,
+        Box::new(move |cc| Ok(Box::new(TapgridApp::from_creation(cc, Some(path))))),
+    )
+    .map_err(|e| {
+        anyhow::anyhow!(
+            "cannot open the window: {e} (no display? set DISPLAY, or use the command-line \
+             subcommands such as `tapgrid analyze`)"
+        )
+    })
+}

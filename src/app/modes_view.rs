@@ -1,0 +1,309 @@
+//! Mode shapes: the table of modes, the selected shape animated along the part, the auto-MAC as a
+//! heat map, and measured against synthesized FRF for a chosen station.
+
+use eframe::egui::{self, Align2, Color32, FontId, RichText, Sense, Stroke, pos2, vec2};
+use egui_plot::{Line, LineStyle, MarkerShape, Plot, PlotPoint, Points, Text};
+
+use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
+use super::{Command, TapgridApp};
+use crate::modal::{DampingSource, Method, Mode};
+
+fn damping_word(s: Option<DampingSource>) -> &'static str {
+    match s {
+        Some(DampingSource::Pole) => "fitted pole",
+        Some(DampingSource::HalfPower) => "half-power",
+        Some(DampingSource::CircleFit) => "circle fit",
+        Some(DampingSource::ResponseAutospectrum) => "response half-power",
+        None => "—",
+    }
+}
+
+fn method_word(m: Method) -> &'static str {
+    match m {
+        Method::Lscf => "LSCF + LSFD",
+        Method::Peak => "peak pick",
+    }
+}
+
+/// Zero crossings of the real part of a shape between stations (linear interpolation), m.
+pub fn nodes(positions_m: &[f64], values: &[f64]) -> Vec<f64> {
+    let mut out = Vec::new();
+    for k in 1..positions_m.len().min(values.len()) {
+        let (a, b) = (values[k - 1], values[k]);
+        if a == 0.0 && k == 1 {
+            out.push(positions_m[0]);
+        }
+        if b == 0.0 {
+            out.push(positions_m[k]);
+        } else if a * b < 0.0 {
+            let t = a / (a - b);
+            out.push(positions_m[k - 1] + t * (positions_m[k] - positions_m[k - 1]));
+        }
+    }
+    out
+}
+
+/// Draws the view.
+pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+    let Some(doc) = &app.doc else {
+        return;
+    };
+    let Some(m) = doc.modal.clone() else {
+        ui.label(doc.modal_error.clone().unwrap_or_else(|| "Fitting…".into()));
+        return;
+    };
+    let frfs = doc.frfs.clone();
+    let mut cmds = Vec::new();
+    if m.modes.is_empty() {
+        ui.label("No mode was found in the band. See the pole-picking view.");
+        for w in &m.warnings {
+            ui.label(RichText::new(w).color(WARN));
+        }
+        return;
+    }
+    let sel = app.selected_mode.min(m.modes.len() - 1);
+    egui::Panel::left("mode-table").default_size(440.0).show(ui, |ui| {
+        ui.heading("Modes");
+        egui::Grid::new("modes-grid").striped(true).num_columns(6).show(ui, |ui| {
+            for h in ["#", "f (Hz)", "ζ (%)", "damping from", "MPC", "method"] {
+                ui.label(RichText::new(h).strong());
+            }
+            ui.end_row();
+            for (k, md) in m.modes.iter().enumerate() {
+                let r = ui.add(egui::Button::selectable(k == sel, format!("{}", k + 1)));
+                if r.clicked() {
+                    cmds.push(Command::SelectMode(k));
+                }
+                ui.label(format!("{:.2}", md.frequency_hz));
+                ui.label(md.damping_ratio.map_or("—".into(), |z| format!("{:.3}", z * 100.0)));
+                ui.label(damping_word(md.damping_source));
+                let mpc_color = if md.mpc >= 0.9 { GOOD } else { WARN };
+                ui.label(RichText::new(format!("{:.3}", md.mpc)).color(mpc_color));
+                ui.label(method_word(md.method)).on_hover_text(md.notes.join("\n"));
+                ui.end_row();
+            }
+        });
+        ui.separator();
+        ui.horizontal(|ui| {
+            let label = if app.playing { "Pause" } else { "Play" };
+            if ui.button(label).clicked() {
+                cmds.push(Command::TogglePlay);
+            }
+            ui.label("(Space)");
+        });
+        ui.add(egui::Slider::new(&mut app.settings.amplitude, 0.1..=1.5).text("amplitude"));
+        ui.add(egui::Slider::new(&mut app.settings.speed_hz, 0.1..=3.0).text("cycles per second"));
+        for w in &m.warnings {
+            ui.label(RichText::new(w).color(WARN).small());
+        }
+        ui.separator();
+        ui.label(RichText::new("Auto-MAC").strong());
+        mac_heat_map(ui, &m.auto_mac, sel);
+    });
+    let md = &m.modes[sel];
+    egui::CentralPanel::default().show(ui, |ui| {
+        let h_shape = (ui.available_height() * 0.55).max(200.0);
+        shape_plot(ui, app, md, &m.positions_m, &m.stations, sel, h_shape);
+        // Measured against synthesized
+        let Some(frfs) = frfs else {
+            return;
+        };
+        let stations = &m.stations;
+        let st = app
+            .synth_station
+            .or(app.current_station)
+            .filter(|s| stations.contains(s))
+            .unwrap_or(stations[0]);
+        ui.horizontal(|ui| {
+            ui.label(RichText::new("Measured vs synthesized").strong());
+            egui::ComboBox::from_id_salt("synth-station")
+                .selected_text(format!("station {st}"))
+                .show_ui(ui, |ui| {
+                    for &s in stations {
+                        if ui.selectable_label(s == st, format!("station {s}")).clicked() {
+                            app.synth_station = Some(s);
+                        }
+                    }
+                });
+            ui.checkbox(&mut app.settings.overlay_all, "all stations measured");
+        });
+        let columns = ui.available_width() as usize;
+        let id = egui::Id::unique("synth-plot");
+        let bounds = plots::last_bounds(ui.ctx(), id);
+        let axis = plots::FreqAxis { log: app.settings.log_frequency };
+        let i_set = frfs.stations.iter().position(|&s| s == st);
+        let i_m = stations.iter().position(|&s| s == st);
+        let mut lines = Vec::new();
+        if app.settings.overlay_all {
+            for (n, h) in frfs.h.iter().enumerate() {
+                let pts = app.plot_scratch.reduced(&frfs.freq_hz, |k| plots::db(h[k].norm()), axis, bounds, columns);
+                lines.push((format!("station {}", frfs.stations[n]), pts, plots::trace_color(n).gamma_multiply(0.5)));
+            }
+        }
+        if let Some(i) = i_set {
+            let h = &frfs.h[i];
+            let pts = app.plot_scratch.reduced(&frfs.freq_hz, |k| plots::db(h[k].norm()), axis, bounds, columns);
+            lines.push((format!("measured, station {st}"), pts, ACCENT));
+        }
+        if let Some(syn) = i_m.and_then(|i| m.synthesized.get(i)).filter(|s| !s.is_empty()) {
+            let f = &m.indicators.freq_hz;
+            let pts = app.plot_scratch.reduced(f, |k| plots::db(syn[k].norm()), axis, bounds, columns);
+            lines.push((format!("synthesized, station {st}"), pts, BAD));
+        }
+        let unit = match frfs.layout {
+            crate::setup::Layout::Hammer => "accelerance (dB re 1 (m/s²)/N)",
+            crate::setup::Layout::Sensor => "transmissibility (dB re 1)",
+        };
+        let r = axis
+            .configure(Plot::new(id))
+            .height(ui.available_height().max(120.0))
+            .y_axis_label(unit)
+            .legend(egui_plot::Legend::default())
+            .show(ui, |p| {
+                for (name, pts, c) in lines {
+                    p.line(Line::new(name, pts).color(c));
+                }
+            });
+        plots::keep_bounds(ui.ctx(), id, *r.transform.bounds());
+    });
+    for c in cmds {
+        app.push(c);
+    }
+}
+
+fn shape_plot(
+    ui: &mut egui::Ui,
+    app: &TapgridApp,
+    md: &Mode,
+    positions: &[f64],
+    stations: &[u32],
+    sel: usize,
+    height: f32,
+) {
+    let amp = app.settings.amplitude as f64;
+    let th = app.phase_rad;
+    let (c, s) = (th.cos(), th.sin());
+    // Re(φ e^{iθ}): a real mode stands, a complex one travels.
+    let y: Vec<f64> = md.shape.iter().map(|p| amp * (p.re * c - p.im * s)).collect();
+    let real: Vec<f64> = md.shape.iter().map(|p| p.re).collect();
+    let x0 = positions.first().copied().unwrap_or(0.0).min(0.0);
+    let x1 = positions.last().copied().unwrap_or(1.0);
+    let deformed: Vec<[f64; 2]> = positions.iter().zip(&y).map(|(x, v)| [*x, *v]).collect();
+    let envelope_hi: Vec<[f64; 2]> = positions.iter().zip(&md.shape).map(|(x, p)| [*x, amp * p.norm()]).collect();
+    let envelope_lo: Vec<[f64; 2]> = envelope_hi.iter().map(|p| [p[0], -p[1]]).collect();
+    let node_x = nodes(positions, &real);
+    let complex = md.mpc < 0.95;
+    ui.label(
+        RichText::new(format!(
+            "Mode {} — {:.2} Hz, ζ = {}, MPC {:.3}{}",
+            sel + 1,
+            md.frequency_hz,
+            md.damping_ratio.map_or("—".into(), |z| format!("{:.3} %", z * 100.0)),
+            md.mpc,
+            if complex { " (complex: stations move out of phase)" } else { "" }
+        ))
+        .size(18.0),
+    );
+    let limit = 1.25 * amp.max(0.2);
+    let text_color = ui.visuals().text_color();
+    Plot::new("mode-shape")
+        .height(height)
+        .allow_drag(false)
+        .allow_zoom(false)
+        .allow_scroll(false)
+        .include_y(-limit)
+        .include_y(limit)
+        .include_x(x0)
+        .include_x(x1)
+        .x_axis_label("position along the part (m)")
+        .y_axis_label("shape (largest = 1, reference +)")
+        .show(ui, |p| {
+            p.line(Line::new("undeformed", vec![[x0, 0.0], [x1, 0.0]]).color(IDLE).width(6.0));
+            p.line(Line::new("envelope", envelope_hi).color(IDLE).style(LineStyle::dotted_dense()));
+            p.line(Line::new("envelope", envelope_lo).color(IDLE).style(LineStyle::dotted_dense()));
+            p.line(Line::new("deformed", deformed.clone()).color(ACCENT).width(3.0));
+            p.points(Points::new("stations", deformed.clone()).radius(5.0).color(ACCENT).filled(true));
+            p.points(
+                Points::new("nodes", node_x.iter().map(|x| [*x, 0.0]).collect::<Vec<_>>())
+                    .shape(MarkerShape::Cross)
+                    .radius(9.0)
+                    .color(BAD),
+            );
+            for ((st, pt), ph) in stations.iter().zip(&deformed).zip(&md.shape) {
+                let mut label = format!("{st}: {:+.2}", ph.re);
+                if complex {
+                    label.push_str(&format!(" ∠{:.0}°", ph.arg().to_degrees()));
+                }
+                p.text(
+                    Text::new("value", PlotPoint::new(pt[0], limit * 0.92), label)
+                        .color(text_color)
+                        .anchor(Align2::CENTER_TOP),
+                );
+            }
+        });
+}
+
+fn mac_heat_map(ui: &mut egui::Ui, mac: &[Vec<f64>], sel: usize) {
+    let n = mac.len();
+    if n == 0 {
+        return;
+    }
+    let cell = ((ui.available_width() - 30.0) / n as f32).clamp(18.0, 48.0);
+    let (r, painter) = ui.allocate_painter(vec2(30.0 + cell * n as f32, 24.0 + cell * n as f32), Sense::hover());
+    let o = r.rect.min + vec2(30.0, 24.0);
+    let lo = Color32::from_rgb(30, 40, 70);
+    let hi = Color32::from_rgb(240, 200, 80);
+    let text = ui.visuals().text_color();
+    for i in 0..n {
+        painter.text(
+            pos2(o.x - 6.0, o.y + (i as f32 + 0.5) * cell),
+            Align2::RIGHT_CENTER,
+            format!("{}", i + 1),
+            FontId::proportional(13.0),
+            text,
+        );
+        painter.text(
+            pos2(o.x + (i as f32 + 0.5) * cell, o.y - 4.0),
+            Align2::CENTER_BOTTOM,
+            format!("{}", i + 1),
+            FontId::proportional(13.0),
+            text,
+        );
+        for j in 0..n {
+            let v = mac[i].get(j).copied().unwrap_or(0.0).clamp(0.0, 1.0) as f32;
+            let c = lerp(lo, hi, v);
+            let rect = egui::Rect::from_min_size(o + vec2(j as f32 * cell, i as f32 * cell), vec2(cell, cell));
+            painter.rect_filled(rect.shrink(1.0), 2.0, c);
+            if i == sel || j == sel {
+                painter.rect_stroke(rect.shrink(1.0), 2.0, Stroke::new(1.0, ACCENT), egui::StrokeKind::Inside);
+            }
+            if cell >= 30.0 {
+                let tc = if v > 0.5 { Color32::BLACK } else { Color32::WHITE };
+                painter.text(rect.center(), Align2::CENTER_CENTER, format!("{v:.2}"), FontId::proportional(11.0), tc);
+            }
+        }
+    }
+    ui.label(RichText::new("MAC 0 (dark) … 1 (bright); off-diagonal should be near 0").small());
+}
+
+fn lerp(a: Color32, b: Color32, t: f32) -> Color32 {
+    let m = |x: u8, y: u8| (x as f32 + (y as f32 - x as f32) * t).round() as u8;
+    Color32::from_rgb(m(a.r(), b.r()), m(a.g(), b.g()), m(a.b(), b.b()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Nodes are where the straight line between two stations of opposite sign crosses zero
+    /// (linear interpolation, by definition).
+    #[test]
+    fn nodes_by_interpolation() {
+        let x = [0.0, 1.0, 2.0, 3.0];
+        let v = [1.0, -1.0, -1.0, 3.0];
+        let n = nodes(&x, &v);
+        assert_eq!(n.len(), 2);
+        assert!((n[0] - 0.5).abs() < 1e-12);
+        assert!((n[1] - 2.25).abs() < 1e-12);
+    }
+}

@@ -1,0 +1,254 @@
+//! The station map: the part drawn to scale with one cell per station, coloured by its state.
+
+use eframe::egui::{self, Align2, Color32, FontId, Rect, Sense, Stroke, pos2, vec2};
+
+use super::plots::{ACCENT, BAD, GOOD, IDLE, WARN};
+use super::{Command, Document, TapgridApp, View};
+
+/// A station's state at a glance.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum StationState {
+    /// No recording yet.
+    NotMeasured,
+    /// Every hit accepted.
+    Good,
+    /// An FRF, but some hits were rejected or overridden.
+    Partly,
+    /// No usable FRF.
+    Problem,
+}
+
+impl StationState {
+    /// Cell colour.
+    pub fn color(self) -> Color32 {
+        match self {
+            StationState::NotMeasured => IDLE,
+            StationState::Good => GOOD,
+            StationState::Partly => WARN,
+            StationState::Problem => BAD,
+        }
+    }
+
+    /// Word for the legend.
+    pub fn word(self) -> &'static str {
+        match self {
+            StationState::NotMeasured => "not measured",
+            StationState::Good => "all hits accepted",
+            StationState::Partly => "some hits rejected",
+            StationState::Problem => "no usable FRF",
+        }
+    }
+}
+
+/// The state of a station and a sentence for its hover text.
+pub fn state_of(doc: &Document, station: u32) -> (StationState, String) {
+    let Some(sa) = doc.station_analysis(station) else {
+        let why = if doc.station_index(station).is_some() {
+            if doc.analysis_error.is_some() {
+                "analysis failed (see the message bar)"
+            } else {
+                "being analysed"
+            }
+        } else {
+            "no recording yet"
+        };
+        return (StationState::NotMeasured, format!("Station {station}: {why}"));
+    };
+    let hits = &sa.result.hits;
+    let accepted = hits.iter().filter(|h| h.accepted).count();
+    let mut lines = vec![format!(
+        "Station {station} at {:.3} m: {accepted} of {} hits accepted",
+        sa.position_m,
+        hits.len()
+    )];
+    for h in hits {
+        let verdict = if h.accepted { "kept" } else { "rejected" };
+        let why: Vec<&str> = h.reasons.iter().map(|r| r.sentence()).collect();
+        let by = match h.override_accept {
+            Some(_) => " (by a person)",
+            None => "",
+        };
+        if why.is_empty() {
+            lines.push(format!("  hit {}: {verdict}{by}", h.index + 1));
+        } else {
+            lines.push(format!(
+                "  hit {}: {verdict}{by} — {}",
+                h.index + 1,
+                why.join("; ")
+            ));
+        }
+    }
+    let state = if accepted == 0 {
+        StationState::Problem
+    } else if accepted < hits.len() || hits.iter().any(|h| h.override_accept.is_some()) {
+        StationState::Partly
+    } else {
+        StationState::Good
+    };
+    (state, lines.join("\n"))
+}
+
+/// All stations known to the document: recorded ones and those defined without a recording.
+fn all_stations(doc: &Document) -> Vec<(u32, f64)> {
+    let mut v: Vec<(u32, f64)> = doc
+        .data
+        .stations
+        .iter()
+        .map(|s| (s.station, s.position_m))
+        .collect();
+    if let Some(s) = &doc.session {
+        for st in &s.manifest.stations {
+            if !v.iter().any(|(n, _)| *n == st.station) {
+                v.push((st.station, st.position_m));
+            }
+        }
+    }
+    v.sort_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
+    v
+}
+
+/// Draws the part with its station cells in a strip of the given height; clicking a cell
+/// pushes [`Command::GoStation`].
+pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
+    let Some(doc) = &app.doc else {
+        return;
+    };
+    let stations = all_stations(doc);
+    let width = ui.available_width();
+    let (rect, _) = ui.allocate_exact_size(vec2(width, height), Sense::hover());
+    let painter = ui.painter_at(rect);
+    let visuals = ui.visuals().clone();
+    let (x_min, x_max) = stations.iter().fold((0.0f64, 0.0f64), |(lo, hi), s| {
+        (lo.min(s.1), hi.max(s.1))
+    });
+    let length = (x_max - x_min).max(1e-3);
+    let margin = 40.0;
+    let to_x = |p: f64| rect.left() + margin + ((p - x_min) / length) as f32 * (width - 2.0 * margin);
+    let spacing_px = if stations.len() > 1 {
+        (width - 2.0 * margin) / (stations.len() - 1) as f32
+    } else {
+        60.0
+    };
+    let cell = (spacing_px * 0.8).clamp(14.0, (height * 0.42).min(46.0));
+    let shaft_y = rect.top() + height * 0.68;
+    let shaft_h = (height * 0.10).clamp(6.0, 18.0);
+    // The part, to scale along its length.
+    painter.rect_filled(
+        Rect::from_min_max(
+            pos2(to_x(x_min), shaft_y - shaft_h / 2.0),
+            pos2(to_x(x_max), shaft_y + shaft_h / 2.0),
+        ),
+        3.0,
+        visuals.widgets.inactive.bg_fill,
+    );
+    let text = visuals.text_color();
+    let small = FontId::proportional((cell * 0.45).clamp(11.0, 16.0));
+    let reference = doc.setup.reference_station;
+    let current = app.current_station;
+    let mut clicked = None;
+    for &(st, pos) in &stations {
+        let x = to_x(pos);
+        let (state, hover) = state_of(doc, st);
+        let c = Rect::from_center_size(pos2(x, shaft_y - shaft_h / 2.0 - 8.0 - cell / 2.0), vec2(cell, cell));
+        painter.line_segment(
+            [pos2(x, c.bottom()), pos2(x, shaft_y - shaft_h / 2.0)],
+            Stroke::new(1.5, state.color()),
+        );
+        painter.rect_filled(c, 4.0, state.color());
+        if current == Some(st) {
+            painter.rect_stroke(c.expand(3.0), 5.0, Stroke::new(3.0, ACCENT), egui::StrokeKind::Outside);
+        }
+        painter.text(c.center(), Align2::CENTER_CENTER, st.to_string(), small.clone(), Color32::BLACK);
+        if Some(st) == reference {
+            painter.text(
+                pos2(x, shaft_y + shaft_h / 2.0 + 4.0),
+                Align2::CENTER_TOP,
+                "ref",
+                small.clone(),
+                text,
+            );
+        }
+        let id = ui.scope_id().with(("station-cell", st));
+        let r = ui.interact(c, id, Sense::click());
+        r.widget_info(|| egui::WidgetInfo::labeled(egui::Role::Button, true, format!("Station {st}")));
+        if r.clicked() {
+            clicked = Some(st);
+        }
+        r.on_hover_text(hover);
+    }
+    // Length scale along the bottom.
+    let y = rect.bottom() - 4.0;
+    painter.text(
+        pos2(to_x(x_min), y),
+        Align2::LEFT_BOTTOM,
+        format!("{x_min:.2} m"),
+        FontId::proportional(12.0),
+        text,
+    );
+    painter.text(
+        pos2(to_x(x_max), y),
+        Align2::RIGHT_BOTTOM,
+        format!("{x_max:.2} m"),
+        FontId::proportional(12.0),
+        text,
+    );
+    if let Some(st) = clicked {
+        app.push(Command::GoStation(st));
+    }
+}
+
+/// The station map view.
+pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+    let Some(doc) = &app.doc else {
+        return;
+    };
+    let recorded = doc.data.stations.len();
+    let good = doc
+        .data
+        .stations
+        .iter()
+        .filter(|s| state_of(doc, s.station).0 == StationState::Good)
+        .count();
+    ui.heading(format!("{} — station map", doc.part.name));
+    ui.label(format!(
+        "{recorded} stations recorded, {good} with every hit accepted. Click a station to select it; \
+         hover for its hits."
+    ));
+    ui.horizontal(|ui| {
+        for s in [
+            StationState::NotMeasured,
+            StationState::Good,
+            StationState::Partly,
+            StationState::Problem,
+        ] {
+            let (r, p) = ui.allocate_painter(vec2(16.0, 16.0), Sense::hover());
+            p.rect_filled(r.rect, 3.0, s.color());
+            ui.label(s.word());
+        }
+    });
+    ui.add_space(8.0);
+    let h = (ui.available_height() * 0.45).clamp(120.0, 260.0);
+    strip(ui, app, h);
+    ui.add_space(8.0);
+    let Some(st) = app.current_station else {
+        return;
+    };
+    let Some(doc) = &app.doc else {
+        return;
+    };
+    let (state, hover) = state_of(doc, st);
+    ui.group(|ui| {
+        ui.label(egui::RichText::new(format!("Station {st}: {}", state.word())).size(20.0).color(state.color()));
+        for line in hover.lines().skip(1) {
+            ui.label(line.trim());
+        }
+        ui.horizontal(|ui| {
+            if ui.button("Check its hits").clicked() {
+                app.push(Command::Show(View::Hits));
+            }
+            if ui.button("Review its FRF").clicked() {
+                app.push(Command::Show(View::Frf));
+            }
+        });
+    });
+}

@@ -1,0 +1,354 @@
+//! The background worker: opening, analysis, fitting and trace loading run on one named thread
+//! so the UI never waits. Jobs go in by channel; outcomes come back by a bounded channel and each
+//! one asks for a repaint. A job made stale by a newer request of its kind is skipped.
+
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::mpsc::{Receiver, Sender, SyncSender};
+
+use crate::acquire::wav::Decoder;
+use crate::analysis::{self, Analysis, Dataset};
+use crate::modal::lscf::Stabilization;
+use crate::modal::{self, FrfSet, ModalResult, ModalSettings};
+use crate::session::Session;
+use crate::setup::Setup;
+use crate::signal::{HitReport, HitTraces, hit_traces};
+
+/// Work for the background thread.
+pub enum Job {
+    /// Open a session or WAV set folder.
+    Open(PathBuf),
+    /// Analyse a test and fit it.
+    Analyze {
+        /// Request number; older ones are skipped.
+        generation: u64,
+        /// The test.
+        data: Dataset,
+        /// Its setup.
+        setup: Setup,
+        /// Modal settings.
+        modal: ModalSettings,
+    },
+    /// Fit (again) FRFs already computed: automatically, or with the poles a person picked.
+    Fit {
+        /// Request number; older ones are skipped.
+        generation: u64,
+        /// The FRFs.
+        frfs: Arc<FrfSet>,
+        /// Modal settings.
+        modal: ModalSettings,
+        /// A diagram and the indices of its poles to keep (`None`: automatic choice).
+        picked: Option<(Arc<Stabilization>, Vec<usize>)>,
+    },
+    /// Decode one station's recording and cut its hits for display.
+    Traces {
+        /// Station.
+        station: u32,
+        /// Its recording.
+        path: PathBuf,
+        /// Setup.
+        setup: Setup,
+        /// Its hits as analysed.
+        hits: Vec<HitReport>,
+    },
+    /// Copy a session to a new folder.
+    SaveAs {
+        /// The session as it should be written.
+        session: Box<Session>,
+        /// New folder.
+        dir: PathBuf,
+    },
+    /// Make a new session from a WAV set.
+    CreateSession {
+        /// The WAV set folder.
+        wavset: PathBuf,
+        /// New session folder.
+        dir: PathBuf,
+        /// Setup.
+        setup: Setup,
+        /// Part.
+        part: crate::session::Part,
+        /// Hits with verdicts and overrides.
+        hits: Vec<crate::session::SavedHit>,
+    },
+}
+
+/// What came back.
+pub enum Outcome {
+    /// A folder was opened.
+    Opened {
+        /// The folder.
+        path: PathBuf,
+        /// Its test.
+        data: Dataset,
+        /// The session, when the folder is one.
+        session: Option<Box<Session>>,
+    },
+    /// Analysis and fit of a request.
+    Analyzed {
+        /// Request number.
+        generation: u64,
+        /// The analysis.
+        analysis: Arc<Analysis>,
+        /// Its FRFs (`None` when no station has one).
+        frfs: Option<Arc<FrfSet>>,
+        /// The fit.
+        modal: Result<Arc<ModalResult>, String>,
+    },
+    /// A fit.
+    Fitted {
+        /// Request number.
+        generation: u64,
+        /// The fit.
+        modal: Result<Arc<ModalResult>, String>,
+    },
+    /// A station's hits for display.
+    Traces {
+        /// Station.
+        station: u32,
+        /// Hit by hit (`None` when the record did not fit).
+        traces: Vec<Option<HitTraces>>,
+    },
+    /// A session was written to a new folder.
+    Saved(Box<Session>),
+    /// A request was superseded and not run.
+    Skipped,
+    /// A job failed; the message names the file.
+    Failed {
+        /// What was being done.
+        what: &'static str,
+        /// Why it failed.
+        message: String,
+    },
+}
+
+/// Handle to the worker thread.
+pub struct Worker {
+    jobs: Sender<Job>,
+    outcomes: Receiver<Outcome>,
+    latest_analysis: Arc<AtomicU64>,
+    latest_fit: Arc<AtomicU64>,
+    generation: u64,
+    in_flight: Vec<&'static str>,
+}
+
+impl Worker {
+    /// Starts the thread; `repaint` is called after each outcome is sent.
+    pub fn start(repaint: impl Fn() + Send + 'static) -> Self {
+        let (jobs, job_rx) = std::sync::mpsc::channel::<Job>();
+        let (out_tx, outcomes) = std::sync::mpsc::sync_channel::<Outcome>(8);
+        let latest_analysis = Arc::new(AtomicU64::new(0));
+        let latest_fit = Arc::new(AtomicU64::new(0));
+        let (la, lf) = (latest_analysis.clone(), latest_fit.clone());
+        // If the thread cannot start the UI still runs; every job then reports it failed.
+        let _ = std::thread::Builder::new()
+            .name("tapgrid-worker".into())
+            .spawn(move || work(job_rx, out_tx, la, lf, repaint));
+        Self {
+            jobs,
+            outcomes,
+            latest_analysis,
+            latest_fit,
+            generation: 0,
+            in_flight: Vec::new(),
+        }
+    }
+
+    /// A fresh request number for an analysis or fit (supersedes earlier ones of its kind).
+    pub fn next_generation(&mut self) -> u64 {
+        self.generation += 1;
+        self.generation
+    }
+
+    /// Sends a job.
+    pub fn send(&mut self, job: Job) {
+        let what = describe(&job);
+        match &job {
+            Job::Analyze { generation, .. } => {
+                self.latest_analysis.store(*generation, Ordering::SeqCst);
+                // A new analysis also supersedes any fit of the old FRFs.
+                self.latest_fit.store(*generation, Ordering::SeqCst);
+            }
+            Job::Fit { generation, .. } => self.latest_fit.store(*generation, Ordering::SeqCst),
+            _ => {}
+        }
+        if self.jobs.send(job).is_ok() {
+            self.in_flight.push(what);
+        }
+    }
+
+    /// The next outcome, if one is waiting.
+    pub fn try_recv(&mut self) -> Option<Outcome> {
+        let o = self.outcomes.try_recv().ok()?;
+        if !self.in_flight.is_empty() {
+            self.in_flight.remove(0);
+        }
+        Some(o)
+    }
+
+    /// What the worker is doing (oldest pending job first), if anything.
+    pub fn busy(&self) -> Option<&'static str> {
+        self.in_flight.first().copied()
+    }
+
+    /// Whether a request of this generation is still the latest analysis.
+    pub fn is_latest_analysis(&self, generation: u64) -> bool {
+        self.latest_analysis.load(Ordering::SeqCst) == generation
+    }
+
+    /// Whether a request of this generation is still the latest fit.
+    pub fn is_latest_fit(&self, generation: u64) -> bool {
+        self.latest_fit.load(Ordering::SeqCst) == generation
+    }
+}
+
+fn describe(job: &Job) -> &'static str {
+    match job {
+        Job::Open(_) => "Opening",
+        Job::Analyze { .. } => "Analysing",
+        Job::Fit { .. } => "Fitting",
+        Job::Traces { .. } => "Loading hits",
+        Job::SaveAs { .. } | Job::CreateSession { .. } => "Saving",
+    }
+}
+
+fn work(
+    jobs: Receiver<Job>,
+    out: SyncSender<Outcome>,
+    latest_analysis: Arc<AtomicU64>,
+    latest_fit: Arc<AtomicU64>,
+    repaint: impl Fn(),
+) {
+    let mut decoder = Decoder::default();
+    while let Ok(job) = jobs.recv() {
+        let outcome = match job {
+            Job::Open(path) => open(path),
+            Job::Analyze {
+                generation,
+                data,
+                setup,
+                modal,
+            } => {
+                if latest_analysis.load(Ordering::SeqCst) != generation {
+                    Outcome::Skipped
+                } else {
+                    analyze(generation, &data, &setup, &modal)
+                }
+            }
+            Job::Fit {
+                generation,
+                frfs,
+                modal,
+                picked,
+            } => {
+                if latest_fit.load(Ordering::SeqCst) != generation {
+                    Outcome::Skipped
+                } else {
+                    let r = match &picked {
+                        Some((stab, idx)) => modal::modes_from_poles(&frfs, &modal, stab, idx),
+                        None => modal::extract(&frfs, &modal),
+                    };
+                    Outcome::Fitted {
+                        generation,
+                        modal: r.map(Arc::new),
+                    }
+                }
+            }
+            Job::Traces {
+                station,
+                path,
+                setup,
+                hits,
+            } => match decoder.decode(&path, setup.channel_a.index, setup.channel_b.index) {
+                Ok(info) => Outcome::Traces {
+                    station,
+                    traces: hits
+                        .iter()
+                        .map(|h| hit_traces(&decoder.a, &decoder.b, info.sample_rate_hz, &setup, h))
+                        .collect(),
+                },
+                Err(e) => Outcome::Failed {
+                    what: "Loading hits",
+                    message: e.to_string(),
+                },
+            },
+            Job::SaveAs { session, dir } => match session.save_as(&dir) {
+                Ok(s) => Outcome::Saved(Box::new(s)),
+                Err(e) => Outcome::Failed {
+                    what: "Saving",
+                    message: e.to_string(),
+                },
+            },
+            Job::CreateSession {
+                wavset,
+                dir,
+                setup,
+                part,
+                hits,
+            } => create_session(&wavset, &dir, setup, part, hits),
+        };
+        if out.send(outcome).is_err() {
+            return;
+        }
+        repaint();
+    }
+}
+
+fn open(path: PathBuf) -> Outcome {
+    match Dataset::open(&path, Setup::default().spacing_m) {
+        Ok((data, session)) => Outcome::Opened {
+            path,
+            data,
+            session: session.map(Box::new),
+        },
+        Err(e) => Outcome::Failed {
+            what: "Opening",
+            message: e.to_string(),
+        },
+    }
+}
+
+fn analyze(generation: u64, data: &Dataset, setup: &Setup, m: &ModalSettings) -> Outcome {
+    match analysis::run(data, setup) {
+        Ok(a) => {
+            let frfs = FrfSet::from_analysis(&a).map(Arc::new);
+            let modal = match &frfs {
+                Some(f) => modal::extract(f, m).map(Arc::new),
+                None => Err("no station has an accepted hit".into()),
+            };
+            Outcome::Analyzed {
+                generation,
+                analysis: Arc::new(a),
+                frfs,
+                modal,
+            }
+        }
+        Err(e) => Outcome::Failed {
+            what: "Analysing",
+            message: e.to_string(),
+        },
+    }
+}
+
+fn create_session(
+    wavset: &std::path::Path,
+    dir: &std::path::Path,
+    setup: Setup,
+    part: crate::session::Part,
+    hits: Vec<crate::session::SavedHit>,
+) -> Outcome {
+    let r = crate::acquire::wavset::WavSet::scan(wavset, setup.spacing_m).and_then(|set| {
+        let mut s = Session::import_wavset(&set, dir, setup, part)?;
+        s.manifest.hits = hits;
+        s.save()?;
+        Ok(s)
+    });
+    match r {
+        Ok(s) => Outcome::Saved(Box::new(s)),
+        Err(e) => Outcome::Failed {
+            what: "Saving",
+            message: e.to_string(),
+        },
+    }
+}
