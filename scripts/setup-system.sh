@@ -1,7 +1,9 @@
 #!/usr/bin/env bash
 # Installs the Debian packages tapgrid needs to build and test (idempotent; needs root or sudo).
 set -euo pipefail
-need=(build-essential pkg-config libasound2-dev)
+# Xvfb, ImageMagick and Mesa's software OpenGL: the GUI smoke test runs the window headless.
+need=(build-essential pkg-config libasound2-dev xvfb xauth imagemagick libgl1-mesa-dri libegl1 libegl-mesa0 libgl1 libglx-mesa0
+  libx11-6 libxcursor1 libxrandr2 libxi6 libxkbcommon-x11-0)
 missing=()
 sudo=""
 [ "$(id -u)" -eq 0 ] || sudo="sudo"

@@ -486,7 +486,10 @@ pub fn run(cli: Cli) -> Result<()> {
         if let Some(p) = &cli.open
             && !p.is_dir()
         {
-            bail!("{}: is not a folder (expected a session or a WAV set folder)", p.display());
+            bail!(
+                "{}: is not a folder (expected a session or a WAV set folder)",
+                p.display()
+            );
         }
         return crate::app::run(cli.open);
     };
@@ -522,7 +525,9 @@ pub fn run(cli: Cli) -> Result<()> {
 
 /// The bundled demo session, or one the simulator makes on first use.
 fn demo_session_dir() -> Result<PathBuf> {
-    Ok(crate::sim::demo::demo_session(&crate::sim::demo::default_root())?)
+    Ok(crate::sim::demo::demo_session(
+        &crate::sim::demo::default_root(),
+    )?)
 }
 
 fn analyze(

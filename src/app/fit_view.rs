@@ -29,10 +29,11 @@ pub fn best_pole_near(stab: &Stabilization, f: f64, tol: f64) -> Option<usize> {
         .enumerate()
         .filter(|(_, p)| (p.frequency_hz - f).abs() <= tol)
         .max_by(|(_, a), (_, b)| {
-            a.status
-                .cmp(&b.status)
-                .then(a.order.cmp(&b.order))
-                .then((b.frequency_hz - f).abs().total_cmp(&(a.frequency_hz - f).abs()))
+            a.status.cmp(&b.status).then(a.order.cmp(&b.order)).then(
+                (b.frequency_hz - f)
+                    .abs()
+                    .total_cmp(&(a.frequency_hz - f).abs()),
+            )
         })
         .map(|(i, _)| i)
 }
@@ -68,9 +69,21 @@ pub fn stable_columns(stab: &Stabilization, min_orders: usize) -> Vec<(f64, usiz
 fn marker(s: PoleStatus) -> (MarkerShape, egui::Color32, f32, &'static str) {
     match s {
         PoleStatus::New => (MarkerShape::Circle, IDLE, 1.5, "new pole"),
-        PoleStatus::Frequency => (MarkerShape::Square, WARN.gamma_multiply(0.8), 2.0, "frequency stable"),
-        PoleStatus::FrequencyDamping => (MarkerShape::Diamond, ACCENT, 2.5, "frequency and damping stable"),
-        PoleStatus::FrequencyDampingShape => (MarkerShape::Plus, GOOD, 3.5, "fully stable (f, ζ, shape)"),
+        PoleStatus::Frequency => (
+            MarkerShape::Square,
+            WARN.gamma_multiply(0.8),
+            2.0,
+            "frequency stable",
+        ),
+        PoleStatus::FrequencyDamping => (
+            MarkerShape::Diamond,
+            ACCENT,
+            3.0,
+            "frequency and damping stable",
+        ),
+        PoleStatus::FrequencyDampingShape => {
+            (MarkerShape::Plus, GOOD, 5.0, "fully stable (f, ζ, shape)")
+        }
     }
 }
 
@@ -101,7 +114,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     let band = doc.modal_settings.band_hz.unwrap_or(full);
     let min_orders = doc.modal_settings.min_stable_orders;
     let manual = doc.picked.is_some();
-    let picked = doc.picked.clone().unwrap_or_else(|| poles_of_modes(&m, &stab));
+    let picked = doc
+        .picked
+        .clone()
+        .unwrap_or_else(|| poles_of_modes(&m, &stab));
     let picked_f: Vec<f64> = picked
         .iter()
         .filter_map(|&i| stab.poles.get(i))
@@ -116,15 +132,28 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         } else {
             "modes chosen automatically"
         });
-        if ui.add_enabled(manual, egui::Button::new("Automatic choice")).clicked() {
+        if ui
+            .add_enabled(manual, egui::Button::new("Automatic choice"))
+            .clicked()
+        {
             cmds.push(Command::AutoPoles);
         }
         ui.separator();
         let mut edit = app.fit_band_edit.unwrap_or(band);
         ui.label("fit band");
-        let lo = ui.add(egui::DragValue::new(&mut edit[0]).range(full[0]..=full[1]).suffix(" Hz").speed(1.0));
+        let lo = ui.add(
+            egui::DragValue::new(&mut edit[0])
+                .range(full[0]..=full[1])
+                .suffix(" Hz")
+                .speed(1.0),
+        );
         ui.label("to");
-        let hi = ui.add(egui::DragValue::new(&mut edit[1]).range(full[0]..=full[1]).suffix(" Hz").speed(1.0));
+        let hi = ui.add(
+            egui::DragValue::new(&mut edit[1])
+                .range(full[0]..=full[1])
+                .suffix(" Hz")
+                .speed(1.0),
+        );
         if lo.changed() || hi.changed() {
             app.fit_band_edit = Some(edit);
         }
@@ -136,7 +165,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             app.fit_band_edit = None;
         }
         if ui
-            .add_enabled(doc.modal_settings.band_hz.is_some(), egui::Button::new("Whole band"))
+            .add_enabled(
+                doc.modal_settings.band_hz.is_some(),
+                egui::Button::new("Whole band"),
+            )
             .clicked()
         {
             cmds.push(Command::SetFitBand(None));
@@ -152,9 +184,16 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     let vals: Vec<f64> = if frfs.layout == crate::setup::Layout::Hammer {
         ind.sum_abs.iter().map(|v| plots::db(*v)).collect()
     } else {
-        ind.sum_response_autospectra.iter().map(|v| 10.0 * v.max(1e-300).log10()).collect()
+        ind.sum_response_autospectra
+            .iter()
+            .map(|v| 10.0 * v.max(1e-300).log10())
+            .collect()
     };
-    let (vmin, vmax) = vals.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(*v), b.max(*v)));
+    let (vmin, vmax) = vals
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
+            (a.min(*v), b.max(*v))
+        });
     let span = (vmax - vmin).max(1e-9);
     let scaled: Vec<[f64; 2]> = ind
         .freq_hz
@@ -176,7 +215,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         .y_axis_label("model order")
         .include_y(0.0)
         .include_y(max_order + 1.0)
-        .legend(egui_plot::Legend::default())
+        .legend(egui_plot::Legend::default().position(egui_plot::Corner::LeftTop))
         .show(ui, |p| {
             p.line(Line::new("mode indicator (scaled)", scaled).color(IDLE));
             let statuses = [
@@ -187,10 +226,16 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             ];
             for (s, pts) in statuses.into_iter().zip(groups) {
                 let (shape, color, radius, name) = marker(s);
-                p.points(Points::new(name, pts).shape(shape).color(color).radius(radius));
+                p.points(
+                    Points::new(name, pts)
+                        .shape(shape)
+                        .color(color)
+                        .radius(radius),
+                );
             }
             for (k, f) in picked_f.iter().enumerate() {
-                p.vline(VLine::new(format!("taken: mode {}", k + 1), *f).color(BAD).width(1.5));
+                let _ = k;
+                p.vline(VLine::new("taken as a mode", *f).color(BAD).width(1.5));
             }
             p.span(
                 Span::new("fit band", live_band[0]..=live_band[1])
@@ -224,7 +269,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 app.fit_band_edit = Some(b);
             }
             if resp.drag_stopped() {
-                ui.ctx().data_mut(|d| d.insert_temp::<Option<usize>>(drag_id, None));
+                ui.ctx()
+                    .data_mut(|d| d.insert_temp::<Option<usize>>(drag_id, None));
                 if let Some(b) = app.fit_band_edit.take()
                     && b[1] > b[0]
                 {

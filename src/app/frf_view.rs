@@ -15,11 +15,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         return;
     };
     let Some(frfs) = doc.frfs.clone() else {
-        ui.label(
-            doc.analysis_error
-                .clone()
-                .unwrap_or_else(|| "No FRF yet: the analysis is running or no hit was accepted.".into()),
-        );
+        ui.label(doc.analysis_error.clone().unwrap_or_else(|| {
+            "No FRF yet: the analysis is running or no hit was accepted.".into()
+        }));
         return;
     };
     let modal = doc.modal.clone();
@@ -31,26 +29,30 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     let axis = FreqAxis {
         log: app.settings.log_frequency,
     };
-    egui::Panel::left("frf-options").default_size(230.0).show(ui, |ui| {
-        ui.heading("Show");
-        ui.checkbox(&mut app.settings.log_frequency, "log frequency axis");
-        ui.checkbox(&mut app.settings.show_phase, "phase plot");
-        ui.checkbox(&mut app.settings.overlay_all, "overlay every station");
-        ui.separator();
-        ui.label("Overlay stations:");
-        egui::ScrollArea::vertical().max_height(ui.available_height() - 40.0).show(ui, |ui| {
-            for &s in &frfs.stations {
-                let mut on = app.overlay.contains(&s);
-                if ui.checkbox(&mut on, format!("station {s}")).changed() {
-                    if on {
-                        app.overlay.insert(s);
-                    } else {
-                        app.overlay.remove(&s);
+    egui::Panel::left("frf-options")
+        .default_size(230.0)
+        .show(ui, |ui| {
+            ui.heading("Show");
+            ui.checkbox(&mut app.settings.log_frequency, "log frequency axis");
+            ui.checkbox(&mut app.settings.show_phase, "phase plot");
+            ui.checkbox(&mut app.settings.overlay_all, "overlay every station");
+            ui.separator();
+            ui.label("Overlay stations:");
+            egui::ScrollArea::vertical()
+                .max_height(ui.available_height() - 40.0)
+                .show(ui, |ui| {
+                    for &s in &frfs.stations {
+                        let mut on = app.overlay.contains(&s);
+                        if ui.checkbox(&mut on, format!("station {s}")).changed() {
+                            if on {
+                                app.overlay.insert(s);
+                            } else {
+                                app.overlay.remove(&s);
+                            }
+                        }
                     }
-                }
-            }
+                });
         });
-    });
     let current = app.current_station;
     let shown: Vec<usize> = (0..frfs.stations.len())
         .filter(|&i| {
@@ -60,7 +62,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         .collect();
     egui::CentralPanel::default().show(ui, |ui| {
         if shown.is_empty() {
-            ui.label("The current station has no FRF (no accepted hit); pick another or overlay some.");
+            ui.label(
+                "The current station has no FRF (no accepted hit); pick another or overlay some.",
+            );
         }
         let n_plots = if app.settings.show_phase { 4.0 } else { 3.0 };
         let h_each = ((ui.available_height() - 10.0 * n_plots) / n_plots).max(110.0);
@@ -78,9 +82,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         let label = |yunit: &'static str| {
             move |p: &egui_plot::HoverPosition<'_>| -> Option<String> {
                 Some(match p {
-                    egui_plot::HoverPosition::NearDataPoint { plot_name, position, .. } => {
-                        readout(plot_name, position.x, position.y, yunit)
-                    }
+                    egui_plot::HoverPosition::NearDataPoint {
+                        plot_name,
+                        position,
+                        ..
+                    } => readout(plot_name, position.x, position.y, yunit),
                     egui_plot::HoverPosition::Elsewhere { position } => {
                         readout("", position.x, position.y, yunit)
                     }
@@ -103,7 +109,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         let mut lines = Vec::with_capacity(shown.len());
         for (n, &i) in shown.iter().enumerate() {
             let h = &frfs.h[i];
-            let pts = app.plot_scratch.reduced(f, |k| plots::db(h[k].norm()), axis, bounds, columns);
+            let pts =
+                app.plot_scratch
+                    .reduced(f, |k| plots::db(h[k].norm()), axis, bounds, columns);
             lines.push((n, i, pts));
         }
         let r = axis
@@ -112,10 +120,15 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             .link_axis(link, [true, false])
             .link_cursor(link, [true, false])
             .y_axis_label(format!("{quantity} ({unit})"))
+            .y_axis_min_width(56.0)
             .label_formatter(label(unit))
             .show(ui, |p| {
                 for (n, i, pts) in lines {
-                    let c = if current == Some(frfs.stations[i]) { ACCENT } else { plots::trace_color(n) };
+                    let c = if current == Some(frfs.stations[i]) {
+                        ACCENT
+                    } else {
+                        plots::trace_color(n)
+                    };
                     p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
                 }
                 mode_lines(p);
@@ -128,7 +141,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             let mut lines = Vec::with_capacity(shown.len());
             for (n, &i) in shown.iter().enumerate() {
                 let h = &frfs.h[i];
-                let pts = app.plot_scratch.reduced(f, |k| h[k].arg().to_degrees(), axis, Some(b), columns);
+                let pts = app.plot_scratch.reduced(
+                    f,
+                    |k| h[k].arg().to_degrees(),
+                    axis,
+                    Some(b),
+                    columns,
+                );
                 lines.push((n, i, pts));
             }
             axis.configure(Plot::new(id))
@@ -138,10 +157,15 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 .include_y(-180.0)
                 .include_y(180.0)
                 .y_axis_label("phase (degrees)")
+                .y_axis_min_width(56.0)
                 .label_formatter(label("°"))
                 .show(ui, |p| {
                     for (n, i, pts) in lines {
-                        let c = if current == Some(frfs.stations[i]) { ACCENT } else { plots::trace_color(n) };
+                        let c = if current == Some(frfs.stations[i]) {
+                            ACCENT
+                        } else {
+                            plots::trace_color(n)
+                        };
                         p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
                     }
                     mode_lines(p);
@@ -152,7 +176,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         let mut lines = Vec::with_capacity(shown.len());
         for (n, &i) in shown.iter().enumerate() {
             let c = &frfs.coherence[i];
-            let pts = app.plot_scratch.reduced(f, |k| c[k], axis, Some(b), columns);
+            let pts = app
+                .plot_scratch
+                .reduced(f, |k| c[k], axis, Some(b), columns);
             lines.push((n, i, pts));
         }
         axis.configure(Plot::new(id))
@@ -162,10 +188,15 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             .include_y(0.0)
             .include_y(1.05)
             .y_axis_label("coherence γ² (0…1)")
+            .y_axis_min_width(56.0)
             .label_formatter(label(""))
             .show(ui, |p| {
                 for (n, i, pts) in lines {
-                    let c = if current == Some(frfs.stations[i]) { ACCENT } else { plots::trace_color(n) };
+                    let c = if current == Some(frfs.stations[i]) {
+                        ACCENT
+                    } else {
+                        plots::trace_color(n)
+                    };
                     p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
                 }
                 mode_lines(p);
@@ -182,23 +213,32 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             Layout::Sensor => (
                 "Σ response auto-spectra",
                 "dB re 1 (m/s²)²/Hz",
-                ind.sum_response_autospectra.iter().map(|v| 10.0 * v.max(1e-300).log10()).collect(),
+                ind.sum_response_autospectra
+                    .iter()
+                    .map(|v| 10.0 * v.max(1e-300).log10())
+                    .collect(),
             ),
         };
-        let pts = app.plot_scratch.reduced(f, |k| vals[k], axis, Some(b), columns);
+        let pts = app
+            .plot_scratch
+            .reduced(f, |k| vals[k], axis, Some(b), columns);
         axis.configure(Plot::new(id))
             .height(h_each)
             .link_axis(link, [true, false])
             .link_cursor(link, [true, false])
             .y_axis_label(format!("mode indicator ({yunit})"))
+            .y_axis_min_width(56.0)
             .label_formatter(label(yunit))
             .show(ui, |p| {
                 p.line(Line::new(name, pts).color(ACCENT));
                 if let Some(m) = &modal {
                     for (k, md) in m.modes.iter().enumerate() {
                         p.vline(
-                            VLine::new(format!("mode {} — {:.1} Hz", k + 1, md.frequency_hz), axis.x(md.measured_frequency_hz))
-                                .color(WARN),
+                            VLine::new(
+                                format!("mode {} — {:.1} Hz", k + 1, md.frequency_hz),
+                                axis.x(md.measured_frequency_hz),
+                            )
+                            .color(WARN),
                         );
                     }
                 }

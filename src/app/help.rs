@@ -19,13 +19,13 @@ pub const CAUTIONS: [&str; 4] = [
 
 /// Keyboard shortcuts: key, action.
 pub const SHORTCUTS: [(&str, &str); 12] = [
-    ("→ or N", "next station"),
-    ("← or P", "previous station"),
-    ("↓ / ↑", "next / previous hit"),
+    ("Right arrow or N", "next station"),
+    ("Left arrow or P", "previous station"),
+    ("Down / Up arrow", "next / previous hit"),
     ("A", "accept the hit shown"),
     ("R", "reject the hit shown"),
     ("Space", "play / pause the mode animation"),
-    ("1 … 6", "switch view"),
+    ("1 to 6", "switch view"),
     ("Ctrl+S", "save the session"),
     ("Ctrl+O", "open a folder"),
     ("F1", "this help"),

@@ -31,82 +31,114 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     let hi = app.current_hit.min(hits.len().saturating_sub(1));
     let mut cmds = Vec::new();
 
-    egui::Panel::left("hit-list").default_size(330.0).show(ui, |ui| {
-        ui.heading(format!("Station {st}"));
-        ui.label(format!("{} hits; ↑/↓ to step, A/R to accept/reject", hits.len()));
-        for h in &hits {
-            let (word, color) = if h.accepted { ("kept", GOOD) } else { ("rejected", BAD) };
-            let by = if h.override_accept.is_some() { " (by you)" } else { "" };
-            let text = RichText::new(format!("Hit {} at {:.2} s — {word}{by}", h.index + 1, h.time_s))
+    egui::Panel::left("hit-list")
+        .default_size(330.0)
+        .show(ui, |ui| {
+            ui.heading(format!("Station {st}"));
+            ui.label(format!(
+                "{} hits; Up/Down keys step, A/R accept/reject",
+                hits.len()
+            ));
+            for h in &hits {
+                let (word, color) = if h.accepted {
+                    ("kept", GOOD)
+                } else {
+                    ("rejected", BAD)
+                };
+                let by = if h.override_accept.is_some() {
+                    " (by you)"
+                } else {
+                    ""
+                };
+                let text = RichText::new(format!(
+                    "Hit {} at {:.2} s — {word}{by}",
+                    h.index + 1,
+                    h.time_s
+                ))
                 .color(color);
-            if ui.add(egui::Button::selectable(h.index == hi, text)).clicked() {
-                cmds.push(Command::SelectHit(h.index));
-            }
-        }
-        ui.separator();
-        if let Some(h) = hits.get(hi) {
-            let (big, color) = if h.accepted {
-                ("KEPT", GOOD)
-            } else {
-                ("REJECTED", BAD)
-            };
-            ui.label(RichText::new(big).size(34.0).strong().color(color));
-            if h.reasons.is_empty() {
-                ui.label("No problem found.");
-            }
-            for r in &h.reasons {
-                ui.label(RichText::new(r.sentence()).size(17.0).color(WARN));
-            }
-            match h.override_accept {
-                Some(true) => ui.label("You accepted this hit."),
-                Some(false) => ui.label("You rejected this hit."),
-                None => ui.label("Verdict is automatic."),
-            };
-            ui.horizontal(|ui| {
-                if ui.button("Accept hit").clicked() {
-                    cmds.push(Command::SetVerdict { station: st, hit: h.index, accept: Some(true) });
-                }
-                if ui.button("Reject hit").clicked() {
-                    cmds.push(Command::SetVerdict { station: st, hit: h.index, accept: Some(false) });
-                }
                 if ui
-                    .add_enabled(h.override_accept.is_some(), egui::Button::new("Automatic"))
+                    .add(egui::Button::selectable(h.index == hi, text))
                     .clicked()
                 {
-                    cmds.push(Command::SetVerdict { station: st, hit: h.index, accept: None });
+                    cmds.push(Command::SelectHit(h.index));
                 }
-            });
+            }
             ui.separator();
-            egui::Grid::new("hit-figures").show(ui, |ui| {
-                ui.label("peak A");
-                ui.label(format!("{:.0} % of full scale", h.peak_a_fs * 100.0));
-                ui.end_row();
-                ui.label("peak B");
-                ui.label(format!("{:.0} % of full scale", h.peak_b_fs * 100.0));
-                ui.end_row();
-                if let Some(w) = h.pulse_width_s {
-                    ui.label("pulse width");
-                    ui.label(format!("{:.2} ms", w * 1e3));
-                    ui.end_row();
+            if let Some(h) = hits.get(hi) {
+                let (big, color) = if h.accepted {
+                    ("KEPT", GOOD)
+                } else {
+                    ("REJECTED", BAD)
+                };
+                ui.label(RichText::new(big).size(34.0).strong().color(color));
+                if h.reasons.is_empty() {
+                    ui.label("No problem found.");
                 }
-                if let Some(d) = h.force_drop_db {
-                    ui.label("force drop in band");
-                    ui.label(format!("{d:.1} dB (limit {rolloff:.0} dB)"));
-                    ui.end_row();
+                for r in &h.reasons {
+                    ui.label(RichText::new(r.sentence()).size(17.0).color(WARN));
                 }
-                if let Some(r) = h.residual_fraction {
-                    ui.label("misfit to other hits");
-                    ui.label(format!("{:.1} %", r * 100.0));
+                match h.override_accept {
+                    Some(true) => ui.label("You accepted this hit."),
+                    Some(false) => ui.label("You rejected this hit."),
+                    None => ui.label("Verdict is automatic."),
+                };
+                ui.horizontal(|ui| {
+                    if ui.button("Accept hit").clicked() {
+                        cmds.push(Command::SetVerdict {
+                            station: st,
+                            hit: h.index,
+                            accept: Some(true),
+                        });
+                    }
+                    if ui.button("Reject hit").clicked() {
+                        cmds.push(Command::SetVerdict {
+                            station: st,
+                            hit: h.index,
+                            accept: Some(false),
+                        });
+                    }
+                    if ui
+                        .add_enabled(h.override_accept.is_some(), egui::Button::new("Automatic"))
+                        .clicked()
+                    {
+                        cmds.push(Command::SetVerdict {
+                            station: st,
+                            hit: h.index,
+                            accept: None,
+                        });
+                    }
+                });
+                ui.separator();
+                egui::Grid::new("hit-figures").show(ui, |ui| {
+                    ui.label("peak A");
+                    ui.label(format!("{:.0} % of full scale", h.peak_a_fs * 100.0));
                     ui.end_row();
-                }
-                if h.ringing_removed {
-                    ui.label("carried-over ringing");
-                    ui.label("removed");
+                    ui.label("peak B");
+                    ui.label(format!("{:.0} % of full scale", h.peak_b_fs * 100.0));
                     ui.end_row();
-                }
-            });
-        }
-    });
+                    if let Some(w) = h.pulse_width_s {
+                        ui.label("pulse width");
+                        ui.label(format!("{:.2} ms", w * 1e3));
+                        ui.end_row();
+                    }
+                    if let Some(d) = h.force_drop_db {
+                        ui.label("force drop in band");
+                        ui.label(format!("{d:.1} dB (limit {rolloff:.0} dB)"));
+                        ui.end_row();
+                    }
+                    if let Some(r) = h.residual_fraction {
+                        ui.label("misfit to other hits");
+                        ui.label(format!("{:.1} %", r * 100.0));
+                        ui.end_row();
+                    }
+                    if h.ringing_removed {
+                        ui.label("carried-over ringing");
+                        ui.label("removed");
+                        ui.end_row();
+                    }
+                });
+            }
+        });
 
     egui::CentralPanel::default().show(ui, |ui| {
         let Some(traces) = traces else {
@@ -115,7 +147,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             return;
         };
         let Some(Some(t)) = traces.get(hi) else {
-            ui.label("This hit's record does not fit in the recording (too near its start or end).");
+            ui.label(
+                "This hit's record does not fit in the recording (too near its start or end).",
+            );
             return;
         };
         let h_each = ((ui.available_height() - 24.0) / 3.0).max(120.0);
@@ -125,36 +159,63 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             Layout::Hammer => format!("force ({})", qa.si_unit()),
             Layout::Sensor => format!("reference ({})", qa.si_unit()),
         };
-        for (name, y, w, id, unit) in [
-            ("channel A", &t.a, &t.window_a, "hit-a", a_label),
-            ("channel B", &t.b, &t.window_b, "hit-b", "response (m/s²)".to_string()),
+        // The force pulse lasts a fraction of a millisecond: its plot opens on the force window.
+        let zoom = (layout == Layout::Hammer)
+            .then(|| {
+                let first = t.window_a.iter().position(|w| *w > 1e-6)?;
+                let last = t.window_a.iter().rposition(|w| *w > 1e-6)?;
+                let (t0, t1) = (t.time_s[first], t.time_s[last]);
+                let w = (t1 - t0).max(1e-4);
+                Some([t0 - w, t1 + 2.0 * w])
+            })
+            .flatten();
+        for (name, y, w, id, unit, x_range) in [
+            ("channel A", &t.a, &t.window_a, "hit-a", a_label, zoom),
+            (
+                "channel B",
+                &t.b,
+                &t.window_b,
+                "hit-b",
+                "response (m/s²)".to_string(),
+                None,
+            ),
         ] {
             let pid = egui::Id::unique(id);
             let bounds = plots::last_bounds(ui.ctx(), pid);
             let pts = app.plot_scratch.reduced_time(&t.time_s, y, bounds, columns);
             let peak = y.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(1e-12);
             let wy: Vec<f64> = w.iter().map(|v| v * peak).collect();
-            let wpts = app.plot_scratch.reduced_time(&t.time_s, &wy, bounds, columns);
-            let r = Plot::new(pid)
+            let wpts = app
+                .plot_scratch
+                .reduced_time(&t.time_s, &wy, bounds, columns);
+            let mut plot = Plot::new(pid)
                 .height(h_each)
-                .link_axis(link, [true, false])
-                .link_cursor(link, [true, false])
-                .x_axis_label("time from trigger (s)")
-                .y_axis_label(unit)
-                .show(ui, |p| {
-                    p.line(Line::new(name, pts).color(ACCENT));
-                    p.line(
-                        Line::new("window (scaled to peak)", wpts)
-                            .color(WARN)
-                            .style(LineStyle::dashed_loose()),
-                    );
-                    p.vline(VLine::new("trigger", 0.0).color(GOOD));
-                    p.vline(
-                        VLine::new("record start (pretrigger)", t.time_s[0])
-                            .color(plots::IDLE)
-                            .style(LineStyle::dotted_dense()),
-                    );
-                });
+                .y_axis_min_width(56.0)
+                .x_axis_label(if x_range.is_some() {
+                    "time from trigger (s) — zoomed on the force window; double-click resets"
+                } else {
+                    "time from trigger (s)"
+                })
+                .y_axis_label(unit);
+            plot = match x_range {
+                Some([a, b]) => plot.default_x_bounds(a, b),
+                None if layout == Layout::Sensor => plot.link_axis(link, [true, false]),
+                None => plot,
+            };
+            let t_start = t.time_s[0];
+            let r = plot.show(ui, |p| {
+                p.span(
+                    egui_plot::Span::new("pretrigger", t_start..=0.0)
+                        .fill(plots::IDLE.gamma_multiply(0.12)),
+                );
+                p.line(Line::new(name, pts).color(ACCENT));
+                p.line(
+                    Line::new("window (scaled to peak)", wpts)
+                        .color(WARN)
+                        .style(LineStyle::dashed_loose()),
+                );
+                p.vline(VLine::new("trigger", 0.0).color(GOOD));
+            });
             plots::keep_bounds(ui.ctx(), pid, *r.transform.bounds());
         }
         let fpts: Vec<[f64; 2]> = t
@@ -176,7 +237,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             .show(ui, |p| {
                 p.line(Line::new("windowed channel A", fpts).color(ACCENT));
                 if layout == Layout::Hammer {
-                    p.hline(HLine::new(format!("roll-off limit −{rolloff:.0} dB"), -rolloff).color(BAD));
+                    p.hline(
+                        HLine::new(format!("roll-off limit −{rolloff:.0} dB"), -rolloff).color(BAD),
+                    );
                 }
                 if let Some([lo, hi]) = band {
                     p.vline(VLine::new("band", lo).color(plots::IDLE));

@@ -17,7 +17,7 @@ pub mod worker;
 
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
-use std::sync::Arc;
+use std::sync::{Arc, OnceLock};
 
 use eframe::egui;
 use serde::{Deserialize, Serialize};
@@ -340,13 +340,19 @@ pub struct TapgridApp {
     last_time: Option<f64>,
     fit_band_edit: Option<[f64; 2]>,
     plot_scratch: plots::Scratch,
+    ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
 impl TapgridApp {
-    /// A new app that will open `path` (or nothing).
-    pub fn new(ctx: &egui::Context, settings: Settings, path: Option<PathBuf>) -> Self {
-        let repaint_ctx = ctx.clone();
-        let worker = Worker::start(move || repaint_ctx.request_repaint());
+    /// A new app that will open `path` (or nothing) once its first frame runs.
+    pub fn new(settings: Settings, path: Option<PathBuf>) -> Self {
+        let ctx_slot: Arc<OnceLock<egui::Context>> = Arc::new(OnceLock::new());
+        let for_worker = ctx_slot.clone();
+        let worker = Worker::start(move || {
+            if let Some(c) = for_worker.get() {
+                c.request_repaint();
+            }
+        });
         let mut app = Self {
             settings,
             doc: None,
@@ -368,8 +374,8 @@ impl TapgridApp {
             last_time: None,
             fit_band_edit: None,
             plot_scratch: plots::Scratch::default(),
+            ctx_slot,
         };
-        style(ctx, app.settings.dark);
         if let Some(p) = path {
             app.commands.push(Command::Open(p));
         }
@@ -382,7 +388,7 @@ impl TapgridApp {
             .storage
             .and_then(|s| eframe::get_value::<Settings>(s, SETTINGS_KEY))
             .unwrap_or_default();
-        Self::new(&cc.egui_ctx, settings, path)
+        Self::new(settings, path)
     }
 
     /// Queues a command (tests and views).
@@ -395,8 +401,17 @@ impl TapgridApp {
         self.worker.busy()
     }
 
+    /// True when nothing is queued: no command waiting and the worker idle.
+    pub fn idle(&self) -> bool {
+        self.commands.is_empty() && self.worker.busy().is_none()
+    }
+
     /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
     pub fn logic(&mut self, ctx: &egui::Context) {
+        if self.ctx_slot.get().is_none() {
+            let _ = self.ctx_slot.set(ctx.clone());
+            style(ctx, self.settings.dark);
+        }
         let deadline = std::time::Instant::now() + std::time::Duration::from_millis(4);
         while let Some(o) = self.worker.try_recv() {
             self.receive(o);
@@ -490,7 +505,10 @@ impl TapgridApp {
                     self.commands.push(Command::Save);
                 }
                 if ui
-                    .add_enabled(self.doc.is_some(), egui::Button::new("Save as new session…"))
+                    .add_enabled(
+                        self.doc.is_some(),
+                        egui::Button::new("Save as new session…"),
+                    )
                     .clicked()
                 {
                     self.commands.push(Command::AskPath(PathPurpose::SaveAs));
@@ -684,7 +702,10 @@ impl TapgridApp {
         let Some(frfs) = d.frfs.clone() else {
             return;
         };
-        let picked = match (&d.picked, d.modal.as_ref().and_then(|m| m.stabilization.clone())) {
+        let picked = match (
+            &d.picked,
+            d.modal.as_ref().and_then(|m| m.stabilization.clone()),
+        ) {
             (Some(p), Some(stab)) => Some((Arc::new(stab), p.clone())),
             _ => None,
         };
@@ -987,7 +1008,10 @@ impl TapgridApp {
             return;
         };
         let Some(stab) = &m.stabilization else {
-            self.note("no stabilization diagram (peak method): nothing to pick", true);
+            self.note(
+                "no stabilization diagram (peak method): nothing to pick",
+                true,
+            );
             return;
         };
         let mut picked = d
@@ -1039,7 +1063,11 @@ impl TapgridApp {
                 dir,
             });
         } else {
-            let hits = d.analysis.as_ref().map(|a| a.saved_hits()).unwrap_or_default();
+            let hits = d
+                .analysis
+                .as_ref()
+                .map(|a| a.saved_hits())
+                .unwrap_or_default();
             self.worker.send(Job::CreateSession {
                 wavset: d.data.origin.clone(),
                 dir,
@@ -1085,11 +1113,23 @@ pub fn style(ctx: &egui::Context, dark: bool) {
     ctx.all_styles_mut(|s| {
         use egui::{FontFamily, FontId, TextStyle};
         s.text_styles = [
-            (TextStyle::Heading, FontId::new(24.0, FontFamily::Proportional)),
+            (
+                TextStyle::Heading,
+                FontId::new(24.0, FontFamily::Proportional),
+            ),
             (TextStyle::Body, FontId::new(16.0, FontFamily::Proportional)),
-            (TextStyle::Button, FontId::new(16.0, FontFamily::Proportional)),
-            (TextStyle::Monospace, FontId::new(15.0, FontFamily::Monospace)),
-            (TextStyle::Small, FontId::new(13.0, FontFamily::Proportional)),
+            (
+                TextStyle::Button,
+                FontId::new(16.0, FontFamily::Proportional),
+            ),
+            (
+                TextStyle::Monospace,
+                FontId::new(15.0, FontFamily::Monospace),
+            ),
+            (
+                TextStyle::Small,
+                FontId::new(13.0, FontFamily::Proportional),
+            ),
         ]
         .into();
         s.spacing.item_spacing = egui::vec2(10.0, 6.0);

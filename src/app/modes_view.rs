@@ -62,44 +62,55 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         return;
     }
     let sel = app.selected_mode.min(m.modes.len() - 1);
-    egui::Panel::left("mode-table").default_size(440.0).show(ui, |ui| {
-        ui.heading("Modes");
-        egui::Grid::new("modes-grid").striped(true).num_columns(6).show(ui, |ui| {
-            for h in ["#", "f (Hz)", "ζ (%)", "damping from", "MPC", "method"] {
-                ui.label(RichText::new(h).strong());
-            }
-            ui.end_row();
-            for (k, md) in m.modes.iter().enumerate() {
-                let r = ui.add(egui::Button::selectable(k == sel, format!("{}", k + 1)));
-                if r.clicked() {
-                    cmds.push(Command::SelectMode(k));
+    egui::Panel::left("mode-table")
+        .default_size(440.0)
+        .show(ui, |ui| {
+            ui.heading("Modes");
+            egui::Grid::new("modes-grid")
+                .striped(true)
+                .num_columns(6)
+                .show(ui, |ui| {
+                    for h in ["#", "f (Hz)", "ζ (%)", "damping from", "MPC", "method"] {
+                        ui.label(RichText::new(h).strong());
+                    }
+                    ui.end_row();
+                    for (k, md) in m.modes.iter().enumerate() {
+                        let r = ui.add(egui::Button::selectable(k == sel, format!("{}", k + 1)));
+                        if r.clicked() {
+                            cmds.push(Command::SelectMode(k));
+                        }
+                        ui.label(format!("{:.2}", md.frequency_hz));
+                        ui.label(
+                            md.damping_ratio
+                                .map_or("—".into(), |z| format!("{:.3}", z * 100.0)),
+                        );
+                        ui.label(damping_word(md.damping_source));
+                        let mpc_color = if md.mpc >= 0.9 { GOOD } else { WARN };
+                        ui.label(RichText::new(format!("{:.3}", md.mpc)).color(mpc_color));
+                        ui.label(method_word(md.method))
+                            .on_hover_text(md.notes.join("\n"));
+                        ui.end_row();
+                    }
+                });
+            ui.separator();
+            ui.horizontal(|ui| {
+                let label = if app.playing { "Pause" } else { "Play" };
+                if ui.button(label).clicked() {
+                    cmds.push(Command::TogglePlay);
                 }
-                ui.label(format!("{:.2}", md.frequency_hz));
-                ui.label(md.damping_ratio.map_or("—".into(), |z| format!("{:.3}", z * 100.0)));
-                ui.label(damping_word(md.damping_source));
-                let mpc_color = if md.mpc >= 0.9 { GOOD } else { WARN };
-                ui.label(RichText::new(format!("{:.3}", md.mpc)).color(mpc_color));
-                ui.label(method_word(md.method)).on_hover_text(md.notes.join("\n"));
-                ui.end_row();
+                ui.label("(Space)");
+            });
+            ui.add(egui::Slider::new(&mut app.settings.amplitude, 0.1..=1.5).text("amplitude"));
+            ui.add(
+                egui::Slider::new(&mut app.settings.speed_hz, 0.1..=3.0).text("cycles per second"),
+            );
+            for w in &m.warnings {
+                ui.label(RichText::new(w).color(WARN).small());
             }
+            ui.separator();
+            ui.label(RichText::new("Auto-MAC").strong());
+            mac_heat_map(ui, &m.auto_mac, sel);
         });
-        ui.separator();
-        ui.horizontal(|ui| {
-            let label = if app.playing { "Pause" } else { "Play" };
-            if ui.button(label).clicked() {
-                cmds.push(Command::TogglePlay);
-            }
-            ui.label("(Space)");
-        });
-        ui.add(egui::Slider::new(&mut app.settings.amplitude, 0.1..=1.5).text("amplitude"));
-        ui.add(egui::Slider::new(&mut app.settings.speed_hz, 0.1..=3.0).text("cycles per second"));
-        for w in &m.warnings {
-            ui.label(RichText::new(w).color(WARN).small());
-        }
-        ui.separator();
-        ui.label(RichText::new("Auto-MAC").strong());
-        mac_heat_map(ui, &m.auto_mac, sel);
-    });
     let md = &m.modes[sel];
     egui::CentralPanel::default().show(ui, |ui| {
         let h_shape = (ui.available_height() * 0.55).max(200.0);
@@ -120,7 +131,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 .selected_text(format!("station {st}"))
                 .show_ui(ui, |ui| {
                     for &s in stations {
-                        if ui.selectable_label(s == st, format!("station {s}")).clicked() {
+                        if ui
+                            .selectable_label(s == st, format!("station {s}"))
+                            .clicked()
+                        {
                             app.synth_station = Some(s);
                         }
                     }
@@ -130,24 +144,47 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         let columns = ui.available_width() as usize;
         let id = egui::Id::unique("synth-plot");
         let bounds = plots::last_bounds(ui.ctx(), id);
-        let axis = plots::FreqAxis { log: app.settings.log_frequency };
+        let axis = plots::FreqAxis {
+            log: app.settings.log_frequency,
+        };
         let i_set = frfs.stations.iter().position(|&s| s == st);
         let i_m = stations.iter().position(|&s| s == st);
         let mut lines = Vec::new();
         if app.settings.overlay_all {
             for (n, h) in frfs.h.iter().enumerate() {
-                let pts = app.plot_scratch.reduced(&frfs.freq_hz, |k| plots::db(h[k].norm()), axis, bounds, columns);
-                lines.push((format!("station {}", frfs.stations[n]), pts, plots::trace_color(n).gamma_multiply(0.5)));
+                let pts = app.plot_scratch.reduced(
+                    &frfs.freq_hz,
+                    |k| plots::db(h[k].norm()),
+                    axis,
+                    bounds,
+                    columns,
+                );
+                lines.push((
+                    format!("station {}", frfs.stations[n]),
+                    pts,
+                    plots::trace_color(n).gamma_multiply(0.5),
+                ));
             }
         }
         if let Some(i) = i_set {
             let h = &frfs.h[i];
-            let pts = app.plot_scratch.reduced(&frfs.freq_hz, |k| plots::db(h[k].norm()), axis, bounds, columns);
+            let pts = app.plot_scratch.reduced(
+                &frfs.freq_hz,
+                |k| plots::db(h[k].norm()),
+                axis,
+                bounds,
+                columns,
+            );
             lines.push((format!("measured, station {st}"), pts, ACCENT));
         }
-        if let Some(syn) = i_m.and_then(|i| m.synthesized.get(i)).filter(|s| !s.is_empty()) {
+        if let Some(syn) = i_m
+            .and_then(|i| m.synthesized.get(i))
+            .filter(|s| !s.is_empty())
+        {
             let f = &m.indicators.freq_hz;
-            let pts = app.plot_scratch.reduced(f, |k| plots::db(syn[k].norm()), axis, bounds, columns);
+            let pts =
+                app.plot_scratch
+                    .reduced(f, |k| plots::db(syn[k].norm()), axis, bounds, columns);
             lines.push((format!("synthesized, station {st}"), pts, BAD));
         }
         let unit = match frfs.layout {
@@ -184,12 +221,20 @@ fn shape_plot(
     let th = app.phase_rad;
     let (c, s) = (th.cos(), th.sin());
     // Re(φ e^{iθ}): a real mode stands, a complex one travels.
-    let y: Vec<f64> = md.shape.iter().map(|p| amp * (p.re * c - p.im * s)).collect();
+    let y: Vec<f64> = md
+        .shape
+        .iter()
+        .map(|p| amp * (p.re * c - p.im * s))
+        .collect();
     let real: Vec<f64> = md.shape.iter().map(|p| p.re).collect();
     let x0 = positions.first().copied().unwrap_or(0.0).min(0.0);
     let x1 = positions.last().copied().unwrap_or(1.0);
     let deformed: Vec<[f64; 2]> = positions.iter().zip(&y).map(|(x, v)| [*x, *v]).collect();
-    let envelope_hi: Vec<[f64; 2]> = positions.iter().zip(&md.shape).map(|(x, p)| [*x, amp * p.norm()]).collect();
+    let envelope_hi: Vec<[f64; 2]> = positions
+        .iter()
+        .zip(&md.shape)
+        .map(|(x, p)| [*x, amp * p.norm()])
+        .collect();
     let envelope_lo: Vec<[f64; 2]> = envelope_hi.iter().map(|p| [p[0], -p[1]]).collect();
     let node_x = nodes(positions, &real);
     let complex = md.mpc < 0.95;
@@ -198,9 +243,14 @@ fn shape_plot(
             "Mode {} — {:.2} Hz, ζ = {}, MPC {:.3}{}",
             sel + 1,
             md.frequency_hz,
-            md.damping_ratio.map_or("—".into(), |z| format!("{:.3} %", z * 100.0)),
+            md.damping_ratio
+                .map_or("—".into(), |z| format!("{:.3} %", z * 100.0)),
             md.mpc,
-            if complex { " (complex: stations move out of phase)" } else { "" }
+            if complex {
+                " (complex: stations move out of phase)"
+            } else {
+                ""
+            }
         ))
         .size(18.0),
     );
@@ -218,16 +268,40 @@ fn shape_plot(
         .x_axis_label("position along the part (m)")
         .y_axis_label("shape (largest = 1, reference +)")
         .show(ui, |p| {
-            p.line(Line::new("undeformed", vec![[x0, 0.0], [x1, 0.0]]).color(IDLE).width(6.0));
-            p.line(Line::new("envelope", envelope_hi).color(IDLE).style(LineStyle::dotted_dense()));
-            p.line(Line::new("envelope", envelope_lo).color(IDLE).style(LineStyle::dotted_dense()));
-            p.line(Line::new("deformed", deformed.clone()).color(ACCENT).width(3.0));
-            p.points(Points::new("stations", deformed.clone()).radius(5.0).color(ACCENT).filled(true));
+            p.line(
+                Line::new("undeformed", vec![[x0, 0.0], [x1, 0.0]])
+                    .color(IDLE)
+                    .width(6.0),
+            );
+            p.line(
+                Line::new("envelope", envelope_hi)
+                    .color(IDLE)
+                    .style(LineStyle::dotted_dense()),
+            );
+            p.line(
+                Line::new("envelope", envelope_lo)
+                    .color(IDLE)
+                    .style(LineStyle::dotted_dense()),
+            );
+            p.line(
+                Line::new("deformed", deformed.clone())
+                    .color(ACCENT)
+                    .width(3.0),
+            );
             p.points(
-                Points::new("nodes", node_x.iter().map(|x| [*x, 0.0]).collect::<Vec<_>>())
-                    .shape(MarkerShape::Cross)
-                    .radius(9.0)
-                    .color(BAD),
+                Points::new("stations", deformed.clone())
+                    .radius(5.0)
+                    .color(ACCENT)
+                    .filled(true),
+            );
+            p.points(
+                Points::new(
+                    "nodes",
+                    node_x.iter().map(|x| [*x, 0.0]).collect::<Vec<_>>(),
+                )
+                .shape(MarkerShape::Cross)
+                .radius(9.0)
+                .color(BAD),
             );
             for ((st, pt), ph) in stations.iter().zip(&deformed).zip(&md.shape) {
                 let mut label = format!("{st}: {:+.2}", ph.re);
@@ -249,7 +323,10 @@ fn mac_heat_map(ui: &mut egui::Ui, mac: &[Vec<f64>], sel: usize) {
         return;
     }
     let cell = ((ui.available_width() - 30.0) / n as f32).clamp(18.0, 48.0);
-    let (r, painter) = ui.allocate_painter(vec2(30.0 + cell * n as f32, 24.0 + cell * n as f32), Sense::hover());
+    let (r, painter) = ui.allocate_painter(
+        vec2(30.0 + cell * n as f32, 24.0 + cell * n as f32),
+        Sense::hover(),
+    );
     let o = r.rect.min + vec2(30.0, 24.0);
     let lo = Color32::from_rgb(30, 40, 70);
     let hi = Color32::from_rgb(240, 200, 80);
@@ -272,14 +349,32 @@ fn mac_heat_map(ui: &mut egui::Ui, mac: &[Vec<f64>], sel: usize) {
         for j in 0..n {
             let v = mac[i].get(j).copied().unwrap_or(0.0).clamp(0.0, 1.0) as f32;
             let c = lerp(lo, hi, v);
-            let rect = egui::Rect::from_min_size(o + vec2(j as f32 * cell, i as f32 * cell), vec2(cell, cell));
+            let rect = egui::Rect::from_min_size(
+                o + vec2(j as f32 * cell, i as f32 * cell),
+                vec2(cell, cell),
+            );
             painter.rect_filled(rect.shrink(1.0), 2.0, c);
             if i == sel || j == sel {
-                painter.rect_stroke(rect.shrink(1.0), 2.0, Stroke::new(1.0, ACCENT), egui::StrokeKind::Inside);
+                painter.rect_stroke(
+                    rect.shrink(1.0),
+                    2.0,
+                    Stroke::new(1.0, ACCENT),
+                    egui::StrokeKind::Inside,
+                );
             }
             if cell >= 30.0 {
-                let tc = if v > 0.5 { Color32::BLACK } else { Color32::WHITE };
-                painter.text(rect.center(), Align2::CENTER_CENTER, format!("{v:.2}"), FontId::proportional(11.0), tc);
+                let tc = if v > 0.5 {
+                    Color32::BLACK
+                } else {
+                    Color32::WHITE
+                };
+                painter.text(
+                    rect.center(),
+                    Align2::CENTER_CENTER,
+                    format!("{v:.2}"),
+                    FontId::proportional(11.0),
+                    tc,
+                );
             }
         }
     }

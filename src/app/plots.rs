@@ -40,7 +40,11 @@ pub struct FreqAxis {
 impl FreqAxis {
     /// Plotted abscissa of a frequency.
     pub fn x(self, f_hz: f64) -> f64 {
-        if self.log { f_hz.max(1e-3).log10() } else { f_hz }
+        if self.log {
+            f_hz.max(1e-3).log10()
+        } else {
+            f_hz
+        }
     }
 
     /// Frequency of a plotted abscissa.
@@ -68,7 +72,11 @@ impl FreqAxis {
     /// Applies the axis to a plot (log grid and labels when logarithmic).
     pub fn configure<'a>(self, plot: egui_plot::Plot<'a>) -> egui_plot::Plot<'a> {
         let plot = plot
-            .x_axis_label(self.label())
+            .x_axis_label(if self.log {
+                "frequency (Hz, log scale)"
+            } else {
+                self.label()
+            })
             .x_axis_formatter(move |m, _| self.tick(m));
         if self.log {
             plot.x_grid_spacer(egui_plot::log_grid_spacer(10))
@@ -103,7 +111,12 @@ impl Scratch {
             ],
         };
         reduce::min_max(xs, ys, range, columns.max(16), &mut self.buf);
-        PlotPoints::Owned(self.buf.iter().map(|p| PlotPoint::new(p[0], p[1])).collect())
+        PlotPoints::Owned(
+            self.buf
+                .iter()
+                .map(|p| PlotPoint::new(p[0], p[1]))
+                .collect(),
+        )
     }
 
     /// A time trace reduced to pixel columns.
@@ -122,7 +135,12 @@ impl Scratch {
             ],
         };
         reduce::min_max(t, y, range, columns.max(16), &mut self.buf);
-        PlotPoints::Owned(self.buf.iter().map(|p| PlotPoint::new(p[0], p[1])).collect())
+        PlotPoints::Owned(
+            self.buf
+                .iter()
+                .map(|p| PlotPoint::new(p[0], p[1]))
+                .collect(),
+        )
     }
 }
 

@@ -5,13 +5,7 @@
 /// Points of `y(x)` (x ascending) inside `[x0, x1]`, reduced to at most two per column of
 /// `columns` equal columns: the minimum and the maximum in their order of occurrence. One point
 /// either side of the range is kept so the line reaches the plot's edges.
-pub fn min_max(
-    x: &[f64],
-    y: &[f64],
-    [x0, x1]: [f64; 2],
-    columns: usize,
-    out: &mut Vec<[f64; 2]>,
-) {
+pub fn min_max(x: &[f64], y: &[f64], [x0, x1]: [f64; 2], columns: usize, out: &mut Vec<[f64; 2]>) {
     out.clear();
     let n = x.len().min(y.len());
     if n == 0 || columns == 0 || !(x1 > x0) {

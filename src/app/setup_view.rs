@@ -7,13 +7,25 @@ use super::plots::{BAD, WARN};
 use super::{Command, TapgridApp};
 use crate::setup::{AcCoupling, Estimator, Layout, Setup, Slope, TriggerLevel};
 
-fn optional(ui: &mut egui::Ui, v: &mut Option<f64>, auto_text: &str, default: f64, suffix: &str, speed: f64) {
+fn optional(
+    ui: &mut egui::Ui,
+    v: &mut Option<f64>,
+    auto_text: &str,
+    default: f64,
+    suffix: &str,
+    speed: f64,
+) {
     let mut auto = v.is_none();
     if ui.checkbox(&mut auto, auto_text).changed() {
         *v = if auto { None } else { Some(default) };
     }
     if let Some(x) = v {
-        ui.add(DragValue::new(x).speed(speed).range(0.0..=f64::MAX).suffix(suffix));
+        ui.add(
+            DragValue::new(x)
+                .speed(speed)
+                .range(0.0..=f64::MAX)
+                .suffix(suffix),
+        );
     }
 }
 
@@ -145,7 +157,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                     }
                     ui.end_row();
                     ui.label("record length");
-                    ui.horizontal(|ui| optional(ui, &mut s.trigger.record_length_s, "auto (2ⁿ ≥ 1 s)", 1.0, " s", 0.01));
+                    ui.horizontal(|ui| optional(ui, &mut s.trigger.record_length_s, "auto (power of 2, ≥ 1 s)", 1.0, " s", 0.01));
                     ui.end_row();
                     ui.label("hold-off");
                     ui.horizontal(|ui| optional(ui, &mut s.trigger.holdoff_s, "auto (rest of record)", 0.5, " s", 0.01));

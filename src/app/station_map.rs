@@ -52,7 +52,10 @@ pub fn state_of(doc: &Document, station: u32) -> (StationState, String) {
         } else {
             "no recording yet"
         };
-        return (StationState::NotMeasured, format!("Station {station}: {why}"));
+        return (
+            StationState::NotMeasured,
+            format!("Station {station}: {why}"),
+        );
     };
     let hits = &sa.result.hits;
     let accepted = hits.iter().filter(|h| h.accepted).count();
@@ -118,12 +121,13 @@ pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
     let (rect, _) = ui.allocate_exact_size(vec2(width, height), Sense::hover());
     let painter = ui.painter_at(rect);
     let visuals = ui.visuals().clone();
-    let (x_min, x_max) = stations.iter().fold((0.0f64, 0.0f64), |(lo, hi), s| {
-        (lo.min(s.1), hi.max(s.1))
-    });
+    let (x_min, x_max) = stations
+        .iter()
+        .fold((0.0f64, 0.0f64), |(lo, hi), s| (lo.min(s.1), hi.max(s.1)));
     let length = (x_max - x_min).max(1e-3);
-    let margin = 40.0;
-    let to_x = |p: f64| rect.left() + margin + ((p - x_min) / length) as f32 * (width - 2.0 * margin);
+    let margin = 64.0;
+    let to_x =
+        |p: f64| rect.left() + margin + ((p - x_min) / length) as f32 * (width - 2.0 * margin);
     let spacing_px = if stations.len() > 1 {
         (width - 2.0 * margin) / (stations.len() - 1) as f32
     } else {
@@ -149,16 +153,30 @@ pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
     for &(st, pos) in &stations {
         let x = to_x(pos);
         let (state, hover) = state_of(doc, st);
-        let c = Rect::from_center_size(pos2(x, shaft_y - shaft_h / 2.0 - 8.0 - cell / 2.0), vec2(cell, cell));
+        let c = Rect::from_center_size(
+            pos2(x, shaft_y - shaft_h / 2.0 - 8.0 - cell / 2.0),
+            vec2(cell, cell),
+        );
         painter.line_segment(
             [pos2(x, c.bottom()), pos2(x, shaft_y - shaft_h / 2.0)],
             Stroke::new(1.5, state.color()),
         );
         painter.rect_filled(c, 4.0, state.color());
         if current == Some(st) {
-            painter.rect_stroke(c.expand(3.0), 5.0, Stroke::new(3.0, ACCENT), egui::StrokeKind::Outside);
+            painter.rect_stroke(
+                c.expand(3.0),
+                5.0,
+                Stroke::new(3.0, ACCENT),
+                egui::StrokeKind::Outside,
+            );
         }
-        painter.text(c.center(), Align2::CENTER_CENTER, st.to_string(), small.clone(), Color32::BLACK);
+        painter.text(
+            c.center(),
+            Align2::CENTER_CENTER,
+            st.to_string(),
+            small.clone(),
+            Color32::BLACK,
+        );
         if Some(st) == reference {
             painter.text(
                 pos2(x, shaft_y + shaft_h / 2.0 + 4.0),
@@ -170,24 +188,26 @@ pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
         }
         let id = ui.scope_id().with(("station-cell", st));
         let r = ui.interact(c, id, Sense::click());
-        r.widget_info(|| egui::WidgetInfo::labeled(egui::Role::Button, true, format!("Station {st}")));
+        r.widget_info(|| {
+            egui::WidgetInfo::labeled(egui::Role::Button, true, format!("Station {st}"))
+        });
         if r.clicked() {
             clicked = Some(st);
         }
         r.on_hover_text(hover);
     }
-    // Length scale along the bottom.
-    let y = rect.bottom() - 4.0;
+    // Length scale at the ends of the part.
+    let y = shaft_y;
     painter.text(
-        pos2(to_x(x_min), y),
-        Align2::LEFT_BOTTOM,
+        pos2(to_x(x_min) - 10.0, y),
+        Align2::RIGHT_CENTER,
         format!("{x_min:.2} m"),
         FontId::proportional(12.0),
         text,
     );
     painter.text(
-        pos2(to_x(x_max), y),
-        Align2::RIGHT_BOTTOM,
+        pos2(to_x(x_max) + 10.0, y),
+        Align2::LEFT_CENTER,
         format!("{x_max:.2} m"),
         FontId::proportional(12.0),
         text,
@@ -238,7 +258,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     };
     let (state, hover) = state_of(doc, st);
     ui.group(|ui| {
-        ui.label(egui::RichText::new(format!("Station {st}: {}", state.word())).size(20.0).color(state.color()));
+        ui.label(
+            egui::RichText::new(format!("Station {st}: {}", state.word()))
+                .size(20.0)
+                .color(state.color()),
+        );
         for line in hover.lines().skip(1) {
             ui.label(line.trim());
         }

@@ -163,7 +163,9 @@ impl FrfSet {
         let k0 = self.freq_hz.partition_point(|&f| f < lo);
         let k1 = self.freq_hz.partition_point(|&f| f <= hi);
         if k1 <= k0 + 1 {
-            return Err(format!("the fit band {lo:.1}:{hi:.1} Hz holds fewer than two lines"));
+            return Err(format!(
+                "the fit band {lo:.1}:{hi:.1} Hz holds fewer than two lines"
+            ));
         }
         let cut = |v: &Vec<f64>| v[k0..k1].to_vec();
         Ok(Self {

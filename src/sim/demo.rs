@@ -25,7 +25,11 @@ pub fn demo_session(fallback_root: &Path) -> Result<PathBuf, InputError> {
         std::env::current_dir().ok().map(|d| d.join(&rel)),
         Some(Path::new(env!("CARGO_MANIFEST_DIR")).join(&rel)),
     ];
-    if let Some(p) = bundled.into_iter().flatten().find(|p| Session::is_session(p)) {
+    if let Some(p) = bundled
+        .into_iter()
+        .flatten()
+        .find(|p| Session::is_session(p))
+    {
         return Ok(p);
     }
     let dir = fallback_root.join(DEMO_NAME);
@@ -75,13 +79,27 @@ mod tests {
         let dir = tmp.join(DEMO_NAME);
         make_demo(&dir).expect("demo is made");
         let made = Session::open(&dir).expect("made demo opens");
-        let bundled_dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-sessions").join(DEMO_NAME);
+        let bundled_dir = Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("sample-sessions")
+            .join(DEMO_NAME);
         let bundled = Session::open(&bundled_dir).expect("bundled demo opens");
-        assert_eq!(made.manifest.recordings.len(), bundled.manifest.recordings.len());
-        for (a, b) in made.manifest.recordings.iter().zip(&bundled.manifest.recordings) {
+        assert_eq!(
+            made.manifest.recordings.len(),
+            bundled.manifest.recordings.len()
+        );
+        for (a, b) in made
+            .manifest
+            .recordings
+            .iter()
+            .zip(&bundled.manifest.recordings)
+        {
             let ra = std::fs::read(dir.join(&a.file)).expect("made raw");
             let rb = std::fs::read(bundled_dir.join(&b.file)).expect("bundled raw");
-            assert!(ra == rb, "station {} differs from the bundled recording", a.station);
+            assert!(
+                ra == rb,
+                "station {} differs from the bundled recording",
+                a.station
+            );
         }
         assert_eq!(made.manifest.hits, bundled.manifest.hits);
         let _ = std::fs::remove_dir_all(&tmp);
