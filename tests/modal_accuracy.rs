@@ -511,3 +511,35 @@ fn carried_over_ringing_of_very_light_damping_is_removed() {
     let spurious = check_modes(&truth, &m, band, 0.995, true);
     assert!(spurious <= 1);
 }
+
+/// Forty stations at 16 bits analysed with the default setup (no sensitivities, automatic band
+/// 10 Hz … 5 kHz): exactly the simulated modes inside the band are reported, no spurious one.
+/// Truth: the simulator's own modal model (truth.json).
+#[test]
+fn forty_stations_default_setup_reports_only_real_modes() {
+    let mut sc = Scenario::pump_shaft();
+    let l = sc.shaft.length_m();
+    sc.stations_m = (0..40).map(|i| l * i as f64 / 39.0).collect();
+    let dir = tempfile::tempdir().unwrap();
+    let truth = sc.write(dir.path()).unwrap();
+    let set = WavSet::scan(dir.path(), 0.1).unwrap();
+    let a = analysis::run(&Dataset::from_wavset(&set), &Setup::default()).unwrap();
+    let fs = FrfSet::from_analysis(&a).unwrap();
+    let m = extract(&fs, &ModalSettings::default()).unwrap();
+    let [lo, hi] = [fs.freq_hz[0], *fs.freq_hz.last().unwrap()];
+    let expected: Vec<f64> = truth
+        .modes
+        .iter()
+        .map(|t| t.frequency_hz)
+        .filter(|&f| f > lo + 50.0 && f < hi - 50.0)
+        .collect();
+    let got: Vec<f64> = m.modes.iter().map(|x| x.frequency_hz).collect();
+    assert_eq!(
+        got.len(),
+        expected.len(),
+        "got {got:?}, expected {expected:?}"
+    );
+    for (g, e) in got.iter().zip(&expected) {
+        assert!((g / e - 1.0).abs() < 1e-3, "{g} vs {e}");
+    }
+}

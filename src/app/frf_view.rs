@@ -8,6 +8,9 @@ use super::plots::{self, ACCENT, FreqAxis, WARN};
 use super::{TapgridApp, station_map};
 use crate::setup::Layout;
 
+/// A plot of the review: its name, the plot, the plotted value of trace i at line k.
+type Pane<'a> = (&'static str, Plot<'a>, &'a dyn Fn(usize, usize) -> f64);
+
 /// Draws the view.
 pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     station_map::strip(ui, app, 96.0);
@@ -68,7 +71,6 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         }
         let n_plots = if app.settings.show_phase { 4.0 } else { 3.0 };
         let h_each = ((ui.available_height() - 10.0 * n_plots) / n_plots).max(110.0);
-        let columns = ui.available_width() as usize;
         let link = egui::Id::unique("frf-x");
         let f = &frfs.freq_hz;
         let readout = move |name: &str, x: f64, y: f64, yunit: &str| {
@@ -103,107 +105,84 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 }
             }
         };
-        // Magnitude
-        let id = egui::Id::unique("frf-mag");
-        let bounds = plots::last_bounds(ui.ctx(), id);
-        let mut lines = Vec::with_capacity(shown.len());
-        for (n, &i) in shown.iter().enumerate() {
-            let h = &frfs.h[i];
-            let pts =
-                app.plot_scratch
-                    .reduced(f, |k| plots::db(h[k].norm()), axis, bounds, columns);
-            lines.push((n, i, pts));
-        }
-        let r = axis
-            .configure(Plot::new(id))
-            .height(h_each)
-            .link_axis(link, [true, false])
-            .link_cursor(link, [true, false])
-            .y_axis_label(format!("{quantity} ({unit})"))
-            .y_axis_min_width(56.0)
-            .label_formatter(label(unit))
-            .show(ui, |p| {
-                for (n, i, pts) in lines {
-                    let c = if current == Some(frfs.stations[i]) {
-                        ACCENT
-                    } else {
-                        plots::trace_color(n)
-                    };
-                    p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
-                }
-                mode_lines(p);
-            });
-        let b = *r.transform.bounds();
-        plots::keep_bounds(ui.ctx(), id, b);
-        // Phase
+        let traces: Vec<(usize, String, egui::Color32)> = shown
+            .iter()
+            .enumerate()
+            .map(|(n, &i)| {
+                let c = if current == Some(frfs.stations[i]) {
+                    ACCENT
+                } else {
+                    plots::trace_color(n)
+                };
+                (i, format!("station {}", frfs.stations[i]), c)
+            })
+            .collect();
+        let highlight = frfs.stations.iter().position(|&s| Some(s) == current);
+        let base = (
+            app.analysis_stamp,
+            std::sync::Arc::as_ptr(&frfs) as usize,
+            shown.clone(),
+            axis.log,
+        );
+        let h = &frfs.h;
+        let coh = &frfs.coherence;
+        let mag = |i: usize, k: usize| plots::db(h[i][k].norm());
+        let phase = |i: usize, k: usize| h[i][k].arg().to_degrees();
+        let coherence = |i: usize, k: usize| coh[i][k];
+        let mut panes: Vec<Pane<'_>> = vec![(
+            "frf-mag",
+            axis.configure(Plot::new("frf-mag"))
+                .y_axis_label(format!("{quantity} ({unit})"))
+                .label_formatter(label(unit)),
+            &mag,
+        )];
         if app.settings.show_phase {
-            let id = egui::Id::unique("frf-phase");
-            let mut lines = Vec::with_capacity(shown.len());
-            for (n, &i) in shown.iter().enumerate() {
-                let h = &frfs.h[i];
-                let pts = app.plot_scratch.reduced(
-                    f,
-                    |k| h[k].arg().to_degrees(),
-                    axis,
-                    Some(b),
-                    columns,
-                );
-                lines.push((n, i, pts));
-            }
-            axis.configure(Plot::new(id))
+            panes.push((
+                "frf-phase",
+                axis.configure(Plot::new("frf-phase"))
+                    .include_y(-180.0)
+                    .include_y(180.0)
+                    .y_axis_label("phase (degrees)")
+                    .label_formatter(label("°")),
+                &phase,
+            ));
+        }
+        panes.push((
+            "frf-coh",
+            axis.configure(Plot::new("frf-coh"))
+                .include_y(0.0)
+                .include_y(1.05)
+                .y_axis_label("coherence γ² (0…1)")
+                .label_formatter(label("")),
+            &coherence,
+        ));
+        for (name, plot, value) in panes {
+            let plot = plot
                 .height(h_each)
-                .link_axis(link, [true, false])
-                .link_cursor(link, [true, false])
-                .include_y(-180.0)
-                .include_y(180.0)
-                .y_axis_label("phase (degrees)")
                 .y_axis_min_width(56.0)
-                .label_formatter(label("°"))
-                .show(ui, |p| {
-                    for (n, i, pts) in lines {
-                        let c = if current == Some(frfs.stations[i]) {
-                            ACCENT
-                        } else {
-                            plots::trace_color(n)
-                        };
-                        p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
-                    }
-                    mode_lines(p);
-                });
+                .link_axis(link, [true, false])
+                .link_cursor(link, [true, false]);
+            let cache = app.overlays.entry(name).or_default();
+            plots::overlaid(
+                ui,
+                plot,
+                egui::Id::unique(name),
+                &mut app.plot_scratch,
+                cache,
+                plots::stamp((&base, name)),
+                f,
+                axis,
+                &traces,
+                highlight,
+                value,
+                mode_lines,
+            );
         }
-        // Coherence
-        let id = egui::Id::unique("frf-coh");
-        let mut lines = Vec::with_capacity(shown.len());
-        for (n, &i) in shown.iter().enumerate() {
-            let c = &frfs.coherence[i];
-            let pts = app
-                .plot_scratch
-                .reduced(f, |k| c[k], axis, Some(b), columns);
-            lines.push((n, i, pts));
-        }
-        axis.configure(Plot::new(id))
-            .height(h_each)
-            .link_axis(link, [true, false])
-            .link_cursor(link, [true, false])
-            .include_y(0.0)
-            .include_y(1.05)
-            .y_axis_label("coherence γ² (0…1)")
-            .y_axis_min_width(56.0)
-            .label_formatter(label(""))
-            .show(ui, |p| {
-                for (n, i, pts) in lines {
-                    let c = if current == Some(frfs.stations[i]) {
-                        ACCENT
-                    } else {
-                        plots::trace_color(n)
-                    };
-                    p.line(Line::new(format!("station {}", frfs.stations[i]), pts).color(c));
-                }
-                mode_lines(p);
-            });
         // Mode indicator
         let id = egui::Id::unique("frf-mif");
-        let ind = crate::modal::indicators(&frfs);
+        let Some(ind) = app.doc.as_ref().and_then(|d| d.indicators.clone()) else {
+            return;
+        };
         let (name, yunit, vals): (&str, &str, Vec<f64>) = match layout {
             Layout::Hammer => (
                 "Σ|H| over stations",
@@ -219,9 +198,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                     .collect(),
             ),
         };
-        let pts = app
-            .plot_scratch
-            .reduced(f, |k| vals[k], axis, Some(b), columns);
+        let columns = ui.available_width() as usize;
+        let b = plots::last_bounds(ui.ctx(), egui::Id::unique("frf-mag"));
+        let pts = app.plot_scratch.reduced(f, |k| vals[k], axis, b, columns);
         axis.configure(Plot::new(id))
             .height(h_each)
             .link_axis(link, [true, false])

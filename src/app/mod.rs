@@ -9,7 +9,7 @@ mod frf_view;
 mod help;
 mod hits_view;
 mod modes_view;
-mod plots;
+pub mod plots;
 pub mod reduce;
 mod setup_view;
 mod station_map;
@@ -134,6 +134,8 @@ pub struct Document {
     pub analysis: Option<Arc<Analysis>>,
     /// Its FRFs.
     pub frfs: Option<Arc<FrfSet>>,
+    /// Mode indicators of those FRFs over the whole band.
+    pub indicators: Option<Arc<crate::modal::Indicators>>,
     /// Latest fit.
     pub modal: Option<Arc<ModalResult>>,
     /// Why the latest fit failed.
@@ -182,6 +184,7 @@ impl Document {
             modal_settings: ModalSettings::default(),
             analysis: None,
             frfs: None,
+            indicators: None,
             modal: None,
             modal_error: None,
             analysis_error: None,
@@ -333,13 +336,15 @@ pub struct TapgridApp {
     /// Cut hits of one station for the hit view.
     traces: Option<(u32, Arc<Vec<Option<HitTraces>>>)>,
     traces_requested: Option<(u32, u64)>,
-    analysis_stamp: u64,
+    /// Counts analyses received: a new value means new data for the caches.
+    pub(crate) analysis_stamp: u64,
     worker: Worker,
     commands: Vec<Command>,
     dialog: Option<PathDialog>,
     last_time: Option<f64>,
     fit_band_edit: Option<[f64; 2]>,
     plot_scratch: plots::Scratch,
+    overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
     ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
@@ -374,6 +379,7 @@ impl TapgridApp {
             last_time: None,
             fit_band_edit: None,
             plot_scratch: plots::Scratch::default(),
+            overlays: Default::default(),
             ctx_slot,
         };
         if let Some(p) = path {
@@ -399,6 +405,11 @@ impl TapgridApp {
     /// What the worker is busy with.
     pub fn busy(&self) -> Option<&'static str> {
         self.worker.busy()
+    }
+
+    /// How overlaid traces are drawn (the benchmark compares the modes).
+    pub fn set_plot_mode(&mut self, mode: plots::PlotMode) {
+        self.plot_scratch.mode = mode;
     }
 
     /// True when nothing is queued: no command waiting and the worker idle.
@@ -747,6 +758,7 @@ impl TapgridApp {
                 generation,
                 analysis,
                 frfs,
+                indicators,
                 modal,
             } => {
                 if !self.worker.is_latest_analysis(generation) {
@@ -757,6 +769,7 @@ impl TapgridApp {
                 };
                 d.analysis = Some(analysis);
                 d.frfs = frfs;
+                d.indicators = indicators;
                 d.analysis_error = None;
                 d.picked = None;
                 match modal {
@@ -776,6 +789,7 @@ impl TapgridApp {
                 if !self.worker.is_latest_fit(generation) {
                     return;
                 }
+                self.analysis_stamp += 1;
                 let Some(d) = &mut self.doc else {
                     return;
                 };

@@ -149,59 +149,68 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         };
         let i_set = frfs.stations.iter().position(|&s| s == st);
         let i_m = stations.iter().position(|&s| s == st);
-        let mut lines = Vec::new();
+        let mut traces: Vec<(usize, String, egui::Color32)> = Vec::new();
         if app.settings.overlay_all {
-            for (n, h) in frfs.h.iter().enumerate() {
-                let pts = app.plot_scratch.reduced(
-                    &frfs.freq_hz,
-                    |k| plots::db(h[k].norm()),
-                    axis,
-                    bounds,
-                    columns,
-                );
-                lines.push((
-                    format!("station {}", frfs.stations[n]),
-                    pts,
-                    plots::trace_color(n).gamma_multiply(0.5),
-                ));
+            for n in 0..frfs.h.len() {
+                if Some(n) != i_set {
+                    let c = plots::trace_color(n).gamma_multiply(0.5);
+                    traces.push((n, format!("station {}", frfs.stations[n]), c));
+                }
             }
         }
         if let Some(i) = i_set {
-            let h = &frfs.h[i];
-            let pts = app.plot_scratch.reduced(
-                &frfs.freq_hz,
-                |k| plots::db(h[k].norm()),
-                axis,
-                bounds,
-                columns,
-            );
-            lines.push((format!("measured, station {st}"), pts, ACCENT));
+            traces.push((i, format!("measured, station {st}"), ACCENT));
         }
-        if let Some(syn) = i_m
+        let syn_pts = i_m
             .and_then(|i| m.synthesized.get(i))
             .filter(|s| !s.is_empty())
-        {
-            let f = &m.indicators.freq_hz;
-            let pts =
+            .map(|syn| {
+                let f = &m.indicators.freq_hz;
                 app.plot_scratch
-                    .reduced(f, |k| plots::db(syn[k].norm()), axis, bounds, columns);
-            lines.push((format!("synthesized, station {st}"), pts, BAD));
-        }
+                    .reduced(f, |k| plots::db(syn[k].norm()), axis, bounds, columns)
+            });
         let unit = match frfs.layout {
             crate::setup::Layout::Hammer => "accelerance (dB re 1 (m/s²)/N)",
             crate::setup::Layout::Sensor => "transmissibility (dB re 1)",
         };
-        let r = axis
+        let plot = axis
             .configure(Plot::new(id))
             .height(ui.available_height().max(120.0))
             .y_axis_label(unit)
-            .legend(egui_plot::Legend::default())
-            .show(ui, |p| {
-                for (name, pts, c) in lines {
-                    p.line(Line::new(name, pts).color(c));
+            .y_axis_min_width(56.0)
+            .legend(egui_plot::Legend::default());
+        let h = &frfs.h;
+        let mag = |i: usize, k: usize| plots::db(h[i][k].norm());
+        let shown: Vec<usize> = traces.iter().map(|t| t.0).collect();
+        let stamp = plots::stamp((
+            app.analysis_stamp,
+            std::sync::Arc::as_ptr(&frfs) as usize,
+            shown,
+            axis.log,
+        ));
+        let cache = app.overlays.entry("synth-plot").or_default();
+        plots::overlaid(
+            ui,
+            plot,
+            id,
+            &mut app.plot_scratch,
+            cache,
+            stamp,
+            &frfs.freq_hz,
+            axis,
+            &traces,
+            i_set,
+            &mag,
+            |p| {
+                if let Some(pts) = syn_pts {
+                    p.line(
+                        Line::new(format!("synthesized, station {st}"), pts)
+                            .color(BAD)
+                            .style(LineStyle::dashed_dense()),
+                    );
                 }
-            });
-        plots::keep_bounds(ui.ctx(), id, *r.transform.bounds());
+            },
+        );
     });
     for c in cmds {
         app.push(c);
@@ -317,6 +326,7 @@ fn shape_plot(
         });
 }
 
+#[allow(clippy::needless_range_loop)] // i and j index rows, columns and screen cells alike
 fn mac_heat_map(ui: &mut egui::Ui, mac: &[Vec<f64>], sel: usize) {
     let n = mac.len();
     if n == 0 {

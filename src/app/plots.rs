@@ -22,9 +22,24 @@ pub fn trace_color(i: usize) -> Color32 {
     egui::ecolor::Hsva::new(h, 0.6, 0.85, 1.0).into()
 }
 
+/// How overlaid traces reach the screen (the window uses [`PlotMode::Cached`]; the others are
+/// the benchmark's comparisons).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum PlotMode {
+    /// Overlays drawn into a cached image; the highlighted trace as a plot line.
+    #[default]
+    Cached,
+    /// Every trace a plot line, reduced to min/max pairs per pixel column.
+    Reduced,
+    /// Every trace a plot line with every sample.
+    Full,
+}
+
 /// Reusable buffers, so frames do not allocate per trace.
 #[derive(Default)]
 pub struct Scratch {
+    /// How overlays are drawn.
+    pub mode: PlotMode,
     buf: Vec<[f64; 2]>,
     xs: Vec<f64>,
     ys: Vec<f64>,
@@ -60,9 +75,7 @@ impl FreqAxis {
     /// Tick label for a grid mark.
     pub fn tick(self, m: GridMark) -> String {
         let f = self.f(m.value);
-        if f >= 1000.0 {
-            format!("{:.0}", f)
-        } else if f >= 10.0 {
+        if f >= 10.0 {
             format!("{:.0}", f)
         } else {
             format!("{:.1}", f)
@@ -110,7 +123,12 @@ impl Scratch {
                 xs.last().copied().unwrap_or(1.0),
             ],
         };
-        reduce::min_max(xs, ys, range, columns.max(16), &mut self.buf);
+        let columns = if self.mode == PlotMode::Full {
+            usize::MAX / 4
+        } else {
+            columns.max(16)
+        };
+        reduce::min_max(xs, ys, range, columns, &mut self.buf);
         PlotPoints::Owned(
             self.buf
                 .iter()
@@ -134,7 +152,12 @@ impl Scratch {
                 t.last().copied().unwrap_or(1.0),
             ],
         };
-        reduce::min_max(t, y, range, columns.max(16), &mut self.buf);
+        let columns = if self.mode == PlotMode::Full {
+            usize::MAX / 4
+        } else {
+            columns.max(16)
+        };
+        reduce::min_max(t, y, range, columns, &mut self.buf);
         PlotPoints::Owned(
             self.buf
                 .iter()
@@ -142,6 +165,91 @@ impl Scratch {
                 .collect(),
         )
     }
+}
+
+/// Draws a plot of several traces over common abscissae: the highlighted one (if any) as a
+/// plot line with hover, the others through `cache` (or as lines, per `scratch.mode`).
+/// `value(i, k)` is trace `i`'s plotted ordinate at line `k`; `extra` adds markers.
+#[allow(clippy::too_many_arguments)]
+pub fn overlaid(
+    ui: &mut egui::Ui,
+    plot: egui_plot::Plot<'_>,
+    id: egui::Id,
+    scratch: &mut Scratch,
+    cache: &mut OverlayCache,
+    stamp: u64,
+    freq_hz: &[f64],
+    axis: FreqAxis,
+    traces: &[(usize, String, Color32)],
+    highlight: Option<usize>,
+    value: &dyn Fn(usize, usize) -> f64,
+    extra: impl FnOnce(&mut egui_plot::PlotUi<'_>),
+) -> egui_plot::PlotTransform {
+    let bounds = last_bounds(ui.ctx(), id);
+    let columns = ui.available_width() as usize;
+    let nk = freq_hz.len();
+    let [y0, y1] = cache.extent(stamp, || {
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        for (i, _, _) in traces {
+            for k in 0..nk {
+                let v = value(*i, k);
+                if v.is_finite() {
+                    lo = lo.min(v);
+                    hi = hi.max(v);
+                }
+            }
+        }
+        if lo.is_finite() { [lo, hi] } else { [0.0, 1.0] }
+    });
+    let mut lines = Vec::new();
+    for (i, name, color) in traces {
+        let as_line = scratch.mode != PlotMode::Cached || Some(*i) == highlight;
+        if as_line {
+            let pts = scratch.reduced(freq_hz, |k| value(*i, k), axis, bounds, columns);
+            lines.push((name.clone(), pts, *color, Some(*i) == highlight));
+        }
+    }
+    let r = plot
+        .include_y(y0)
+        .include_y(y1)
+        .include_x(axis.x(freq_hz.first().copied().unwrap_or(1.0)))
+        .include_x(axis.x(freq_hz.last().copied().unwrap_or(2.0)))
+        .show(ui, |p| {
+            for (name, pts, c, hl) in lines {
+                p.line(
+                    egui_plot::Line::new(name, pts)
+                        .color(c)
+                        .width(if hl { 2.0 } else { 1.0 }),
+                );
+            }
+            extra(p);
+        });
+    keep_bounds(ui.ctx(), id, *r.transform.bounds());
+    if scratch.mode == PlotMode::Cached {
+        let xs: Vec<f64> = freq_hz.iter().map(|&f| axis.x(f)).collect();
+        let others: Vec<(usize, Color32)> = traces
+            .iter()
+            .filter(|t| Some(t.0) != highlight)
+            .map(|t| (t.0, t.2))
+            .collect();
+        if !others.is_empty() {
+            cache.paint(ui, &r.transform, stamp, &xs, || {
+                others
+                    .iter()
+                    .map(|&(i, c)| ((0..nk).map(|k| value(i, k)).collect(), c))
+                    .collect()
+            });
+        }
+    }
+    r.transform
+}
+
+/// A stamp for cached pictures from anything hashable.
+pub fn stamp(parts: impl std::hash::Hash) -> u64 {
+    use std::hash::Hasher;
+    let mut h = std::collections::hash_map::DefaultHasher::new();
+    parts.hash(&mut h);
+    h.finish()
 }
 
 /// dB of a magnitude, guarded against zero.
@@ -157,4 +265,181 @@ pub fn last_bounds(ctx: &egui::Context, id: egui::Id) -> Option<PlotBounds> {
 /// Remembers a plot's bounds for the next frame.
 pub fn keep_bounds(ctx: &egui::Context, id: egui::Id, b: PlotBounds) {
     ctx.data_mut(|d| d.insert_temp(id, b));
+}
+
+/// Many overlaid traces drawn once into a texture and shown as one image until the data, the
+/// plot's bounds or its size change. Tessellating 40 FRFs of thousands of lines every frame
+/// costs far more than the rest of the window; the picture only changes on pan, zoom or a new
+/// analysis.
+#[derive(Default)]
+pub struct OverlayCache {
+    extent: Option<(u64, [f64; 2])>,
+    key: Option<u64>,
+    texture: Option<egui::TextureHandle>,
+    buf: Vec<[f32; 4]>,
+    pts: Vec<[f64; 2]>,
+}
+
+/// One trace for an [`OverlayCache`]: ordinates in plot units and a colour.
+pub type Trace = (Vec<f64>, Color32);
+
+impl OverlayCache {
+    /// The y range of the data of `stamp`, computed once per stamp.
+    pub fn extent(&mut self, stamp: u64, compute: impl FnOnce() -> [f64; 2]) -> [f64; 2] {
+        match self.extent {
+            Some((s, e)) if s == stamp => e,
+            _ => {
+                let e = compute();
+                self.extent = Some((stamp, e));
+                e
+            }
+        }
+    }
+
+    /// Paints the traces `make` returns (abscissae `x` shared, ascending) over the plot whose
+    /// frame and bounds `transform` describes. `make` runs only when `stamp`, the bounds or the
+    /// size changed.
+    pub fn paint(
+        &mut self,
+        ui: &egui::Ui,
+        transform: &egui_plot::PlotTransform,
+        stamp: u64,
+        x: &[f64],
+        make: impl FnOnce() -> Vec<Trace>,
+    ) {
+        use std::hash::{Hash, Hasher};
+        let frame = *transform.frame();
+        let ppp = ui.ctx().pixels_per_point();
+        let (w, h) = (
+            (frame.width() * ppp).round().max(1.0) as usize,
+            (frame.height() * ppp).round().max(1.0) as usize,
+        );
+        let b = transform.bounds();
+        let mut hasher = std::collections::hash_map::DefaultHasher::new();
+        (stamp, w, h).hash(&mut hasher);
+        for v in [b.min()[0], b.min()[1], b.max()[0], b.max()[1]] {
+            v.to_bits().hash(&mut hasher);
+        }
+        let key = hasher.finish();
+        if self.key != Some(key) || self.texture.is_none() {
+            if std::env::var_os("TAPGRID_DEBUG_OVERLAY").is_some() {
+                eprintln!("overlay rebuild {w}x{h} bounds {:?} stamp {stamp}", b);
+            }
+            let traces = make();
+            self.rasterise(transform, w, h, ppp, x, &traces);
+            let image = egui::ColorImage::new(
+                [w, h],
+                self.buf
+                    .iter()
+                    .map(|p| {
+                        let c = |v: f32| (v.clamp(0.0, 1.0) * 255.0).round() as u8;
+                        Color32::from_rgba_premultiplied(c(p[0]), c(p[1]), c(p[2]), c(p[3]))
+                    })
+                    .collect(),
+            );
+            match &mut self.texture {
+                Some(t) => t.set(image, egui::TextureOptions::LINEAR),
+                None => {
+                    self.texture = Some(ui.ctx().load_texture(
+                        "tapgrid-overlay",
+                        image,
+                        egui::TextureOptions::LINEAR,
+                    ))
+                }
+            }
+            self.key = Some(key);
+        }
+        if let Some(t) = &self.texture {
+            ui.painter_at(frame).image(
+                t.id(),
+                frame,
+                egui::Rect::from_min_max(egui::pos2(0.0, 0.0), egui::pos2(1.0, 1.0)),
+                Color32::WHITE,
+            );
+        }
+    }
+
+    fn rasterise(
+        &mut self,
+        transform: &egui_plot::PlotTransform,
+        w: usize,
+        h: usize,
+        ppp: f32,
+        x: &[f64],
+        traces: &[Trace],
+    ) {
+        self.buf.clear();
+        self.buf.resize(w * h, [0.0; 4]);
+        let frame = *transform.frame();
+        let b = transform.bounds();
+        for (y, color) in traces {
+            // One min/max pair per pixel column keeps every peak and bounds the work.
+            reduce::min_max(x, y, [b.min()[0], b.max()[0]], w, &mut self.pts);
+            let [r, g, bl, a] = color.to_normalized_gamma_f32();
+            let un = |v: f32| if a > 0.0 { v / a } else { 0.0 };
+            let rgba = [un(r), un(g), un(bl), a];
+            let to_px = |p: [f64; 2]| {
+                let s = transform.position_from_point(&PlotPoint::new(p[0], p[1]));
+                ((s.x - frame.left()) * ppp, (s.y - frame.top()) * ppp)
+            };
+            for seg in self.pts.windows(2) {
+                let (a, c) = (to_px(seg[0]), to_px(seg[1]));
+                wu_line(&mut self.buf, w, h, a, c, rgba);
+            }
+        }
+    }
+}
+
+/// An anti-aliased line (Xiaolin Wu 1991) composited "over" into a premultiplied RGBA buffer.
+fn wu_line(buf: &mut [[f32; 4]], w: usize, h: usize, p0: (f32, f32), p1: (f32, f32), c: [f32; 4]) {
+    if !(p0.0.is_finite() && p0.1.is_finite() && p1.0.is_finite() && p1.1.is_finite()) {
+        return;
+    }
+    let steep = (p1.1 - p0.1).abs() > (p1.0 - p0.0).abs();
+    let (mut a, mut b) = if steep {
+        ((p0.1, p0.0), (p1.1, p1.0))
+    } else {
+        (p0, p1)
+    };
+    if a.0 > b.0 {
+        std::mem::swap(&mut a, &mut b);
+    }
+    let (major_len, minor_len) = if steep { (h, w) } else { (w, h) };
+    let dx = b.0 - a.0;
+    let grad = if dx.abs() < 1e-6 {
+        0.0
+    } else {
+        (b.1 - a.1) / dx
+    };
+    let x_start = a.0.round().max(0.0);
+    let x_end = b.0.round().min(major_len as f32 - 1.0);
+    if x_start > x_end {
+        return;
+    }
+    let mut y = a.1 + grad * (x_start - a.0);
+    let mut plot = |major: i64, minor: i64, cover: f32| {
+        if minor < 0 || minor >= minor_len as i64 || major < 0 || major >= major_len as i64 {
+            return;
+        }
+        let (px, py) = if steep {
+            (minor, major)
+        } else {
+            (major, minor)
+        };
+        let alpha = c[3] * cover;
+        let d = &mut buf[py as usize * w + px as usize];
+        for k in 0..3 {
+            d[k] = c[k] * alpha + d[k] * (1.0 - alpha);
+        }
+        d[3] = alpha + d[3] * (1.0 - alpha);
+    };
+    let mut x = x_start as i64;
+    while x as f32 <= x_end {
+        let yf = y.floor();
+        let fr = y - yf;
+        plot(x, yf as i64, 1.0 - fr);
+        plot(x, yf as i64 + 1, fr);
+        y += grad;
+        x += 1;
+    }
 }

@@ -8,7 +8,7 @@
 pub fn min_max(x: &[f64], y: &[f64], [x0, x1]: [f64; 2], columns: usize, out: &mut Vec<[f64; 2]>) {
     out.clear();
     let n = x.len().min(y.len());
-    if n == 0 || columns == 0 || !(x1 > x0) {
+    if n == 0 || columns == 0 || x1.partial_cmp(&x0) != Some(std::cmp::Ordering::Greater) {
         return;
     }
     let i0 = x[..n].partition_point(|&v| v < x0).saturating_sub(1);

@@ -93,6 +93,8 @@ pub enum Outcome {
         analysis: Arc<Analysis>,
         /// Its FRFs (`None` when no station has one).
         frfs: Option<Arc<FrfSet>>,
+        /// Mode indicators over the whole band.
+        indicators: Option<Arc<modal::Indicators>>,
         /// The fit.
         modal: Result<Arc<ModalResult>, String>,
     },
@@ -313,6 +315,7 @@ fn analyze(generation: u64, data: &Dataset, setup: &Setup, m: &ModalSettings) ->
     match analysis::run(data, setup) {
         Ok(a) => {
             let frfs = FrfSet::from_analysis(&a).map(Arc::new);
+            let indicators = frfs.as_ref().map(|f| Arc::new(modal::indicators(f)));
             let modal = match &frfs {
                 Some(f) => modal::extract(f, m).map(Arc::new),
                 None => Err("no station has an accepted hit".into()),
@@ -321,6 +324,7 @@ fn analyze(generation: u64, data: &Dataset, setup: &Setup, m: &ModalSettings) ->
                 generation,
                 analysis: Arc::new(a),
                 frfs,
+                indicators,
                 modal,
             }
         }

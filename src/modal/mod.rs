@@ -762,6 +762,41 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
             .push("no stable physical pole was found in the band".into());
     }
     fit_chosen(set, res, &stab, &w, &chosen, s.refine_poles)?;
+    if s.selection == Selection::Auto {
+        // A stable pole whose shape is far from real and whose resonance peak is many times
+        // broader than the pole says is not a mode of the part (noise or a leak between
+        // stations); automatic choice drops it and says so. A person's choice is kept as made.
+        let spurious: Vec<usize> = res
+            .modes
+            .iter()
+            .enumerate()
+            .filter(|(_, m)| {
+                let z = m.damping_ratio.unwrap_or(0.0);
+                m.mpc < 0.8 && m.damping_half_power.is_some_and(|hp| hp > 5.0 * z)
+            })
+            .map(|(i, _)| i)
+            .collect();
+        if !spurious.is_empty() {
+            for &i in &spurious {
+                let m = &res.modes[i];
+                res.warnings.push(format!(
+                    "a stable pole at {:.1} Hz was not reported as a mode: complex shape (MPC {:.2}) and a \
+                     resonance peak {:.0}× broader than the pole; pick it by hand if it is real",
+                    m.frequency_hz,
+                    m.mpc,
+                    m.damping_half_power.unwrap_or(0.0) / m.damping_ratio.unwrap_or(1.0).max(1e-12)
+                ));
+            }
+            let kept: Vec<(usize, usize)> = chosen
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| !spurious.contains(i))
+                .map(|(_, c)| *c)
+                .collect();
+            res.modes.clear();
+            fit_chosen(set, res, &stab, &w, &kept, s.refine_poles)?;
+        }
+    }
     res.stabilization = Some(stab);
     Ok(())
 }

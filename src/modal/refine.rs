@@ -107,7 +107,14 @@ fn refine_one(
     let start = [sigma.max(1e-6).ln(), lambda[r].im];
     let step = [0.3, 0.2 * sigma.max(0.05 * TAU)];
     let [ls, wd] = nelder_mead(objective, start, step, 40)?;
-    ((wd / lambda[r].im - 1.0).abs() < 0.01).then(|| Complex64::new(-ls.exp(), wd))
+    // A local fit that wanders (frequency off by more than 1 %, damping changed by more than a
+    // factor of 4, or no longer a resonance) found something else than this pole: keep the pole.
+    let s_new = ls.exp();
+    let plausible = (wd / lambda[r].im - 1.0).abs() < 0.01
+        && s_new < 4.0 * sigma.max(1e-9)
+        && s_new > 0.25 * sigma
+        && s_new < 0.5 * wd.abs();
+    plausible.then(|| Complex64::new(-s_new, wd))
 }
 
 /// A small Nelder–Mead simplex minimiser in two dimensions.
