@@ -5,6 +5,7 @@
 use std::path::Path;
 
 use assert_cmd::Command;
+use predicates::prelude::*;
 use tapgrid::acquire::wav::{SampleEncoding, write_channels};
 
 fn pulse_train(fs: u32, seconds: f64) -> (Vec<f64>, Vec<f64>) {
@@ -324,4 +325,33 @@ fn bad_options_and_sessions() {
     let s = case(&t, "notjson");
     std::fs::write(s.join("session.json"), "{").unwrap();
     fails(&s, &[], "session.json", "not valid JSON");
+}
+
+/// With no display the window cannot open: one clear line, exit 2, no panic.
+#[test]
+fn window_without_a_display_says_so() {
+    let home = tempfile::tempdir().unwrap();
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .env_remove("DISPLAY")
+        .env_remove("WAYLAND_DISPLAY")
+        .env("HOME", home.path())
+        .env("XDG_DATA_HOME", home.path().join("data"))
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("cannot open the window"))
+        .stderr(predicates::str::contains("panicked").not());
+}
+
+/// Opening something that is not a folder names it.
+#[test]
+fn window_on_a_missing_folder_names_it() {
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("/nonexistent/tapgrid-session")
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("/nonexistent/tapgrid-session"))
+        .stderr(predicates::str::contains("is not a folder"));
 }

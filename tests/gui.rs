@@ -213,3 +213,39 @@ fn the_animation_plays_and_pauses() {
     h.step();
     assert_eq!(h.state().selected_mode, 2);
 }
+
+#[test]
+fn save_as_makes_a_session_that_keeps_later_verdicts() {
+    let tmp = tempfile::tempdir().expect("temp");
+    let dir = tmp.path().join("copy");
+    let mut h = open_demo();
+    h.state_mut()
+        .push(tapgrid::app::Command::SaveAs(dir.clone()));
+    settle(&mut h);
+    let d = h.state().doc.as_ref().expect("open");
+    assert_eq!(d.path, dir);
+    assert!(!d.read_only);
+    // The copy's recordings are byte for byte the demo's.
+    for f in ["raw/station-001.wav", "raw/station-010.wav"] {
+        assert_eq!(
+            std::fs::read(dir.join(f)).unwrap(),
+            std::fs::read(demo().join(f)).unwrap()
+        );
+    }
+    // A verdict in the copy reaches its session.json once the analysis is in.
+    h.state_mut().push(tapgrid::app::Command::SetVerdict {
+        station: 5,
+        hit: 1,
+        accept: Some(false),
+    });
+    settle(&mut h);
+    let s = tapgrid::session::Session::open(&dir).expect("the copy opens");
+    let hit = s
+        .manifest
+        .hits
+        .iter()
+        .find(|x| x.station == 5 && x.index == 1)
+        .expect("hit");
+    assert_eq!(hit.override_accept, Some(false));
+    assert!(!hit.accepted);
+}
