@@ -41,6 +41,12 @@ pub enum Command {
     Analyze(AnalyzeArgs),
     /// Import a WAV set into a new session folder (recordings are copied, never modified).
     Import(ImportArgs),
+    /// Capture hits from an audio interface into a session, headless (exits 0 when done).
+    Capture(CaptureArgs),
+    /// List audio input devices with the ids `capture --device` takes.
+    Devices,
+    /// Calibration helpers on a recording: sensitivity, full-scale volts, mass check, loopback.
+    Calibrate(CalibrateArgs),
     /// Override a hit's verdict in a session (accept, reject, or back to automatic).
     Verdict(VerdictArgs),
     /// Write a simulated WAV set, with truth.json, from tapgrid's own beam physics.
@@ -391,6 +397,105 @@ pub struct ImportArgs {
     pub setup: SetupArgs,
 }
 
+/// `tapgrid capture`.
+#[derive(Debug, Args)]
+pub struct CaptureArgs {
+    /// Input device id as `tapgrid devices` lists it (e.g. `alsa:hw:1,0`), or `generator` for a
+    /// built-in synthetic source paced at the sample rate.
+    #[arg(long)]
+    pub device: String,
+    /// Session folder (created if new, added to if it exists).
+    #[arg(long)]
+    pub session: PathBuf,
+    /// Station to tap.
+    #[arg(long)]
+    pub station: u32,
+    /// Accepted hits wanted.
+    #[arg(long, default_value_t = 3)]
+    pub hits: usize,
+    /// Station position, m (default: station × spacing).
+    #[arg(long)]
+    pub position: Option<f64>,
+    /// Sample rate, Hz (default: the device's).
+    #[arg(long)]
+    pub rate: Option<u32>,
+    /// Frames per audio callback (default: the host's).
+    #[arg(long)]
+    pub buffer: Option<u32>,
+    /// Part name for a new session.
+    #[arg(long, default_value = "")]
+    pub part: String,
+    /// Stop with an error when no samples arrive for this many seconds.
+    #[arg(long, default_value_t = 3.0)]
+    pub stall: f64,
+    /// Setup for a new session (an existing session keeps its own).
+    #[command(flatten)]
+    pub setup: SetupArgs,
+}
+
+/// `tapgrid calibrate`.
+#[derive(Debug, Args)]
+pub struct CalibrateArgs {
+    /// What to compute.
+    #[command(subcommand)]
+    pub what: CalibrateWhat,
+}
+
+/// Calibration helpers.
+#[derive(Debug, Subcommand)]
+pub enum CalibrateWhat {
+    /// Sensitivity of an accelerometer channel from a reference shaker recording.
+    Sensitivity {
+        /// Recording (WAV).
+        wav: PathBuf,
+        /// Channel index.
+        #[arg(long, default_value_t = 0)]
+        channel: usize,
+        /// Reference frequency, Hz.
+        #[arg(long, default_value_t = 159.2)]
+        frequency: f64,
+        /// Reference level, m/s² rms.
+        #[arg(long, default_value_t = 10.0)]
+        rms: f64,
+        /// Volts at digital full scale.
+        #[arg(long, default_value_t = 1.0)]
+        full_scale_volts: f64,
+    },
+    /// Volts at digital full scale from a known sine voltage into the input.
+    FullScale {
+        /// Recording (WAV).
+        wav: PathBuf,
+        /// Channel index.
+        #[arg(long, default_value_t = 0)]
+        channel: usize,
+        /// Sine frequency, Hz.
+        #[arg(long)]
+        frequency: f64,
+        /// Sine level, V rms.
+        #[arg(long)]
+        volts_rms: f64,
+    },
+    /// Mass check: taps on a freely suspended known mass; accelerance should be 1/m.
+    Mass {
+        /// Recording of the taps (WAV).
+        wav: PathBuf,
+        /// The mass, kg.
+        #[arg(long)]
+        mass_kg: f64,
+        /// Setup (channels, sensitivities, band…).
+        #[command(flatten)]
+        setup: SetupArgs,
+    },
+    /// Loopback: one signal into both inputs; |H| should be 1, phase 0.
+    Loopback {
+        /// Recording (WAV).
+        wav: PathBuf,
+        /// Channel indices A,B.
+        #[arg(long, default_value = "0,1")]
+        channels: String,
+    },
+}
+
 /// Verdict to set.
 #[derive(Debug, Clone, Copy, ValueEnum)]
 pub enum VerdictArg {
@@ -499,6 +604,9 @@ pub fn run(cli: Cli) -> Result<()> {
             analyze(&a.input, &a.out, &a.setup, m.as_ref())
         }
         Command::Import(a) => import(a),
+        Command::Capture(a) => capture(a),
+        Command::Devices => devices(),
+        Command::Calibrate(a) => calibrate(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
         Command::BenchDecode(a) => {
@@ -589,6 +697,195 @@ fn import(a: ImportArgs) -> Result<()> {
     s.save()?;
     print!("{}", report::summary(&result));
     println!("session written to {}", a.session.display());
+    Ok(())
+}
+
+fn devices() -> Result<()> {
+    let list = crate::acquire::live::list_inputs()?;
+    if list.is_empty() {
+        println!("no input devices found");
+    }
+    for d in list {
+        println!("{}", d.id);
+        println!("    name: {}", d.name);
+        if let Some(c) = &d.default_config {
+            println!("    default: {c}");
+        }
+        for f in &d.formats {
+            println!("    supports: {f}");
+        }
+    }
+    println!("generator");
+    println!("    name: built-in synthetic hammer test (no hardware), 51200 Hz");
+    Ok(())
+}
+
+fn capture(a: CaptureArgs) -> Result<()> {
+    use crate::acquire::source::Source;
+    use crate::capture::{Engine, Event, Plan};
+    use std::io::Write;
+    let setup = a.setup.apply(Setup::default())?;
+    let mut source: Box<dyn Source> = if a.device == "generator" {
+        Box::new(crate::capture::generator::Generator::new(
+            a.rate.unwrap_or(51_200),
+            1.5,
+            3600.0,
+            1024,
+            true,
+        ))
+    } else {
+        Box::new(crate::acquire::live::LiveInput::open(
+            &crate::acquire::live::OpenOptions {
+                id: a.device.clone(),
+                channels: [setup.channel_a.index, setup.channel_b.index],
+                sample_rate_hz: a.rate,
+                buffer_frames: a.buffer,
+            },
+        )?)
+    };
+    let mut engine = Engine::open(
+        &a.session,
+        setup,
+        Part {
+            name: a.part.clone(),
+            notes: String::new(),
+        },
+        source.sample_rate_hz(),
+    )?;
+    let plan = Plan {
+        stations: vec![a.station],
+        hits: a.hits,
+        positions_m: a.position.map(|p| [(a.station, p)].into()).unwrap_or_default(),
+        stall: std::time::Duration::from_secs_f64(a.stall.max(0.1)),
+    };
+    let stdout = std::io::stdout();
+    let dir = crate::capture::run(source.as_mut(), &mut engine, &plan, |ev| {
+        let mut o = stdout.lock();
+        let _ = match ev {
+            Event::Armed { station, accepted } => {
+                writeln!(o, "armed station {station} ({accepted} accepted so far): tap")
+            }
+            Event::Hit(h) => writeln!(
+                o,
+                "saved station {} hit {} at {:.3} s: {}{} record {}+{} checksum {:016x} latency {:.1} ms ({} accepted)",
+                h.station,
+                h.index + 1,
+                h.time_s,
+                if h.accepted { "kept" } else { "rejected" },
+                if h.reasons.is_empty() {
+                    String::new()
+                } else {
+                    format!(
+                        " ({})",
+                        h.reasons.iter().map(|r| r.word()).collect::<Vec<_>>().join(", ")
+                    )
+                },
+                h.record_start,
+                h.record_samples,
+                h.checksum,
+                h.latency_s * 1e3,
+                h.accepted_so_far
+            ),
+            Event::StationDone { station, accepted } => {
+                writeln!(o, "station {station} done: {accepted} accepted hits")
+            }
+            Event::Health(h) => writeln!(
+                o,
+                "warning: {} frames dropped (worker too slow), {} stream errors",
+                h.overrun_frames, h.stream_errors
+            ),
+            Event::Levels { .. } => Ok(()),
+        };
+        let _ = o.flush();
+    })?;
+    println!("session: {}", dir.display());
+    Ok(())
+}
+
+fn calibrate(a: CalibrateArgs) -> Result<()> {
+    use crate::signal::calibration as cal;
+    match a.what {
+        CalibrateWhat::Sensitivity {
+            wav,
+            channel,
+            frequency,
+            rms,
+            full_scale_volts,
+        } => {
+            let two = crate::acquire::wav::read_two_channels(&wav, channel, channel)?;
+            let s = cal::tone(&two.a, two.info.sample_rate_hz, frequency)
+                .map_err(|m| anyhow!("{}: {m}", wav.display()))?;
+            let v_rms = s.rms_fs * full_scale_volts;
+            println!(
+                "tone {:.2} Hz at {:.5} of full scale rms = {:.4} V rms (purity {:.1} %)",
+                s.frequency_hz,
+                s.rms_fs,
+                v_rms,
+                s.purity * 100.0
+            );
+            println!(
+                "sensitivity {:.4} mV/(m/s²) = {:.3} mV/g",
+                v_rms / rms * 1e3,
+                v_rms / rms * 1e3 * crate::units::STANDARD_GRAVITY_M_S2
+            );
+        }
+        CalibrateWhat::FullScale {
+            wav,
+            channel,
+            frequency,
+            volts_rms,
+        } => {
+            let two = crate::acquire::wav::read_two_channels(&wav, channel, channel)?;
+            let s = cal::tone(&two.a, two.info.sample_rate_hz, frequency)
+                .map_err(|m| anyhow!("{}: {m}", wav.display()))?;
+            println!(
+                "tone {:.2} Hz at {:.5} of full scale rms; full scale = {:.4} V (purity {:.1} %)",
+                s.frequency_hz,
+                s.rms_fs,
+                volts_rms / s.rms_fs,
+                s.purity * 100.0
+            );
+        }
+        CalibrateWhat::Mass {
+            wav,
+            mass_kg,
+            setup,
+        } => {
+            let setup = setup.apply(Setup::default())?;
+            let two = crate::acquire::wav::read_two_channels(
+                &wav,
+                setup.channel_a.index,
+                setup.channel_b.index,
+            )?;
+            let r = cal::mass_check(&two.a, &two.b, two.info.sample_rate_hz, &setup, mass_kg)
+                .map_err(|m| anyhow!("{}: {m}", wav.display()))?;
+            println!(
+                "mass check: measured |H|·m = {:.4} (1 = calibrated) over {:.0}–{:.0} Hz, spread ±{:.1} %, {} hits",
+                r.ratio,
+                r.band_hz[0],
+                r.band_hz[1],
+                r.spread * 100.0,
+                r.hits
+            );
+            println!(
+                "multiply the accelerometer/hammer sensitivity ratio (B/A) by {:.4} to calibrate",
+                r.ratio
+            );
+        }
+        CalibrateWhat::Loopback { wav, channels } => {
+            let (ca, cb) = pair::<usize>(&channels, "channels")?;
+            let two = crate::acquire::wav::read_two_channels(&wav, ca, cb)?;
+            let r = cal::loopback(&two.a, &two.b, two.info.sample_rate_hz)
+                .map_err(|m| anyhow!("{}: {m}", wav.display()))?;
+            println!(
+                "loopback: |H| {:.4} (worst {:.4}), phase worst {:.2}°, polarity {}",
+                r.gain,
+                r.worst_gain,
+                r.worst_phase_deg,
+                if r.inverted { "INVERTED" } else { "correct" }
+            );
+        }
+    }
     Ok(())
 }
 

@@ -23,6 +23,7 @@
 pub mod acquire;
 pub mod analysis;
 pub mod app;
+pub mod capture;
 pub mod cli;
 pub mod modal;
 pub mod model;

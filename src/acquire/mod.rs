@@ -1,8 +1,11 @@
-//! Sources of two-channel samples: WAV files and WAV sets (folders of one WAV per station).
+//! Sources of two-channel samples: WAV files and WAV sets (folders of one WAV per station), and
+//! live audio interfaces (`live`, the only module that knows cpal).
 //!
 //! Samples leave this layer as `f64` in digital full-scale units (±1.0); scaling to volts and
 //! engineering units happens in the signal chain, where the setup is known.
 
+pub mod live;
+pub mod source;
 pub mod wav;
 pub mod wavset;
 

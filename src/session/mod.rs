@@ -157,6 +157,30 @@ impl Session {
         })
     }
 
+    /// Creates an empty session (for live capture) in a new folder.
+    pub fn create(dir: &Path, setup: Setup, part: Part) -> Result<Self, InputError> {
+        if dir.join(MANIFEST).exists() {
+            return Err(InputError::new(dir, "already holds a session"));
+        }
+        std::fs::create_dir_all(dir.join("raw"))
+            .map_err(|e| InputError::new(dir, format!("cannot create folder: {e}")))?;
+        let s = Self {
+            dir: dir.to_path_buf(),
+            manifest: Manifest {
+                format: FORMAT.into(),
+                schema_version: SCHEMA_VERSION,
+                created_by: format!("tapgrid {}", env!("CARGO_PKG_VERSION")),
+                part,
+                setup,
+                stations: Vec::new(),
+                recordings: Vec::new(),
+                hits: Vec::new(),
+            },
+        };
+        s.save()?;
+        Ok(s)
+    }
+
     /// Imports a WAV set into a new session folder: copies the recordings into `raw/`
     /// (the originals are only read) and writes the manifest. Hits are filled by the caller.
     pub fn import_wavset(

@@ -1,5 +1,6 @@
 //! The signal chain: hit detection, windows, spectra, FRF estimators and per-hit verdicts.
 
+pub mod calibration;
 pub mod carryover;
 pub mod coupling;
 pub mod frf;

@@ -1,0 +1,99 @@
+//! A synthetic two-channel source: hammer pulses at a fixed interval and the damped ringing of a
+//! few modes, at any rate, paced or as fast as the consumer reads. For benchmarks and tests of
+//! the capture engine without a device.
+
+use std::time::Duration;
+
+use crate::acquire::source::{Health, Source, SourceError};
+
+/// The generator.
+pub struct Generator {
+    rate: u32,
+    interval_s: f64,
+    total: u64,
+    produced: u64,
+    chunk: usize,
+    /// Modes: (frequency Hz, damping ratio, amplitude fraction of full scale per unit force).
+    modes: Vec<(f64, f64, f64)>,
+    pulse_s: f64,
+    force_fs: f64,
+    noise: u64,
+    paced: Option<std::time::Instant>,
+}
+
+impl Generator {
+    /// Hits every `interval_s` (the first at half an interval) for `duration_s`, in chunks of
+    /// `chunk` frames; `paced` delivers them at the sample rate.
+    pub fn new(rate: u32, interval_s: f64, duration_s: f64, chunk: usize, paced: bool) -> Self {
+        Self {
+            rate,
+            interval_s,
+            total: (duration_s * rate as f64) as u64,
+            produced: 0,
+            chunk,
+            modes: vec![(291.0, 0.004, 0.3), (717.0, 0.004, 0.2), (1268.0, 0.004, 0.1)],
+            pulse_s: 2.5e-4,
+            force_fs: 0.4,
+            noise: 0x9e37_79b9_7f4a_7c15,
+            paced: paced.then(std::time::Instant::now),
+        }
+    }
+
+    /// Frames generated so far.
+    pub fn produced(&self) -> u64 {
+        self.produced
+    }
+
+    fn sample(&mut self, i: u64) -> [f32; 2] {
+        let t = i as f64 / self.rate as f64;
+        let k = ((t - 0.5 * self.interval_s) / self.interval_s).floor();
+        let t0 = 0.5 * self.interval_s + k.max(0.0) * self.interval_s;
+        let tau = t - t0;
+        let mut a = 0.0;
+        let mut b = 0.0;
+        if tau >= 0.0 {
+            if tau < self.pulse_s {
+                a = self.force_fs * (std::f64::consts::PI * tau / self.pulse_s).sin();
+            }
+            for &(f, z, amp) in &self.modes {
+                let w = 2.0 * std::f64::consts::PI * f;
+                b += amp * (-z * w * tau).exp() * (w * tau).sin();
+            }
+        }
+        // xorshift noise at about −90 dB of full scale
+        self.noise ^= self.noise << 13;
+        self.noise ^= self.noise >> 7;
+        self.noise ^= self.noise << 17;
+        let n = ((self.noise >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 6e-5;
+        [(a + n) as f32, (b - n) as f32]
+    }
+}
+
+impl Source for Generator {
+    fn sample_rate_hz(&self) -> u32 {
+        self.rate
+    }
+
+    fn read(&mut self, out: &mut Vec<[f32; 2]>, _wait: Duration) -> Result<(), SourceError> {
+        if self.produced >= self.total {
+            return Err(SourceError::Ended);
+        }
+        if let Some(t0) = self.paced {
+            let due = t0 + Duration::from_secs_f64(self.produced as f64 / self.rate as f64);
+            if let Some(d) = due.checked_duration_since(std::time::Instant::now()) {
+                std::thread::sleep(d);
+            }
+        }
+        let n = (self.chunk as u64).min(self.total - self.produced);
+        for i in 0..n {
+            let s = self.sample(self.produced + i);
+            out.push(s);
+        }
+        self.produced += n;
+        Ok(())
+    }
+
+    fn health(&self) -> Health {
+        Health::default()
+    }
+}
