@@ -443,6 +443,7 @@ pub struct CalibrateArgs {
 
 /// Calibration helpers.
 #[derive(Debug, Subcommand)]
+#[allow(clippy::large_enum_variant)] // parsed once
 pub enum CalibrateWhat {
     /// Sensitivity of an accelerometer channel from a reference shaker recording.
     Sensitivity {
@@ -755,7 +756,10 @@ fn capture(a: CaptureArgs) -> Result<()> {
     let plan = Plan {
         stations: vec![a.station],
         hits: a.hits,
-        positions_m: a.position.map(|p| [(a.station, p)].into()).unwrap_or_default(),
+        positions_m: a
+            .position
+            .map(|p| [(a.station, p)].into())
+            .unwrap_or_default(),
         stall: std::time::Duration::from_secs_f64(a.stall.max(0.1)),
     };
     let stdout = std::io::stdout();
@@ -763,7 +767,10 @@ fn capture(a: CaptureArgs) -> Result<()> {
         let mut o = stdout.lock();
         let _ = match ev {
             Event::Armed { station, accepted } => {
-                writeln!(o, "armed station {station} ({accepted} accepted so far): tap")
+                writeln!(
+                    o,
+                    "armed station {station} ({accepted} accepted so far): tap"
+                )
             }
             Event::Hit(h) => writeln!(
                 o,
@@ -777,7 +784,11 @@ fn capture(a: CaptureArgs) -> Result<()> {
                 } else {
                     format!(
                         " ({})",
-                        h.reasons.iter().map(|r| r.word()).collect::<Vec<_>>().join(", ")
+                        h.reasons
+                            .iter()
+                            .map(|r| r.word())
+                            .collect::<Vec<_>>()
+                            .join(", ")
                     )
                 },
                 h.record_start,

@@ -88,7 +88,7 @@ pub struct Counters {
 
 /// An open input stream feeding a ring buffer. Keep it on the thread that opened it.
 pub struct LiveInput {
-    _stream: cpal::Stream,
+    stream: Option<cpal::Stream>,
     consumer: rtrb::Consumer<f32>,
     counters: Arc<Counters>,
     rate: u32,
@@ -238,13 +238,25 @@ impl LiveInput {
             .play()
             .map_err(|e| SourceError::Device(describe(&e, &o.id)))?;
         Ok(Self {
-            _stream: stream,
+            stream: Some(stream),
             consumer,
             counters,
             rate,
             id: o.id.clone(),
             format,
         })
+    }
+}
+
+impl Drop for LiveInput {
+    fn drop(&mut self) {
+        // Closing a stream joins its audio thread, which may sit forever in a read from a device
+        // that vanished. Close it on a thread of its own so the caller is never held up by that.
+        if let Some(stream) = self.stream.take() {
+            let _ = std::thread::Builder::new()
+                .name("tapgrid-close-input".into())
+                .spawn(move || drop(stream));
+        }
     }
 }
 

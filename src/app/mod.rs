@@ -4,6 +4,8 @@
 //! views draw and push [`Command`]s, which [`TapgridApp::apply`] carries out after the frame; the
 //! numeric work runs on the [`worker`] thread and comes back through [`TapgridApp::logic`].
 
+mod capture_thread;
+mod capture_view;
 mod fit_view;
 mod frf_view;
 mod help;
@@ -48,11 +50,14 @@ pub enum View {
     Fit,
     /// Mode table, animation, MAC.
     Modes,
+    /// Live capture from an audio interface.
+    Capture,
 }
 
 impl View {
     /// All views in tab order.
-    pub const ALL: [View; 6] = [
+    pub const ALL: [View; 7] = [
+        View::Capture,
         View::Setup,
         View::Stations,
         View::Hits,
@@ -70,6 +75,7 @@ impl View {
             View::Frf => "FRF review",
             View::Fit => "Pole picking",
             View::Modes => "Mode shapes",
+            View::Capture => "Live capture",
         }
     }
 }
@@ -96,6 +102,12 @@ pub struct Settings {
     pub speed_hz: f32,
     /// Show the phase plot in the FRF review.
     pub show_phase: bool,
+    /// Capture input, remembered by its id (not its index).
+    pub capture_device: Option<String>,
+    /// Accepted hits that finish a station.
+    pub hits_per_station: usize,
+    /// Arm the next station when one is done.
+    pub auto_advance: bool,
 }
 
 impl Default for Settings {
@@ -110,6 +122,9 @@ impl Default for Settings {
             amplitude: 0.8,
             speed_hz: 0.5,
             show_phase: true,
+            capture_device: None,
+            hits_per_station: 3,
+            auto_advance: true,
         }
     }
 }
@@ -151,7 +166,12 @@ pub struct Document {
 }
 
 impl Document {
-    fn new(path: PathBuf, data: Dataset, session: Option<Session>, read_only: bool) -> Self {
+    pub(crate) fn new(
+        path: PathBuf,
+        data: Dataset,
+        session: Option<Session>,
+        read_only: bool,
+    ) -> Self {
         let (setup, part, labels) = match &session {
             Some(s) => (
                 s.manifest.setup.clone(),
@@ -338,14 +358,17 @@ pub struct TapgridApp {
     traces_requested: Option<(u32, u64)>,
     /// Counts analyses received: a new value means new data for the caches.
     pub(crate) analysis_stamp: u64,
-    worker: Worker,
+    pub(crate) worker: Worker,
     commands: Vec<Command>,
     dialog: Option<PathDialog>,
     last_time: Option<f64>,
     fit_band_edit: Option<[f64; 2]>,
     plot_scratch: plots::Scratch,
     overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
-    ctx_slot: Arc<OnceLock<egui::Context>>,
+    /// Live capture state.
+    pub capture: capture_view::CaptureState,
+    capture_dir: Option<PathBuf>,
+    pub(crate) ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
 impl TapgridApp {
@@ -380,6 +403,8 @@ impl TapgridApp {
             fit_band_edit: None,
             plot_scratch: plots::Scratch::default(),
             overlays: Default::default(),
+            capture: Default::default(),
+            capture_dir: None,
             ctx_slot,
         };
         if let Some(p) = path {
@@ -432,6 +457,7 @@ impl TapgridApp {
             }
         }
         let now = ctx.input(|i| i.time);
+        self.drain_capture(now);
         if let Some(t0) = self.last_time
             && self.playing
             && self.settings.view == View::Modes
@@ -470,7 +496,7 @@ impl TapgridApp {
                 .show(ui, |ui| help::panel(ui, &mut self.commands));
         }
         egui::CentralPanel::default().show(ui, |ui| {
-            if self.doc.is_none() {
+            if self.doc.is_none() && self.settings.view != View::Capture {
                 ui.centered_and_justified(|ui| {
                     if let Some(what) = self.worker.busy() {
                         ui.label(egui::RichText::new(format!("{what}…")).size(22.0));
@@ -490,6 +516,7 @@ impl TapgridApp {
                 View::Frf => frf_view::show(ui, self),
                 View::Fit => fit_view::show(ui, self),
                 View::Modes => modes_view::show(ui, self),
+                View::Capture => capture_view::show(ui, self),
             }
         });
         if !self.settings.cautions_read {
@@ -634,6 +661,7 @@ impl TapgridApp {
             (Key::Num4, View::Frf),
             (Key::Num5, View::Fit),
             (Key::Num6, View::Modes),
+            (Key::Num7, View::Capture),
         ] {
             if pressed(k) {
                 self.commands.push(Command::Show(v));
@@ -683,7 +711,7 @@ impl TapgridApp {
         }
     }
 
-    fn note(&mut self, text: impl Into<String>, error: bool) {
+    pub(crate) fn note(&mut self, text: impl Into<String>, error: bool) {
         self.messages.push(Message {
             text: text.into(),
             error,
@@ -693,7 +721,7 @@ impl TapgridApp {
         }
     }
 
-    fn request_analysis(&mut self) {
+    pub(crate) fn request_analysis(&mut self) {
         let Some(d) = &mut self.doc else {
             return;
         };
@@ -820,6 +848,7 @@ impl TapgridApp {
                 self.settings.recent.insert(0, dir.clone());
                 self.note(format!("saved as {}", dir.display()), false);
             }
+            Outcome::Devices(d) => self.capture.devices = Some(d),
             Outcome::Skipped => {}
             Outcome::Failed { what, message } => {
                 if what == "Analysing"

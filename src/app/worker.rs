@@ -52,6 +52,8 @@ pub enum Job {
         /// Its hits as analysed.
         hits: Vec<HitReport>,
     },
+    /// List the audio inputs (slow on ALSA, so never on the UI thread).
+    ListDevices,
     /// Copy a session to a new folder.
     SaveAs {
         /// The session as it should be written.
@@ -114,6 +116,8 @@ pub enum Outcome {
     },
     /// A session was written to a new folder.
     Saved(Box<Session>),
+    /// The audio inputs.
+    Devices(Result<Vec<crate::acquire::live::DeviceInfo>, String>),
     /// A request was superseded and not run.
     Skipped,
     /// A job failed; the message names the file.
@@ -212,6 +216,7 @@ fn describe(job: &Job) -> &'static str {
         Job::Fit { .. } => "Fitting",
         Job::Traces { .. } => "Loading hits",
         Job::SaveAs { .. } | Job::CreateSession { .. } => "Saving",
+        Job::ListDevices => "Listing audio inputs",
     }
 }
 
@@ -275,6 +280,9 @@ fn work(
                     message: e.to_string(),
                 },
             },
+            Job::ListDevices => {
+                Outcome::Devices(crate::acquire::live::list_inputs().map_err(|e| e.to_string()))
+            }
             Job::SaveAs { session, dir } => match session.save_as(&dir) {
                 Ok(s) => Outcome::Saved(Box::new(s)),
                 Err(e) => Outcome::Failed {

@@ -31,7 +31,11 @@ impl Generator {
             total: (duration_s * rate as f64) as u64,
             produced: 0,
             chunk,
-            modes: vec![(291.0, 0.004, 0.3), (717.0, 0.004, 0.2), (1268.0, 0.004, 0.1)],
+            modes: vec![
+                (291.0, 0.004, 0.3),
+                (717.0, 0.004, 0.2),
+                (1268.0, 0.004, 0.1),
+            ],
             pulse_s: 2.5e-4,
             force_fs: 0.4,
             noise: 0x9e37_79b9_7f4a_7c15,

@@ -25,8 +25,10 @@ pub fn tone(x: &[f64], fs: u32, f_hz: f64) -> Result<Tone, String> {
     if x.len() < (fs as usize / 10).max(64) {
         return Err("the recording is shorter than 0.1 s".into());
     }
-    if !(f_hz > 0.0 && f_hz < 0.5 * fs as f64) {
-        return Err(format!("{f_hz} Hz is not between 0 and half the sample rate"));
+    if f_hz.is_nan() || f_hz <= 0.0 || f_hz >= 0.5 * fs as f64 {
+        return Err(format!(
+            "{f_hz} Hz is not between 0 and half the sample rate"
+        ));
     }
     let mean = x.iter().sum::<f64>() / x.len() as f64;
     let var = x.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / x.len() as f64;
@@ -96,7 +98,7 @@ pub fn mass_check(
     setup: &Setup,
     mass_kg: f64,
 ) -> Result<MassCheck, String> {
-    if !(mass_kg > 0.0) {
+    if mass_kg.is_nan() || mass_kg <= 0.0 {
         return Err("the mass must be positive".into());
     }
     let mut plan: Option<SpectrumPlan> = None;

@@ -1,0 +1,464 @@
+//! Live capture: choose the input, arm a station, tap. Each hit shows its verdict in large words
+//! once it is saved; levels with peak hold and overload lamps; the station's running FRF and
+//! coherence; undo, redo, auto-advance.
+
+use eframe::egui::{self, Color32, RichText, Sense, Stroke, vec2};
+use egui_plot::{Line, Plot};
+
+use super::capture_thread::{self, Control, Report};
+use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
+use super::{TapgridApp, station_map};
+use crate::acquire::live::DeviceInfo;
+use crate::acquire::source::Health;
+use crate::capture::{Event, HitEvent};
+
+/// Runtime state of the capture view.
+#[derive(Default)]
+pub struct CaptureState {
+    /// Listed inputs.
+    pub devices: Option<Result<Vec<DeviceInfo>, String>>,
+    /// The running capture.
+    pub handle: Option<capture_thread::CaptureHandle>,
+    /// Station to arm next.
+    pub station: u32,
+    /// Station armed now.
+    pub armed: Option<u32>,
+    /// Latest peak levels, fraction of full scale.
+    pub levels: [f32; 2],
+    /// Peak hold (value, time s).
+    pub hold: [(f32, f64); 2],
+    /// Last overload time, s.
+    pub over: [f64; 2],
+    /// The last hit saved.
+    pub last_hit: Option<HitEvent>,
+    /// Trouble counters.
+    pub health: Health,
+    /// Last message (text, is an error).
+    pub message: Option<(String, bool)>,
+    /// Folder for a new session when the open test is not a writable session.
+    pub new_session: String,
+}
+
+impl TapgridApp {
+    /// Drains the capture thread's reports (called from `logic`).
+    pub(crate) fn drain_capture(&mut self, now: f64) {
+        let mut reload = false;
+        let mut ended = None;
+        let mut advance = None;
+        let mut incoming = Vec::new();
+        if let Some(h) = &self.capture.handle {
+            while let Ok(r) = h.reports.try_recv() {
+                incoming.push(r);
+            }
+        }
+        {
+            for r in incoming {
+                match r {
+                    Report::Event(Event::Levels {
+                        peak_a_fs,
+                        peak_b_fs,
+                    }) => {
+                        let c = &mut self.capture;
+                        c.levels = [peak_a_fs, peak_b_fs];
+                        for (k, v) in [peak_a_fs, peak_b_fs].into_iter().enumerate() {
+                            if v >= c.hold[k].0 || now - c.hold[k].1 > 2.0 {
+                                c.hold[k] = (v, now);
+                            }
+                            if v >= self
+                                .doc
+                                .as_ref()
+                                .map_or(0.98, |d| d.setup.quality.overload_fraction as f32)
+                            {
+                                c.over[k] = now;
+                            }
+                        }
+                    }
+                    Report::Event(Event::Armed { station, accepted }) => {
+                        self.capture.armed = Some(station);
+                        self.current_station = Some(station);
+                        self.capture.message = Some((
+                            format!("Tap station {station} ({accepted} kept so far)"),
+                            false,
+                        ));
+                        reload = true;
+                    }
+                    Report::Event(Event::Hit(h)) => {
+                        self.current_station = Some(h.station);
+                        self.capture.message = Some((
+                            format!(
+                                "Tap station {}: {} of {} kept",
+                                h.station, h.accepted_so_far, self.settings.hits_per_station
+                            ),
+                            false,
+                        ));
+                        self.capture.last_hit = Some(*h);
+                        reload = true;
+                    }
+                    Report::Event(Event::StationDone { station, accepted }) => {
+                        self.capture.message = Some((
+                            format!("Station {station} done: {accepted} hits kept"),
+                            false,
+                        ));
+                        if self.settings.auto_advance {
+                            advance = Some(station + 1);
+                        }
+                    }
+                    Report::Event(Event::Health(hl)) => self.capture.health = hl,
+                    Report::Ended(r) => ended = Some(r),
+                }
+            }
+        }
+        // The capture thread arms the next station itself; follow it here.
+        if let Some(next) = advance {
+            self.capture.station = next;
+        }
+        if let Some(r) = ended {
+            self.capture.handle = None;
+            self.capture.armed = None;
+            match r {
+                Ok(()) => self.capture.message = Some(("Capture stopped".into(), false)),
+                Err(e) => {
+                    self.capture.message = Some((e.clone(), true));
+                    self.note(format!("capture stopped: {e}"), true);
+                }
+            }
+            reload = true;
+        }
+        if reload {
+            self.reload_capture_session();
+        }
+    }
+
+    fn reload_capture_session(&mut self) {
+        let Some(dir) = self.capture_dir.clone() else {
+            return;
+        };
+        match crate::session::Session::open(&dir) {
+            Ok(s) => {
+                let same = self.doc.as_ref().is_some_and(|d| d.path == dir);
+                if same {
+                    if let Some(d) = &mut self.doc {
+                        d.data = crate::analysis::Dataset::from_session(&s);
+                        d.session = Some(s);
+                    }
+                } else {
+                    let data = crate::analysis::Dataset::from_session(&s);
+                    self.doc = Some(super::Document::new(dir.clone(), data, Some(s), false));
+                }
+                if self
+                    .doc
+                    .as_ref()
+                    .is_some_and(|d| !d.data.stations.is_empty())
+                {
+                    self.request_analysis();
+                }
+            }
+            Err(e) => self.note(format!("cannot reopen the capture session: {e}"), true),
+        }
+    }
+}
+
+fn meter(ui: &mut egui::Ui, label: &str, level: f32, hold: f32, over: bool) {
+    ui.horizontal(|ui| {
+        ui.label(RichText::new(label).monospace());
+        let (r, p) = ui.allocate_painter(vec2(320.0, 22.0), Sense::hover());
+        let rect = r.rect;
+        p.rect_filled(rect, 3.0, ui.visuals().extreme_bg_color);
+        // dBFS scale from −60 to 0.
+        let x = |v: f32| {
+            let db = 20.0 * v.max(1e-6).log10();
+            rect.left() + ((db + 60.0) / 60.0).clamp(0.0, 1.0) * rect.width()
+        };
+        let color = if level > 0.9 {
+            BAD
+        } else if level > 0.5 {
+            WARN
+        } else {
+            GOOD
+        };
+        p.rect_filled(
+            egui::Rect::from_min_max(rect.min, egui::pos2(x(level), rect.bottom())),
+            3.0,
+            color,
+        );
+        p.line_segment(
+            [
+                egui::pos2(x(hold), rect.top()),
+                egui::pos2(x(hold), rect.bottom()),
+            ],
+            Stroke::new(2.0, ui.visuals().text_color()),
+        );
+        let (lamp, _) = ui.allocate_exact_size(vec2(22.0, 22.0), Sense::hover());
+        ui.painter().circle_filled(
+            lamp.center(),
+            9.0,
+            if over { BAD } else { IDLE.gamma_multiply(0.4) },
+        );
+        ui.label(format!("{:5.1} dBFS", 20.0 * level.max(1e-6).log10()));
+        if over {
+            ui.label(RichText::new("OVERLOAD").color(BAD).strong());
+        }
+    });
+}
+
+/// Draws the view.
+pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+    let now = ui.input(|i| i.time);
+    if app.doc.is_some() {
+        station_map::strip(ui, app, 96.0);
+    }
+    let running = app.capture.handle.is_some();
+    egui::Panel::left("capture-controls")
+        .default_size(360.0)
+        .show(ui, |ui| {
+            ui.heading("Live capture");
+            ui.label("Input");
+            ui.horizontal(|ui| {
+                let current = app
+                    .settings
+                    .capture_device
+                    .clone()
+                    .unwrap_or_else(|| "generator".into());
+                egui::ComboBox::from_id_salt("device")
+                    .selected_text(&current)
+                    .width(240.0)
+                    .show_ui(ui, |ui| {
+                        let mut choose = |id: &str, label: &str| {
+                            if ui.selectable_label(current == id, label).clicked() {
+                                app.settings.capture_device = Some(id.to_string());
+                            }
+                        };
+                        choose("generator", "generator (synthetic, no hardware)");
+                        if let Some(Ok(list)) = &app.capture.devices {
+                            for d in list.clone() {
+                                choose(&d.id, &format!("{} — {}", d.id, d.name));
+                            }
+                        }
+                    });
+                if ui
+                    .add_enabled(!running, egui::Button::new("Refresh"))
+                    .clicked()
+                {
+                    app.worker.send(super::worker::Job::ListDevices);
+                }
+            });
+            if let Some(Err(e)) = &app.capture.devices {
+                ui.label(RichText::new(e).color(BAD));
+            }
+            let writable = app
+                .doc
+                .as_ref()
+                .is_some_and(|d| d.session.is_some() && !d.read_only);
+            if writable {
+                ui.label(format!(
+                    "Into this session: {}",
+                    app.doc
+                        .as_ref()
+                        .map(|d| d.path.display().to_string())
+                        .unwrap_or_default()
+                ));
+            } else {
+                ui.label("Into a new session folder:");
+                if app.capture.new_session.is_empty() {
+                    let stamp = std::time::SystemTime::now()
+                        .duration_since(std::time::UNIX_EPOCH)
+                        .map_or(0, |d| d.as_secs());
+                    app.capture.new_session = crate::sim::demo::default_root()
+                        .join("sessions")
+                        .join(format!("capture-{stamp}"))
+                        .display()
+                        .to_string();
+                }
+                ui.add(
+                    egui::TextEdit::singleline(&mut app.capture.new_session).desired_width(330.0),
+                );
+            }
+            egui::Grid::new("capture-grid")
+                .num_columns(2)
+                .show(ui, |ui| {
+                    ui.label("station");
+                    if app.capture.station == 0 {
+                        app.capture.station = app.current_station.unwrap_or(1);
+                    }
+                    ui.add(egui::DragValue::new(&mut app.capture.station).range(1..=999));
+                    ui.end_row();
+                    ui.label("hits per station");
+                    let a = ui.add(
+                        egui::DragValue::new(&mut app.settings.hits_per_station).range(1..=20),
+                    );
+                    ui.end_row();
+                    ui.label("next station");
+                    let b = ui.checkbox(&mut app.settings.auto_advance, "arm it automatically");
+                    ui.end_row();
+                    if (a.changed() || b.changed())
+                        && let Some(h) = &app.capture.handle
+                    {
+                        let _ = h.controls.send(Control::Plan(
+                            app.settings.hits_per_station,
+                            app.settings.auto_advance,
+                        ));
+                    }
+                });
+            ui.horizontal(|ui| {
+                if !running {
+                    if ui
+                        .button(RichText::new("Start capture").size(20.0))
+                        .clicked()
+                    {
+                        start_capture(app, writable);
+                    }
+                } else {
+                    if ui.button(RichText::new("Stop").size(20.0)).clicked()
+                        && let Some(h) = &app.capture.handle
+                    {
+                        let _ = h.controls.send(Control::Stop);
+                    }
+                    if ui.button("Arm station").clicked()
+                        && let Some(h) = &app.capture.handle
+                    {
+                        let _ = h.controls.send(Control::Arm(app.capture.station));
+                    }
+                }
+            });
+            ui.horizontal(|ui| {
+                if ui
+                    .add_enabled(running, egui::Button::new("Undo last hit"))
+                    .clicked()
+                    && let Some(h) = &app.capture.handle
+                {
+                    let _ = h.controls.send(Control::Undo);
+                }
+                if ui
+                    .add_enabled(running, egui::Button::new("Redo station"))
+                    .clicked()
+                    && let Some(h) = &app.capture.handle
+                {
+                    let _ = h.controls.send(Control::Redo);
+                }
+            });
+            let hl = app.capture.health;
+            let c = if hl.overrun_frames + hl.stream_errors > 0 {
+                BAD
+            } else {
+                ui.visuals().text_color()
+            };
+            ui.label(
+                RichText::new(format!(
+                    "dropped frames {} · stream errors {}",
+                    hl.overrun_frames, hl.stream_errors
+                ))
+                .color(c),
+            );
+            ui.separator();
+            ui.label(
+                RichText::new("Before tapping: machine stopped and locked out, eye protection on.")
+                    .color(WARN),
+            );
+        });
+    egui::CentralPanel::default().show(ui, |ui| {
+        if let Some((m, err)) = &app.capture.message {
+            ui.label(
+                RichText::new(m)
+                    .size(26.0)
+                    .color(if *err { BAD } else { ACCENT }),
+            );
+        } else if !running {
+            ui.label(RichText::new("Not capturing. Choose an input and start.").size(24.0));
+        }
+        if let Some(h) = &app.capture.last_hit {
+            let (word, color) = if h.accepted {
+                ("KEPT", GOOD)
+            } else {
+                ("REJECTED", BAD)
+            };
+            ui.label(
+                RichText::new(format!("Station {} hit {}: {word}", h.station, h.index + 1))
+                    .size(44.0)
+                    .strong()
+                    .color(color),
+            );
+            for r in &h.reasons {
+                ui.label(RichText::new(r.sentence()).size(22.0).color(WARN));
+            }
+            ui.label(format!(
+                "{} kept on this station · saved in {} · verdict {:.0} ms after the record ended",
+                h.accepted_so_far,
+                h.file,
+                h.latency_s * 1e3
+            ));
+        }
+        ui.add_space(6.0);
+        let c = &app.capture;
+        meter(ui, "A", c.levels[0], c.hold[0].0, now - c.over[0] < 2.0);
+        meter(ui, "B", c.levels[1], c.hold[1].0, now - c.over[1] < 2.0);
+        if let Some(frf) = app.capture.last_hit.as_ref().and_then(|h| h.frf.as_ref()) {
+            let h_each = ((ui.available_height() - 20.0) / 2.0).max(100.0);
+            let link = egui::Id::unique("capture-frf");
+            let mag: Vec<[f64; 2]> = frf
+                .freq_hz
+                .iter()
+                .zip(&frf.h)
+                .map(|(f, h)| [*f, plots::db(h.norm())])
+                .collect();
+            let coh: Vec<[f64; 2]> = frf
+                .freq_hz
+                .iter()
+                .zip(&frf.coherence)
+                .map(|(f, g)| [*f, *g])
+                .collect();
+            Plot::new("capture-mag")
+                .height(h_each)
+                .link_axis(link, [true, false])
+                .y_axis_min_width(56.0)
+                .x_axis_label("frequency (Hz)")
+                .y_axis_label("running FRF (dB re 1 (m/s²)/N)")
+                .show(ui, |p| p.line(Line::new("running FRF", mag).color(ACCENT)));
+            Plot::new("capture-coh")
+                .height(h_each)
+                .link_axis(link, [true, false])
+                .y_axis_min_width(56.0)
+                .include_y(0.0)
+                .include_y(1.05)
+                .x_axis_label("frequency (Hz)")
+                .y_axis_label("coherence γ² (0…1)")
+                .show(ui, |p| {
+                    p.line(Line::new("coherence", coh).color(Color32::from_rgb(120, 200, 120)))
+                });
+        }
+    });
+}
+
+fn start_capture(app: &mut TapgridApp, writable: bool) {
+    let (dir, setup, part) = match (&app.doc, writable) {
+        (Some(d), true) => (d.path.clone(), d.setup.clone(), d.part.clone()),
+        (d, _) => (
+            std::path::PathBuf::from(app.capture.new_session.trim()),
+            d.as_ref().map(|d| d.setup.clone()).unwrap_or_default(),
+            d.as_ref().map(|d| d.part.clone()).unwrap_or_default(),
+        ),
+    };
+    app.capture_dir = Some(dir.clone());
+    let ctx = app.ctx_slot.clone();
+    let device = app
+        .settings
+        .capture_device
+        .clone()
+        .unwrap_or_else(|| "generator".into());
+    app.capture.message = Some((format!("Opening {device}…"), false));
+    app.capture.handle = Some(capture_thread::start(
+        capture_thread::Start {
+            device,
+            session: dir,
+            setup,
+            part,
+            station: app.capture.station.max(1),
+            hits: app.settings.hits_per_station,
+            auto_advance: app.settings.auto_advance,
+        },
+        move || {
+            if let Some(c) = ctx.get() {
+                c.request_repaint_after(std::time::Duration::from_millis(16));
+            }
+        },
+    ));
+}
