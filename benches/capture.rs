@@ -27,7 +27,10 @@ fn cpu_seconds() -> f64 {
 }
 
 fn main() {
-    let rate = 192_000;
+    let rate: u32 = std::env::var("TAPGRID_BENCH_RATE")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(192_000);
     let minutes: f64 = std::env::var("TAPGRID_BENCH_MINUTES")
         .ok()
         .and_then(|v| v.parse().ok())
