@@ -90,8 +90,8 @@ fn loopback_is_unity_and_catches_inversion() {
     let r = loopback(&x, &inv, FS).unwrap();
     assert!(r.inverted);
     assert!((r.gain - 1.0).abs() < 1e-9 && r.worst_phase_deg < 1e-6);
-    // A 3 dB mismatch shows.
-    let half: Vec<f64> = x.iter().map(|v| v * 0.7071).collect();
+    // A 6 dB mismatch shows.
+    let half: Vec<f64> = x.iter().map(|v| v * 0.5).collect();
     let r = loopback(&x, &half, FS).unwrap();
-    assert!((r.gain - 0.7071).abs() < 1e-6);
+    assert!((r.gain - 0.5).abs() < 1e-9);
 }
