@@ -249,3 +249,44 @@ fn save_as_makes_a_session_that_keeps_later_verdicts() {
     assert_eq!(hit.override_accept, Some(false));
     assert!(!hit.accepted);
 }
+
+#[test]
+fn live_capture_from_the_generator_saves_and_shows_a_hit() {
+    let tmp = tempfile::tempdir().expect("temp");
+    let session = tmp.path().join("live");
+    let mut h = open_demo();
+    h.get_by_label("Live capture").click();
+    h.run_steps(2);
+    h.state_mut().settings.capture_device = Some("generator".into());
+    h.state_mut().capture.new_session = session.display().to_string();
+    h.get_by_label("Start capture").click();
+    // The generator taps every 1.5 s in real time; wait for the first saved hit.
+    let t0 = Instant::now();
+    while h.state().capture.last_hit.is_none() {
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+        assert!(t0.elapsed() < Duration::from_secs(30), "no hit arrived");
+    }
+    let hit = h.state().capture.last_hit.clone().expect("hit");
+    assert!(hit.accepted);
+    h.run_steps(2);
+    h.get_by_label_contains("KEPT");
+    // It was on disk before the screen showed it.
+    let s = tapgrid::session::Session::open(&session).expect("session");
+    assert!(
+        s.manifest
+            .hits
+            .iter()
+            .any(|x| x.index == hit.index && x.accepted)
+    );
+    h.get_by_label("Stop").click();
+    let t0 = Instant::now();
+    while h.state().capture.handle.is_some() {
+        h.step();
+        std::thread::sleep(Duration::from_millis(10));
+        assert!(
+            t0.elapsed() < Duration::from_secs(10),
+            "capture did not stop"
+        );
+    }
+}

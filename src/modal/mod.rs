@@ -309,16 +309,18 @@ pub struct ModalResult {
     pub stabilization_seconds: f64,
 }
 
+/// The FRFs inside the fit band (borrowed when there is none).
+fn in_band(set: &FrfSet, band: Option<[f64; 2]>) -> Result<std::borrow::Cow<'_, FrfSet>, String> {
+    Ok(match band {
+        Some(b) => std::borrow::Cow::Owned(set.within(b)?),
+        None => std::borrow::Cow::Borrowed(set),
+    })
+}
+
 /// Extracts modes from a test's FRFs.
 pub fn extract(set: &FrfSet, s: &ModalSettings) -> Result<ModalResult, String> {
-    let narrowed;
-    let set = match s.band_hz {
-        Some(b) => {
-            narrowed = set.within(b)?;
-            &narrowed
-        }
-        None => set,
-    };
+    let banded = in_band(set, s.band_hz)?;
+    let set = &*banded;
     let ind = indicators(set);
     let mut res = ModalResult {
         indicators: ind,
@@ -896,14 +898,8 @@ pub fn modes_from_poles(
     stab: &Stabilization,
     picked: &[usize],
 ) -> Result<ModalResult, String> {
-    let narrowed;
-    let set = match s.band_hz {
-        Some(b) => {
-            narrowed = set.within(b)?;
-            &narrowed
-        }
-        None => set,
-    };
+    let banded = in_band(set, s.band_hz)?;
+    let set = &*banded;
     let mut res = ModalResult {
         indicators: indicators(set),
         stations: set.stations.clone(),

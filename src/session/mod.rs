@@ -103,6 +103,27 @@ pub struct Manifest {
     pub hits: Vec<SavedHit>,
 }
 
+impl Manifest {
+    /// A manifest written by this build, with no hits yet.
+    pub fn new(
+        part: Part,
+        setup: Setup,
+        stations: Vec<Station>,
+        recordings: Vec<Recording>,
+    ) -> Self {
+        Self {
+            format: FORMAT.into(),
+            schema_version: SCHEMA_VERSION,
+            created_by: format!("tapgrid {}", env!("CARGO_PKG_VERSION")),
+            part,
+            setup,
+            stations,
+            recordings,
+            hits: Vec::new(),
+        }
+    }
+}
+
 /// An open session.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Session {
@@ -166,16 +187,7 @@ impl Session {
             .map_err(|e| InputError::new(dir, format!("cannot create folder: {e}")))?;
         let s = Self {
             dir: dir.to_path_buf(),
-            manifest: Manifest {
-                format: FORMAT.into(),
-                schema_version: SCHEMA_VERSION,
-                created_by: format!("tapgrid {}", env!("CARGO_PKG_VERSION")),
-                part,
-                setup,
-                stations: Vec::new(),
-                recordings: Vec::new(),
-                hits: Vec::new(),
-            },
+            manifest: Manifest::new(part, setup, Vec::new(), Vec::new()),
         };
         s.save()?;
         Ok(s)
@@ -224,16 +236,7 @@ impl Session {
         }
         let session = Self {
             dir: dir.to_path_buf(),
-            manifest: Manifest {
-                format: FORMAT.into(),
-                schema_version: SCHEMA_VERSION,
-                created_by: format!("tapgrid {}", env!("CARGO_PKG_VERSION")),
-                part,
-                setup,
-                stations,
-                recordings,
-                hits: Vec::new(),
-            },
+            manifest: Manifest::new(part, setup, stations, recordings),
         };
         session.save()?;
         Ok(session)
