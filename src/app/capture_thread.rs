@@ -21,6 +21,8 @@ pub enum Control {
     Redo,
     /// Accepted hits per station, and whether to arm the next one when done.
     Plan(usize, bool),
+    /// Station order for auto-advance.
+    Order(Vec<u32>),
     /// Stop and close the device.
     Stop,
 }
@@ -30,8 +32,19 @@ pub enum Control {
 pub enum Report {
     /// An engine event.
     Event(Event),
+    /// The device went away; capture resumes when it returns.
+    Waiting(String),
     /// Capture ended; `Err` says why (every hit reported before it is saved).
     Ended(Result<(), String>),
+}
+
+fn engine_rate(engine: &Engine, fallback: u32) -> u32 {
+    engine
+        .session()
+        .manifest
+        .recordings
+        .first()
+        .map_or(fallback, |r| r.sample_rate_hz)
 }
 
 /// How to start.
@@ -51,6 +64,8 @@ pub struct Start {
     pub hits: usize,
     /// Arm the next station when one is done.
     pub auto_advance: bool,
+    /// Order of the stations for auto-advance.
+    pub order: Vec<u32>,
 }
 
 /// Handle held by the UI.
@@ -75,13 +90,8 @@ pub fn start(s: Start, repaint: impl Fn() + Send + 'static) -> CaptureHandle {
     CaptureHandle { controls, reports }
 }
 
-fn run(
-    s: Start,
-    controls: Receiver<Control>,
-    tx: &SyncSender<Report>,
-    repaint: &impl Fn(),
-) -> Result<(), CaptureError> {
-    let mut source: Box<dyn Source> = if s.device == "generator" {
+fn open_source(s: &Start) -> Result<Box<dyn Source>, SourceError> {
+    Ok(if s.device == "generator" {
         Box::new(crate::capture::generator::Generator::new(
             51_200, 1.5, 36_000.0, 1024, true,
         ))
@@ -94,8 +104,49 @@ fn run(
                 buffer_frames: Some(1024),
             },
         )?)
-    };
-    let mut engine = Engine::open(&s.session, s.setup, s.part, source.sample_rate_hz())?;
+    })
+}
+
+/// Next station after `st` in `order` (or `st + 1` when `st` is not in it or is its last).
+pub fn next_station(order: &[u32], st: u32) -> u32 {
+    match order.iter().position(|&x| x == st) {
+        Some(i) if i + 1 < order.len() => order[i + 1],
+        _ => st + 1,
+    }
+}
+
+/// Reads a station order such as `1-10`, `10-1` or `1,3,5-7`; `None` when it cannot.
+pub fn parse_order(text: &str) -> Option<Vec<u32>> {
+    let mut out = Vec::new();
+    for part in text.split(',').map(str::trim).filter(|p| !p.is_empty()) {
+        match part.split_once('-') {
+            Some((a, b)) => {
+                let (a, b): (u32, u32) = (a.trim().parse().ok()?, b.trim().parse().ok()?);
+                if a <= b {
+                    out.extend(a..=b);
+                } else {
+                    out.extend((b..=a).rev());
+                }
+            }
+            None => out.push(part.parse().ok()?),
+        }
+    }
+    (!out.is_empty()).then_some(out)
+}
+
+fn run(
+    mut s: Start,
+    controls: Receiver<Control>,
+    tx: &SyncSender<Report>,
+    repaint: &impl Fn(),
+) -> Result<(), CaptureError> {
+    let mut source = open_source(&s)?;
+    let mut engine = Engine::open(
+        &s.session,
+        s.setup.clone(),
+        s.part.clone(),
+        source.sample_rate_hz(),
+    )?;
     let send = |r: Report| {
         // Levels may be dropped when the UI is behind; hits and ends never are.
         let _ = tx.send(r);
@@ -109,6 +160,7 @@ fn run(
     loop {
         match controls.try_recv() {
             Ok(Control::Stop) | Err(TryRecvError::Disconnected) => return Ok(()),
+            Ok(Control::Order(o)) => s.order = o,
             Ok(Control::Plan(h, a)) => {
                 hits = h.max(1);
                 advance = a;
@@ -129,14 +181,44 @@ fn run(
             Err(TryRecvError::Empty) => {}
         }
         buf.clear();
-        source.read(&mut buf, Duration::from_millis(20))?;
-        if buf.is_empty() {
-            silent += 1;
-            if silent > 150 {
-                return Err(CaptureError::Source(SourceError::Lost(
-                    "no samples for 3 s: the device stopped delivering (unplugged?)".into(),
-                )));
+        let read = source.read(&mut buf, Duration::from_millis(20));
+        let lost = match read {
+            Err(SourceError::Lost(m)) => Some(m),
+            Err(e) => return Err(e.into()),
+            Ok(()) if buf.is_empty() => {
+                silent += 1;
+                (silent > 150).then(|| {
+                    "no samples for 3 s: the device stopped delivering (unplugged?)".to_string()
+                })
             }
+            Ok(()) => None,
+        };
+        if let Some(why) = lost {
+            // What was saved stays saved. Wait for the device to come back, then continue the
+            // station where it was (its recording so far is loaded again on arming).
+            drop(source);
+            let st = engine.station().unwrap_or(s.station);
+            send(Report::Waiting(format!(
+                "{why} — waiting for it to come back"
+            )));
+            source = loop {
+                match controls.recv_timeout(Duration::from_secs(1)) {
+                    Ok(Control::Stop) | Err(std::sync::mpsc::RecvTimeoutError::Disconnected) => {
+                        return Ok(());
+                    }
+                    _ => {}
+                }
+                if let Ok(src) = open_source(&s)
+                    && src.sample_rate_hz() == engine_rate(&engine, src.sample_rate_hz())
+                {
+                    break src;
+                }
+            };
+            silent = 0;
+            send(Report::Event(engine.arm(st, None)?));
+            continue;
+        }
+        if buf.is_empty() {
             continue;
         }
         silent = 0;
@@ -163,8 +245,26 @@ fn run(
             }));
             if advance {
                 done = false;
-                send(Report::Event(engine.arm(st + 1, None)?));
+                send(Report::Event(engine.arm(next_station(&s.order, st), None)?));
             }
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn station_orders() {
+        assert_eq!(parse_order("1-4"), Some(vec![1, 2, 3, 4]));
+        assert_eq!(parse_order("4-2, 7"), Some(vec![4, 3, 2, 7]));
+        assert_eq!(parse_order("x"), None);
+        assert_eq!(parse_order(""), None);
+        let o = parse_order("10-8,1").unwrap_or_default();
+        assert_eq!(next_station(&o, 10), 9);
+        assert_eq!(next_station(&o, 8), 1);
+        assert_eq!(next_station(&o, 1), 2); // past the end: ascending
+        assert_eq!(next_station(&[], 5), 6);
     }
 }

@@ -100,10 +100,16 @@ impl TapgridApp {
                             false,
                         ));
                         if self.settings.auto_advance {
-                            advance = Some(station + 1);
+                            let order = capture_thread::parse_order(&self.settings.station_order)
+                                .unwrap_or_default();
+                            advance = Some(capture_thread::next_station(&order, station));
                         }
                     }
                     Report::Event(Event::Health(hl)) => self.capture.health = hl,
+                    Report::Waiting(m) => {
+                        self.capture.message = Some((m.clone(), true));
+                        self.note(m, true);
+                    }
                     Report::Ended(r) => ended = Some(r),
                 }
             }
@@ -454,6 +460,7 @@ fn start_capture(app: &mut TapgridApp, writable: bool) {
             station: app.capture.station.max(1),
             hits: app.settings.hits_per_station,
             auto_advance: app.settings.auto_advance,
+            order: capture_thread::parse_order(&app.settings.station_order).unwrap_or_default(),
         },
         move || {
             if let Some(c) = ctx.get() {

@@ -108,6 +108,8 @@ pub struct Settings {
     pub hits_per_station: usize,
     /// Arm the next station when one is done.
     pub auto_advance: bool,
+    /// Order of the stations for auto-advance (`1-10`, `10-1`, `1,3,5-8`; empty: ascending).
+    pub station_order: String,
 }
 
 impl Default for Settings {
@@ -125,6 +127,7 @@ impl Default for Settings {
             capture_device: None,
             hits_per_station: 3,
             auto_advance: true,
+            station_order: String::new(),
         }
     }
 }
