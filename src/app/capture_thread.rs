@@ -66,6 +66,10 @@ pub struct Start {
     pub auto_advance: bool,
     /// Order of the stations for auto-advance.
     pub order: Vec<u32>,
+    /// Sample rate, Hz (`None`: the device's default).
+    pub rate_hz: Option<u32>,
+    /// Frames per callback.
+    pub buffer_frames: u32,
 }
 
 /// Handle held by the UI.
@@ -93,15 +97,19 @@ pub fn start(s: Start, repaint: impl Fn() + Send + 'static) -> CaptureHandle {
 fn open_source(s: &Start) -> Result<Box<dyn Source>, SourceError> {
     Ok(if s.device == "generator" {
         Box::new(crate::capture::generator::Generator::new(
-            51_200, 1.5, 36_000.0, 1024, true,
+            s.rate_hz.unwrap_or(51_200),
+            1.5,
+            36_000.0,
+            1024,
+            true,
         ))
     } else {
         Box::new(crate::acquire::live::LiveInput::open(
             &crate::acquire::live::OpenOptions {
                 id: s.device.clone(),
                 channels: [s.setup.channel_a.index, s.setup.channel_b.index],
-                sample_rate_hz: None,
-                buffer_frames: Some(1024),
+                sample_rate_hz: s.rate_hz,
+                buffer_frames: Some(s.buffer_frames.max(32)),
             },
         )?)
     })

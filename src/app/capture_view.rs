@@ -282,6 +282,41 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             egui::Grid::new("capture-grid")
                 .num_columns(2)
                 .show(ui, |ui| {
+                    ui.label("sample rate");
+                    ui.add_enabled_ui(!running, |ui| {
+                        ui.horizontal(|ui| {
+                            let mut default = app.settings.capture_rate_hz.is_none();
+                            if ui.checkbox(&mut default, "device default").changed() {
+                                app.settings.capture_rate_hz =
+                                    if default { None } else { Some(51_200) };
+                            }
+                            if let Some(r) = &mut app.settings.capture_rate_hz {
+                                ui.add(
+                                    egui::DragValue::new(r).range(8_000..=384_000).suffix(" Hz"),
+                                );
+                            }
+                        });
+                    });
+                    ui.end_row();
+                    ui.label("buffer");
+                    ui.add_enabled(
+                        !running,
+                        egui::DragValue::new(&mut app.settings.capture_buffer_frames)
+                            .range(32..=16_384)
+                            .suffix(" frames"),
+                    );
+                    ui.end_row();
+                    ui.label("channels");
+                    ui.label(app.doc.as_ref().map_or(
+                        "A = input 0, B = input 1".to_string(),
+                        |d| {
+                            format!(
+                                "A = input {}, B = input {} (Test setup)",
+                                d.setup.channel_a.index, d.setup.channel_b.index
+                            )
+                        },
+                    ));
+                    ui.end_row();
                     ui.label("station");
                     if app.capture.station == 0 {
                         app.capture.station = app.current_station.unwrap_or(1);
@@ -296,13 +331,27 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                     ui.label("next station");
                     let b = ui.checkbox(&mut app.settings.auto_advance, "arm it automatically");
                     ui.end_row();
-                    if (a.changed() || b.changed())
+                    ui.label("station order");
+                    let o = ui.add(
+                        egui::TextEdit::singleline(&mut app.settings.station_order)
+                            .hint_text("e.g. 1-10, 10-1 or 1,3,5-8")
+                            .desired_width(160.0),
+                    );
+                    ui.end_row();
+                    let order = capture_thread::parse_order(&app.settings.station_order);
+                    if order.is_none() && !app.settings.station_order.trim().is_empty() {
+                        ui.label("");
+                        ui.label(RichText::new("cannot read the order").color(BAD));
+                        ui.end_row();
+                    }
+                    if (a.changed() || b.changed() || o.changed())
                         && let Some(h) = &app.capture.handle
                     {
                         let _ = h.controls.send(Control::Plan(
                             app.settings.hits_per_station,
                             app.settings.auto_advance,
                         ));
+                        let _ = h.controls.send(Control::Order(order.unwrap_or_default()));
                     }
                 });
             ui.horizontal(|ui| {
@@ -461,6 +510,8 @@ fn start_capture(app: &mut TapgridApp, writable: bool) {
             hits: app.settings.hits_per_station,
             auto_advance: app.settings.auto_advance,
             order: capture_thread::parse_order(&app.settings.station_order).unwrap_or_default(),
+            rate_hz: app.settings.capture_rate_hz,
+            buffer_frames: app.settings.capture_buffer_frames,
         },
         move || {
             if let Some(c) = ctx.get() {

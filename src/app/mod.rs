@@ -110,6 +110,10 @@ pub struct Settings {
     pub auto_advance: bool,
     /// Order of the stations for auto-advance (`1-10`, `10-1`, `1,3,5-8`; empty: ascending).
     pub station_order: String,
+    /// Capture sample rate, Hz (`None`: the device's default).
+    pub capture_rate_hz: Option<u32>,
+    /// Frames per audio callback.
+    pub capture_buffer_frames: u32,
 }
 
 impl Default for Settings {
@@ -128,6 +132,8 @@ impl Default for Settings {
             hits_per_station: 3,
             auto_advance: true,
             station_order: String::new(),
+            capture_rate_hz: None,
+            capture_buffer_frames: 1024,
         }
     }
 }
