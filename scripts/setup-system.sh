@@ -3,7 +3,7 @@
 set -euo pipefail
 # Xvfb, ImageMagick and Mesa's software OpenGL: the GUI smoke test runs the window headless.
 need=(build-essential pkg-config libasound2-dev xvfb xauth imagemagick libgl1-mesa-dri libegl1 libegl-mesa0 libgl1 libglx-mesa0
-  libx11-6 libxcursor1 libxrandr2 libxi6 libxkbcommon-x11-0)
+  libx11-6 libx11-xcb1 libxcb1 libxcursor1 libxrandr2 libxi6 libxkbcommon-x11-0 libasound2-data)
 missing=()
 sudo=""
 [ "$(id -u)" -eq 0 ] || sudo="sudo"
