@@ -722,28 +722,15 @@ fn devices() -> Result<()> {
 }
 
 fn capture(a: CaptureArgs) -> Result<()> {
-    use crate::acquire::source::Source;
     use crate::capture::{Engine, Event, Plan};
     use std::io::Write;
     let setup = a.setup.apply(Setup::default())?;
-    let mut source: Box<dyn Source> = if a.device == "generator" {
-        Box::new(crate::capture::generator::Generator::new(
-            a.rate.unwrap_or(51_200),
-            1.5,
-            3600.0,
-            1024,
-            true,
-        ))
-    } else {
-        Box::new(crate::acquire::live::LiveInput::open(
-            &crate::acquire::live::OpenOptions {
-                id: a.device.clone(),
-                channels: [setup.channel_a.index, setup.channel_b.index],
-                sample_rate_hz: a.rate,
-                buffer_frames: a.buffer,
-            },
-        )?)
-    };
+    let mut source = crate::capture::open_source(
+        &a.device,
+        [setup.channel_a.index, setup.channel_b.index],
+        a.rate,
+        a.buffer,
+    )?;
     let mut engine = Engine::open(
         &a.session,
         setup,

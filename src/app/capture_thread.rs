@@ -95,24 +95,12 @@ pub fn start(s: Start, repaint: impl Fn() + Send + 'static) -> CaptureHandle {
 }
 
 fn open_source(s: &Start) -> Result<Box<dyn Source>, SourceError> {
-    Ok(if s.device == "generator" {
-        Box::new(crate::capture::generator::Generator::new(
-            s.rate_hz.unwrap_or(51_200),
-            1.5,
-            36_000.0,
-            1024,
-            true,
-        ))
-    } else {
-        Box::new(crate::acquire::live::LiveInput::open(
-            &crate::acquire::live::OpenOptions {
-                id: s.device.clone(),
-                channels: [s.setup.channel_a.index, s.setup.channel_b.index],
-                sample_rate_hz: s.rate_hz,
-                buffer_frames: Some(s.buffer_frames.max(32)),
-            },
-        )?)
-    })
+    crate::capture::open_source(
+        &s.device,
+        [s.setup.channel_a.index, s.setup.channel_b.index],
+        s.rate_hz,
+        Some(s.buffer_frames.max(32)),
+    )
 }
 
 /// Next station after `st` in `order` (or `st + 1` when `st` is not in it or is its last).

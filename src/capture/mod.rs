@@ -533,6 +533,37 @@ fn parse_take(file: &str) -> Option<(u32, u32)> {
     Some((take, seq))
 }
 
+/// Device id of the built-in synthetic source.
+pub const GENERATOR_ID: &str = "generator";
+
+/// Opens a capture source: a live device by id, or the synthetic [`generator`] (taps every
+/// 1.5 s, paced at the sample rate, 51.2 kHz unless a rate is given).
+pub fn open_source(
+    device: &str,
+    channels: [usize; 2],
+    rate_hz: Option<u32>,
+    buffer_frames: Option<u32>,
+) -> Result<Box<dyn Source>, SourceError> {
+    Ok(if device == GENERATOR_ID {
+        Box::new(generator::Generator::new(
+            rate_hz.unwrap_or(51_200),
+            1.5,
+            10.0 * 3600.0,
+            1024,
+            true,
+        ))
+    } else {
+        Box::new(crate::acquire::live::LiveInput::open(
+            &crate::acquire::live::OpenOptions {
+                id: device.to_string(),
+                channels,
+                sample_rate_hz: rate_hz,
+                buffer_frames,
+            },
+        )?)
+    })
+}
+
 /// What a headless capture is to do.
 #[derive(Debug, Clone)]
 pub struct Plan {
