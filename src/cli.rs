@@ -45,6 +45,8 @@ pub enum Command {
     Capture(CaptureArgs),
     /// List audio input devices with the ids `capture --device` takes.
     Devices,
+    /// Natural frequencies and mode shapes of a shaft model (JSON) → modes.json.
+    Model(ModelArgs),
     /// Calibration helpers on a recording: sensitivity, full-scale volts, mass check, loopback.
     Calibrate(CalibrateArgs),
     /// Override a hit's verdict in a session (accept, reject, or back to automatic).
@@ -433,6 +435,22 @@ pub struct CaptureArgs {
     pub setup: SetupArgs,
 }
 
+/// `tapgrid model`.
+#[derive(Debug, Args)]
+pub struct ModelArgs {
+    /// The shaft model (JSON: material, sections, discs, supports).
+    pub shaft: PathBuf,
+    /// Output folder for modes.json.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Modes to compute (rigid-body modes of a free part included).
+    #[arg(long, default_value_t = 6)]
+    pub modes: usize,
+    /// stations.csv (station,position_m): shapes also at these positions.
+    #[arg(long)]
+    pub stations: Option<PathBuf>,
+}
+
 /// `tapgrid calibrate`.
 #[derive(Debug, Args)]
 pub struct CalibrateArgs {
@@ -607,6 +625,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Import(a) => import(a),
         Command::Capture(a) => capture(a),
         Command::Devices => devices(),
+        Command::Model(a) => model(a),
         Command::Calibrate(a) => calibrate(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
@@ -698,6 +717,63 @@ fn import(a: ImportArgs) -> Result<()> {
     s.save()?;
     print!("{}", report::summary(&result));
     println!("session written to {}", a.session.display());
+    Ok(())
+}
+
+fn model(a: ModelArgs) -> Result<()> {
+    use crate::model::run;
+    let shaft = run::read_shaft(&a.shaft)?;
+    if a.modes == 0 || a.modes > 200 {
+        bail!("--modes must be between 1 and 200");
+    }
+    let stations = match &a.stations {
+        Some(p) => crate::acquire::wavset::read_stations_csv(p)?,
+        None => Default::default(),
+    };
+    let length = shaft.length_m();
+    for (st, x) in &stations {
+        if !(0.0..=length + 1e-9).contains(x) {
+            bail!(
+                "{}: station {st} at {x} m lies outside the part (0 to {length} m)",
+                a.stations
+                    .as_ref()
+                    .map(|p| p.display().to_string())
+                    .unwrap_or_default()
+            );
+        }
+    }
+    let at: Vec<f64> = stations.values().copied().collect();
+    let c = run::converged_modes(
+        &shaft,
+        crate::model::beam::BeamTheory::Timoshenko,
+        a.modes,
+        &at,
+    )
+    .map_err(|m| anyhow!("{}: {m}", a.shaft.display()))?;
+    std::fs::create_dir_all(&a.out)
+        .with_context(|| format!("{}: cannot create folder", a.out.display()))?;
+    let path = a.out.join("modes.json");
+    crate::session::atomic::write_bytes(&path, run::modes_json(&c, &stations).as_bytes())
+        .with_context(|| format!("{}: cannot write", path.display()))?;
+    println!(
+        "{} elements (last refinement changed the frequencies by {:.1e})",
+        c.elements, c.last_change
+    );
+    println!("mode  frequency_hz  kind");
+    for (i, m) in c.modes.iter().enumerate() {
+        println!(
+            "{:4}  {:12.3}  {}",
+            i + 1,
+            m.frequency_hz,
+            if m.rigid_body {
+                "rigid body"
+            } else {
+                "flexible"
+            }
+        );
+    }
+    println!("wrote {}", path.display());
+    println!("note: undamped bending modes without gyroscopic effects; advisory only");
     Ok(())
 }
 

@@ -1,3 +1,4 @@
 //! The shaft model: Timoshenko beam finite elements of a stepped shaft with discs and supports.
 
 pub mod beam;
+pub mod run;

@@ -1,0 +1,204 @@
+//! The shaft model against handbook values: Euler–Bernoulli frequency coefficients of slender
+//! uniform beams (Blevins 1979, table 8-1; field notes §5), free-free node positions (same table),
+//! mesh convergence, f ∝ D/L² for slender solid shafts (common practice), and the `tapgrid model`
+//! command's file format and errors.
+
+#![allow(clippy::unwrap_used, clippy::expect_used)]
+
+use assert_cmd::Command;
+use predicates::prelude::*;
+use tapgrid::model::beam::{BeamTheory, Material, Section, Shaft, Support};
+use tapgrid::model::run::converged_modes;
+
+const L: f64 = 1.0;
+const D: f64 = 0.02;
+
+fn bar(d: f64, l: f64, supports: Vec<Support>) -> Shaft {
+    Shaft {
+        material: Material::STEEL,
+        sections: vec![Section {
+            length_m: l,
+            outer_diameter_m: d,
+            inner_diameter_m: 0.0,
+            material: None,
+        }],
+        discs: vec![],
+        supports,
+    }
+}
+
+/// f_n = λ_n² / (2π L²) · √(EI / ρA); for a solid circle EI/ρA = E D² / (16 ρ).
+fn blevins_hz(lambda: f64, d: f64, l: f64) -> f64 {
+    let m = Material::STEEL;
+    lambda * lambda / (2.0 * std::f64::consts::PI * l * l)
+        * (m.youngs_modulus_pa * d * d / (16.0 * m.density_kg_m3)).sqrt()
+}
+
+#[test]
+fn free_free_coefficients_within_a_tenth_of_a_percent() {
+    let c = converged_modes(&bar(D, L, vec![]), BeamTheory::EulerBernoulli, 5, &[]).unwrap();
+    assert!(c.modes[0].rigid_body && c.modes[1].rigid_body);
+    assert!(!c.modes[2].rigid_body);
+    for (m, lambda) in c.modes[2..].iter().zip([4.730_04, 7.853_20, 10.995_6]) {
+        let f = blevins_hz(lambda, D, L);
+        assert!(
+            (m.frequency_hz / f - 1.0).abs() < 1e-3,
+            "{} vs {f}",
+            m.frequency_hz
+        );
+    }
+    // Mode 1's nodes at 0.2242 L and 0.7758 L.
+    let m = &c.modes[2];
+    let mut nodes = Vec::new();
+    for k in 1..c.nodes_m.len() {
+        let (a, b) = (m.displacement[k - 1], m.displacement[k]);
+        if a * b < 0.0 {
+            let t = a / (a - b);
+            nodes.push(c.nodes_m[k - 1] + t * (c.nodes_m[k] - c.nodes_m[k - 1]));
+        }
+    }
+    assert_eq!(nodes.len(), 2);
+    assert!((nodes[0] / L - 0.2242).abs() < 5e-4, "{}", nodes[0]);
+    assert!((nodes[1] / L - 0.7758).abs() < 5e-4, "{}", nodes[1]);
+}
+
+#[test]
+fn pinned_pinned_coefficients_within_a_tenth_of_a_percent() {
+    // Pins as supports far stiffer than the bar (k L³/EI ≈ 10⁸).
+    let k = 1e11;
+    let s = bar(
+        D,
+        L,
+        vec![
+            Support {
+                position_m: 0.0,
+                stiffness_n_per_m: k,
+            },
+            Support {
+                position_m: L,
+                stiffness_n_per_m: k,
+            },
+        ],
+    );
+    let c = converged_modes(&s, BeamTheory::EulerBernoulli, 3, &[]).unwrap();
+    for (n, m) in c.modes.iter().enumerate() {
+        let lambda = (n + 1) as f64 * std::f64::consts::PI;
+        let f = blevins_hz(lambda, D, L);
+        assert!(
+            (m.frequency_hz / f - 1.0).abs() < 1e-3,
+            "mode {}: {} vs {f}",
+            n + 1,
+            m.frequency_hz
+        );
+        assert!(!m.rigid_body);
+    }
+}
+
+#[test]
+fn frequency_scales_with_diameter_over_length_squared() {
+    let f = |d: f64, l: f64| {
+        converged_modes(&bar(d, l, vec![]), BeamTheory::EulerBernoulli, 3, &[])
+            .unwrap()
+            .modes[2]
+            .frequency_hz
+    };
+    let f0 = f(D, L);
+    assert!((f(2.0 * D, L) / f0 - 2.0).abs() < 1e-3);
+    assert!((f(D, 2.0 * L) / f0 - 0.25).abs() < 1e-3);
+    // Timoshenko is lower than Euler–Bernoulli, by more for a stubby shaft (shear, rotary inertia).
+    let t = converged_modes(&bar(D, L, vec![]), BeamTheory::Timoshenko, 3, &[])
+        .unwrap()
+        .modes[2]
+        .frequency_hz;
+    assert!(t < f0 && t > 0.995 * f0);
+}
+
+#[test]
+fn mesh_refinement_converges() {
+    let s = bar(D, L, vec![]);
+    let c = converged_modes(&s, BeamTheory::Timoshenko, 6, &[]).unwrap();
+    assert!(c.last_change < 1e-5);
+    let (_, fine) = s.modes(BeamTheory::Timoshenko, 6, 512, &[]).unwrap();
+    for (a, b) in c.modes.iter().zip(&fine).skip(2) {
+        assert!((a.frequency_hz / b.frequency_hz - 1.0).abs() < 1e-4);
+    }
+}
+
+#[test]
+fn model_command_writes_modes_json_with_station_values() {
+    let dir = tempfile::tempdir().unwrap();
+    let shaft = dir.path().join("shaft.json");
+    std::fs::write(
+        &shaft,
+        r#"{"material":{"youngs_modulus_pa":210e9,"density_kg_m3":7850,"poisson_ratio":0.3},
+           "sections":[{"length_m":1.0,"outer_diameter_m":0.02,"inner_diameter_m":0.0}],
+           "discs":[],"supports":[]}"#,
+    )
+    .unwrap();
+    let csv = dir.path().join("stations.csv");
+    std::fs::write(&csv, "station,position_m\n1,0.0\n2,0.5\n3,1.0\n").unwrap();
+    let out = dir.path().join("out");
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("model")
+        .arg(&shaft)
+        .arg("--out")
+        .arg(&out)
+        .args(["--modes", "4"])
+        .arg("--stations")
+        .arg(&csv)
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("rigid body"));
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("modes.json")).unwrap()).unwrap();
+    let modes = v["modes"].as_array().unwrap();
+    assert_eq!(modes.len(), 4);
+    assert_eq!(modes[0]["rigid_body"], true);
+    assert_eq!(modes[2]["rigid_body"], false);
+    let f = modes[2]["frequency_hz"].as_f64().unwrap();
+    assert!((f / blevins_hz(4.730_04, D, L) - 1.0).abs() < 2e-3);
+    let st = modes[2]["stations"].as_array().unwrap();
+    assert_eq!(st.len(), 3);
+    // Mode 1 of a free-free bar: ends in phase, middle opposite.
+    let val = |i: usize| st[i]["value"].as_f64().unwrap();
+    assert!(val(0) * val(2) > 0.0 && val(0) * val(1) < 0.0);
+    assert!(modes[2]["shape"].as_array().unwrap().len() > 100);
+    assert!(modes[2]["shape"][0]["position_m"].is_number());
+}
+
+#[test]
+fn bad_geometry_is_a_clear_error() {
+    let dir = tempfile::tempdir().unwrap();
+    for (json, words) in [
+        (
+            r#"{"material":{"youngs_modulus_pa":210e9,"density_kg_m3":7850,"poisson_ratio":0.3},
+               "sections":[{"length_m":0.0,"outer_diameter_m":0.02,"inner_diameter_m":0.0}]}"#,
+            "length",
+        ),
+        (
+            r#"{"material":{"youngs_modulus_pa":210e9,"density_kg_m3":7850,"poisson_ratio":0.3},
+               "sections":[{"length_m":1.0,"outer_diameter_m":0.02,"inner_diameter_m":0.03}]}"#,
+            "inner",
+        ),
+        (
+            r#"{"material":{"youngs_modulus_pa":210e9,"density_kg_m3":7850,"poisson_ratio":0.3},
+               "sections":[{"length_m":1.0,"outer_diameter_m":0.02,"inner_diameter_m":0.0}],
+               "supports":[{"position_m":1.5,"stiffness_n_per_m":1e6}]}"#,
+            "support",
+        ),
+    ] {
+        let p = dir.path().join("bad.json");
+        std::fs::write(&p, json).unwrap();
+        Command::cargo_bin("tapgrid")
+            .unwrap()
+            .arg("model")
+            .arg(&p)
+            .arg("--out")
+            .arg(dir.path().join("o"))
+            .assert()
+            .code(2)
+            .stderr(predicate::str::contains("bad.json"))
+            .stderr(predicate::str::contains(words));
+    }
+}
