@@ -47,6 +47,10 @@ pub enum Command {
     Devices,
     /// Natural frequencies and mode shapes of a shaft model (JSON) → modes.json.
     Model(ModelArgs),
+    /// Pair a test's modes with a shaft model's by MAC: frequency differences, MAC matrix.
+    Correlate(CorrelateArgs),
+    /// Running-speed margin check of measured modes and/or model critical speeds (advisory).
+    Margin(MarginArgs),
     /// Calibration helpers on a recording: sensitivity, full-scale volts, mass check, loopback.
     Calibrate(CalibrateArgs),
     /// Override a hit's verdict in a session (accept, reject, or back to automatic).
@@ -449,6 +453,57 @@ pub struct ModelArgs {
     /// stations.csv (station,position_m): shapes also at these positions.
     #[arg(long)]
     pub stations: Option<PathBuf>,
+    /// Also sweep every support's stiffness over LO:HI N/m (log, 25 points) → stiffness_map.csv.
+    #[arg(long)]
+    pub stiffness_map: Option<String>,
+}
+
+/// `tapgrid correlate`.
+#[derive(Debug, Args)]
+pub struct CorrelateArgs {
+    /// A session or WAV set folder (analysed and fitted automatically).
+    pub input: PathBuf,
+    /// The shaft model (JSON).
+    #[arg(long)]
+    pub model: PathBuf,
+    /// Output folder for correlation.json.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Smallest MAC that pairs two modes.
+    #[arg(long, default_value_t = 0.6)]
+    pub min_mac: f64,
+    /// Setup for a WAV set (a session uses its own).
+    #[command(flatten)]
+    pub setup: SetupArgs,
+}
+
+/// `tapgrid margin`.
+#[derive(Debug, Args)]
+pub struct MarginArgs {
+    /// Operating speed range, rpm (MIN:MAX).
+    #[arg(long)]
+    pub speed: String,
+    /// Resonances as F or F:ZETA (Hz, damping ratio), comma-separated.
+    #[arg(long)]
+    pub modes: Option<String>,
+    /// A session or WAV set: its measured modes (frequency and damping).
+    #[arg(long)]
+    pub test: Option<PathBuf>,
+    /// A shaft model: its critical speeds at its support stiffness (undamped: AF unknown).
+    #[arg(long)]
+    pub model: Option<PathBuf>,
+    /// Orders of running speed.
+    #[arg(long, default_value = "1,2")]
+    pub orders: String,
+    /// AF below which no margin is required.
+    #[arg(long, default_value_t = 2.5)]
+    pub af_threshold: f64,
+    /// Cap of the margin below the range, %.
+    #[arg(long, default_value_t = 16.0)]
+    pub below_cap: f64,
+    /// Cap of the margin above the range, %.
+    #[arg(long, default_value_t = 26.0)]
+    pub above_cap: f64,
 }
 
 /// `tapgrid calibrate`.
@@ -626,6 +681,8 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Capture(a) => capture(a),
         Command::Devices => devices(),
         Command::Model(a) => model(a),
+        Command::Correlate(a) => correlate(a),
+        Command::Margin(a) => margin(a),
         Command::Calibrate(a) => calibrate(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
@@ -773,7 +830,229 @@ fn model(a: ModelArgs) -> Result<()> {
         );
     }
     println!("wrote {}", path.display());
+    if let Some(r) = &a.stiffness_map {
+        let (lo, hi) = colon_range(r, "stiffness-map")?;
+        let map = crate::model::correlate::stiffness_map(&shaft, [lo, hi], 25, a.modes)
+            .map_err(|m| anyhow!("{}: {m}", a.shaft.display()))?;
+        let mut csv = String::from("stiffness_n_per_m");
+        for i in 0..a.modes {
+            csv.push_str(&format!(",mode{}_hz", i + 1));
+        }
+        csv.push('\n');
+        for (k, f) in &map {
+            csv.push_str(&format!("{k:.6e}"));
+            for v in f {
+                csv.push_str(&format!(",{v:.4}"));
+            }
+            csv.push('\n');
+        }
+        let p = a.out.join("stiffness_map.csv");
+        crate::session::atomic::write_bytes(&p, csv.as_bytes())
+            .with_context(|| format!("{}: cannot write", p.display()))?;
+        println!("wrote {}", p.display());
+    }
     println!("note: undamped bending modes without gyroscopic effects; advisory only");
+    Ok(())
+}
+
+/// `LO:HI` as two numbers.
+fn colon_range(text: &str, what: &str) -> Result<(f64, f64)> {
+    let (a, b) = text
+        .split_once(':')
+        .ok_or_else(|| anyhow!("--{what}: give LO:HI, got {text:?}"))?;
+    let p = |v: &str| {
+        v.trim()
+            .parse::<f64>()
+            .map_err(|_| anyhow!("--{what}: cannot read {v:?} in {text:?}"))
+    };
+    Ok((p(a)?, p(b)?))
+}
+
+/// Analyses and fits a session or WAV set with its own (or the given) setup.
+fn fitted(input: &Path, setup: &SetupArgs) -> Result<ModalResult> {
+    let (data, session) = Dataset::open(input, Setup::default().spacing_m)?;
+    let setup = match &session {
+        Some(s) => s.manifest.setup.clone(),
+        None => setup.apply(Setup::default())?,
+    };
+    let a = analysis::run(&data, &setup)?;
+    let fs = FrfSet::from_analysis(&a)
+        .ok_or_else(|| anyhow!("{}: no station has an accepted hit", input.display()))?;
+    crate::modal::extract(&fs, &ModalSettings::default())
+        .map_err(|m| anyhow!("{}: {m}", input.display()))
+}
+
+fn correlate(a: CorrelateArgs) -> Result<()> {
+    use crate::model::{beam::BeamTheory, correlate, run};
+    let shaft = run::read_shaft(&a.model)?;
+    let m = fitted(&a.input, &a.setup)?;
+    let length = shaft.length_m();
+    if let Some(x) = m
+        .positions_m
+        .iter()
+        .find(|x| !(-1e-9..=length + 1e-9).contains(*x))
+    {
+        bail!(
+            "{}: a station at {x} m lies outside the model (0 to {length} m)",
+            a.input.display()
+        );
+    }
+    let model = run::converged_modes(
+        &shaft,
+        BeamTheory::Timoshenko,
+        m.modes.len() + 6,
+        &m.positions_m,
+    )
+    .map_err(|e| anyhow!("{}: {e}", a.model.display()))?;
+    let test: Vec<(f64, Vec<f64>)> = m
+        .modes
+        .iter()
+        .map(|x| (x.frequency_hz, x.shape.iter().map(|c| c.re).collect()))
+        .collect();
+    let c = correlate::correlate(
+        &m.positions_m,
+        &test,
+        &model.nodes_m,
+        &model.modes,
+        a.min_mac,
+    );
+    println!("test  model  test_hz     model_hz    diff_%   MAC");
+    for p in &c.pairs {
+        println!(
+            "{:4}  {:5}  {:10.2}  {:10.2}  {:+7.2}  {:.3}",
+            p.test + 1,
+            p.model + 1,
+            p.test_hz,
+            p.model_hz,
+            p.difference_pct,
+            p.mac
+        );
+    }
+    for &i in &c.unpaired_test {
+        println!(
+            "test mode {} ({:.2} Hz): no model mode with MAC ≥ {}",
+            i + 1,
+            test[i].0,
+            a.min_mac
+        );
+    }
+    let band = [
+        m.indicators.freq_hz.first().copied().unwrap_or(0.0),
+        m.indicators.freq_hz.last().copied().unwrap_or(0.0),
+    ];
+    for &j in &c.unpaired_model {
+        let f = model.modes[j].frequency_hz;
+        if (band[0]..=band[1]).contains(&f) {
+            println!(
+                "model mode {} ({f:.2} Hz): inside the tested band but not found in the test",
+                j + 1
+            );
+        }
+    }
+    if let Some(out) = &a.out {
+        std::fs::create_dir_all(out)
+            .with_context(|| format!("{}: cannot create folder", out.display()))?;
+        let p = out.join("correlation.json");
+        let text = serde_json::to_string_pretty(&c).unwrap_or_default();
+        crate::session::atomic::write_bytes(&p, text.as_bytes())
+            .with_context(|| format!("{}: cannot write", p.display()))?;
+        println!("wrote {}", p.display());
+    }
+    Ok(())
+}
+
+fn margin(a: MarginArgs) -> Result<()> {
+    use crate::model::margin::{MarginRule, Side, check};
+    let (lo, hi) = colon_range(&a.speed, "speed")?;
+    if !(lo > 0.0 && hi >= lo) {
+        bail!("--speed: give MIN:MAX rpm with 0 < MIN ≤ MAX");
+    }
+    let orders: Vec<u32> = a
+        .orders
+        .split(',')
+        .map(|x| {
+            x.trim()
+                .parse()
+                .map_err(|_| anyhow!("--orders: cannot read {x:?}"))
+        })
+        .collect::<Result<_>>()?;
+    let mut res: Vec<(f64, Option<f64>, &str)> = Vec::new();
+    if let Some(t) = &a.modes {
+        for item in t.split(',').filter(|x| !x.trim().is_empty()) {
+            let mut it = item.split(':');
+            let f: f64 = it
+                .next()
+                .and_then(|v| v.trim().parse().ok())
+                .ok_or_else(|| anyhow!("--modes: cannot read {item:?}; use F or F:ZETA"))?;
+            let z: Option<f64> = it
+                .next()
+                .map(|v| v.trim().parse())
+                .transpose()
+                .map_err(|_| anyhow!("--modes: cannot read {item:?}"))?;
+            res.push((f, z, "given"));
+        }
+    }
+    if let Some(t) = &a.test {
+        let m = fitted(t, &SetupArgs::default())?;
+        for md in &m.modes {
+            res.push((md.frequency_hz, md.damping_ratio, "measured"));
+        }
+    }
+    if let Some(p) = &a.model {
+        let shaft = crate::model::run::read_shaft(p)?;
+        let c = crate::model::run::converged_modes(
+            &shaft,
+            crate::model::beam::BeamTheory::Timoshenko,
+            8,
+            &[],
+        )
+        .map_err(|e| anyhow!("{}: {e}", p.display()))?;
+        for md in c.modes.iter().filter(|m| !m.rigid_body) {
+            res.push((md.frequency_hz, None, "model"));
+        }
+    }
+    if res.is_empty() {
+        bail!("give resonances with --modes, --test or --model");
+    }
+    let rule = MarginRule {
+        af_threshold: a.af_threshold,
+        below_cap_pct: a.below_cap,
+        above_cap_pct: a.above_cap,
+        ..MarginRule::default()
+    };
+    let speeds: Vec<(f64, Option<f64>)> = res.iter().map(|r| (r.0, r.1)).collect();
+    let checks = check(&speeds, [lo, hi], &orders, &rule);
+    println!(
+        "source    f_hz      order  critical_rpm  AF      side    margin_%  required_%  verdict"
+    );
+    for (c, r) in checks.iter().zip(
+        res.iter()
+            .flat_map(|r| std::iter::repeat_n(r, orders.len())),
+    ) {
+        let side = match c.side {
+            Side::Below => "below",
+            Side::Inside => "INSIDE",
+            Side::Above => "above",
+        };
+        println!(
+            "{:8}  {:8.2}  {:5}  {:12.0}  {:6.1}  {:6}  {:8.1}  {:10.1}  {}",
+            r.2,
+            c.frequency_hz,
+            c.order,
+            c.critical_rpm,
+            c.amplification_factor,
+            side,
+            c.margin_pct,
+            c.required_pct,
+            if c.ok { "ok" } else { "TOO CLOSE" }
+        );
+    }
+    println!(
+        "Advisory only: the rule is API RP 684's as recalled from memory (confirm it against the \
+         edition in force); bench frequencies are not installed critical speeds (no gyroscopic \
+         effect, bench supports); the decision belongs to the applicable standard, local codes and \
+         a licensed engineer."
+    );
     Ok(())
 }
 

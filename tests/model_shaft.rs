@@ -202,3 +202,135 @@ fn bad_geometry_is_a_clear_error() {
             .stderr(predicate::str::contains(words));
     }
 }
+
+/// Uniform Euler–Bernoulli shaft on equal end springs, K* = kL³/EI (field notes §5 table, derived):
+/// λ1, λ2 within 0.5 %.
+#[test]
+fn spring_support_table_within_half_a_percent() {
+    let m = Material::STEEL;
+    let ei = m.youngs_modulus_pa * std::f64::consts::PI / 64.0 * D.powi(4);
+    for (kstar, l1, l2) in [
+        (1.0, 1.184, 1.564),
+        (10.0, 2.032, 2.767),
+        (100.0, 2.877, 4.664),
+        (1000.0, 3.111, 6.037),
+    ] {
+        let k = kstar * ei / L.powi(3);
+        let s = bar(
+            D,
+            L,
+            vec![
+                Support {
+                    position_m: 0.0,
+                    stiffness_n_per_m: k,
+                },
+                Support {
+                    position_m: L,
+                    stiffness_n_per_m: k,
+                },
+            ],
+        );
+        let c = converged_modes(&s, BeamTheory::EulerBernoulli, 2, &[]).unwrap();
+        for (mode, lambda) in c.modes.iter().zip([l1, l2]) {
+            let f = blevins_hz(lambda, D, L);
+            assert!(
+                (mode.frequency_hz / f - 1.0).abs() < 5e-3,
+                "K* {kstar}: {} vs {f}",
+                mode.frequency_hz
+            );
+        }
+    }
+}
+
+/// A test simulated from the model (tapgrid's simulator), fitted, and correlated back with the
+/// same model: every mode paired, MAC > 0.99, frequency difference < 0.5 %.
+#[test]
+fn simulated_test_correlates_back_with_its_model() {
+    use tapgrid::analysis::{self, Dataset};
+    use tapgrid::modal::{FrfSet, ModalSettings, extract};
+    let sc = tapgrid::sim::Scenario::pump_shaft();
+    let dir = tempfile::tempdir().unwrap();
+    sc.write(dir.path()).unwrap();
+    let set = tapgrid::acquire::wavset::WavSet::scan(dir.path(), 0.1).unwrap();
+    let setup = tapgrid::setup::Setup {
+        reference_station: Some(sc.reference_station),
+        ..sc.rig.matching_setup(sc.layout, [10.0, 3000.0])
+    };
+    let a = analysis::run(&Dataset::from_wavset(&set), &setup).unwrap();
+    let fs = FrfSet::from_analysis(&a).unwrap();
+    let m = extract(&fs, &ModalSettings::default()).unwrap();
+    let test: Vec<(f64, Vec<f64>)> = m
+        .modes
+        .iter()
+        .map(|x| (x.frequency_hz, x.shape.iter().map(|c| c.re).collect()))
+        .collect();
+    let model = converged_modes(&sc.shaft, BeamTheory::Timoshenko, 10, &m.positions_m).unwrap();
+    let c = tapgrid::model::correlate::correlate(
+        &m.positions_m,
+        &test,
+        &model.nodes_m,
+        &model.modes,
+        0.6,
+    );
+    assert_eq!(
+        c.pairs.len(),
+        test.len(),
+        "unpaired test modes {:?}",
+        c.unpaired_test
+    );
+    for p in &c.pairs {
+        assert!(p.mac > 0.99, "{p:?}");
+        assert!(p.difference_pct.abs() < 0.5, "{p:?}");
+    }
+}
+
+/// The margin command on a case worked by hand from the API RP 684 rule (field notes §6, from
+/// memory): a 60 Hz mode with ζ = 5 % (AF 10) is 18.0 % above a 3050 rpm maximum and needs 25.0 %.
+#[test]
+fn margin_command_by_hand() {
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args(["margin", "--speed", "2950:3050", "--modes", "60:0.05"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("18.0"))
+        .stdout(predicate::str::contains("25.0"))
+        .stdout(predicate::str::contains("TOO CLOSE"))
+        .stdout(predicate::str::contains("Advisory"));
+}
+
+/// The bundled demo session correlated with the shaft it was simulated from: five pairs, MAC 1.
+#[test]
+fn correlate_command_on_the_demo() {
+    let dir = tempfile::tempdir().unwrap();
+    let truth: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+                .join("sample-sessions/pump-shaft/simulation-truth.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let model = dir.path().join("pump.json");
+    std::fs::write(&model, truth["scenario"]["shaft"].to_string()).unwrap();
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("correlate")
+        .arg(std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-sessions/pump-shaft"))
+        .arg("--model")
+        .arg(&model)
+        .arg("--out")
+        .arg(dir.path())
+        .assert()
+        .success();
+    let c: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("correlation.json")).unwrap(),
+    )
+    .unwrap();
+    let pairs = c["pairs"].as_array().unwrap();
+    assert_eq!(pairs.len(), 5);
+    for p in pairs {
+        assert!(p["mac"].as_f64().unwrap() > 0.99);
+        assert!(p["difference_pct"].as_f64().unwrap().abs() < 0.5);
+    }
+}

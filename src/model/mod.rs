@@ -1,4 +1,6 @@
 //! The shaft model: Timoshenko beam finite elements of a stepped shaft with discs and supports.
 
 pub mod beam;
+pub mod correlate;
+pub mod margin;
 pub mod run;
