@@ -334,3 +334,33 @@ fn correlate_command_on_the_demo() {
         assert!(p["difference_pct"].as_f64().unwrap().abs() < 0.5);
     }
 }
+
+/// Field notes §8 (derived): pinned-pinned, D = 100 mm, L = 0.5 m, exact Timoshenko 776.25 /
+/// 2779.21 / 5461.03 Hz; within 0.2 % (pins as very stiff springs).
+#[test]
+fn timoshenko_pinned_pinned_check_values() {
+    let (d, l) = (0.1, 0.5);
+    let k = 1e14;
+    let s = bar(
+        d,
+        l,
+        vec![
+            Support {
+                position_m: 0.0,
+                stiffness_n_per_m: k,
+            },
+            Support {
+                position_m: l,
+                stiffness_n_per_m: k,
+            },
+        ],
+    );
+    let c = converged_modes(&s, BeamTheory::Timoshenko, 3, &[]).unwrap();
+    for (m, f) in c.modes.iter().zip([776.25, 2779.21, 5461.03]) {
+        assert!(
+            (m.frequency_hz / f - 1.0).abs() < 2e-3,
+            "{} vs {f}",
+            m.frequency_hz
+        );
+    }
+}
