@@ -27,6 +27,16 @@ fn bar(d: f64, l: f64, supports: Vec<Support>) -> Shaft {
     }
 }
 
+/// Equal lateral springs `k` at both ends of a bar of length `l`.
+fn end_springs(k: f64, l: f64) -> Vec<Support> {
+    [0.0, l]
+        .map(|x| Support {
+            position_m: x,
+            stiffness_n_per_m: k,
+        })
+        .to_vec()
+}
+
 /// f_n = λ_n² / (2π L²) · √(EI / ρA); for a solid circle EI/ρA = E D² / (16 ρ).
 fn blevins_hz(lambda: f64, d: f64, l: f64) -> f64 {
     let m = Material::STEEL;
@@ -66,20 +76,7 @@ fn free_free_coefficients_within_a_tenth_of_a_percent() {
 fn pinned_pinned_coefficients_within_a_tenth_of_a_percent() {
     // Pins as supports far stiffer than the bar (k L³/EI ≈ 10⁸).
     let k = 1e11;
-    let s = bar(
-        D,
-        L,
-        vec![
-            Support {
-                position_m: 0.0,
-                stiffness_n_per_m: k,
-            },
-            Support {
-                position_m: L,
-                stiffness_n_per_m: k,
-            },
-        ],
-    );
+    let s = bar(D, L, end_springs(k, L));
     let c = converged_modes(&s, BeamTheory::EulerBernoulli, 3, &[]).unwrap();
     for (n, m) in c.modes.iter().enumerate() {
         let lambda = (n + 1) as f64 * std::f64::consts::PI;
@@ -216,20 +213,7 @@ fn spring_support_table_within_half_a_percent() {
         (1000.0, 3.111, 6.037),
     ] {
         let k = kstar * ei / L.powi(3);
-        let s = bar(
-            D,
-            L,
-            vec![
-                Support {
-                    position_m: 0.0,
-                    stiffness_n_per_m: k,
-                },
-                Support {
-                    position_m: L,
-                    stiffness_n_per_m: k,
-                },
-            ],
-        );
+        let s = bar(D, L, end_springs(k, L));
         let c = converged_modes(&s, BeamTheory::EulerBernoulli, 2, &[]).unwrap();
         for (mode, lambda) in c.modes.iter().zip([l1, l2]) {
             let f = blevins_hz(lambda, D, L);
@@ -341,20 +325,7 @@ fn correlate_command_on_the_demo() {
 fn timoshenko_pinned_pinned_check_values() {
     let (d, l) = (0.1, 0.5);
     let k = 1e14;
-    let s = bar(
-        d,
-        l,
-        vec![
-            Support {
-                position_m: 0.0,
-                stiffness_n_per_m: k,
-            },
-            Support {
-                position_m: l,
-                stiffness_n_per_m: k,
-            },
-        ],
-    );
+    let s = bar(d, l, end_springs(k, l));
     let c = converged_modes(&s, BeamTheory::Timoshenko, 3, &[]).unwrap();
     for (m, f) in c.modes.iter().zip([776.25, 2779.21, 5461.03]) {
         assert!(

@@ -45,19 +45,17 @@ pub fn amplification_factor(zeta: Option<f64>) -> f64 {
 impl MarginRule {
     /// Margin required for a resonance below the operating range, %.
     pub fn below_pct(&self, af: f64) -> f64 {
-        if af < self.af_threshold {
-            return 0.0;
-        }
-        let t = if af.is_finite() {
-            1.0 - 1.0 / (af - 1.5)
-        } else {
-            1.0
-        };
-        (self.slope_pct * t).clamp(0.0, self.below_cap_pct)
+        self.required(af, 0.0, self.below_cap_pct)
     }
 
     /// Margin required for a resonance above the operating range, %.
     pub fn above_pct(&self, af: f64) -> f64 {
+        self.required(af, self.above_offset_pct, self.above_cap_pct)
+    }
+
+    /// offset + slope·(1 − 1/(AF − 1.5)), capped; none below the AF threshold; the cap when
+    /// the damping (so AF) is not known.
+    fn required(&self, af: f64, offset: f64, cap: f64) -> f64 {
         if af < self.af_threshold {
             return 0.0;
         }
@@ -66,7 +64,7 @@ impl MarginRule {
         } else {
             1.0
         };
-        (self.above_offset_pct + self.slope_pct * t).clamp(0.0, self.above_cap_pct)
+        (offset + self.slope_pct * t).clamp(0.0, cap)
     }
 }
 
