@@ -51,67 +51,65 @@ impl TapgridApp {
                 incoming.push(r);
             }
         }
-        {
-            for r in incoming {
-                match r {
-                    Report::Event(Event::Levels {
-                        peak_a_fs,
-                        peak_b_fs,
-                    }) => {
-                        let c = &mut self.capture;
-                        c.levels = [peak_a_fs, peak_b_fs];
-                        for (k, v) in [peak_a_fs, peak_b_fs].into_iter().enumerate() {
-                            if v >= c.hold[k].0 || now - c.hold[k].1 > 2.0 {
-                                c.hold[k] = (v, now);
-                            }
-                            if v >= self
-                                .doc
-                                .as_ref()
-                                .map_or(0.98, |d| d.setup.quality.overload_fraction as f32)
-                            {
-                                c.over[k] = now;
-                            }
+        for r in incoming {
+            match r {
+                Report::Event(Event::Levels {
+                    peak_a_fs,
+                    peak_b_fs,
+                }) => {
+                    let c = &mut self.capture;
+                    c.levels = [peak_a_fs, peak_b_fs];
+                    for (k, v) in [peak_a_fs, peak_b_fs].into_iter().enumerate() {
+                        if v >= c.hold[k].0 || now - c.hold[k].1 > 2.0 {
+                            c.hold[k] = (v, now);
+                        }
+                        if v >= self
+                            .doc
+                            .as_ref()
+                            .map_or(0.98, |d| d.setup.quality.overload_fraction as f32)
+                        {
+                            c.over[k] = now;
                         }
                     }
-                    Report::Event(Event::Armed { station, accepted }) => {
-                        self.capture.armed = Some(station);
-                        self.current_station = Some(station);
-                        self.capture.message = Some((
-                            format!("Tap station {station} ({accepted} kept so far)"),
-                            false,
-                        ));
-                        reload = true;
-                    }
-                    Report::Event(Event::Hit(h)) => {
-                        self.current_station = Some(h.station);
-                        self.capture.message = Some((
-                            format!(
-                                "Tap station {}: {} of {} kept",
-                                h.station, h.accepted_so_far, self.settings.hits_per_station
-                            ),
-                            false,
-                        ));
-                        self.capture.last_hit = Some(*h);
-                        reload = true;
-                    }
-                    Report::Event(Event::StationDone { station, accepted }) => {
-                        self.capture.message = Some((
-                            format!("Station {station} done: {accepted} hits kept"),
-                            false,
-                        ));
-                        if self.settings.auto_advance {
-                            let order = capture_thread::parse_order(&self.settings.station_order)
-                                .unwrap_or_default();
-                            advance = Some(capture_thread::next_station(&order, station));
-                        }
-                    }
-                    Report::Event(Event::Health(hl)) => self.capture.health = hl,
-                    Report::Waiting(m) => {
-                        self.capture.message = Some((m.clone(), true));
-                        self.note(m, true);
-                    }
-                    Report::Ended(r) => ended = Some(r),
                 }
+                Report::Event(Event::Armed { station, accepted }) => {
+                    self.capture.armed = Some(station);
+                    self.current_station = Some(station);
+                    self.capture.message = Some((
+                        format!("Tap station {station} ({accepted} kept so far)"),
+                        false,
+                    ));
+                    reload = true;
+                }
+                Report::Event(Event::Hit(h)) => {
+                    self.current_station = Some(h.station);
+                    self.capture.message = Some((
+                        format!(
+                            "Tap station {}: {} of {} kept",
+                            h.station, h.accepted_so_far, self.settings.hits_per_station
+                        ),
+                        false,
+                    ));
+                    self.capture.last_hit = Some(*h);
+                    reload = true;
+                }
+                Report::Event(Event::StationDone { station, accepted }) => {
+                    self.capture.message = Some((
+                        format!("Station {station} done: {accepted} hits kept"),
+                        false,
+                    ));
+                    if self.settings.auto_advance {
+                        let order = capture_thread::parse_order(&self.settings.station_order)
+                            .unwrap_or_default();
+                        advance = Some(capture_thread::next_station(&order, station));
+                    }
+                }
+                Report::Event(Event::Health(hl)) => self.capture.health = hl,
+                Report::Waiting(m) => {
+                    self.capture.message = Some((m.clone(), true));
+                    self.note(m, true);
+                }
+                Report::Ended(r) => ended = Some(r),
             }
         }
         // The capture thread arms the next station itself; follow it here.

@@ -115,29 +115,13 @@ impl Scratch {
         self.xs.extend(freq_hz.iter().map(|&f| axis.x(f)));
         self.ys.clear();
         self.ys.extend((0..freq_hz.len()).map(y));
-        let (xs, ys) = (&self.xs, &self.ys);
-        let range = match bounds {
-            Some(b) if b.is_valid() => [b.min()[0], b.max()[0]],
-            _ => [
-                xs.first().copied().unwrap_or(0.0),
-                xs.last().copied().unwrap_or(1.0),
-            ],
-        };
-        let columns = if self.mode == PlotMode::Full {
-            usize::MAX / 4
-        } else {
-            columns.max(16)
-        };
-        reduce::min_max(xs, ys, range, columns, &mut self.buf);
-        PlotPoints::Owned(
-            self.buf
-                .iter()
-                .map(|p| PlotPoint::new(p[0], p[1]))
-                .collect(),
-        )
+        let (xs, ys) = (std::mem::take(&mut self.xs), std::mem::take(&mut self.ys));
+        let out = self.reduced_time(&xs, &ys, bounds, columns);
+        (self.xs, self.ys) = (xs, ys);
+        out
     }
 
-    /// A time trace reduced to pixel columns.
+    /// Points `y(x)` (x ascending, plotted units) reduced to pixel columns over the visible range.
     pub fn reduced_time(
         &mut self,
         t: &[f64],

@@ -328,9 +328,9 @@ impl Engine {
             self.peak = [0.0; 2];
             self.last_levels = now;
         }
-        let Some(station) = self.station else {
+        if self.station.is_none() {
             return Ok(events);
-        };
+        }
         self.a.extend(frames.iter().map(|f| f[0]));
         self.b.extend(frames.iter().map(|f| f[1]));
         let (n, pre) = self.record_len();
@@ -372,7 +372,6 @@ impl Engine {
                 events.push(Event::Hit(Box::new(ev)));
             }
         }
-        let _ = station;
         Ok(events)
     }
 
