@@ -215,7 +215,7 @@ fn import_override_and_reanalyse_a_session() {
         assert_eq!(a, b);
     }
     let m = read_json(ses.join("session.json"));
-    assert_eq!(m["schema_version"], 1);
+    assert_eq!(m["schema_version"], 2);
     assert_eq!(m["hits"].as_array().unwrap().len(), 12);
     // Keep the double hit by a person's decision.
     bin()

@@ -4,3 +4,4 @@ pub mod beam;
 pub mod correlate;
 pub mod margin;
 pub mod run;
+pub mod study;

@@ -11,6 +11,7 @@ use serde::{Deserialize, Serialize};
 use crate::acquire::InputError;
 use crate::acquire::wav::{SampleEncoding, probe};
 use crate::acquire::wavset::{PositionSource, WavSet};
+use crate::model::study::Study;
 use crate::setup::Setup;
 use crate::signal::Reason;
 
@@ -18,8 +19,8 @@ use crate::signal::Reason;
 pub const MANIFEST: &str = "session.json";
 /// The `format` value of a manifest.
 pub const FORMAT: &str = "tapgrid-session";
-/// Schema this build writes and reads.
-pub const SCHEMA_VERSION: u32 = 1;
+/// Schema this build writes and reads (2 added the shaft model; 1 is migrated on open).
+pub const SCHEMA_VERSION: u32 = 2;
 
 /// The part under test.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
@@ -101,6 +102,9 @@ pub struct Manifest {
     pub recordings: Vec<Recording>,
     /// Hits with verdicts and overrides.
     pub hits: Vec<SavedHit>,
+    /// The shaft model and its service questions, when one was given.
+    #[serde(default)]
+    pub model: Option<Study>,
 }
 
 impl Manifest {
@@ -120,6 +124,7 @@ impl Manifest {
             stations,
             recordings,
             hits: Vec::new(),
+            model: None,
         }
     }
 }
@@ -322,6 +327,12 @@ fn migrate(value: serde_json::Value) -> Result<serde_json::Value, String> {
     }
     match value.get("schema_version").and_then(|v| v.as_u64()) {
         Some(v) if v == SCHEMA_VERSION as u64 => Ok(value),
+        // Schema 1 had no shaft model; nothing else changed.
+        Some(1) => {
+            let mut value = value;
+            value["schema_version"] = SCHEMA_VERSION.into();
+            Ok(value)
+        }
         Some(v) if v > SCHEMA_VERSION as u64 => Err(format!(
             "was written with session schema {v}, newer than this tapgrid reads ({SCHEMA_VERSION}); update tapgrid"
         )),
@@ -329,5 +340,29 @@ fn migrate(value: serde_json::Value) -> Result<serde_json::Value, String> {
             "session schema {v} is not known to this tapgrid (it reads {SCHEMA_VERSION})"
         )),
         None => Err("has no schema_version".into()),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A schema-1 manifest (no shaft model) opens as schema 2 with no model; an unknown future
+    /// schema is refused with the reason.
+    #[test]
+    fn schema_1_is_migrated() {
+        let text = include_str!("../../sample-sessions/pump-shaft/session.json");
+        let mut v: serde_json::Value = serde_json::from_str(text).expect("bundled manifest");
+        v["schema_version"] = 1.into();
+        if let Some(o) = v.as_object_mut() {
+            o.remove("model");
+        }
+        let m: Manifest = serde_json::from_value(migrate(v.clone()).expect("migrates"))
+            .expect("reads after migration");
+        assert_eq!(m.schema_version, SCHEMA_VERSION);
+        assert!(m.model.is_none());
+        v["schema_version"] = 3.into();
+        let e = migrate(v).expect_err("newer schema refused");
+        assert!(e.contains("newer"), "{e}");
     }
 }
