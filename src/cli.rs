@@ -29,6 +29,9 @@ use crate::units::Sensitivity;
 pub struct Cli {
     /// A session or WAV set folder to open in the window.
     pub open: Option<PathBuf>,
+    /// View to show first: capture, setup, stations, hits, frf, poles, modes, model, margins.
+    #[arg(long)]
+    pub view: Option<String>,
     /// What to do (none: open the window).
     #[command(subcommand)]
     pub command: Option<Command>,
@@ -442,11 +445,14 @@ pub struct CaptureArgs {
 /// `tapgrid model`.
 #[derive(Debug, Args)]
 pub struct ModelArgs {
-    /// The shaft model (JSON: material, sections, discs, supports).
+    /// The shaft model (JSON: material, sections, discs, supports), or a session holding one.
     pub shaft: PathBuf,
     /// Output folder for modes.json.
+    #[arg(long, required_unless_present = "into")]
+    pub out: Option<PathBuf>,
+    /// Also save the shaft in this session (its bearings and running speed are kept).
     #[arg(long)]
-    pub out: PathBuf,
+    pub into: Option<PathBuf>,
     /// Modes to compute (rigid-body modes of a free part included).
     #[arg(long, default_value_t = 6)]
     pub modes: usize,
@@ -463,9 +469,9 @@ pub struct ModelArgs {
 pub struct CorrelateArgs {
     /// A session or WAV set folder (analysed and fitted automatically).
     pub input: PathBuf,
-    /// The shaft model (JSON).
+    /// The shaft model (JSON), or a session holding one (default: the input's own model).
     #[arg(long)]
-    pub model: PathBuf,
+    pub model: Option<PathBuf>,
     /// Output folder for correlation.json.
     #[arg(long)]
     pub out: Option<PathBuf>,
@@ -480,16 +486,17 @@ pub struct CorrelateArgs {
 /// `tapgrid margin`.
 #[derive(Debug, Args)]
 pub struct MarginArgs {
-    /// Operating speed range, rpm (MIN:MAX).
+    /// Operating speed range, rpm (MIN:MAX); default: the model session's running speed.
     #[arg(long)]
-    pub speed: String,
+    pub speed: Option<String>,
     /// Resonances as F or F:ZETA (Hz, damping ratio), comma-separated.
     #[arg(long)]
     pub modes: Option<String>,
     /// A session or WAV set: its measured modes (frequency and damping).
     #[arg(long)]
     pub test: Option<PathBuf>,
-    /// A shaft model: its critical speeds at its support stiffness (undamped: AF unknown).
+    /// A shaft model (JSON, or a session holding one): its critical speeds on its bearings in
+    /// service, else on its supports (undamped: AF unknown).
     #[arg(long)]
     pub model: Option<PathBuf>,
     /// Orders of running speed.
@@ -670,7 +677,16 @@ pub fn run(cli: Cli) -> Result<()> {
                 p.display()
             );
         }
-        return crate::app::run(cli.open);
+        let view = match cli.view.as_deref() {
+            Some(name) => Some(crate::app::View::from_name(name).ok_or_else(|| {
+                anyhow!(
+                    "--view {name:?}: use capture, setup, stations, hits, frf, poles, modes, \
+                     model or margins"
+                )
+            })?),
+            None => None,
+        };
+        return crate::app::run(cli.open, view);
     };
     match command {
         Command::Analyze(a) => {
@@ -777,9 +793,49 @@ fn import(a: ImportArgs) -> Result<()> {
     Ok(())
 }
 
+/// A shaft model from a JSON file, or the model saved in a session folder.
+fn read_study(path: &Path) -> Result<crate::model::study::Study> {
+    if crate::session::Session::is_session(path) {
+        let s = crate::session::Session::open(path)?;
+        return s.manifest.model.ok_or_else(|| {
+            anyhow!(
+                "{}: the session has no shaft model (save one with `tapgrid model SHAFT.json \
+                 --into {}`)",
+                path.display(),
+                path.display()
+            )
+        });
+    }
+    if path.is_dir() {
+        bail!(
+            "{}: is a folder but not a tapgrid session; give a shaft model JSON file or a \
+             session holding one",
+            path.display()
+        );
+    }
+    Ok(crate::model::study::Study::new(
+        crate::model::run::read_shaft(path)?,
+    ))
+}
+
 fn model(a: ModelArgs) -> Result<()> {
     use crate::model::run;
-    let shaft = run::read_shaft(&a.shaft)?;
+    let shaft = read_study(&a.shaft)?.shaft;
+    if let Some(dir) = &a.into {
+        let mut s = crate::session::Session::open(dir)?;
+        match &mut s.manifest.model {
+            Some(st) => st.shaft = shaft.clone(),
+            None => s.manifest.model = Some(crate::model::study::Study::new(shaft.clone())),
+        }
+        s.save()?;
+        println!("saved the shaft model in {}", dir.display());
+        if a.out.is_none() {
+            return Ok(());
+        }
+    }
+    let Some(out) = &a.out else {
+        bail!("give --out DIR (or --into SESSION)");
+    };
     if a.modes == 0 || a.modes > 200 {
         bail!("--modes must be between 1 and 200");
     }
@@ -807,9 +863,9 @@ fn model(a: ModelArgs) -> Result<()> {
         &at,
     )
     .map_err(|m| anyhow!("{}: {m}", a.shaft.display()))?;
-    std::fs::create_dir_all(&a.out)
-        .with_context(|| format!("{}: cannot create folder", a.out.display()))?;
-    let path = a.out.join("modes.json");
+    std::fs::create_dir_all(out)
+        .with_context(|| format!("{}: cannot create folder", out.display()))?;
+    let path = out.join("modes.json");
     crate::session::atomic::write_bytes(&path, run::modes_json(&c, &stations).as_bytes())
         .with_context(|| format!("{}: cannot write", path.display()))?;
     println!(
@@ -846,7 +902,7 @@ fn model(a: ModelArgs) -> Result<()> {
             }
             csv.push('\n');
         }
-        let p = a.out.join("stiffness_map.csv");
+        let p = out.join("stiffness_map.csv");
         crate::session::atomic::write_bytes(&p, csv.as_bytes())
             .with_context(|| format!("{}: cannot write", p.display()))?;
         println!("wrote {}", p.display());
@@ -883,39 +939,45 @@ fn fitted(input: &Path, setup: &SetupArgs) -> Result<ModalResult> {
 }
 
 fn correlate(a: CorrelateArgs) -> Result<()> {
-    use crate::model::{beam::BeamTheory, correlate, run};
-    let shaft = run::read_shaft(&a.model)?;
+    use crate::model::study::{TestModes, evaluate};
+    let model_path = a.model.clone().unwrap_or_else(|| a.input.clone());
+    let mut study = read_study(&model_path)?;
+    study.min_mac = a.min_mac;
     let m = fitted(&a.input, &a.setup)?;
-    let length = shaft.length_m();
-    if let Some(x) = m
-        .positions_m
-        .iter()
-        .find(|x| !(-1e-9..=length + 1e-9).contains(*x))
-    {
-        bail!(
-            "{}: a station at {x} m lies outside the model (0 to {length} m)",
-            a.input.display()
-        );
-    }
-    let model = run::converged_modes(
-        &shaft,
-        BeamTheory::Timoshenko,
-        m.modes.len() + 6,
-        &m.positions_m,
-    )
-    .map_err(|e| anyhow!("{}: {e}", a.model.display()))?;
-    let test: Vec<(f64, Vec<f64>)> = m
-        .modes
-        .iter()
-        .map(|x| (x.frequency_hz, x.shape.iter().map(|c| c.re).collect()))
-        .collect();
-    let c = correlate::correlate(
-        &m.positions_m,
-        &test,
-        &model.nodes_m,
-        &model.modes,
-        a.min_mac,
-    );
+    let band = [
+        m.indicators.freq_hz.first().copied().unwrap_or(0.0),
+        m.indicators.freq_hz.last().copied().unwrap_or(0.0),
+    ];
+    let test = TestModes {
+        positions_m: m.positions_m.clone(),
+        modes: m
+            .modes
+            .iter()
+            .map(|x| {
+                (
+                    x.frequency_hz,
+                    x.damping_ratio,
+                    x.shape.iter().map(|c| c.re).collect(),
+                )
+            })
+            .collect(),
+        band_hz: band,
+    };
+    let r = evaluate(&study, Some(&test)).map_err(|e| {
+        anyhow!(
+            "{} against {}: {e}",
+            a.input.display(),
+            model_path.display()
+        )
+    })?;
+    let c = r
+        .correlation
+        .unwrap_or(crate::model::correlate::Correlation {
+            pairs: Vec::new(),
+            mac: Vec::new(),
+            unpaired_test: Vec::new(),
+            unpaired_model: Vec::new(),
+        });
     println!("test  model  test_hz     model_hz    diff_%   MAC");
     for p in &c.pairs {
         println!(
@@ -932,22 +994,16 @@ fn correlate(a: CorrelateArgs) -> Result<()> {
         println!(
             "test mode {} ({:.2} Hz): no model mode with MAC ≥ {}",
             i + 1,
-            test[i].0,
+            test.modes[i].0,
             a.min_mac
         );
     }
-    let band = [
-        m.indicators.freq_hz.first().copied().unwrap_or(0.0),
-        m.indicators.freq_hz.last().copied().unwrap_or(0.0),
-    ];
-    for &j in &c.unpaired_model {
-        let f = model.modes[j].frequency_hz;
-        if (band[0]..=band[1]).contains(&f) {
-            println!(
-                "model mode {} ({f:.2} Hz): inside the tested band but not found in the test",
-                j + 1
-            );
-        }
+    for &j in &r.missed_in_band {
+        println!(
+            "model mode {} ({:.2} Hz): inside the tested band but not found in the test",
+            j + 1,
+            r.tested.modes[j].frequency_hz
+        );
     }
     if let Some(out) = &a.out {
         std::fs::create_dir_all(out)
@@ -963,7 +1019,12 @@ fn correlate(a: CorrelateArgs) -> Result<()> {
 
 fn margin(a: MarginArgs) -> Result<()> {
     use crate::model::margin::{MarginRule, Side, check};
-    let (lo, hi) = colon_range(&a.speed, "speed")?;
+    let study = a.model.as_deref().map(read_study).transpose()?;
+    let (lo, hi) = match (&a.speed, study.as_ref().and_then(|s| s.running_speed_rpm)) {
+        (Some(t), _) => colon_range(t, "speed")?,
+        (None, Some([lo, hi])) => (lo, hi),
+        (None, None) => bail!("give the operating range with --speed MIN:MAX (rpm)"),
+    };
     if !(lo > 0.0 && hi >= lo) {
         bail!("--speed: give MIN:MAX rpm with 0 < MIN ≤ MAX");
     }
@@ -998,8 +1059,8 @@ fn margin(a: MarginArgs) -> Result<()> {
             res.push((md.frequency_hz, md.damping_ratio, "measured"));
         }
     }
-    if let Some(p) = &a.model {
-        let shaft = crate::model::run::read_shaft(p)?;
+    if let (Some(p), Some(st)) = (&a.model, &study) {
+        let shaft = st.in_service().unwrap_or_else(|| st.shaft.clone());
         let c = crate::model::run::converged_modes(
             &shaft,
             crate::model::beam::BeamTheory::Timoshenko,

@@ -10,6 +10,9 @@ mod fit_view;
 mod frf_view;
 mod help;
 mod hits_view;
+mod margin_view;
+mod model_edit;
+mod model_view;
 mod modes_view;
 pub mod plots;
 pub mod reduce;
@@ -26,6 +29,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::analysis::{Analysis, Dataset};
 use crate::modal::{FrfSet, ModalResult, ModalSettings};
+use crate::model::study::{Study, StudyResult, TestModes};
 use crate::session::{Part, Session};
 use crate::setup::Setup;
 use crate::signal::HitTraces;
@@ -52,11 +56,15 @@ pub enum View {
     Modes,
     /// Live capture from an audio interface.
     Capture,
+    /// The shaft model: drawing, model against test modes, correlation.
+    Model,
+    /// Support-stiffness map and running-speed margins.
+    Margins,
 }
 
 impl View {
     /// All views in tab order.
-    pub const ALL: [View; 7] = [
+    pub const ALL: [View; 9] = [
         View::Capture,
         View::Setup,
         View::Stations,
@@ -64,6 +72,8 @@ impl View {
         View::Frf,
         View::Fit,
         View::Modes,
+        View::Model,
+        View::Margins,
     ];
 
     /// Tab label.
@@ -76,7 +86,30 @@ impl View {
             View::Fit => "Pole picking",
             View::Modes => "Mode shapes",
             View::Capture => "Live capture",
+            View::Model => "Shaft model",
+            View::Margins => "Speed margins",
         }
+    }
+
+    /// The view named on the command line (`tapgrid --view margins`).
+    pub fn from_name(name: &str) -> Option<View> {
+        Some(match name {
+            "capture" => View::Capture,
+            "setup" => View::Setup,
+            "stations" => View::Stations,
+            "hits" => View::Hits,
+            "frf" => View::Frf,
+            "poles" => View::Fit,
+            "modes" => View::Modes,
+            "model" => View::Model,
+            "margins" => View::Margins,
+            _ => return None,
+        })
+    }
+
+    /// Views that animate mode shapes.
+    pub fn animates(self) -> bool {
+        matches!(self, View::Modes | View::Model)
     }
 }
 
@@ -168,6 +201,12 @@ pub struct Document {
     pub analysis_error: Option<String>,
     /// Poles a person picked (indices into the diagram); `None` = automatic choice.
     pub picked: Option<Vec<usize>>,
+    /// The shaft model and its service questions.
+    pub study: Option<Study>,
+    /// Its latest evaluation.
+    pub study_result: Option<Arc<StudyResult>>,
+    /// Why the latest evaluation failed.
+    pub study_error: Option<String>,
     /// The bundled demo: never written back.
     pub read_only: bool,
     /// Changed since the last save.
@@ -181,7 +220,7 @@ impl Document {
         session: Option<Session>,
         read_only: bool,
     ) -> Self {
-        let (setup, part, labels) = match &session {
+        let (setup, part, labels, study) = match &session {
             Some(s) => (
                 s.manifest.setup.clone(),
                 s.manifest.part.clone(),
@@ -190,6 +229,7 @@ impl Document {
                     .iter()
                     .filter_map(|st| st.label.clone().map(|l| (st.station, l)))
                     .collect(),
+                s.manifest.model.clone(),
             ),
             None => (
                 Setup::default(),
@@ -201,6 +241,7 @@ impl Document {
                     notes: String::new(),
                 },
                 Default::default(),
+                None,
             ),
         };
         Self {
@@ -218,9 +259,44 @@ impl Document {
             modal_error: None,
             analysis_error: None,
             picked: None,
+            study,
+            study_result: None,
+            study_error: None,
             read_only,
             dirty: false,
         }
+    }
+
+    /// The fitted modes as the model study takes them (real shapes at the stations).
+    pub fn test_modes(&self) -> Option<TestModes> {
+        let m = self.modal.as_ref()?;
+        let lines = self.frfs.as_ref().map(|f| {
+            [
+                f.freq_hz.first().copied().unwrap_or(0.0),
+                f.freq_hz.last().copied().unwrap_or(0.0),
+            ]
+        });
+        let band = self
+            .modal_settings
+            .band_hz
+            .or(self.setup.band_hz)
+            .or(lines)
+            .unwrap_or([0.0, f64::INFINITY]);
+        Some(TestModes {
+            positions_m: m.positions_m.clone(),
+            modes: m
+                .modes
+                .iter()
+                .map(|x| {
+                    (
+                        x.frequency_hz,
+                        x.damping_ratio,
+                        x.shape.iter().map(|c| c.re).collect(),
+                    )
+                })
+                .collect(),
+            band_hz: band,
+        })
     }
 
     /// Index of a station in the dataset.
@@ -252,6 +328,7 @@ impl Document {
         if let Some(a) = &self.analysis {
             s.manifest.hits = a.saved_hits();
         }
+        s.manifest.model = self.study.clone();
         Some(s)
     }
 }
@@ -311,6 +388,16 @@ pub enum Command {
     ToggleHelp,
     /// Choose the mode to animate.
     SelectMode(usize),
+    /// Choose the model mode to animate.
+    SelectModelMode(usize),
+    /// The shaft model or its service questions changed: solve again.
+    ModelEdited,
+    /// Read a shaft model (JSON) into the test.
+    LoadModel(PathBuf),
+    /// Write the shaft model as JSON.
+    WriteModel(PathBuf),
+    /// A first model: a uniform steel shaft over the stations, free-free.
+    NewModel,
 }
 
 /// Why a path is being asked for.
@@ -322,6 +409,10 @@ pub enum PathPurpose {
     Import,
     /// Save as a new session.
     SaveAs,
+    /// Read a shaft model file.
+    LoadModel,
+    /// Write the shaft model file.
+    WriteModel,
 }
 
 struct PathDialog {
@@ -350,6 +441,11 @@ pub struct TapgridApp {
     pub current_hit: usize,
     /// Mode animated.
     pub selected_mode: usize,
+    /// Model mode animated beside it (index into the model's modes, rigid ones included);
+    /// `None` follows the pairing of the selected test mode.
+    pub selected_model_mode: Option<usize>,
+    /// The orders of running speed as typed.
+    pub(crate) orders_edit: Option<String>,
     /// The animation runs.
     pub playing: bool,
     /// Animation phase, radians.
@@ -396,6 +492,8 @@ impl TapgridApp {
             current_station: None,
             current_hit: 0,
             selected_mode: 0,
+            selected_model_mode: None,
+            orders_edit: None,
             playing: true,
             phase_rad: 0.0,
             overlay: BTreeSet::new(),
@@ -423,11 +521,18 @@ impl TapgridApp {
     }
 
     /// The eframe entry: settings from storage, the demo when no path is given.
-    pub fn from_creation(cc: &eframe::CreationContext<'_>, path: Option<PathBuf>) -> Self {
-        let settings = cc
+    pub fn from_creation(
+        cc: &eframe::CreationContext<'_>,
+        path: Option<PathBuf>,
+        view: Option<View>,
+    ) -> Self {
+        let mut settings = cc
             .storage
             .and_then(|s| eframe::get_value::<Settings>(s, SETTINGS_KEY))
             .unwrap_or_default();
+        if let Some(v) = view {
+            settings.view = v;
+        }
         Self::new(settings, path)
     }
 
@@ -469,7 +574,7 @@ impl TapgridApp {
         self.drain_capture(now);
         if let Some(t0) = self.last_time
             && self.playing
-            && self.settings.view == View::Modes
+            && self.settings.view.animates()
         {
             let dt = (now - t0).clamp(0.0, 0.1);
             self.phase_rad = (self.phase_rad
@@ -477,7 +582,7 @@ impl TapgridApp {
                 % std::f64::consts::TAU;
         }
         self.last_time = Some(now);
-        if self.playing && self.settings.view == View::Modes {
+        if self.playing && self.settings.view.animates() {
             ctx.request_repaint();
         }
         if self.worker.busy().is_some() {
@@ -526,6 +631,8 @@ impl TapgridApp {
                 View::Fit => fit_view::show(ui, self),
                 View::Modes => modes_view::show(ui, self),
                 View::Capture => capture_view::show(ui, self),
+                View::Model => model_view::show(ui, self),
+                View::Margins => margin_view::show(ui, self),
             }
         });
         if !self.settings.cautions_read {
@@ -671,6 +778,8 @@ impl TapgridApp {
             (Key::Num5, View::Fit),
             (Key::Num6, View::Modes),
             (Key::Num7, View::Capture),
+            (Key::Num8, View::Model),
+            (Key::Num9, View::Margins),
         ] {
             if pressed(k) {
                 self.commands.push(Command::Show(v));
@@ -686,6 +795,8 @@ impl TapgridApp {
             PathPurpose::Open => "Open a session or WAV set folder",
             PathPurpose::Import => "Replay a WAV set folder",
             PathPurpose::SaveAs => "Save as a new session folder",
+            PathPurpose::LoadModel => "Read a shaft model (JSON file)",
+            PathPurpose::WriteModel => "Write the shaft model (JSON file)",
         };
         let mut close = false;
         let mut go = None;
@@ -694,7 +805,10 @@ impl TapgridApp {
             .resizable(false)
             .anchor(egui::Align2::CENTER_CENTER, [0.0, 0.0])
             .show(ctx, |ui| {
-                ui.label("Folder:");
+                ui.label(match d.purpose {
+                    PathPurpose::LoadModel | PathPurpose::WriteModel => "File:",
+                    _ => "Folder:",
+                });
                 let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(520.0));
                 let enter = r.lost_focus() && ui.input(|i| i.key_pressed(egui::Key::Enter));
                 ui.horizontal(|ui| {
@@ -713,6 +827,8 @@ impl TapgridApp {
                 self.commands.push(match purpose {
                     PathPurpose::Open | PathPurpose::Import => Command::Open(p),
                     PathPurpose::SaveAs => Command::SaveAs(p),
+                    PathPurpose::LoadModel => Command::LoadModel(p),
+                    PathPurpose::WriteModel => Command::WriteModel(p),
                 });
             }
         } else if close {
@@ -767,6 +883,25 @@ impl TapgridApp {
         });
     }
 
+    /// Solves the model study again (against the latest fit, when there is one).
+    pub(crate) fn request_study(&mut self) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        let Some(study) = d.study.clone() else {
+            d.study_result = None;
+            d.study_error = None;
+            return;
+        };
+        let test = d.test_modes();
+        let generation = self.worker.next_generation();
+        self.worker.send(Job::Study {
+            generation,
+            study: Box::new(study),
+            test,
+        });
+    }
+
     fn receive(&mut self, o: Outcome) {
         match o {
             Outcome::Opened {
@@ -779,6 +914,8 @@ impl TapgridApp {
                 self.current_station = doc.data.stations.first().map(|s| s.station);
                 self.current_hit = 0;
                 self.selected_mode = 0;
+                self.selected_model_mode = None;
+                self.orders_edit = None;
                 self.overlay.clear();
                 self.traces = None;
                 self.traces_requested = None;
@@ -821,6 +958,7 @@ impl TapgridApp {
                 }
                 self.analysis_stamp += 1;
                 self.autosave();
+                self.request_study();
             }
             Outcome::Fitted { generation, modal } => {
                 if !self.worker.is_latest_fit(generation) {
@@ -840,6 +978,23 @@ impl TapgridApp {
                         self.note(format!("fit failed: {e}"), true);
                     }
                 }
+                self.request_study();
+            }
+            Outcome::Studied { generation, result } => {
+                if !self.worker.is_latest_study(generation) {
+                    return;
+                }
+                let Some(d) = &mut self.doc else {
+                    return;
+                };
+                match result {
+                    Ok(r) => {
+                        d.study_result = Some(r);
+                        d.study_error = None;
+                    }
+                    Err(e) => d.study_error = Some(e),
+                }
+                self.autosave();
             }
             Outcome::Traces { station, traces } => {
                 self.traces = Some((station, Arc::new(traces)));
@@ -926,6 +1081,11 @@ impl TapgridApp {
             Command::SaveAs(dir) => self.save_as(dir),
             Command::AskPath(purpose) => {
                 let text = match purpose {
+                    PathPurpose::WriteModel => std::env::current_dir()
+                        .unwrap_or_default()
+                        .join("shaft.json")
+                        .display()
+                        .to_string(),
                     PathPurpose::SaveAs => self
                         .doc
                         .as_ref()
@@ -1021,7 +1181,26 @@ impl TapgridApp {
             }
             Command::TogglePlay => self.playing = !self.playing,
             Command::ToggleHelp => self.show_help = !self.show_help,
-            Command::SelectMode(m) => self.selected_mode = m,
+            Command::SelectMode(m) => {
+                self.selected_mode = m;
+                self.selected_model_mode = None;
+            }
+            Command::SelectModelMode(m) => self.selected_model_mode = Some(m),
+            Command::ModelEdited => {
+                if let Some(d) = &mut self.doc {
+                    d.dirty = true;
+                }
+                self.request_study();
+            }
+            Command::LoadModel(p) => self.load_model(&p),
+            Command::WriteModel(p) => self.write_model(&p),
+            Command::NewModel => {
+                if let Some(d) = &mut self.doc {
+                    d.study = Some(model_edit::first_model(d));
+                    d.dirty = true;
+                }
+                self.request_study();
+            }
         }
         ctx.request_repaint();
     }
@@ -1085,6 +1264,42 @@ impl TapgridApp {
         self.request_fit();
     }
 
+    fn load_model(&mut self, path: &Path) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        match crate::model::run::read_shaft(path) {
+            Ok(shaft) => {
+                // The service questions stay; only the shaft is replaced.
+                match &mut d.study {
+                    Some(st) => st.shaft = shaft,
+                    None => d.study = Some(Study::new(shaft)),
+                }
+                d.dirty = true;
+                self.note(format!("read the shaft model {}", path.display()), false);
+                self.request_study();
+            }
+            Err(e) => self.note(e.to_string(), true),
+        }
+    }
+
+    fn write_model(&mut self, path: &Path) {
+        let Some(st) = self.doc.as_ref().and_then(|d| d.study.as_ref()) else {
+            return;
+        };
+        let text = match serde_json::to_string_pretty(&st.shaft) {
+            Ok(t) => t,
+            Err(e) => {
+                self.note(format!("cannot write the model: {e}"), true);
+                return;
+            }
+        };
+        match crate::session::atomic::write_bytes(path, text.as_bytes()) {
+            Ok(()) => self.note(format!("wrote {}", path.display()), false),
+            Err(e) => self.note(format!("{}: cannot write: {e}", path.display()), true),
+        }
+    }
+
     fn save(&mut self) {
         let Some(d) = &mut self.doc else {
             return;
@@ -1126,6 +1341,7 @@ impl TapgridApp {
                 setup: d.setup.clone(),
                 part: d.part.clone(),
                 hits,
+                model: d.study.clone().map(Box::new),
             });
         }
     }
@@ -1190,8 +1406,8 @@ pub fn style(ctx: &egui::Context, dark: bool) {
 }
 
 /// Opens the window: on `path`, else on the demo session (made by the simulator if this
-/// installation has none).
-pub fn run(path: Option<PathBuf>) -> anyhow::Result<()> {
+/// installation has none), showing `view` first (else the one shown last).
+pub fn run(path: Option<PathBuf>, view: Option<View>) -> anyhow::Result<()> {
     let path = match path {
         Some(p) => p,
         None => crate::sim::demo::demo_session(&crate::sim::demo::default_root())?,
@@ -1207,7 +1423,7 @@ pub fn run(path: Option<PathBuf>) -> anyhow::Result<()> {
     eframe::run_native(
         "tapgrid",
         options,
-        Box::new(move |cc| Ok(Box::new(TapgridApp::from_creation(cc, Some(path))))),
+        Box::new(move |cc| Ok(Box::new(TapgridApp::from_creation(cc, Some(path), view)))),
     )
     .map_err(|e| {
         anyhow::anyhow!(

@@ -1,7 +1,7 @@
 //! Mode shapes: the table of modes, the selected shape animated along the part, the auto-MAC as a
 //! heat map, and measured against synthesized FRF for a chosen station.
 
-use eframe::egui::{self, Align2, Color32, FontId, RichText, Sense, Stroke, pos2, vec2};
+use eframe::egui::{self, Align2, RichText};
 use egui_plot::{Line, LineStyle, MarkerShape, Plot, PlotPoint, Points, Text};
 
 use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
@@ -109,7 +109,15 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             }
             ui.separator();
             ui.label(RichText::new("Auto-MAC").strong());
-            mac_heat_map(ui, &m.auto_mac, sel);
+            let labels: Vec<String> = (1..=m.auto_mac.len()).map(|k| k.to_string()).collect();
+            if let Some((i, _)) =
+                plots::heat_map(ui, &m.auto_mac, &labels, &labels, (Some(sel), Some(sel)))
+            {
+                cmds.push(Command::SelectMode(i));
+            }
+            ui.label(
+                RichText::new("MAC 0 (dark) … 1 (bright); off-diagonal should be near 0").small(),
+            );
         });
     let md = &m.modes[sel];
     egui::CentralPanel::default().show(ui, |ui| {
@@ -324,76 +332,6 @@ fn shape_plot(
                 );
             }
         });
-}
-
-#[allow(clippy::needless_range_loop)] // i and j index rows, columns and screen cells alike
-fn mac_heat_map(ui: &mut egui::Ui, mac: &[Vec<f64>], sel: usize) {
-    let n = mac.len();
-    if n == 0 {
-        return;
-    }
-    let cell = ((ui.available_width() - 30.0) / n as f32).clamp(18.0, 48.0);
-    let (r, painter) = ui.allocate_painter(
-        vec2(30.0 + cell * n as f32, 24.0 + cell * n as f32),
-        Sense::hover(),
-    );
-    let o = r.rect.min + vec2(30.0, 24.0);
-    let lo = Color32::from_rgb(30, 40, 70);
-    let hi = Color32::from_rgb(240, 200, 80);
-    let text = ui.visuals().text_color();
-    for i in 0..n {
-        painter.text(
-            pos2(o.x - 6.0, o.y + (i as f32 + 0.5) * cell),
-            Align2::RIGHT_CENTER,
-            format!("{}", i + 1),
-            FontId::proportional(13.0),
-            text,
-        );
-        painter.text(
-            pos2(o.x + (i as f32 + 0.5) * cell, o.y - 4.0),
-            Align2::CENTER_BOTTOM,
-            format!("{}", i + 1),
-            FontId::proportional(13.0),
-            text,
-        );
-        for j in 0..n {
-            let v = mac[i].get(j).copied().unwrap_or(0.0).clamp(0.0, 1.0) as f32;
-            let c = lerp(lo, hi, v);
-            let rect = egui::Rect::from_min_size(
-                o + vec2(j as f32 * cell, i as f32 * cell),
-                vec2(cell, cell),
-            );
-            painter.rect_filled(rect.shrink(1.0), 2.0, c);
-            if i == sel || j == sel {
-                painter.rect_stroke(
-                    rect.shrink(1.0),
-                    2.0,
-                    Stroke::new(1.0, ACCENT),
-                    egui::StrokeKind::Inside,
-                );
-            }
-            if cell >= 30.0 {
-                let tc = if v > 0.5 {
-                    Color32::BLACK
-                } else {
-                    Color32::WHITE
-                };
-                painter.text(
-                    rect.center(),
-                    Align2::CENTER_CENTER,
-                    format!("{v:.2}"),
-                    FontId::proportional(11.0),
-                    tc,
-                );
-            }
-        }
-    }
-    ui.label(RichText::new("MAC 0 (dark) … 1 (bright); off-diagonal should be near 0").small());
-}
-
-fn lerp(a: Color32, b: Color32, t: f32) -> Color32 {
-    let m = |x: u8, y: u8| (x as f32 + (y as f32 - x as f32) * t).round() as u8;
-    Color32::from_rgb(m(a.r(), b.r()), m(a.g(), b.g()), m(a.b(), b.b()))
 }
 
 #[cfg(test)]

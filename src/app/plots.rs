@@ -427,3 +427,93 @@ fn wu_line(buf: &mut [[f32; 4]], w: usize, h: usize, p0: (f32, f32), p1: (f32, f
         x += 1;
     }
 }
+
+/// A matrix of values in 0…1 as coloured cells (MAC), `rows` × `cols` labelled; the highlighted
+/// row and column are outlined. Returns the cell clicked (row, column).
+#[allow(clippy::needless_range_loop)] // i and j index rows, columns and screen cells alike
+pub fn heat_map(
+    ui: &mut egui::Ui,
+    values: &[Vec<f64>],
+    rows: &[String],
+    cols: &[String],
+    highlight: (Option<usize>, Option<usize>),
+) -> Option<(usize, usize)> {
+    use egui::{Align2, FontId, Sense, Stroke, pos2, vec2};
+    let (n, m) = (rows.len(), cols.len());
+    if n == 0 || m == 0 {
+        return None;
+    }
+    let cell = ((ui.available_width() - 34.0) / m as f32).clamp(18.0, 48.0);
+    let (r, painter) = ui.allocate_painter(
+        vec2(34.0 + cell * m as f32, 24.0 + cell * n as f32),
+        Sense::click(),
+    );
+    let o = r.rect.min + vec2(34.0, 24.0);
+    let lo = Color32::from_rgb(30, 40, 70);
+    let hi = Color32::from_rgb(240, 200, 80);
+    let text = ui.visuals().text_color();
+    for (i, l) in rows.iter().enumerate() {
+        painter.text(
+            pos2(o.x - 6.0, o.y + (i as f32 + 0.5) * cell),
+            Align2::RIGHT_CENTER,
+            l,
+            FontId::proportional(13.0),
+            text,
+        );
+    }
+    for (j, l) in cols.iter().enumerate() {
+        painter.text(
+            pos2(o.x + (j as f32 + 0.5) * cell, o.y - 4.0),
+            Align2::CENTER_BOTTOM,
+            l,
+            FontId::proportional(13.0),
+            text,
+        );
+    }
+    for i in 0..n {
+        for j in 0..m {
+            let v = values
+                .get(i)
+                .and_then(|row| row.get(j))
+                .copied()
+                .unwrap_or(0.0)
+                .clamp(0.0, 1.0) as f32;
+            let rect = egui::Rect::from_min_size(
+                o + vec2(j as f32 * cell, i as f32 * cell),
+                vec2(cell, cell),
+            );
+            painter.rect_filled(rect.shrink(1.0), 2.0, lerp(lo, hi, v));
+            if highlight.0 == Some(i) || highlight.1 == Some(j) {
+                painter.rect_stroke(
+                    rect.shrink(1.0),
+                    2.0,
+                    Stroke::new(1.0, ACCENT),
+                    egui::StrokeKind::Inside,
+                );
+            }
+            if cell >= 30.0 {
+                let tc = if v > 0.5 {
+                    Color32::BLACK
+                } else {
+                    Color32::WHITE
+                };
+                painter.text(
+                    rect.center(),
+                    Align2::CENTER_CENTER,
+                    format!("{v:.2}"),
+                    FontId::proportional(11.0),
+                    tc,
+                );
+            }
+        }
+    }
+    let p = r.interact_pointer_pos().filter(|_| r.clicked())?;
+    let (j, i) = ((p.x - o.x) / cell, (p.y - o.y) / cell);
+    (i >= 0.0 && j >= 0.0 && (i as usize) < n && (j as usize) < m)
+        .then_some((i as usize, j as usize))
+}
+
+fn lerp(a: Color32, b: Color32, t: f32) -> Color32 {
+    let m = |x: u8, y: u8| (x as f32 + (y as f32 - x as f32) * t).round() as u8;
+    Color32::from_rgb(m(a.r(), b.r()), m(a.g(), b.g()), m(a.b(), b.b()))
+}

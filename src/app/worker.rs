@@ -11,6 +11,7 @@ use crate::acquire::wav::Decoder;
 use crate::analysis::{self, Analysis, Dataset};
 use crate::modal::lscf::Stabilization;
 use crate::modal::{self, FrfSet, ModalResult, ModalSettings};
+use crate::model::study::{Study, StudyResult, TestModes, evaluate};
 use crate::session::Session;
 use crate::setup::Setup;
 use crate::signal::{HitReport, HitTraces, hit_traces};
@@ -54,6 +55,15 @@ pub enum Job {
     },
     /// List the audio inputs (slow on ALSA, so never on the UI thread).
     ListDevices,
+    /// Evaluate the shaft model study against the test's modes.
+    Study {
+        /// Request number; older ones are skipped.
+        generation: u64,
+        /// The study.
+        study: Box<Study>,
+        /// The test's modes, when fitted.
+        test: Option<TestModes>,
+    },
     /// Copy a session to a new folder.
     SaveAs {
         /// The session as it should be written.
@@ -73,6 +83,8 @@ pub enum Job {
         part: crate::session::Part,
         /// Hits with verdicts and overrides.
         hits: Vec<crate::session::SavedHit>,
+        /// The shaft model study.
+        model: Option<Box<Study>>,
     },
 }
 
@@ -118,6 +130,13 @@ pub enum Outcome {
     Saved(Box<Session>),
     /// The audio inputs.
     Devices(Result<Vec<crate::acquire::live::DeviceInfo>, String>),
+    /// The shaft model study.
+    Studied {
+        /// Request number.
+        generation: u64,
+        /// The result.
+        result: Result<Arc<StudyResult>, String>,
+    },
     /// A request was superseded and not run.
     Skipped,
     /// A job failed; the message names the file.
@@ -135,6 +154,7 @@ pub struct Worker {
     outcomes: Receiver<Outcome>,
     latest_analysis: Arc<AtomicU64>,
     latest_fit: Arc<AtomicU64>,
+    latest_study: Arc<AtomicU64>,
     generation: u64,
     in_flight: Vec<&'static str>,
 }
@@ -146,16 +166,22 @@ impl Worker {
         let (out_tx, outcomes) = std::sync::mpsc::sync_channel::<Outcome>(8);
         let latest_analysis = Arc::new(AtomicU64::new(0));
         let latest_fit = Arc::new(AtomicU64::new(0));
-        let (la, lf) = (latest_analysis.clone(), latest_fit.clone());
+        let latest_study = Arc::new(AtomicU64::new(0));
+        let latest = Latest {
+            analysis: latest_analysis.clone(),
+            fit: latest_fit.clone(),
+            study: latest_study.clone(),
+        };
         // If the thread cannot start the UI still runs; every job then reports it failed.
         let _ = std::thread::Builder::new()
             .name("tapgrid-worker".into())
-            .spawn(move || work(job_rx, out_tx, la, lf, repaint));
+            .spawn(move || work(job_rx, out_tx, latest, repaint));
         Self {
             jobs,
             outcomes,
             latest_analysis,
             latest_fit,
+            latest_study,
             generation: 0,
             in_flight: Vec::new(),
         }
@@ -177,6 +203,7 @@ impl Worker {
                 self.latest_fit.store(*generation, Ordering::SeqCst);
             }
             Job::Fit { generation, .. } => self.latest_fit.store(*generation, Ordering::SeqCst),
+            Job::Study { generation, .. } => self.latest_study.store(*generation, Ordering::SeqCst),
             _ => {}
         }
         if self.jobs.send(job).is_ok() {
@@ -203,6 +230,11 @@ impl Worker {
         self.latest_analysis.load(Ordering::SeqCst) == generation
     }
 
+    /// Whether a request of this generation is still the latest model study.
+    pub fn is_latest_study(&self, generation: u64) -> bool {
+        self.latest_study.load(Ordering::SeqCst) == generation
+    }
+
     /// Whether a request of this generation is still the latest fit.
     pub fn is_latest_fit(&self, generation: u64) -> bool {
         self.latest_fit.load(Ordering::SeqCst) == generation
@@ -217,16 +249,18 @@ fn describe(job: &Job) -> &'static str {
         Job::Traces { .. } => "Loading hits",
         Job::SaveAs { .. } | Job::CreateSession { .. } => "Saving",
         Job::ListDevices => "Listing audio inputs",
+        Job::Study { .. } => "Solving the shaft model",
     }
 }
 
-fn work(
-    jobs: Receiver<Job>,
-    out: SyncSender<Outcome>,
-    latest_analysis: Arc<AtomicU64>,
-    latest_fit: Arc<AtomicU64>,
-    repaint: impl Fn(),
-) {
+/// The latest request of each kind that supersedes older ones.
+struct Latest {
+    analysis: Arc<AtomicU64>,
+    fit: Arc<AtomicU64>,
+    study: Arc<AtomicU64>,
+}
+
+fn work(jobs: Receiver<Job>, out: SyncSender<Outcome>, latest: Latest, repaint: impl Fn()) {
     let mut decoder = Decoder::default();
     while let Ok(job) = jobs.recv() {
         let outcome = match job {
@@ -237,7 +271,7 @@ fn work(
                 setup,
                 modal,
             } => {
-                if latest_analysis.load(Ordering::SeqCst) != generation {
+                if latest.analysis.load(Ordering::SeqCst) != generation {
                     Outcome::Skipped
                 } else {
                     analyze(generation, &data, &setup, &modal)
@@ -249,7 +283,7 @@ fn work(
                 modal,
                 picked,
             } => {
-                if latest_fit.load(Ordering::SeqCst) != generation {
+                if latest.fit.load(Ordering::SeqCst) != generation {
                     Outcome::Skipped
                 } else {
                     let r = match &picked {
@@ -283,6 +317,20 @@ fn work(
             Job::ListDevices => {
                 Outcome::Devices(crate::acquire::live::list_inputs().map_err(|e| e.to_string()))
             }
+            Job::Study {
+                generation,
+                study,
+                test,
+            } => {
+                if latest.study.load(Ordering::SeqCst) != generation {
+                    Outcome::Skipped
+                } else {
+                    Outcome::Studied {
+                        generation,
+                        result: evaluate(&study, test.as_ref()).map(Arc::new),
+                    }
+                }
+            }
             Job::SaveAs { session, dir } => match session.save_as(&dir) {
                 Ok(s) => Outcome::Saved(Box::new(s)),
                 Err(e) => Outcome::Failed {
@@ -296,7 +344,8 @@ fn work(
                 setup,
                 part,
                 hits,
-            } => create_session(&wavset, &dir, setup, part, hits),
+                model,
+            } => create_session(&wavset, &dir, setup, part, hits, model),
         };
         if out.send(outcome).is_err() {
             return;
@@ -349,10 +398,12 @@ fn create_session(
     setup: Setup,
     part: crate::session::Part,
     hits: Vec<crate::session::SavedHit>,
+    model: Option<Box<Study>>,
 ) -> Outcome {
     let r = crate::acquire::wavset::WavSet::scan(wavset, setup.spacing_m).and_then(|set| {
         let mut s = Session::import_wavset(&set, dir, setup, part)?;
         s.manifest.hits = hits;
+        s.manifest.model = model.map(|m| *m);
         s.save()?;
         Ok(s)
     });

@@ -106,7 +106,7 @@ impl Study {
         {
             return Err("the stiffness sweep needs low < high".into());
         }
-        if self.orders.iter().any(|&k| k == 0) {
+        if self.orders.contains(&0) {
             return Err("orders of running speed start at 1".into());
         }
         if !(0.0..=1.0).contains(&self.min_mac) {
@@ -333,7 +333,9 @@ fn stiffness_sweep(study: &Study) -> Result<Option<StiffnessMap>, String> {
     }
     let [lo, hi] = study.sweep_range();
     let elements = MAP_ELEMENTS;
-    let mut freq = vec![Vec::with_capacity(MAP_POINTS); MAP_MODES];
+    let mut freq: Vec<Vec<f64>> = (0..MAP_MODES)
+        .map(|_| Vec::with_capacity(MAP_POINTS))
+        .collect();
     let mut ks = Vec::with_capacity(MAP_POINTS);
     let mut s = base;
     for p in 0..MAP_POINTS {
@@ -423,7 +425,7 @@ mod tests {
         let [lo, hi] = st.sweep_range();
         assert!(lo <= 0.1 * ei && lo > 0.01 * ei);
         assert!(hi >= 1e5 * ei && hi < 1e6 * ei);
-        assert_eq!(lo.log10().fract().abs() < 1e-9, true);
+        assert!(lo.log10().fract().abs() < 1e-9);
     }
 
     /// The sweep's fixed mesh against converged modes at three stiffnesses (the claim on

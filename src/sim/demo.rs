@@ -63,6 +63,7 @@ pub fn make_demo(dir: &Path) -> Result<(), InputError> {
     let _ = std::fs::remove_dir_all(dir);
     let mut s = Session::import_wavset(&set, dir, m.setup.clone(), m.part.clone())?;
     s.manifest.hits = result.saved_hits();
+    s.manifest.model = m.model.clone();
     s.save()?;
     let _ = std::fs::remove_dir_all(&set_dir);
     Ok(())
@@ -102,6 +103,11 @@ mod tests {
             );
         }
         assert_eq!(made.manifest.hits, bundled.manifest.hits);
+        assert_eq!(made.manifest.model, bundled.manifest.model);
+        assert!(
+            made.manifest.model.is_some(),
+            "the demo carries its shaft model"
+        );
         let _ = std::fs::remove_dir_all(&tmp);
     }
 }
