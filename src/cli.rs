@@ -1061,11 +1061,12 @@ fn margin(a: MarginArgs) -> Result<()> {
     }
     if let (Some(p), Some(st)) = (&a.model, &study) {
         let shaft = st.in_service().unwrap_or_else(|| st.shaft.clone());
-        let c = crate::model::run::converged_modes(
+        let c = crate::model::run::converged_modes_to(
             &shaft,
             crate::model::beam::BeamTheory::Timoshenko,
-            8,
+            crate::model::study::MODEL_MODES,
             &[],
+            crate::model::study::STUDY_CONVERGED,
         )
         .map_err(|e| anyhow!("{}: {e}", p.display()))?;
         for md in c.modes.iter().filter(|m| !m.rigid_body) {

@@ -335,3 +335,70 @@ fn timoshenko_pinned_pinned_check_values() {
         );
     }
 }
+
+/// The shaft saved into a session (`tapgrid model --into`) is what `correlate` and `margin` use
+/// without `--model`'s file; with bearings at the bar's ends far stiffer than the bar
+/// (K* = kL³/EI ≈ 6·10⁸) the first installed critical speed is the Euler–Bernoulli pinned-pinned one (Blevins 1979,
+/// λ₁ = π) within 0.2 % for this slender bar, and `margin` takes the running speed from the
+/// session.
+#[test]
+fn a_model_saved_in_a_session_serves_correlate_and_margin() {
+    let tmp = tempfile::tempdir().unwrap();
+    let demo = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-sessions/pump-shaft");
+    let dir = tmp.path().join("copy");
+    tapgrid::session::Session::open(&demo)
+        .unwrap()
+        .save_as(&dir)
+        .unwrap();
+    let json = tmp.path().join("bar.json");
+    let shaft = bar(D, L, vec![]);
+    std::fs::write(&json, serde_json::to_string(&shaft).unwrap()).unwrap();
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args(["model"])
+        .arg(&json)
+        .arg("--into")
+        .arg(&dir)
+        .assert()
+        .success();
+    let mut s = tapgrid::session::Session::open(&dir).unwrap();
+    let st = s.manifest.model.as_mut().expect("the session holds the model");
+    assert_eq!(st.shaft, shaft);
+    // The demo's service questions were kept; now put rigid bearings at the bar's ends.
+    assert_eq!(st.running_speed_rpm, Some([2900.0, 3000.0]));
+    st.bearings = end_springs(1e12, L);
+    s.save().unwrap();
+    let out = Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args(["margin", "--model"])
+        .arg(&dir)
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    let first = text
+        .lines()
+        .find(|l| l.starts_with("model"))
+        .expect("a model line");
+    let rpm: f64 = first.split_whitespace().nth(3).unwrap().parse().unwrap();
+    let want = 60.0 * blevins_hz(std::f64::consts::PI, D, L);
+    assert!(((rpm - want) / want).abs() < 2e-3, "{rpm} vs {want}");
+    assert!(text.contains("Advisory only"));
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("correlate")
+        .arg(&dir)
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("test  model"));
+    // A WAV set folder is not a model.
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args(["margin", "--speed", "100:200", "--model"])
+        .arg(demo.parent().unwrap().join("pump-shaft-roving-sensor"))
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("not a tapgrid session"));
+}

@@ -279,7 +279,7 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
     };
     ui.label(
         RichText::new(format!(
-            "Separation margins, operating range {lo:.0}–{hi:.0} rpm"
+            "Separation margins, operating range {lo:.0}–{hi:.0} rpm (closest first)"
         ))
         .strong(),
     );
@@ -302,7 +302,15 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
                 ui.label(RichText::new(h).strong());
             }
             ui.end_row();
-            for l in &r.margins {
+            // Closest calls first: failing lines, then by how little margin is left over.
+            let mut lines: Vec<_> = r.margins.iter().collect();
+            lines.sort_by(|a, b| {
+                let spare = |l: &crate::model::study::MarginLine| {
+                    l.check.margin_pct - l.check.required_pct.min(1e9)
+                };
+                a.check.ok.cmp(&b.check.ok).then(spare(a).total_cmp(&spare(b)))
+            });
+            for l in lines {
                 let c = &l.check;
                 ui.label(match l.source {
                     ResonanceSource::Measured => "measured (bench)",
