@@ -926,6 +926,8 @@ impl TapgridApp {
                 self.settings.recent.insert(0, path.clone());
                 self.settings.recent.truncate(8);
                 self.note(format!("opened {}", path.display()), false);
+                // The model needs no test: draw it first, correlate once the fit is in.
+                self.request_study();
                 self.request_analysis();
             }
             Outcome::Analyzed {
