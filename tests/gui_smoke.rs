@@ -31,13 +31,7 @@ fn unique_colours(png: &std::path::Path) -> usize {
 /// Runs the binary on its own Xvfb display with `args`, optionally past the first-start
 /// cautions, and returns the distinct colours of a screenshot saved as `target/screenshots/NAME`
 /// once it has `enough` of them (or after 90 s).
-fn shoot(
-    args: &[&str],
-    name: &str,
-    cautions_read: bool,
-    display_no: u32,
-    enough: usize,
-) -> usize {
+fn shoot(args: &[&str], name: &str, cautions_read: bool, display_no: u32, enough: usize) -> usize {
     let display = format!(":{display_no}");
     let xvfb = Command::new("Xvfb")
         .args([

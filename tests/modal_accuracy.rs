@@ -405,14 +405,8 @@ fn free_free_beam_shapes_are_recovered_from_a_simulated_test() {
         }],
         discs: vec![],
         supports: vec![
-            Support {
-                position_m: 0.2242,
-                stiffness_n_per_m: 300.0,
-            },
-            Support {
-                position_m: 0.7758,
-                stiffness_n_per_m: 300.0,
-            },
+            Support::lateral(0.2242, 300.0),
+            Support::lateral(0.7758, 300.0),
         ],
     };
     sc.stations_m = (0..11).map(|i| i as f64 * 0.1).collect();

@@ -29,12 +29,7 @@ fn bar(d: f64, l: f64, supports: Vec<Support>) -> Shaft {
 
 /// Equal lateral springs `k` at both ends of a bar of length `l`.
 fn end_springs(k: f64, l: f64) -> Vec<Support> {
-    [0.0, l]
-        .map(|x| Support {
-            position_m: x,
-            stiffness_n_per_m: k,
-        })
-        .to_vec()
+    [0.0, l].map(|x| Support::lateral(x, k)).to_vec()
 }
 
 /// f_n = λ_n² / (2π L²) · √(EI / ρA); for a solid circle EI/ρA = E D² / (16 ρ).
@@ -89,6 +84,32 @@ fn pinned_pinned_coefficients_within_a_tenth_of_a_percent() {
         );
         assert!(!m.rigid_body);
     }
+}
+
+/// Clamped-free (cantilever), Blevins 1979 table 8-1: λ = 1.87510, 4.69409, 7.85476. The clamp
+/// is a support stiff against both deflection and rotation (kL³/EI and k_θL/EI ≈ 6·10⁶, so
+/// its own compliance shifts the frequencies by < 1e-6).
+#[test]
+fn clamped_free_coefficients_within_a_tenth_of_a_percent() {
+    let clamp = Support {
+        rotational_stiffness_n_m_per_rad: 1e10,
+        ..Support::lateral(0.0, 1e10)
+    };
+    let c = converged_modes(&bar(D, L, vec![clamp]), BeamTheory::EulerBernoulli, 3, &[]).unwrap();
+    for (m, lambda) in c.modes.iter().zip([1.875_104, 4.694_091, 7.854_757]) {
+        let f = blevins_hz(lambda, D, L);
+        assert!(
+            (m.frequency_hz / f - 1.0).abs() < 1e-3,
+            "{} vs {f}",
+            m.frequency_hz
+        );
+        assert!(!m.rigid_body);
+    }
+    // The JSON key is optional and round-trips.
+    let text = serde_json::to_string(&clamp).unwrap();
+    assert!(text.contains("rotational_stiffness_n_m_per_rad"));
+    let plain = serde_json::to_string(&Support::lateral(0.5, 1e8)).unwrap();
+    assert!(!plain.contains("rotational"));
 }
 
 #[test]
@@ -362,7 +383,11 @@ fn a_model_saved_in_a_session_serves_correlate_and_margin() {
         .assert()
         .success();
     let mut s = tapgrid::session::Session::open(&dir).unwrap();
-    let st = s.manifest.model.as_mut().expect("the session holds the model");
+    let st = s
+        .manifest
+        .model
+        .as_mut()
+        .expect("the session holds the model");
     assert_eq!(st.shaft, shaft);
     // The demo's service questions were kept; now put rigid bearings at the bar's ends.
     assert_eq!(st.running_speed_rpm, Some([2900.0, 3000.0]));

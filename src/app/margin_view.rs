@@ -308,7 +308,10 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
                 let spare = |l: &crate::model::study::MarginLine| {
                     l.check.margin_pct - l.check.required_pct.min(1e9)
                 };
-                a.check.ok.cmp(&b.check.ok).then(spare(a).total_cmp(&spare(b)))
+                a.check
+                    .ok
+                    .cmp(&b.check.ok)
+                    .then(spare(a).total_cmp(&spare(b)))
             });
             for l in lines {
                 let c = &l.check;

@@ -183,13 +183,14 @@ fn supports(
     let mut changed = false;
     let mut remove = None;
     egui::Grid::new(id).striped(true).show(ui, |ui| {
-        for h in ["at", "stiffness", ""] {
+        for h in ["at", "lateral", "against rotation", ""] {
             ui.label(RichText::new(h).small());
         }
         ui.end_row();
         for (i, s) in list.iter_mut().enumerate() {
             changed |= mm(ui, &mut s.position_m, length);
             changed |= sci(ui, &mut s.stiffness_n_per_m, " N/m");
+            changed |= sci(ui, &mut s.rotational_stiffness_n_m_per_rad, " N·m/rad");
             if ui.small_button("remove").clicked() {
                 remove = Some(i);
             }
@@ -211,10 +212,7 @@ fn supports(
             1 => 0.9 * length,
             _ => 0.5 * length,
         };
-        list.push(Support {
-            position_m: x,
-            stiffness_n_per_m: stiffness,
-        });
+        list.push(Support::lateral(x, stiffness));
         changed = true;
     }
     changed

@@ -55,13 +55,32 @@ pub struct Disc {
     pub transverse_inertia_kg_m2: f64,
 }
 
-/// A lateral spring support (bearing or suspension).
+/// A spring support (bearing or suspension): lateral, and optionally against rotation (a clamp,
+/// or a pair of bearings close together).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Support {
     /// Position from the left end, m.
     pub position_m: f64,
-    /// Stiffness, N/m.
+    /// Lateral stiffness, N/m.
     pub stiffness_n_per_m: f64,
+    /// Stiffness against rotation of the section, N·m/rad (optional; 0 = none).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub rotational_stiffness_n_m_per_rad: f64,
+}
+
+fn is_zero(v: &f64) -> bool {
+    *v == 0.0
+}
+
+impl Support {
+    /// A lateral spring of stiffness `k` N/m at `x` m.
+    pub fn lateral(x: f64, k: f64) -> Self {
+        Self {
+            position_m: x,
+            stiffness_n_per_m: k,
+            rotational_stiffness_n_m_per_rad: 0.0,
+        }
+    }
 }
 
 /// A shaft: sections left to right, discs and supports.
@@ -158,6 +177,10 @@ impl Shaft {
             if s.stiffness_n_per_m.is_nan() || s.stiffness_n_per_m < 0.0 {
                 return Err(format!("support {i}: stiffness must be ≥ 0"));
             }
+            let kr = s.rotational_stiffness_n_m_per_rad;
+            if kr.is_nan() || kr < 0.0 {
+                return Err(format!("support {i}: rotational stiffness must be ≥ 0"));
+            }
         }
         for (i, d) in self.discs.iter().enumerate() {
             if !(0.0..=l).contains(&d.position_m) {
@@ -227,6 +250,7 @@ impl Shaft {
         for s in &self.supports {
             let n = node_of(s.position_m);
             kg[(2 * n, 2 * n)] += s.stiffness_n_per_m;
+            kg[(2 * n + 1, 2 * n + 1)] += s.rotational_stiffness_n_m_per_rad;
         }
         for d in &self.discs {
             let n = node_of(d.position_m);
@@ -268,7 +292,9 @@ impl Shaft {
         )?;
         let modes = fe.solve(
             count,
-            self.supports.iter().all(|s| s.stiffness_n_per_m == 0.0),
+            self.supports
+                .iter()
+                .all(|s| s.stiffness_n_per_m == 0.0 && s.rotational_stiffness_n_m_per_rad == 0.0),
         )?;
         Ok((fe, modes))
     }

@@ -381,16 +381,7 @@ mod tests {
     #[test]
     fn rigid_end_bearings_give_the_pinned_critical() {
         let mut st = Study::new(uniform(1.0, 0.02));
-        st.bearings = vec![
-            Support {
-                position_m: 0.0,
-                stiffness_n_per_m: 1e12,
-            },
-            Support {
-                position_m: 1.0,
-                stiffness_n_per_m: 1e12,
-            },
-        ];
+        st.bearings = vec![Support::lateral(0.0, 1e12), Support::lateral(1.0, 1e12)];
         st.running_speed_rpm = Some([2900.0, 3000.0]);
         let r = evaluate(&st, None).expect("evaluates");
         let m = Material::STEEL;
@@ -443,12 +434,7 @@ mod tests {
         });
         shaft.sections.push(shaft.sections[0]);
         let mut st = Study::new(shaft);
-        st.bearings = [0.075, 0.825]
-            .map(|x| Support {
-                position_m: x,
-                stiffness_n_per_m: 1e8,
-            })
-            .to_vec();
+        st.bearings = [0.075, 0.825].map(|x| Support::lateral(x, 1e8)).to_vec();
         let r = evaluate(&st, None).expect("evaluates");
         let map = r.map.expect("map");
         let mut worst = 0.0f64;
@@ -476,10 +462,7 @@ mod tests {
         let e = evaluate(&st, None).expect_err("refused");
         assert!(e.contains("running speed"), "{e}");
         st.running_speed_rpm = None;
-        st.bearings = vec![Support {
-            position_m: 2.0,
-            stiffness_n_per_m: 1e8,
-        }];
+        st.bearings = vec![Support::lateral(2.0, 1e8)];
         let e = evaluate(&st, None).expect_err("refused");
         assert!(e.contains("bearing 0"), "{e}");
     }

@@ -346,16 +346,7 @@ impl Scenario {
                 material: Material::STEEL,
                 sections: vec![sec(0.15, 0.035), sec(0.60, 0.045), sec(0.15, 0.035)],
                 discs: vec![],
-                supports: vec![
-                    Support {
-                        position_m: 0.2,
-                        stiffness_n_per_m: k_cord,
-                    },
-                    Support {
-                        position_m: 0.7,
-                        stiffness_n_per_m: k_cord,
-                    },
-                ],
+                supports: vec![Support::lateral(0.2, k_cord), Support::lateral(0.7, k_cord)],
             },
             stations_m: (0..10).map(|i| i as f64 * 0.1).collect(),
             reference_station: 1,
