@@ -948,21 +948,7 @@ fn correlate(a: CorrelateArgs) -> Result<()> {
         m.indicators.freq_hz.first().copied().unwrap_or(0.0),
         m.indicators.freq_hz.last().copied().unwrap_or(0.0),
     ];
-    let test = TestModes {
-        positions_m: m.positions_m.clone(),
-        modes: m
-            .modes
-            .iter()
-            .map(|x| {
-                (
-                    x.frequency_hz,
-                    x.damping_ratio,
-                    x.shape.iter().map(|c| c.re).collect(),
-                )
-            })
-            .collect(),
-        band_hz: band,
-    };
+    let test = TestModes::from_modal(&m, band);
     let r = evaluate(&study, Some(&test)).map_err(|e| {
         anyhow!(
             "{} against {}: {e}",

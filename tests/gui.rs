@@ -15,7 +15,11 @@ fn demo() -> PathBuf {
 }
 
 fn harness() -> Harness<'static, TapgridApp> {
-    let app = TapgridApp::new(Settings::default(), Some(demo()));
+    harness_on(Settings::default(), demo())
+}
+
+fn harness_on(settings: Settings, path: PathBuf) -> Harness<'static, TapgridApp> {
+    let app = TapgridApp::new(settings, Some(path));
     Harness::builder()
         .with_size(egui::vec2(1600.0, 1000.0))
         .build_ui_state(
@@ -375,22 +379,13 @@ fn speed_margins_view_shows_the_map_bands_and_cautions() {
 fn a_wav_set_without_model_gets_one_from_its_stations() {
     let set =
         PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("sample-sessions/pump-shaft-roving-sensor");
-    let app = TapgridApp::new(
+    let mut h = harness_on(
         Settings {
             cautions_read: true,
             ..Settings::default()
         },
-        Some(set),
+        set,
     );
-    let mut h = Harness::builder()
-        .with_size(egui::vec2(1600.0, 1000.0))
-        .build_ui_state(
-            |ui, app: &mut TapgridApp| {
-                app.logic(ui.ctx());
-                app.show(ui);
-            },
-            app,
-        );
     settle(&mut h);
     h.get_by_label("Shaft model").click();
     h.run_steps(2);

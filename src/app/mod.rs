@@ -282,21 +282,7 @@ impl Document {
             .or(self.setup.band_hz)
             .or(lines)
             .unwrap_or([0.0, f64::INFINITY]);
-        Some(TestModes {
-            positions_m: m.positions_m.clone(),
-            modes: m
-                .modes
-                .iter()
-                .map(|x| {
-                    (
-                        x.frequency_hz,
-                        x.damping_ratio,
-                        x.shape.iter().map(|c| c.re).collect(),
-                    )
-                })
-                .collect(),
-            band_hz: band,
-        })
+        Some(TestModes::from_modal(m, band))
     }
 
     /// Index of a station in the dataset.

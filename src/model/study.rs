@@ -151,6 +151,28 @@ pub struct TestModes {
     pub band_hz: [f64; 2],
 }
 
+impl TestModes {
+    /// The modes of a fit (real parts of the shapes, which the fit has rotated to their principal
+    /// axis) over the band the test covered.
+    pub fn from_modal(m: &crate::modal::ModalResult, band_hz: [f64; 2]) -> Self {
+        Self {
+            positions_m: m.positions_m.clone(),
+            modes: m
+                .modes
+                .iter()
+                .map(|x| {
+                    (
+                        x.frequency_hz,
+                        x.damping_ratio,
+                        x.shape.iter().map(|c| c.re).collect(),
+                    )
+                })
+                .collect(),
+            band_hz,
+        }
+    }
+}
+
 /// Natural frequencies against support stiffness.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct StiffnessMap {
