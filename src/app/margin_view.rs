@@ -202,29 +202,27 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
                         .width(2.0),
                 );
             }
-            for &k in nominal.iter().take(1) {
-                if k > 0.0 {
-                    p.vline(
-                        VLine::new("nominal stiffness", k.log10())
-                            .color(IDLE)
-                            .style(egui_plot::LineStyle::dashed_loose()),
+            if let Some(&k) = nominal.first().filter(|k| **k > 0.0) {
+                p.vline(
+                    VLine::new("nominal stiffness", k.log10())
+                        .color(IDLE)
+                        .style(egui_plot::LineStyle::dashed_loose()),
+                );
+                if map.bearings && !service_rpm.is_empty() {
+                    p.points(
+                        Points::new(
+                            "critical speeds at nominal stiffness",
+                            service_rpm
+                                .iter()
+                                .filter(|v| **v > 0.0)
+                                .map(|v| [k.log10(), v.log10()])
+                                .collect::<Vec<_>>(),
+                        )
+                        .shape(MarkerShape::Diamond)
+                        .radius(7.0)
+                        .color(ui_text)
+                        .filled(true),
                     );
-                    if map.bearings && !service_rpm.is_empty() {
-                        p.points(
-                            Points::new(
-                                "critical speeds at nominal stiffness",
-                                service_rpm
-                                    .iter()
-                                    .filter(|v| **v > 0.0)
-                                    .map(|v| [k.log10(), v.log10()])
-                                    .collect::<Vec<_>>(),
-                            )
-                            .shape(MarkerShape::Diamond)
-                            .radius(7.0)
-                            .color(ui_text)
-                            .filled(true),
-                        );
-                    }
                 }
             }
         });

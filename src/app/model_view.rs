@@ -212,16 +212,7 @@ pub fn drawing(ui: &mut egui::Ui, study: &Study, stations: &[(u32, f64)], height
         }
         x += s.length_m;
     }
-    let half_at = |p: f64| {
-        let mut acc = 0.0;
-        for s in &shaft.sections {
-            acc += s.length_m;
-            if p <= acc + 1e-12 {
-                return sc.half(s.outer_diameter_m);
-            }
-        }
-        sc.half(d_max)
-    };
+    let half_at = |p: f64| sc.half(shaft.section_at(p).outer_diameter_m);
     for d in &shaft.discs {
         let cx = sc.x(d.position_m);
         let h = (2.2 * half_at(d.position_m)).max(14.0);

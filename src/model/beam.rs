@@ -264,7 +264,8 @@ impl Shaft {
         })
     }
 
-    fn section_at(&self, x: f64) -> &Section {
+    /// The section holding position `x` m (the last one beyond the end).
+    pub fn section_at(&self, x: f64) -> &Section {
         let mut acc = 0.0;
         for s in &self.sections {
             acc += s.length_m;

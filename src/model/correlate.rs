@@ -97,13 +97,27 @@ pub fn correlate(
 }
 
 /// Natural frequencies (Hz, lowest `count` flexible-or-not modes) with every support set to each
-/// stiffness of a log sweep from `k_lo` to `k_hi` N/m in `points` steps. Undamped, no gyroscopic
-/// effect.
+/// stiffness of a log sweep from `k_lo` to `k_hi` N/m in `points` steps, each on a converged
+/// mesh. Undamped, no gyroscopic effect.
 pub fn stiffness_map(
+    shaft: &Shaft,
+    range: [f64; 2],
+    points: usize,
+    count: usize,
+) -> Result<Vec<(f64, Vec<f64>)>, String> {
+    sweep_supports(shaft, range, points, |s| {
+        let c = converged_modes(s, BeamTheory::Timoshenko, count, &[])?;
+        Ok(c.modes.iter().map(|m| m.frequency_hz).collect())
+    })
+}
+
+/// The log sweep of every support's stiffness behind [`stiffness_map`], with the frequencies of
+/// each swept shaft from `solve`.
+pub fn sweep_supports(
     shaft: &Shaft,
     [k_lo, k_hi]: [f64; 2],
     points: usize,
-    count: usize,
+    mut solve: impl FnMut(&Shaft) -> Result<Vec<f64>, String>,
 ) -> Result<Vec<(f64, Vec<f64>)>, String> {
     if shaft.supports.is_empty() {
         return Err(
@@ -114,14 +128,13 @@ pub fn stiffness_map(
         return Err("the stiffness range must be 0 < low < high with at least 2 points".into());
     }
     let mut out = Vec::with_capacity(points);
+    let mut s = shaft.clone();
     for p in 0..points {
         let k = k_lo * (k_hi / k_lo).powf(p as f64 / (points - 1) as f64);
-        let mut s = shaft.clone();
         for sup in &mut s.supports {
             sup.stiffness_n_per_m = k;
         }
-        let c = converged_modes(&s, BeamTheory::Timoshenko, count, &[])?;
-        out.push((k, c.modes.iter().map(|m| m.frequency_hz).collect()));
+        out.push((k, solve(&s)?));
     }
     Ok(out)
 }

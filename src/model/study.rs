@@ -6,7 +6,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::beam::{BeamTheory, Shaft, Support};
-use super::correlate::{Correlation, correlate};
+use super::correlate::{Correlation, correlate, sweep_supports};
 use super::margin::{MarginCheck, MarginRule, check};
 use super::run::{Converged, converged_modes_to};
 
@@ -353,24 +353,14 @@ fn stiffness_sweep(study: &Study) -> Result<Option<StiffnessMap>, String> {
     if base.supports.is_empty() {
         return Ok(None);
     }
-    let [lo, hi] = study.sweep_range();
-    let elements = MAP_ELEMENTS;
-    let mut freq: Vec<Vec<f64>> = (0..MAP_MODES)
-        .map(|_| Vec::with_capacity(MAP_POINTS))
+    let points = sweep_supports(&base, study.sweep_range(), MAP_POINTS, |s| {
+        let (_, modes) = s.modes(BeamTheory::Timoshenko, MAP_MODES, MAP_ELEMENTS, &[])?;
+        Ok(modes.iter().map(|m| m.frequency_hz).collect())
+    })?;
+    let ks = points.iter().map(|p| p.0).collect();
+    let freq = (0..MAP_MODES)
+        .map(|i| points.iter().map(|p| p.1[i]).collect())
         .collect();
-    let mut ks = Vec::with_capacity(MAP_POINTS);
-    let mut s = base;
-    for p in 0..MAP_POINTS {
-        let k = lo * (hi / lo).powf(p as f64 / (MAP_POINTS - 1) as f64);
-        for sup in &mut s.supports {
-            sup.stiffness_n_per_m = k;
-        }
-        let (_, modes) = s.modes(BeamTheory::Timoshenko, MAP_MODES, elements, &[])?;
-        for (row, m) in freq.iter_mut().zip(&modes) {
-            row.push(m.frequency_hz);
-        }
-        ks.push(k);
-    }
     Ok(Some(StiffnessMap {
         stiffness_n_per_m: ks,
         frequencies_hz: freq,
