@@ -42,6 +42,8 @@ pub struct Cli {
 pub enum Command {
     /// Analyse a WAV set or a session: hits, verdicts, FRFs → frf.csv and result.json.
     Analyze(AnalyzeArgs),
+    /// Write a test report (one HTML file): setup, hit verdicts, FRFs, modes, model, margins.
+    Report(ReportArgs),
     /// Import a WAV set into a new session folder (recordings are copied, never modified).
     Import(ImportArgs),
     /// Capture hits from an audio interface into a session, headless (exits 0 when done).
@@ -320,6 +322,17 @@ pub struct AnalyzeArgs {
     /// Output folder for frf.csv, result.json and stabilization.csv.
     #[arg(long)]
     pub out: PathBuf,
+    /// Modal stage.
+    #[command(flatten)]
+    pub modal: ModalArgs,
+    /// Setup.
+    #[command(flatten)]
+    pub setup: SetupArgs,
+}
+
+/// Options of the modal stage (`analyze`, `report`).
+#[derive(Debug, Args)]
+pub struct ModalArgs {
     /// Modes to report: auto, a count N (the N most stable), frequencies F1,F2,… (Hz), or none
     /// (FRFs only).
     #[arg(long, default_value = "auto")]
@@ -339,6 +352,25 @@ pub struct AnalyzeArgs {
     /// Stability: smallest MAC between the shapes of successive orders.
     #[arg(long, default_value_t = 0.98)]
     pub stable_mac: f64,
+}
+
+/// `tapgrid report`.
+#[derive(Debug, Args)]
+pub struct ReportArgs {
+    /// A WAV set folder or a session folder.
+    pub input: PathBuf,
+    /// The HTML file to write.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// The shaft model (JSON), or a session holding one (default: the input's own model, if any).
+    #[arg(long)]
+    pub model: Option<PathBuf>,
+    /// Part name shown in the title (default: the session's part, else the folder's name).
+    #[arg(long)]
+    pub part: Option<String>,
+    /// Modal stage.
+    #[command(flatten)]
+    pub modal: ModalArgs,
     /// Setup.
     #[command(flatten)]
     pub setup: SetupArgs,
@@ -353,7 +385,7 @@ pub enum MethodArg {
     Peak,
 }
 
-fn modal_settings(a: &AnalyzeArgs) -> Result<Option<ModalSettings>> {
+fn modal_settings(a: &ModalArgs) -> Result<Option<ModalSettings>> {
     let selection = match a.modes.trim() {
         "none" => return Ok(None),
         "auto" => Selection::Auto,
@@ -690,9 +722,10 @@ pub fn run(cli: Cli) -> Result<()> {
     };
     match command {
         Command::Analyze(a) => {
-            let m = modal_settings(&a)?;
+            let m = modal_settings(&a.modal)?;
             analyze(&a.input, &a.out, &a.setup, m.as_ref())
         }
+        Command::Report(a) => report(a),
         Command::Import(a) => import(a),
         Command::Capture(a) => capture(a),
         Command::Devices => devices(),
@@ -768,6 +801,62 @@ fn analyze(
         out.join("frf.csv").display(),
         out.join("result.json").display()
     );
+    Ok(())
+}
+
+fn report(a: ReportArgs) -> Result<()> {
+    use crate::model::study::{TestModes, evaluate};
+    let spacing = a.setup.spacing.unwrap_or(Setup::default().spacing_m);
+    let (data, session) = Dataset::open(&a.input, spacing)?;
+    let (base, part, notes, own_model) = match session {
+        Some(s) => (
+            s.manifest.setup,
+            s.manifest.part.name,
+            s.manifest.part.notes,
+            s.manifest.model,
+        ),
+        None => (Setup::default(), String::new(), String::new(), None),
+    };
+    let setup = a.setup.apply(base)?;
+    let analysis = analysis::run(&data, &setup)?;
+    let modes = match (modal_settings(&a.modal)?, FrfSet::from_analysis(&analysis)) {
+        (Some(ms), Some(set)) => crate::modal::extract(&set, &ms)
+            .map_err(|m| anyhow!("{}: modal fit: {m}", a.input.display()))?,
+        _ => ModalResult::default(),
+    };
+    let study = match &a.model {
+        Some(p) => Some(read_study(p)?),
+        None => own_model,
+    };
+    let result = match &study {
+        Some(st) => {
+            let band = [
+                modes.indicators.freq_hz.first().copied().unwrap_or(0.0),
+                modes.indicators.freq_hz.last().copied().unwrap_or(0.0),
+            ];
+            let test = TestModes::from_modal(&modes, band);
+            Some(
+                evaluate(st, Some(&test))
+                    .map_err(|e| anyhow!("{}: shaft model: {e}", a.input.display()))?,
+            )
+        }
+        None => None,
+    };
+    let written = report::document::utc_now();
+    let part = a.part.unwrap_or(part);
+    let input = report::document::ReportInput {
+        part: &part,
+        notes: &notes,
+        source: &a.input,
+        analysis: &analysis,
+        modes: &modes,
+        study: study.as_ref().zip(result.as_ref()),
+        written_utc: &written,
+    };
+    report::document::write_html(&a.out, &input)?;
+    print!("{}", report::summary(&analysis));
+    print!("{}", report::modes_summary(&modes));
+    println!("wrote {}", a.out.display());
     Ok(())
 }
 

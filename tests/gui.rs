@@ -444,3 +444,36 @@ fn save_as_keeps_the_shaft_model() {
     assert!(copy.manifest.model.is_some());
     assert_eq!(copy.manifest.model, bundled.manifest.model);
 }
+
+#[test]
+fn the_file_menu_writes_the_report_of_what_the_window_shows() {
+    let tmp = tempfile::tempdir().expect("temp");
+    let page = tmp.path().join("demo-report.html");
+    let mut h = open_demo();
+    h.get_by_label("Shaft model").click();
+    settle(&mut h);
+    h.get_by_label("File").click();
+    h.run_steps(2);
+    h.get_by_label("Write report…").click_accesskit();
+    // The click queues the request, the next frame opens the dialog, the one after draws it.
+    h.run_steps(4);
+    // The dialog asks where, offering a file beside the working folder for the read-only demo.
+    h.get_by_label("Write the test report (HTML file)");
+    h.get_by_label("Cancel").click_accesskit();
+    h.run_steps(4);
+    assert!(
+        h.query_by_label("Write the test report (HTML file)")
+            .is_none()
+    );
+    h.state_mut()
+        .push(tapgrid::app::Command::WriteReport(page.clone()));
+    h.run_steps(2);
+    let html = std::fs::read_to_string(&page).expect("the report was written");
+    let d = h.state().doc.as_ref().expect("open");
+    for m in &d.modal.as_ref().expect("fitted").modes {
+        assert!(html.contains(&format!("<td>{:.2}</td>", m.frequency_hz)));
+    }
+    assert!(html.contains("<h2>Running-speed margins</h2>"));
+    assert!(html.contains("locked out"));
+    h.get_by_label_contains("wrote the report to");
+}

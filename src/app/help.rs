@@ -4,20 +4,7 @@ use eframe::egui;
 
 use super::Command;
 
-/// Safety and scope cautions, shown at first start and in the help.
-pub const CAUTIONS: [&str; 5] = [
-    "Test only machinery that is stopped, isolated and locked out under your site's procedure; \
-     never tap a running or energised machine.",
-    "Wear eye protection: hammer tips and small parts can fly. Keep fingers and bystanders clear \
-     of the swing; secure a suspended part against swinging or falling; tie down cables.",
-    "Do not strike sensors or cables, respect the accelerometer's shock limit, and turn off \
-     phantom power on inputs wired to IEPE conditioners.",
-    "Results are advisory. Natural frequencies, damping and any running-speed margin must be \
-     judged against the applicable standard and by a competent, licensed engineer; they do not \
-     replace local codes or licensed practice.",
-    "Bench results (free or on test supports) differ from the installed machine: bearings, \
-     couplings, fluid and temperature shift the frequencies.",
-];
+pub use crate::cautions::CAUTIONS;
 
 /// Keyboard shortcuts: key, action.
 pub const SHORTCUTS: [(&str, &str); 12] = [

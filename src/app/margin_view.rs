@@ -12,16 +12,7 @@ use super::{Command, TapgridApp};
 use crate::model::margin::Side;
 use crate::model::study::{ResonanceSource, Study, StudyResult};
 
-/// What the map leaves out, shown beside it.
-pub const MAP_NOTE: &str = "Undamped critical speeds of a non-rotating Timoshenko model: no \
-     gyroscopic effect (disc polar inertia unused, so forward and backward whirl are not split), \
-     isotropic bearings as plain springs without damping, pedestal or foundation mass.";
-
-/// Advisory wording of the margin check.
-pub const MARGIN_NOTE: &str = "Advisory only. The rule is API RP 684's as recalled from memory: \
-     confirm it against the edition in force, or the standard that applies to this machine. Bench \
-     frequencies are not installed critical speeds. Decisions on running speeds belong to the \
-     applicable standard, local codes and a competent, licensed engineer.";
+pub use crate::cautions::{MAP_NOTE, MARGIN_NOTE};
 
 fn decade_tick(m: GridMark) -> String {
     let v = 10f64.powf(m.value);
@@ -300,17 +291,7 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
                 ui.label(RichText::new(h).strong());
             }
             ui.end_row();
-            // Closest calls first: failing lines, then by how little margin is left over.
-            let mut lines: Vec<_> = r.margins.iter().collect();
-            lines.sort_by(|a, b| {
-                let spare = |l: &crate::model::study::MarginLine| {
-                    l.check.margin_pct - l.check.required_pct.min(1e9)
-                };
-                a.check
-                    .ok
-                    .cmp(&b.check.ok)
-                    .then(spare(a).total_cmp(&spare(b)))
-            });
+            let lines = r.margins_closest_first();
             for l in lines {
                 let c = &l.check;
                 ui.label(match l.source {

@@ -15,7 +15,6 @@ mod model_edit;
 mod model_view;
 mod modes_view;
 pub mod plots;
-pub mod reduce;
 mod setup_view;
 mod station_map;
 pub mod worker;
@@ -382,8 +381,26 @@ pub enum Command {
     LoadModel(PathBuf),
     /// Write the shaft model as JSON.
     WriteModel(PathBuf),
+    /// Write the test report (HTML) of what the window shows.
+    WriteReport(PathBuf),
     /// A first model: a uniform steel shaft over the stations, free-free.
     NewModel,
+}
+
+/// Where a report goes by default: beside a session or WAV set (a session's own folder holds only
+/// what the session format defines), or in the working folder for the read-only demo.
+fn report_default_path(d: &Document) -> PathBuf {
+    let name = d
+        .path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "test".into());
+    let dir = if d.read_only {
+        std::env::current_dir().unwrap_or_default()
+    } else {
+        d.path.parent().map(Path::to_path_buf).unwrap_or_default()
+    };
+    dir.join(format!("{name}-report.html"))
 }
 
 /// Why a path is being asked for.
@@ -399,6 +416,8 @@ pub enum PathPurpose {
     LoadModel,
     /// Write the shaft model file.
     WriteModel,
+    /// Write the test report.
+    WriteReport,
 }
 
 struct PathDialog {
@@ -653,6 +672,14 @@ impl TapgridApp {
                 {
                     self.commands.push(Command::AskPath(PathPurpose::SaveAs));
                 }
+                let can_report = self.doc.as_ref().is_some_and(|d| d.analysis.is_some());
+                if ui
+                    .add_enabled(can_report, egui::Button::new("Write report…"))
+                    .clicked()
+                {
+                    self.commands
+                        .push(Command::AskPath(PathPurpose::WriteReport));
+                }
                 ui.separator();
                 ui.label("Recent");
                 for p in self.settings.recent.clone() {
@@ -783,6 +810,7 @@ impl TapgridApp {
             PathPurpose::SaveAs => "Save as a new session folder",
             PathPurpose::LoadModel => "Read a shaft model (JSON file)",
             PathPurpose::WriteModel => "Write the shaft model (JSON file)",
+            PathPurpose::WriteReport => "Write the test report (HTML file)",
         };
         let mut close = false;
         let mut go = None;
@@ -792,7 +820,9 @@ impl TapgridApp {
             .anchor(egui::Align2::CENTER_CENTER, [0.0, 0.0])
             .show(ctx, |ui| {
                 ui.label(match d.purpose {
-                    PathPurpose::LoadModel | PathPurpose::WriteModel => "File:",
+                    PathPurpose::LoadModel | PathPurpose::WriteModel | PathPurpose::WriteReport => {
+                        "File:"
+                    }
                     _ => "Folder:",
                 });
                 let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(520.0));
@@ -815,6 +845,7 @@ impl TapgridApp {
                     PathPurpose::SaveAs => Command::SaveAs(p),
                     PathPurpose::LoadModel => Command::LoadModel(p),
                     PathPurpose::WriteModel => Command::WriteModel(p),
+                    PathPurpose::WriteReport => Command::WriteReport(p),
                 });
             }
         } else if close {
@@ -1074,6 +1105,11 @@ impl TapgridApp {
                         .join("shaft.json")
                         .display()
                         .to_string(),
+                    PathPurpose::WriteReport => self
+                        .doc
+                        .as_ref()
+                        .map(|d| report_default_path(d).display().to_string())
+                        .unwrap_or_default(),
                     PathPurpose::SaveAs => self
                         .doc
                         .as_ref()
@@ -1182,6 +1218,7 @@ impl TapgridApp {
             }
             Command::LoadModel(p) => self.load_model(&p),
             Command::WriteModel(p) => self.write_model(&p),
+            Command::WriteReport(p) => self.write_report(&p),
             Command::NewModel => {
                 if let Some(d) = &mut self.doc {
                     d.study = Some(model_edit::first_model(d));
@@ -1267,6 +1304,34 @@ impl TapgridApp {
                 self.note(format!("read the shaft model {}", path.display()), false);
                 self.request_study();
             }
+            Err(e) => self.note(e.to_string(), true),
+        }
+    }
+
+    fn write_report(&mut self, path: &Path) {
+        let Some(d) = &self.doc else {
+            return;
+        };
+        let Some(analysis) = &d.analysis else {
+            self.note(
+                "the report needs the analysis, which has not finished",
+                true,
+            );
+            return;
+        };
+        let empty = ModalResult::default();
+        let written = crate::report::document::utc_now();
+        let input = crate::report::document::ReportInput {
+            part: &d.part.name,
+            notes: &d.part.notes,
+            source: &d.path,
+            analysis,
+            modes: d.modal.as_deref().unwrap_or(&empty),
+            study: d.study.as_ref().zip(d.study_result.as_deref()),
+            written_utc: &written,
+        };
+        match crate::report::document::write_html(path, &input) {
+            Ok(()) => self.note(format!("wrote the report to {}", path.display()), false),
             Err(e) => self.note(e.to_string(), true),
         }
     }

@@ -3,7 +3,7 @@
 use eframe::egui::{self, Color32};
 use egui_plot::{GridMark, PlotBounds, PlotPoint, PlotPoints};
 
-use super::reduce;
+use crate::reduce;
 
 /// Good (accepted) — a blue-green that stays apart from the warning colours for most colour vision.
 pub const GOOD: Color32 = Color32::from_rgb(38, 166, 154);

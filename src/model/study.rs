@@ -226,6 +226,22 @@ pub struct StudyResult {
     pub warnings: Vec<String>,
 }
 
+impl StudyResult {
+    /// The margin lines, closest calls first: failing lines, then by how little margin is left
+    /// over the rule's.
+    pub fn margins_closest_first(&self) -> Vec<&MarginLine> {
+        let spare = |l: &MarginLine| l.check.margin_pct - l.check.required_pct.min(1e9);
+        let mut lines: Vec<&MarginLine> = self.margins.iter().collect();
+        lines.sort_by(|a, b| {
+            a.check
+                .ok
+                .cmp(&b.check.ok)
+                .then(spare(a).total_cmp(&spare(b)))
+        });
+        lines
+    }
+}
+
 /// Evaluates the study, against `test` when given.
 pub fn evaluate(study: &Study, test: Option<&TestModes>) -> Result<StudyResult, String> {
     study.validate()?;

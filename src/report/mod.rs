@@ -1,5 +1,8 @@
 //! Files for people and other tools: `frf.csv` and `result.json`.
 
+pub mod document;
+pub mod svg;
+
 use std::fmt::Write as _;
 use std::path::Path;
 
@@ -17,19 +20,37 @@ use crate::setup::Setup;
 pub const FRF_CSV_HEADER: &str = "station,frequency_hz,h_re,h_im,coherence";
 
 /// `frf.csv`: one row per station and spectral line inside the band, SI units.
-/// Stations are formatted on parallel threads: on a 40-station test the text is ~20 MB.
 pub fn frf_csv(a: &Analysis) -> String {
+    let blocks = frf_csv_blocks(a);
+    let mut out = String::with_capacity(blocks.iter().map(String::len).sum::<usize>() + 64);
+    for b in blocks {
+        out.push_str(&b);
+    }
+    out
+}
+
+/// `frf.csv` as consecutive pieces (the header first), to be written one after the other.
+/// Stations are formatted on parallel threads: on a 40-station test the text is ~20 MB, and
+/// writing the pieces as they are spares copying them into one string.
+pub fn frf_csv_blocks(a: &Analysis) -> Vec<String> {
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
         .max(1);
     let chunk = a.stations.len().div_ceil(workers).max(1);
-    let blocks: Vec<String> = std::thread::scope(|scope| {
+    let mut blocks = vec![format!("{FRF_CSV_HEADER}\n")];
+    std::thread::scope(|scope| {
         let handles: Vec<_> = a
             .stations
             .chunks(chunk)
             .map(|group| {
                 scope.spawn(move || {
-                    let mut out = String::new();
+                    let rows: usize = group
+                        .iter()
+                        .filter_map(|s| s.result.frf.as_ref())
+                        .map(|f| f.freq_hz.len())
+                        .sum();
+                    // A row is at most ~90 characters; reserving once avoids regrowing.
+                    let mut out = String::with_capacity(90 * rows);
                     for s in group {
                         station_rows(&mut out, s);
                     }
@@ -37,18 +58,9 @@ pub fn frf_csv(a: &Analysis) -> String {
                 })
             })
             .collect();
-        handles
-            .into_iter()
-            .map(|h| h.join().unwrap_or_default())
-            .collect()
+        blocks.extend(handles.into_iter().map(|h| h.join().unwrap_or_default()));
     });
-    let mut out = String::with_capacity(blocks.iter().map(String::len).sum::<usize>() + 64);
-    out.push_str(FRF_CSV_HEADER);
-    out.push('\n');
-    for b in blocks {
-        out.push_str(&b);
-    }
-    out
+    blocks
 }
 
 fn station_rows(out: &mut String, s: &crate::analysis::StationAnalysis) {
@@ -58,7 +70,6 @@ fn station_rows(out: &mut String, s: &crate::analysis::StationAnalysis) {
     let mut ib = itoa::Buffer::new();
     let station = ib.format(s.station).to_string();
     if let Some(f) = &s.result.frf {
-        out.reserve(72 * f.freq_hz.len());
         for i in 0..f.freq_hz.len() {
             out.push_str(&station);
             for v in [f.freq_hz[i], f.h[i].re, f.h[i].im, f.coherence[i]] {
@@ -332,11 +343,17 @@ pub fn write_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<(), In
     std::fs::create_dir_all(dir)
         .map_err(|e| InputError::new(dir, format!("cannot create output folder: {e}")))?;
     let t = std::time::Instant::now();
-    let csv = frf_csv(a);
+    let csv = frf_csv_blocks(a);
     let t1 = t.elapsed();
     let json = result_json(a, m);
     let t2 = t.elapsed();
-    let mut files = vec![("frf.csv", csv), ("result.json", json)];
+    let p = dir.join("frf.csv");
+    atomic::write_with(&p, |f| {
+        use std::io::Write as _;
+        csv.iter().try_for_each(|b| f.write_all(b.as_bytes()))
+    })
+    .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
+    let mut files = vec![("result.json", json)];
     if let Some(st) = &m.stabilization {
         files.push(("stabilization.csv", stabilization_csv(st)));
     }
@@ -360,6 +377,12 @@ pub fn write_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<(), In
     Ok(())
 }
 
+/// Share of the band's lines with coherence ≥ 0.9. It says more than the minimum, which always
+/// sits in an antiresonance.
+pub fn good_coherence_share(f: &crate::signal::StationFrf) -> f64 {
+    f.coherence.iter().filter(|&&c| c >= 0.9).count() as f64 / f.coherence.len().max(1) as f64
+}
+
 /// A short plain-text summary for the terminal.
 pub fn summary(a: &Analysis) -> String {
     let mut s = String::new();
@@ -381,12 +404,7 @@ pub fn summary(a: &Analysis) -> String {
     );
     for st in &a.stations {
         let acc = st.result.hits.iter().filter(|h| h.accepted).count();
-        // The share of the band with good coherence says more than its minimum, which always
-        // sits in an antiresonance.
-        let good = st.result.frf.as_ref().map(|f| {
-            f.coherence.iter().filter(|&&c| c >= 0.9).count() as f64
-                / f.coherence.len().max(1) as f64
-        });
+        let good = st.result.frf.as_ref().map(good_coherence_share);
         let mut probs: Vec<String> = Vec::new();
         for h in &st.result.hits {
             if !h.reasons.is_empty() {

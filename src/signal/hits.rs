@@ -104,7 +104,20 @@ pub fn second_impact(rec: &[f64], pulse: &Pulse, sign: f64, fraction: f64) -> Op
 
 /// Largest absolute sample.
 pub fn peak_abs(x: &[f64]) -> f64 {
-    x.iter().fold(0.0, |m, v| m.max(v.abs()))
+    // Eight running maxima with a plain comparison (not `f64::max`, whose NaN rule blocks
+    // vectorising; samples are finite), so the compiler keeps them in vector registers.
+    let mut lanes = [0.0f64; 8];
+    let chunks = x.chunks_exact(8);
+    let tail = chunks.remainder();
+    for c in chunks {
+        for (m, v) in lanes.iter_mut().zip(c) {
+            let a = v.abs();
+            *m = if a > *m { a } else { *m };
+        }
+    }
+    tail.iter()
+        .chain(&lanes)
+        .fold(0.0, |m, v| if v.abs() > m { v.abs() } else { m })
 }
 
 /// A clipped ("flat-topped") record: ≥ 3 identical samples at the record's extreme, approached by
@@ -120,8 +133,19 @@ pub fn flat_top_at(x: &[f64], m: f64) -> bool {
     if m < 0.25 {
         return false;
     }
+    // Whole blocks without a sample at the extreme are skipped by a vectorised test.
+    const BLOCK: usize = 256;
     let mut i = 0;
     while i < x.len() {
+        if i.is_multiple_of(BLOCK)
+            && i + BLOCK <= x.len()
+            && !x[i..i + BLOCK]
+                .iter()
+                .fold(false, |hit, v| hit | (v.abs() == m))
+        {
+            i += BLOCK;
+            continue;
+        }
         if x[i].abs() == m {
             let s = i;
             while i < x.len() && x[i] == x[s] {

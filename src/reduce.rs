@@ -1,5 +1,5 @@
-//! Reduces a trace to about one (min, max) pair per pixel column before the plot sees it, so the
-//! cost of drawing does not grow with the record length (thousands of lines, 65 536-sample
+//! Reduces a trace to about one (min, max) pair per pixel column before a plot (the window's or
+//! the written report's) sees it, so the cost of drawing does not grow with the record length (thousands of lines, 65 536-sample
 //! records) and no peak between samples is lost.
 
 /// Points of `y(x)` (x ascending) inside `[x0, x1]`, reduced to at most two per column of

@@ -1,0 +1,28 @@
+//! Wording every view shows where the work can hurt someone or a result can be misread: the
+//! window, the terminal and the written report share it.
+
+/// Safety and scope cautions, shown at first start and in the help.
+pub const CAUTIONS: [&str; 5] = [
+    "Test only machinery that is stopped, isolated and locked out under your site's procedure; \
+     never tap a running or energised machine.",
+    "Wear eye protection: hammer tips and small parts can fly. Keep fingers and bystanders clear \
+     of the swing; secure a suspended part against swinging or falling; tie down cables.",
+    "Do not strike sensors or cables, respect the accelerometer's shock limit, and turn off \
+     phantom power on inputs wired to IEPE conditioners.",
+    "Results are advisory. Natural frequencies, damping and any running-speed margin must be \
+     judged against the applicable standard and by a competent, licensed engineer; they do not \
+     replace local codes or licensed practice.",
+    "Bench results (free or on test supports) differ from the installed machine: bearings, \
+     couplings, fluid and temperature shift the frequencies.",
+];
+
+/// What the map leaves out, shown beside it.
+pub const MAP_NOTE: &str = "Undamped critical speeds of a non-rotating Timoshenko model: no \
+     gyroscopic effect (disc polar inertia unused, so forward and backward whirl are not split), \
+     isotropic bearings as plain springs without damping, pedestal or foundation mass.";
+
+/// Advisory wording of the margin check.
+pub const MARGIN_NOTE: &str = "Advisory only. The rule is API RP 684's as recalled from memory: \
+     confirm it against the edition in force, or the standard that applies to this machine. Bench \
+     frequencies are not installed critical speeds. Decisions on running speeds belong to the \
+     applicable standard, local codes and a competent, licensed engineer.";

@@ -1,0 +1,175 @@
+//! `tapgrid report` on the real binary: the written report states the fit `analyze` finds, the
+//! model correlation and margin lines that follow the published rule, and the cautions; bad input
+//! fails with exit 2 and names the file.
+
+#![allow(clippy::unwrap_used, clippy::expect_used)]
+
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+use predicates::prelude::*;
+use serde_json::Value;
+
+fn demo() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-sessions/pump-shaft")
+}
+
+fn bin() -> Command {
+    Command::cargo_bin("tapgrid").unwrap()
+}
+
+/// Margin required above the operating range (API RP 684 as summarised in field notes §6, from
+/// memory): none below AF 2.5, else min(26, 10 + 17(1 − 1/(AF − 1.5))) %, AF = 1/(2ζ).
+fn api_above_pct(zeta: f64) -> f64 {
+    let af = 1.0 / (2.0 * zeta);
+    if af < 2.5 {
+        0.0
+    } else {
+        (10.0 + 17.0 * (1.0 - 1.0 / (af - 1.5))).min(26.0)
+    }
+}
+
+#[test]
+fn the_demo_report_states_the_fit_the_model_and_rule_conforming_margins() {
+    let t = tempfile::tempdir().unwrap();
+    let page = t.path().join("nested/demo-report.html");
+    bin()
+        .arg("report")
+        .arg(demo())
+        .arg("--out")
+        .arg(&page)
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("wrote"));
+    let html = std::fs::read_to_string(&page).unwrap();
+    // The same fit as `analyze` (result.json) on the same session and settings.
+    let out = t.path().join("out");
+    bin()
+        .arg("analyze")
+        .arg(demo())
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .success();
+    let r: Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    let modes = r["modes"].as_array().unwrap();
+    assert_eq!(modes.len(), 5, "the demo holds five modes in its band");
+    // The demo's model was simulated from these frequencies (simulation-truth.json).
+    let truth: Value = serde_json::from_str(
+        &std::fs::read_to_string(demo().join("simulation-truth.json")).unwrap(),
+    )
+    .unwrap();
+    let truth_hz: Vec<f64> = truth["modes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|m| m["frequency_hz"].as_f64().unwrap())
+        .collect();
+    for m in modes {
+        let f = m["frequency_hz"].as_f64().unwrap();
+        let z = m["damping_ratio"].as_f64().unwrap();
+        assert!(html.contains(&format!("<td>{f:.2}</td>")), "mode {f} Hz");
+        assert!(
+            truth_hz.iter().any(|t| ((f - t) / t).abs() < 1e-3),
+            "{f} Hz is within 0.1 % of a simulated mode"
+        );
+        // Every measured mode lies far above 2900–3000 rpm at 1×: margin and requirement by the
+        // rule, computed here independently.
+        let rpm = 60.0 * f;
+        let margin = (rpm - 3000.0) / 3000.0 * 100.0;
+        let row = format!(
+            "<td class=\"l\">measured (bench)</td><td>{}</td><td>{f:.2}</td><td>1×</td><td>{rpm:.0}</td>\
+             <td>{:.1}</td><td class=\"l\">above the range</td><td>{margin:.1}</td><td>{:.1}</td>",
+            modes.iter().position(|x| x == m).unwrap() + 1,
+            1.0 / (2.0 * z),
+            api_above_pct(z)
+        );
+        assert!(html.contains(&row), "margin row {row}");
+    }
+    for heading in [
+        "Test setup",
+        "Hits",
+        "FRFs",
+        "Modes",
+        "Shaft model",
+        "Running-speed margins",
+    ] {
+        assert!(html.contains(&format!("<h2>{heading}</h2>")), "{heading}");
+    }
+    // Every test mode pairs with a model mode, and no model mode in the band was missed.
+    assert!(!html.contains("pairs with no model mode"));
+    assert!(!html.contains("was not found in the test"));
+    // The cautions go with it; nothing is fetched from elsewhere.
+    assert!(html.contains("locked out"));
+    assert!(html.contains("Advisory only"));
+    assert!(html.contains("no gyroscopic effect"));
+    assert!(!html.contains("<script"));
+    assert_eq!(
+        html.matches("http").count(),
+        html.matches("http://www.w3.org/2000/svg").count()
+    );
+    // Two FRF plots, one plot per mode shape and the critical-speed map.
+    assert_eq!(html.matches("<svg").count(), 3 + modes.len());
+    // The demo's recorded double hit and overload are explained in words.
+    assert!(html.contains("struck twice"));
+    assert!(html.contains("full scale"));
+}
+
+#[test]
+fn a_wav_set_without_a_model_says_so() {
+    let t = tempfile::tempdir().unwrap();
+    let page = t.path().join("r.html");
+    let set = demo().parent().unwrap().join("pump-shaft-roving-sensor");
+    bin()
+        .arg("report")
+        .arg(&set)
+        .args(["--layout", "sensor"])
+        .arg("--out")
+        .arg(&page)
+        .assert()
+        .success();
+    let html = std::fs::read_to_string(&page).unwrap();
+    assert!(html.contains("No shaft model was given"));
+    assert!(html.contains("transmissibility"));
+}
+
+#[test]
+fn bad_input_names_the_file_and_exits_2() {
+    let t = tempfile::tempdir().unwrap();
+    let empty = t.path().join("empty");
+    std::fs::create_dir(&empty).unwrap();
+    bin()
+        .arg("report")
+        .arg(&empty)
+        .arg("--out")
+        .arg(t.path().join("r.html"))
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(empty.display().to_string()));
+    // The report's folder cannot be made: a file stands in its way.
+    let blocker = t.path().join("file");
+    std::fs::write(&blocker, "x").unwrap();
+    let page = blocker.join("r.html");
+    bin()
+        .arg("report")
+        .arg(demo().parent().unwrap().join("pump-shaft-roving-sensor"))
+        .arg("--out")
+        .arg(&page)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(blocker.display().to_string()));
+    // A model file that is not one.
+    let junk = t.path().join("shaft.json");
+    std::fs::write(&junk, "{not json").unwrap();
+    bin()
+        .arg("report")
+        .arg(demo())
+        .arg("--model")
+        .arg(&junk)
+        .arg("--out")
+        .arg(t.path().join("r2.html"))
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(junk.display().to_string()));
+}
