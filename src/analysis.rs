@@ -157,6 +157,15 @@ impl Analysis {
                 self.setup.spacing_m
             ));
         }
+        let [_, hi] = self.setup.band(self.sample_rate_hz);
+        if hi > 0.45 * self.sample_rate_hz as f64 {
+            w.push(format!(
+                "the band reaches {hi} Hz, above 0.45 × the sample rate: an audio interface's \
+                 anti-alias filter rolls off there and bends the FRF (common practice: stay below \
+                 {:.0} Hz)",
+                0.45 * self.sample_rate_hz as f64
+            ));
+        }
         for s in &self.stations {
             let n = s.result.frf.as_ref().map_or(0, |f| f.hits_averaged);
             if n == 0 {

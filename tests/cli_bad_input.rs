@@ -355,3 +355,18 @@ fn window_on_a_missing_folder_names_it() {
         .stderr(predicates::str::contains("/nonexistent/tapgrid-session"))
         .stderr(predicates::str::contains("is not a folder"));
 }
+
+#[test]
+fn a_band_above_nyquist() {
+    // 8 kHz sampling holds nothing above 4 kHz (Nyquist–Shannon); the band must not be clipped
+    // quietly.
+    let t = tempfile::tempdir().unwrap();
+    let d = case(&t, "nyquist");
+    good_wav(&d.join("st1.wav"), 8000);
+    fails(
+        &d,
+        &["--band", "10:6000"],
+        "st1.wav",
+        "above the Nyquist frequency 4000 Hz",
+    );
+}

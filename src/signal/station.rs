@@ -109,6 +109,15 @@ pub fn analyze_station(
     let df = fs as f64 / n as f64;
     let pre = ((setup.trigger.pretrigger_fraction * n as f64).round() as usize).min(n - 1);
     let [lo, hi] = setup.band(fs);
+    let nyquist = fs as f64 / 2.0;
+    if hi > nyquist {
+        // Clipping it quietly would report a band the recording cannot hold.
+        return Err(format!(
+            "the band's upper edge {hi} Hz lies above the Nyquist frequency {nyquist} Hz of this \
+             recording ({fs} Hz sampling); choose a band up to about {:.0} Hz",
+            0.45 * fs as f64
+        ));
+    }
     let k_lo = (lo / df).ceil().max(1.0) as usize;
     let k_hi = ((hi / df).floor() as usize).min(n / 2);
     if k_lo > k_hi {
