@@ -330,28 +330,29 @@ pub struct AnalyzeArgs {
     pub setup: SetupArgs,
 }
 
-/// Options of the modal stage (`analyze`, `report`).
-#[derive(Debug, Args)]
+/// Options of the modal stage (`analyze`, `report`). Each one not given comes from the session's
+/// saved fit (its method, band and mode choice), else from the defaults.
+#[derive(Debug, Args, Default)]
 pub struct ModalArgs {
     /// Modes to report: auto, a count N (the N most stable), frequencies F1,F2,… (Hz), or none
-    /// (FRFs only).
-    #[arg(long, default_value = "auto")]
-    pub modes: String,
-    /// Extraction method.
-    #[arg(long, value_enum, default_value = "lscf")]
-    pub method: MethodArg,
-    /// Highest LSCF model order.
-    #[arg(long, default_value_t = 64)]
-    pub max_order: usize,
-    /// Stability: largest relative frequency change between orders.
-    #[arg(long, default_value_t = 0.01)]
-    pub stable_frequency: f64,
-    /// Stability: largest relative damping change between orders.
-    #[arg(long, default_value_t = 0.05)]
-    pub stable_damping: f64,
-    /// Stability: smallest MAC between the shapes of successive orders.
-    #[arg(long, default_value_t = 0.98)]
-    pub stable_mac: f64,
+    /// (FRFs only) [default: the session's saved choice, else auto].
+    #[arg(long)]
+    pub modes: Option<String>,
+    /// Extraction method [default: lscf].
+    #[arg(long, value_enum)]
+    pub method: Option<MethodArg>,
+    /// Highest LSCF model order [default: 64].
+    #[arg(long)]
+    pub max_order: Option<usize>,
+    /// Stability: largest relative frequency change between orders [default: 0.01].
+    #[arg(long)]
+    pub stable_frequency: Option<f64>,
+    /// Stability: largest relative damping change between orders [default: 0.05].
+    #[arg(long)]
+    pub stable_damping: Option<f64>,
+    /// Stability: smallest MAC between the shapes of successive orders [default: 0.98].
+    #[arg(long)]
+    pub stable_mac: Option<f64>,
 }
 
 /// `tapgrid report`.
@@ -385,41 +386,51 @@ pub enum MethodArg {
     Peak,
 }
 
-fn modal_settings(a: &ModalArgs) -> Result<Option<ModalSettings>> {
-    let selection = match a.modes.trim() {
-        "none" => return Ok(None),
-        "auto" => Selection::Auto,
-        t if !t.contains(',') && !t.contains('.') && t.parse::<usize>().is_ok() => {
-            Selection::Count(t.parse()?)
-        }
-        t => Selection::Near(
-            t.split(',')
-                .filter(|x| !x.trim().is_empty())
-                .map(|x| {
-                    x.trim()
-                        .parse::<f64>()
-                        .map_err(|_| anyhow!("--modes: cannot read {x:?}; use auto, N or F1,F2,…"))
-                })
-                .collect::<Result<_>>()?,
-        ),
-    };
-    if !(2..=200).contains(&a.max_order) {
-        bail!("--max-order must be between 2 and 200");
+/// The modal settings: `base` (a session's saved fit, or the defaults) with the options given;
+/// `None` for `--modes none`.
+fn modal_settings(a: &ModalArgs, base: ModalSettings) -> Result<Option<ModalSettings>> {
+    let mut m = base;
+    if let Some(t) = a.modes.as_deref().map(str::trim) {
+        m.selection = match t {
+            "none" => return Ok(None),
+            "auto" => Selection::Auto,
+            t if !t.contains(',') && !t.contains('.') && t.parse::<usize>().is_ok() => {
+                Selection::Count(t.parse()?)
+            }
+            t => Selection::Near(
+                t.split(',')
+                    .filter(|x| !x.trim().is_empty())
+                    .map(|x| {
+                        x.trim().parse::<f64>().map_err(|_| {
+                            anyhow!("--modes: cannot read {x:?}; use auto, N or F1,F2,…")
+                        })
+                    })
+                    .collect::<Result<_>>()?,
+            ),
+        };
     }
-    Ok(Some(ModalSettings {
-        method: match a.method {
+    if let Some(method) = a.method {
+        m.method = match method {
             MethodArg::Lscf => Method::Lscf,
             MethodArg::Peak => Method::Peak,
-        },
-        selection,
-        max_order: a.max_order,
-        criteria: crate::modal::lscf::StabilityCriteria {
-            frequency: a.stable_frequency,
-            damping: a.stable_damping,
-            mac: a.stable_mac,
-        },
-        ..ModalSettings::default()
-    }))
+        };
+    }
+    if let Some(p) = a.max_order {
+        m.max_order = p;
+    }
+    if !(2..=200).contains(&m.max_order) {
+        bail!("--max-order must be between 2 and 200");
+    }
+    if let Some(v) = a.stable_frequency {
+        m.criteria.frequency = v;
+    }
+    if let Some(v) = a.stable_damping {
+        m.criteria.damping = v;
+    }
+    if let Some(v) = a.stable_mac {
+        m.criteria.mac = v;
+    }
+    Ok(Some(m))
 }
 
 /// `tapgrid import`.
@@ -721,10 +732,7 @@ pub fn run(cli: Cli) -> Result<()> {
         return crate::app::run(cli.open, view);
     };
     match command {
-        Command::Analyze(a) => {
-            let m = modal_settings(&a.modal)?;
-            analyze(&a.input, &a.out, &a.setup, m.as_ref())
-        }
+        Command::Analyze(a) => analyze(&a.input, &a.out, &a.setup, &a.modal),
         Command::Report(a) => report(a),
         Command::Import(a) => import(a),
         Command::Capture(a) => capture(a),
@@ -747,12 +755,7 @@ pub fn run(cli: Cli) -> Result<()> {
                 .out
                 .unwrap_or_else(|| std::env::temp_dir().join("tapgrid-demo"));
             println!("demo session: {}", dir.display());
-            analyze(
-                &dir,
-                &out,
-                &SetupArgs::default(),
-                Some(&ModalSettings::default()),
-            )
+            analyze(&dir, &out, &SetupArgs::default(), &ModalArgs::default())
         }
     }
 }
@@ -764,16 +767,15 @@ fn demo_session_dir() -> Result<PathBuf> {
     )?)
 }
 
-fn analyze(
-    input: &Path,
-    out: &Path,
-    args: &SetupArgs,
-    modal: Option<&ModalSettings>,
-) -> Result<()> {
+fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal_args: &ModalArgs) -> Result<()> {
     let spacing = args.spacing.unwrap_or(Setup::default().spacing_m);
     let (data, session) = Dataset::open(input, spacing)?;
-    let base = session.map(|s| s.manifest.setup).unwrap_or_default();
+    let (base, fit) = session
+        .map(|s| (s.manifest.setup, s.manifest.fit))
+        .unwrap_or_default();
     let setup = args.apply(base)?;
+    let modal = modal_settings(modal_args, fit.unwrap_or_default())?;
+    let modal = modal.as_ref();
     let t0 = std::time::Instant::now();
     let a = analysis::run(&data, &setup)?;
     let t1 = std::time::Instant::now();
@@ -808,18 +810,20 @@ fn report(a: ReportArgs) -> Result<()> {
     use crate::model::study::{TestModes, evaluate};
     let spacing = a.setup.spacing.unwrap_or(Setup::default().spacing_m);
     let (data, session) = Dataset::open(&a.input, spacing)?;
-    let (base, part, notes, own_model) = match session {
+    let (base, part, notes, own_model, fit) = match session {
         Some(s) => (
             s.manifest.setup,
             s.manifest.part.name,
             s.manifest.part.notes,
             s.manifest.model,
+            s.manifest.fit,
         ),
-        None => (Setup::default(), String::new(), String::new(), None),
+        None => (Setup::default(), String::new(), String::new(), None, None),
     };
     let setup = a.setup.apply(base)?;
     let analysis = analysis::run(&data, &setup)?;
-    let modes = match (modal_settings(&a.modal)?, FrfSet::from_analysis(&analysis)) {
+    let settings = modal_settings(&a.modal, fit.unwrap_or_default())?;
+    let modes = match (settings, FrfSet::from_analysis(&analysis)) {
         (Some(ms), Some(set)) => crate::modal::extract(&set, &ms)
             .map_err(|m| anyhow!("{}: modal fit: {m}", a.input.display()))?,
         _ => ModalResult::default(),
@@ -1016,14 +1020,14 @@ fn colon_range(text: &str, what: &str) -> Result<(f64, f64)> {
 /// Analyses and fits a session or WAV set with its own (or the given) setup.
 fn fitted(input: &Path, setup: &SetupArgs) -> Result<ModalResult> {
     let (data, session) = Dataset::open(input, Setup::default().spacing_m)?;
-    let setup = match &session {
-        Some(s) => s.manifest.setup.clone(),
-        None => setup.apply(Setup::default())?,
+    let (setup, fit) = match &session {
+        Some(s) => (s.manifest.setup.clone(), s.manifest.fit.clone()),
+        None => (setup.apply(Setup::default())?, None),
     };
     let a = analysis::run(&data, &setup)?;
     let fs = FrfSet::from_analysis(&a)
         .ok_or_else(|| anyhow!("{}: no station has an accepted hit", input.display()))?;
-    crate::modal::extract(&fs, &ModalSettings::default())
+    crate::modal::extract(&fs, &fit.unwrap_or_default())
         .map_err(|m| anyhow!("{}: {m}", input.display()))
 }
 

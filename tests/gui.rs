@@ -477,3 +477,98 @@ fn the_file_menu_writes_the_report_of_what_the_window_shows() {
     assert!(html.contains("locked out"));
     h.get_by_label_contains("wrote the report to");
 }
+
+#[test]
+fn a_pole_choice_is_saved_with_the_session_and_honoured_on_reopening() {
+    let tmp = tempfile::tempdir().expect("temp");
+    let dir = tmp.path().join("copy");
+    let mut h = open_demo();
+    h.state_mut()
+        .push(tapgrid::app::Command::SaveAs(dir.clone()));
+    settle(&mut h);
+    let all: Vec<f64> = h
+        .state()
+        .doc
+        .as_ref()
+        .unwrap()
+        .modal
+        .as_ref()
+        .unwrap()
+        .modes
+        .iter()
+        .map(|m| m.frequency_hz)
+        .collect();
+    assert_eq!(all.len(), 5);
+    // Drop the third mode's pole column.
+    h.get_by_label("Pole picking").click();
+    settle(&mut h);
+    let column = h
+        .get_by_label_contains(&format!("drop {:.0}", all[2].floor()))
+        .accesskit_node()
+        .label()
+        .expect("a labelled button");
+    h.get_by_label(&column).click();
+    settle(&mut h);
+    let s = tapgrid::session::Session::open(&dir).expect("the copy opens");
+    let fit = s.manifest.fit.expect("the choice was saved");
+    match &fit.selection {
+        tapgrid::modal::Selection::Near(f) => assert_eq!(f.len(), 4),
+        other => panic!("saved {other:?}"),
+    }
+    // Reopened, the window shows the same four modes as the person's choice.
+    let mut h2 = harness_on(
+        Settings {
+            cautions_read: true,
+            ..Settings::default()
+        },
+        dir.clone(),
+    );
+    settle(&mut h2);
+    let four: Vec<f64> = h2
+        .state()
+        .doc
+        .as_ref()
+        .unwrap()
+        .modal
+        .as_ref()
+        .unwrap()
+        .modes
+        .iter()
+        .map(|m| m.frequency_hz)
+        .collect();
+    assert_eq!(four.len(), 4);
+    assert!(four.iter().all(|f| (f - all[2]).abs() > 0.01 * all[2]));
+    for f in &four {
+        assert!(
+            all.iter().any(|a| (a - f).abs() < 1e-6 * a),
+            "{f} is one of {all:?}"
+        );
+    }
+    h2.get_by_label("Pole picking").click();
+    settle(&mut h2);
+    h2.get_by_label("modes chosen by you");
+    // The command line honours it too, unless told otherwise.
+    let out = tmp.path().join("out");
+    assert_cmd::Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("analyze")
+        .arg(&dir)
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .success();
+    let r: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    assert_eq!(r["modes"].as_array().unwrap().len(), 4);
+    assert_cmd::Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("analyze")
+        .arg(&dir)
+        .args(["--modes", "auto", "--out"])
+        .arg(&out)
+        .assert()
+        .success();
+    let r: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    assert_eq!(r["modes"].as_array().unwrap().len(), 5);
+}

@@ -113,7 +113,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     ];
     let band = doc.modal_settings.band_hz.unwrap_or(full);
     let min_orders = doc.modal_settings.min_stable_orders;
-    let manual = doc.picked.is_some();
+    // A choice restored from the session (or kept over a re-analysis) is the person's too.
+    let manual = doc.picked.is_some()
+        || matches!(
+            doc.modal_settings.selection,
+            crate::modal::Selection::Near(_)
+        );
     let picked = doc
         .picked
         .clone()

@@ -27,7 +27,7 @@ use eframe::egui;
 use serde::{Deserialize, Serialize};
 
 use crate::analysis::{Analysis, Dataset};
-use crate::modal::{FrfSet, ModalResult, ModalSettings};
+use crate::modal::{FrfSet, ModalResult, ModalSettings, Selection};
 use crate::model::study::{Study, StudyResult, TestModes};
 use crate::session::{Part, Session};
 use crate::setup::Setup;
@@ -219,6 +219,10 @@ impl Document {
         session: Option<Session>,
         read_only: bool,
     ) -> Self {
+        let modal_settings = session
+            .as_ref()
+            .and_then(|s| s.manifest.fit.clone())
+            .unwrap_or_default();
         let (setup, part, labels, study) = match &session {
             Some(s) => (
                 s.manifest.setup.clone(),
@@ -250,7 +254,7 @@ impl Document {
             setup,
             part,
             labels,
-            modal_settings: ModalSettings::default(),
+            modal_settings,
             analysis: None,
             frfs: None,
             indicators: None,
@@ -314,6 +318,8 @@ impl Document {
             s.manifest.hits = a.saved_hits();
         }
         s.manifest.model = self.study.clone();
+        s.manifest.fit =
+            (self.modal_settings != ModalSettings::default()).then(|| self.modal_settings.clone());
         Some(s)
     }
 }
@@ -989,6 +995,15 @@ impl TapgridApp {
                 };
                 match modal {
                     Ok(m) => {
+                        if d.picked.is_some() {
+                            // A person's pole choice outlives this fit: kept as the frequencies of
+                            // the chosen poles, which the next analysis and the saved session
+                            // choose again (the stable pole column nearest each).
+                            d.modal_settings.selection = Selection::Near(
+                                m.modes.iter().map(|x| x.measured_frequency_hz).collect(),
+                            );
+                            d.dirty = true;
+                        }
                         d.modal = Some(m);
                         d.modal_error = None;
                     }
@@ -997,6 +1012,7 @@ impl TapgridApp {
                         self.note(format!("fit failed: {e}"), true);
                     }
                 }
+                self.autosave();
                 self.request_study();
             }
             Outcome::Studied { generation, result } => {
@@ -1193,13 +1209,17 @@ impl TapgridApp {
             Command::AutoPoles => {
                 if let Some(d) = &mut self.doc {
                     d.picked = None;
+                    d.modal_settings.selection = Selection::Auto;
+                    d.dirty = true;
                 }
                 self.request_fit();
             }
             Command::SetFitBand(b) => {
                 if let Some(d) = &mut self.doc {
                     d.modal_settings.band_hz = b;
+                    d.modal_settings.selection = Selection::Auto;
                     d.picked = None;
+                    d.dirty = true;
                 }
                 self.request_fit();
             }

@@ -105,6 +105,10 @@ pub struct Manifest {
     /// The shaft model and its service questions, when one was given.
     #[serde(default)]
     pub model: Option<Study>,
+    /// The modal stage's settings as a person left them: method, band, and which modes (a pole
+    /// choice is kept as the frequencies of the chosen poles). Absent: automatic.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fit: Option<crate::modal::ModalSettings>,
 }
 
 impl Manifest {
@@ -125,6 +129,7 @@ impl Manifest {
             recordings,
             hits: Vec::new(),
             model: None,
+            fit: None,
         }
     }
 }
