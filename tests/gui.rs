@@ -51,6 +51,18 @@ fn settle(h: &mut Harness<'static, TapgridApp>) {
     }
 }
 
+/// Frequencies of the modes the window's fit holds.
+fn fitted_hz(h: &Harness<'static, TapgridApp>) -> Vec<f64> {
+    let d = h.state().doc.as_ref().expect("open");
+    d.modal
+        .as_ref()
+        .expect("fit")
+        .modes
+        .iter()
+        .map(|m| m.frequency_hz)
+        .collect()
+}
+
 fn open_demo() -> Harness<'static, TapgridApp> {
     let mut h = harness();
     settle(&mut h);
@@ -149,17 +161,7 @@ fn dropping_and_taking_a_pole_changes_the_mode_table() {
     let mut h = open_demo();
     h.get_by_label("Pole picking").click();
     settle(&mut h);
-    let modes = |h: &Harness<'static, TapgridApp>| -> Vec<f64> {
-        let d = h.state().doc.as_ref().expect("open");
-        d.modal
-            .as_ref()
-            .expect("fit")
-            .modes
-            .iter()
-            .map(|m| m.frequency_hz)
-            .collect()
-    };
-    let all = modes(&h);
+    let all = fitted_hz(&h);
     assert_eq!(
         all.len(),
         5,
@@ -175,13 +177,13 @@ fn dropping_and_taking_a_pole_changes_the_mode_table() {
     let hz = column.trim_start_matches("drop ").to_string();
     h.get_by_label(&column).click();
     settle(&mut h);
-    let four = modes(&h);
+    let four = fitted_hz(&h);
     assert_eq!(four.len(), 4);
     assert!(four.iter().all(|f| (f - f2).abs() > 0.01 * f2));
     // And take it back.
     h.get_by_label(&format!("take {hz}")).click();
     settle(&mut h);
-    let back = modes(&h);
+    let back = fitted_hz(&h);
     assert_eq!(back.len(), 5);
     assert!((back[1] - f2).abs() < 1e-3 * f2, "{} vs {f2}", back[1]);
     // Back to the automatic choice.
@@ -486,18 +488,7 @@ fn a_pole_choice_is_saved_with_the_session_and_honoured_on_reopening() {
     h.state_mut()
         .push(tapgrid::app::Command::SaveAs(dir.clone()));
     settle(&mut h);
-    let all: Vec<f64> = h
-        .state()
-        .doc
-        .as_ref()
-        .unwrap()
-        .modal
-        .as_ref()
-        .unwrap()
-        .modes
-        .iter()
-        .map(|m| m.frequency_hz)
-        .collect();
+    let all = fitted_hz(&h);
     assert_eq!(all.len(), 5);
     // Drop the third mode's pole column.
     h.get_by_label("Pole picking").click();
@@ -524,18 +515,7 @@ fn a_pole_choice_is_saved_with_the_session_and_honoured_on_reopening() {
         dir.clone(),
     );
     settle(&mut h2);
-    let four: Vec<f64> = h2
-        .state()
-        .doc
-        .as_ref()
-        .unwrap()
-        .modal
-        .as_ref()
-        .unwrap()
-        .modes
-        .iter()
-        .map(|m| m.frequency_hz)
-        .collect();
+    let four = fitted_hz(&h2);
     assert_eq!(four.len(), 4);
     assert!(four.iter().all(|f| (f - all[2]).abs() > 0.01 * all[2]));
     for f in &four {
@@ -549,26 +529,21 @@ fn a_pole_choice_is_saved_with_the_session_and_honoured_on_reopening() {
     h2.get_by_label("modes chosen by you");
     // The command line honours it too, unless told otherwise.
     let out = tmp.path().join("out");
-    assert_cmd::Command::cargo_bin("tapgrid")
-        .unwrap()
-        .arg("analyze")
-        .arg(&dir)
-        .arg("--out")
-        .arg(&out)
-        .assert()
-        .success();
-    let r: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
-    assert_eq!(r["modes"].as_array().unwrap().len(), 4);
-    assert_cmd::Command::cargo_bin("tapgrid")
-        .unwrap()
-        .arg("analyze")
-        .arg(&dir)
-        .args(["--modes", "auto", "--out"])
-        .arg(&out)
-        .assert()
-        .success();
-    let r: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
-    assert_eq!(r["modes"].as_array().unwrap().len(), 5);
+    let modes_written = |extra: &[&str]| -> usize {
+        assert_cmd::Command::cargo_bin("tapgrid")
+            .unwrap()
+            .arg("analyze")
+            .arg(&dir)
+            .args(extra)
+            .arg("--out")
+            .arg(&out)
+            .assert()
+            .success();
+        let r: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap())
+                .unwrap();
+        r["modes"].as_array().unwrap().len()
+    };
+    assert_eq!(modes_written(&[]), 4);
+    assert_eq!(modes_written(&["--modes", "auto"]), 5);
 }
