@@ -767,23 +767,58 @@ fn demo_session_dir() -> Result<PathBuf> {
     )?)
 }
 
-fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal_args: &ModalArgs) -> Result<()> {
+/// A test opened for analysis: its data, the setup and modal settings (a session's own, with the
+/// options given on top) and the session, when it is one.
+struct Opened {
+    data: Dataset,
+    setup: Setup,
+    modal: Option<ModalSettings>,
+    session: Option<Session>,
+}
+
+fn open_test(input: &Path, args: &SetupArgs, modal_args: &ModalArgs) -> Result<Opened> {
     let spacing = args.spacing.unwrap_or(Setup::default().spacing_m);
     let (data, session) = Dataset::open(input, spacing)?;
     let (base, fit) = session
-        .map(|s| (s.manifest.setup, s.manifest.fit))
+        .as_ref()
+        .map(|s| (s.manifest.setup.clone(), s.manifest.fit.clone()))
         .unwrap_or_default();
-    let setup = args.apply(base)?;
-    let modal = modal_settings(modal_args, fit.unwrap_or_default())?;
-    let modal = modal.as_ref();
-    let t0 = std::time::Instant::now();
-    let a = analysis::run(&data, &setup)?;
-    let t1 = std::time::Instant::now();
-    let modes = match (modal, FrfSet::from_analysis(&a)) {
+    Ok(Opened {
+        data,
+        setup: args.apply(base)?,
+        modal: modal_settings(modal_args, fit.unwrap_or_default())?,
+        session,
+    })
+}
+
+/// The modal fit of an analysed test (empty for `--modes none` or without an accepted hit).
+fn fit_modes(
+    input: &Path,
+    a: &crate::analysis::Analysis,
+    modal: Option<&ModalSettings>,
+) -> Result<ModalResult> {
+    Ok(match (modal, FrfSet::from_analysis(a)) {
         (Some(ms), Some(set)) => crate::modal::extract(&set, ms)
             .map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))?,
         _ => ModalResult::default(),
-    };
+    })
+}
+
+/// A fit's modes as the model study takes them, over the lines the fit saw.
+fn test_modes(m: &ModalResult) -> crate::model::study::TestModes {
+    let band = [
+        m.indicators.freq_hz.first().copied().unwrap_or(0.0),
+        m.indicators.freq_hz.last().copied().unwrap_or(0.0),
+    ];
+    crate::model::study::TestModes::from_modal(m, band)
+}
+
+fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal_args: &ModalArgs) -> Result<()> {
+    let t = open_test(input, args, modal_args)?;
+    let t0 = std::time::Instant::now();
+    let a = analysis::run(&t.data, &t.setup)?;
+    let t1 = std::time::Instant::now();
+    let modes = fit_modes(input, &a, t.modal.as_ref())?;
     let t1b = std::time::Instant::now();
     report::write_outputs(&a, &modes, out)?;
     let t2 = std::time::Instant::now();
@@ -807,43 +842,26 @@ fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal_args: &ModalArgs) -
 }
 
 fn report(a: ReportArgs) -> Result<()> {
-    use crate::model::study::{TestModes, evaluate};
-    let spacing = a.setup.spacing.unwrap_or(Setup::default().spacing_m);
-    let (data, session) = Dataset::open(&a.input, spacing)?;
-    let (base, part, notes, own_model, fit) = match session {
+    let t = open_test(&a.input, &a.setup, &a.modal)?;
+    let analysis = analysis::run(&t.data, &t.setup)?;
+    let modes = fit_modes(&a.input, &analysis, t.modal.as_ref())?;
+    let (part, notes, own_model) = match t.session {
         Some(s) => (
-            s.manifest.setup,
             s.manifest.part.name,
             s.manifest.part.notes,
             s.manifest.model,
-            s.manifest.fit,
         ),
-        None => (Setup::default(), String::new(), String::new(), None, None),
-    };
-    let setup = a.setup.apply(base)?;
-    let analysis = analysis::run(&data, &setup)?;
-    let settings = modal_settings(&a.modal, fit.unwrap_or_default())?;
-    let modes = match (settings, FrfSet::from_analysis(&analysis)) {
-        (Some(ms), Some(set)) => crate::modal::extract(&set, &ms)
-            .map_err(|m| anyhow!("{}: modal fit: {m}", a.input.display()))?,
-        _ => ModalResult::default(),
+        None => (String::new(), String::new(), None),
     };
     let study = match &a.model {
         Some(p) => Some(read_study(p)?),
         None => own_model,
     };
     let result = match &study {
-        Some(st) => {
-            let band = [
-                modes.indicators.freq_hz.first().copied().unwrap_or(0.0),
-                modes.indicators.freq_hz.last().copied().unwrap_or(0.0),
-            ];
-            let test = TestModes::from_modal(&modes, band);
-            Some(
-                evaluate(st, Some(&test))
-                    .map_err(|e| anyhow!("{}: shaft model: {e}", a.input.display()))?,
-            )
-        }
+        Some(st) => Some(
+            crate::model::study::evaluate(st, Some(&test_modes(&modes)))
+                .map_err(|e| anyhow!("{}: shaft model: {e}", a.input.display()))?,
+        ),
         None => None,
     };
     let written = report::document::utc_now();
@@ -1032,16 +1050,12 @@ fn fitted(input: &Path, setup: &SetupArgs) -> Result<ModalResult> {
 }
 
 fn correlate(a: CorrelateArgs) -> Result<()> {
-    use crate::model::study::{TestModes, evaluate};
+    use crate::model::study::evaluate;
     let model_path = a.model.clone().unwrap_or_else(|| a.input.clone());
     let mut study = read_study(&model_path)?;
     study.min_mac = a.min_mac;
     let m = fitted(&a.input, &a.setup)?;
-    let band = [
-        m.indicators.freq_hz.first().copied().unwrap_or(0.0),
-        m.indicators.freq_hz.last().copied().unwrap_or(0.0),
-    ];
-    let test = TestModes::from_modal(&m, band);
+    let test = test_modes(&m);
     let r = evaluate(&study, Some(&test)).map_err(|e| {
         anyhow!(
             "{} against {}: {e}",

@@ -63,6 +63,16 @@ fn fitted_hz(h: &Harness<'static, TapgridApp>) -> Vec<f64> {
         .collect()
 }
 
+/// The demo opened and saved as a new session in a temporary folder (kept while `TempDir` lives).
+fn demo_copy() -> (tempfile::TempDir, PathBuf, Harness<'static, TapgridApp>) {
+    let tmp = tempfile::tempdir().expect("temp");
+    let dir = tmp.path().join("copy");
+    let mut h = open_demo();
+    h.state_mut()
+        .push(tapgrid::app::Command::SaveAs(dir.clone()));
+    (tmp, dir, h)
+}
+
 fn open_demo() -> Harness<'static, TapgridApp> {
     let mut h = harness();
     settle(&mut h);
@@ -222,11 +232,7 @@ fn the_animation_plays_and_pauses() {
 
 #[test]
 fn save_as_makes_a_session_that_keeps_later_verdicts() {
-    let tmp = tempfile::tempdir().expect("temp");
-    let dir = tmp.path().join("copy");
-    let mut h = open_demo();
-    h.state_mut()
-        .push(tapgrid::app::Command::SaveAs(dir.clone()));
+    let (_tmp, dir, mut h) = demo_copy();
     settle(&mut h);
     let d = h.state().doc.as_ref().expect("open");
     assert_eq!(d.path, dir);
@@ -435,11 +441,7 @@ fn a_wav_set_without_model_gets_one_from_its_stations() {
 
 #[test]
 fn save_as_keeps_the_shaft_model() {
-    let tmp = tempfile::tempdir().expect("temp");
-    let dir = tmp.path().join("copy");
-    let mut h = open_demo();
-    h.state_mut()
-        .push(tapgrid::app::Command::SaveAs(dir.clone()));
+    let (_tmp, dir, mut h) = demo_copy();
     settle(&mut h);
     let bundled = tapgrid::session::Session::open(&demo()).expect("demo");
     let copy = tapgrid::session::Session::open(&dir).expect("copy");
@@ -482,11 +484,7 @@ fn the_file_menu_writes_the_report_of_what_the_window_shows() {
 
 #[test]
 fn a_pole_choice_is_saved_with_the_session_and_honoured_on_reopening() {
-    let tmp = tempfile::tempdir().expect("temp");
-    let dir = tmp.path().join("copy");
-    let mut h = open_demo();
-    h.state_mut()
-        .push(tapgrid::app::Command::SaveAs(dir.clone()));
+    let (tmp, dir, mut h) = demo_copy();
     settle(&mut h);
     let all = fitted_hz(&h);
     assert_eq!(all.len(), 5);
