@@ -11,7 +11,36 @@ use crate::acquire::wav::Decoder;
 use crate::acquire::wavset::{PositionSource, WavSet};
 use crate::session::{SavedHit, Session};
 use crate::setup::Setup;
-use crate::signal::{SpectrumPlan, StationResult, analyze_station};
+use crate::signal::hits::level_of;
+use crate::signal::{SpectrumPlan, StationResult, analyze_station, taps};
+
+/// Progress of a long analysis on stderr, for the command line (`TAPGRID_PROGRESS=1`, or any
+/// analysis of more than 8 stations when stderr is a terminal).
+struct Progress {
+    total: usize,
+    done: AtomicUsize,
+    on: bool,
+}
+
+impl Progress {
+    fn new(total: usize) -> Self {
+        use std::io::IsTerminal;
+        let on = std::env::var_os("TAPGRID_PROGRESS").is_some_and(|v| v != "0")
+            || (total > 8 && std::io::stderr().is_terminal());
+        Self {
+            total,
+            done: AtomicUsize::new(0),
+            on,
+        }
+    }
+
+    fn station_done(&self, station: u32) {
+        let k = self.done.fetch_add(1, Ordering::Relaxed) + 1;
+        if self.on {
+            eprintln!("analysing: station {station} done ({k} of {})", self.total);
+        }
+    }
+}
 
 /// One station's recording to analyse.
 #[derive(Debug, Clone, PartialEq)]
@@ -124,9 +153,57 @@ pub struct Analysis {
     pub sample_rate_hz: u32,
     /// Stations in ascending order.
     pub stations: Vec<StationAnalysis>,
+    /// What the analysis decided for the whole test and why (record length from the tapping,
+    /// stations it could not use), in words.
+    pub notes: Vec<String>,
 }
 
 impl Analysis {
+    /// The force spectrum's usable band against the analysis band, in words, once for the test
+    /// (or per station where only some stations are short of the band).
+    pub fn usable_band_finding(&self) -> Option<String> {
+        let [lo, hi] = self.setup.band(self.sample_rate_hz);
+        let short: Vec<(u32, f64, Option<f64>)> = self
+            .stations
+            .iter()
+            .filter_map(|s| {
+                let top = s.result.usable_band_hz?[1];
+                (top < hi).then_some((s.station, top, s.result.first_null_hz))
+            })
+            .collect();
+        if short.is_empty() {
+            return None;
+        }
+        let tops: Vec<f64> = short.iter().map(|s| s.1).collect();
+        let (mn, mx) = tops
+            .iter()
+            .fold((f64::INFINITY, 0.0f64), |(a, b), &t| (a.min(t), b.max(t)));
+        let mut nulls: Vec<f64> = short.iter().filter_map(|s| s.2).collect();
+        nulls.sort_by(f64::total_cmp);
+        let null = nulls
+            .get(nulls.len() / 2)
+            .map(|f| format!(", its first null near {f:.0} Hz"))
+            .unwrap_or_default();
+        let which = if short.len() == self.stations.len() {
+            "at every station".to_string()
+        } else {
+            let list: Vec<String> = short.iter().map(|s| s.0.to_string()).collect();
+            format!("at station(s) {}", list.join(", "))
+        };
+        let range = if mx - mn < 0.5 {
+            format!("{mn:.0} Hz")
+        } else {
+            format!("{mn:.0}–{mx:.0} Hz")
+        };
+        Some(format!(
+            "usable band: the force spectrum falls {:.0} dB below its largest value at {range} \
+             {which}{null}, inside the {lo:.0}–{hi:.0} Hz band. The hits are kept; lines above \
+             that count less in the fit and modes there are marked. A harder tip or a lighter \
+             hammer would widen the usable band",
+            self.setup.quality.rolloff_db
+        ))
+    }
+
     /// Hits in the form saved in a session manifest.
     pub fn saved_hits(&self) -> Vec<SavedHit> {
         self.stations
@@ -165,6 +242,13 @@ impl Analysis {
                  {:.0} Hz)",
                 0.45 * self.sample_rate_hz as f64
             ));
+        }
+        w.extend(self.notes.iter().cloned());
+        w.extend(self.usable_band_finding());
+        for s in &self.stations {
+            for n in &s.result.notes {
+                w.push(format!("station {}: {n}", s.station));
+            }
         }
         for s in &self.stations {
             let n = s.result.frf.as_ref().map_or(0, |f| f.hits_averaged);
@@ -237,7 +321,60 @@ struct Worker {
     plan: Option<SpectrumPlan>,
 }
 
+/// When no record length is set, one that fits the tapping: the default length unless the taps
+/// of this test come faster than it (then the longest that ends before the next tap, see
+/// [`taps::record_for_spacing`]). Returns the setup to use and a note when the record changed.
+fn fit_record_to_taps(data: &Dataset, setup: &Setup) -> (Setup, Option<String>) {
+    let mut out = setup.clone();
+    if setup.trigger.record_length_s.is_some() || setup.trigger.holdoff_s.is_some() {
+        return (out, None);
+    }
+    let scans = per_station(data, |dec: &mut Decoder, src| {
+        let info = dec
+            .decode(&src.path, setup.channel_a.index, setup.channel_b.index)
+            .ok()?;
+        let fs = info.sample_rate_hz;
+        let level = level_of(&dec.a, setup.trigger.level);
+        Some((
+            fs,
+            taps::find_strikes(&dec.a, level, setup.trigger.slope, fs),
+        ))
+    });
+    let Some(fs) = scans.iter().flatten().map(|s| s.0).next() else {
+        return (out, None);
+    };
+    let spacings: Vec<usize> = scans
+        .iter()
+        .flatten()
+        .filter(|s| s.0 == fs)
+        .flat_map(|(_, t)| t.windows(2).map(|w| w[1] - w[0]).collect::<Vec<_>>())
+        .collect();
+    let Some(spacing) = taps::typical_short_spacing(&spacings) else {
+        return (out, None);
+    };
+    let n0 = setup.record_samples(fs);
+    let n = taps::record_for_spacing(n0, spacing, setup.trigger.pretrigger_fraction, fs);
+    if n >= n0 {
+        return (out, None);
+    }
+    out.trigger.record_length_s = Some(n as f64 / fs as f64);
+    let note = format!(
+        "taps came {:.2} s apart (shortest tenth of the spacings), less than the default record of \
+         {:.3} s: records of {n} samples ({:.3} s, {:.3} Hz lines) were used so that each ends \
+         before the next tap; leave more time between taps for finer lines",
+        spacing as f64 / fs as f64,
+        n0 as f64 / fs as f64,
+        n as f64 / fs as f64,
+        fs as f64 / n as f64
+    );
+    (out, Some(note))
+}
+
 /// Decodes and analyses every station, using up to `available_parallelism` threads.
+///
+/// A station whose recording cannot be read is an error naming the file; a station whose
+/// recording holds nothing usable (no tap found) is reported in the notes and the others are
+/// analysed; only when no station is usable is that an error.
 pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     setup
         .validate()
@@ -245,25 +382,42 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     if data.stations.is_empty() {
         return Err(InputError::new(&data.origin, "holds no station recordings"));
     }
+    let (setup, record_note) = fit_record_to_taps(data, setup);
+    let setup = &setup;
+    let mut notes: Vec<String> = record_note.into_iter().collect();
+    let progress = Progress::new(data.stations.len());
     let results = per_station(data, |w: &mut Worker, src| {
         let info = w
             .decoder
             .decode(&src.path, setup.channel_a.index, setup.channel_b.index)?;
-        analyze_station(
+        let r = analyze_station(
             &w.decoder.a,
             &w.decoder.b,
             info.sample_rate_hz,
             setup,
             &src.overrides,
             &mut w.plan,
-        )
-        .map(|res| (info.sample_rate_hz, res))
-        .map_err(|m| InputError::new(&src.path, m))
+        );
+        progress.station_done(src.station);
+        Ok((info.sample_rate_hz, r))
     });
     let mut stations = Vec::with_capacity(results.len());
     let mut rate = None;
+    let mut first_problem: Option<InputError> = None;
     for (src, r) in data.stations.iter().zip(results) {
         let (fs, result) = r?;
+        let result = match result {
+            Ok(res) => res,
+            Err(m) => {
+                notes.push(format!(
+                    "station {} ({}): {m}; the station is left out",
+                    src.station,
+                    src.path.display()
+                ));
+                first_problem.get_or_insert_with(|| InputError::new(&src.path, m));
+                continue;
+            }
+        };
         match rate {
             None => rate = Some((fs, src.path.clone())),
             Some((r0, ref p0)) if r0 != fs => {
@@ -285,9 +439,15 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
             result,
         });
     }
+    if stations.is_empty()
+        && let Some(e) = first_problem
+    {
+        return Err(e);
+    }
     Ok(Analysis {
         setup: setup.clone(),
         sample_rate_hz: rate.map_or(0, |r| r.0),
         stations,
+        notes,
     })
 }

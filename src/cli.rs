@@ -680,6 +680,19 @@ pub struct SimulateArgs {
     /// Make a hit overload channel A: STATION:HIT (repeatable).
     #[arg(long, value_name = "STATION:HIT")]
     pub overload: Vec<String>,
+    /// Make a hit weak (4 % of full scale): STATION:HIT (repeatable).
+    #[arg(long, value_name = "STATION:HIT")]
+    pub weak: Vec<String>,
+    /// Make a hit soft (a pulse five times longer): STATION:HIT (repeatable).
+    #[arg(long, value_name = "STATION:HIT")]
+    pub soft: Vec<String>,
+    /// Hammer pulse duration (half-sine), s: 1.5/duration is the force spectrum's first null.
+    #[arg(long, value_name = "SECONDS")]
+    pub pulse: Option<f64>,
+    /// Two bending planes: each flexible mode split by SPLIT (0.01 = 1 %), measured at ANGLE
+    /// degrees from the first plane.
+    #[arg(long, value_name = "SPLIT:ANGLE")]
+    pub second_plane: Option<String>,
     /// Noise rms on both channels, V.
     #[arg(long)]
     pub noise: Option<f64>,
@@ -692,6 +705,10 @@ pub struct SimulateArgs {
     /// Random seed.
     #[arg(long)]
     pub seed: Option<u64>,
+}
+
+fn tapgrid_second_plane(split: f64, angle_deg: f64) -> crate::sim::SecondPlane {
+    crate::sim::SecondPlane { split, angle_deg }
 }
 
 fn station_hit(s: &str) -> Result<(u32, usize)> {
@@ -1453,6 +1470,28 @@ fn simulate(a: SimulateArgs) -> Result<()> {
     }
     for o in &a.overload {
         sc.overloads.push(station_hit(o)?);
+    }
+    for w in &a.weak {
+        sc.weak_hits.push(station_hit(w)?);
+    }
+    for s in &a.soft {
+        sc.soft_hits.push(station_hit(s)?);
+    }
+    if let Some(p) = a.pulse {
+        if !(p.is_finite() && p > 0.0 && p < 0.05) {
+            bail!("--pulse {p} s must be between 0 and 0.05 s");
+        }
+        sc.pulse_s = p;
+    }
+    if let Some(sp) = &a.second_plane {
+        let (s, g) = sp
+            .split_once(':')
+            .ok_or_else(|| anyhow!("expected --second-plane SPLIT:ANGLE, got {sp:?}"))?;
+        let (split, angle_deg): (f64, f64) = (s.trim().parse()?, g.trim().parse()?);
+        if !(split.is_finite() && split > 0.0 && split < 0.5 && angle_deg.is_finite()) {
+            bail!("--second-plane {sp}: SPLIT must be in (0, 0.5) and ANGLE a number of degrees");
+        }
+        sc.second_plane = Some(tapgrid_second_plane(split, angle_deg));
     }
     if let Some(n) = a.noise {
         sc.rig.noise_volts = [n, n];

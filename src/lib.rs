@@ -28,6 +28,7 @@ pub mod cautions;
 pub mod cli;
 pub mod modal;
 pub mod model;
+pub mod numeric;
 pub mod reduce;
 pub mod report;
 pub mod session;

@@ -219,6 +219,7 @@ fn frfs_of(model: &ModalModel, stations: usize, band: [f64; 2], rig: &Rig) -> Fr
         setup,
         sample_rate_hz: rig.sample_rate_hz,
         stations: st,
+        notes: vec![],
     })
     .unwrap()
 }
@@ -346,6 +347,7 @@ fn lscf_poles_of_a_three_dof_system_match_scipy_eig() {
         exp_tau_s: f64::INFINITY,
         reference: Some(0),
         df_hz: 0.5,
+        usable_hi_hz: vec![f64::INFINITY; 3],
     };
     // The global LSCF alone is exact on noise-free data; the local refinement (on by default)
     // trades a few parts per million for robustness on measured data.

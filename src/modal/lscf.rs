@@ -106,6 +106,15 @@ pub fn stabilization(
     let nf = freq_hz.len();
     let no = h.len();
     assert!(no > 0 && weight.len() == no && h.iter().all(|v| v.len() == nf));
+    let finite = h
+        .iter()
+        .flatten()
+        .all(|c| c.re.is_finite() && c.im.is_finite())
+        && weight.iter().flatten().all(|w| w.is_finite())
+        && freq_hz.iter().all(|f| f.is_finite());
+    if !finite {
+        return Err("the FRFs hold values that are not numbers (NaN or ∞)".into());
+    }
     if nf < 2 * max_order + 2 {
         return Err(format!(
             "the band holds {nf} lines, too few for model order {max_order} (need ≥ {})",
@@ -204,7 +213,9 @@ pub fn stabilization(
         for j in 1..p {
             comp[(j, j - 1)] = 1.0;
         }
-        let roots = comp.complex_eigenvalues();
+        let Some(roots) = crate::numeric::complex_eigenvalues(comp) else {
+            continue;
+        };
         // β_o = −R_o⁻¹S_oα = −L⁻ᵀ(X_o α) on the leading blocks.
         let betas: Vec<DVector<f64>> = factors
             .iter()

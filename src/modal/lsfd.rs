@@ -95,7 +95,7 @@ pub fn fit_output(
         .clone()
         .cholesky()
         .map(|c| c.solve(&atb))
-        .or_else(|| ata.svd(true, true).solve(&atb, 1e-12).ok())?;
+        .or_else(|| crate::numeric::svd_solve(ata, &atb, 1e-12))?;
     let coef: Vec<f64> = (0..cols).map(|i| x[i] * scale[i]).collect();
     let residues: Vec<Complex64> = (0..n)
         .map(|r| Complex64::new(coef[2 * r], coef[2 * r + 1]))

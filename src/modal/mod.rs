@@ -155,6 +155,9 @@ pub struct FrfSet {
     pub reference: Option<usize>,
     /// Line spacing, Hz.
     pub df_hz: f64,
+    /// Per station, the upper edge of the force spectrum's usable band, Hz (∞ = the whole band;
+    /// always ∞ in the roving-sensor layout). Lines above it count less in the fits.
+    pub usable_hi_hz: Vec<f64>,
 }
 
 impl FrfSet {
@@ -181,6 +184,7 @@ impl FrfSet {
             exp_tau_s: self.exp_tau_s,
             reference: self.reference,
             df_hz: self.df_hz,
+            usable_hi_hz: self.usable_hi_hz.clone(),
         })
     }
 
@@ -206,6 +210,7 @@ impl FrfSet {
             exp_tau_s: first.result.exp_tau_s,
             reference: None,
             df_hz: first.result.df_hz,
+            usable_hi_hz: Vec::new(),
         };
         for s in with {
             let f = s.result.frf.as_ref()?;
@@ -216,6 +221,12 @@ impl FrfSet {
             set.hits.push(f.hits_averaged);
             set.gaa.push(f.gaa.clone());
             set.gbb.push(f.gbb.clone());
+            set.usable_hi_hz.push(
+                s.result
+                    .usable_band_hz
+                    .map_or(f64::INFINITY, |b| b[1])
+                    .max(0.0),
+            );
         }
         set.reference = a
             .setup
@@ -225,21 +236,33 @@ impl FrfSet {
     }
 
     /// Per-line weights 1/σ_H with σ_H² ≈ (1 − γ²)/(2nγ²)·|H|² (Bendat & Piersol 2010), or 1.
+    /// Above a station's usable band the weight falls with the force amplitude: with noise on
+    /// the response, σ_H grows as 1/|F| (H1), and the few hits' coherence cannot show it.
     fn weights(&self, coherence: bool) -> Vec<Vec<f64>> {
         (0..self.h.len())
             .map(|o| {
                 let hmax = self.h[o].iter().fold(0.0f64, |m, c| m.max(c.norm()));
                 let n = self.hits[o].max(1) as f64;
+                let edge = self.usable_hi_hz.get(o).copied().unwrap_or(f64::INFINITY);
+                let k_edge = self.freq_hz.partition_point(|&f| f <= edge);
+                let g_edge = (k_edge < self.freq_hz.len())
+                    .then(|| self.gaa[o][k_edge.saturating_sub(1)])
+                    .filter(|g| *g > 0.0);
                 self.h[o]
                     .iter()
                     .zip(&self.coherence[o])
-                    .map(|(h, &g)| {
+                    .enumerate()
+                    .map(|(k, (h, &g))| {
                         let mag = h.norm().max(1e-6 * hmax).max(f64::MIN_POSITIVE);
-                        if coherence {
+                        let w = if coherence {
                             let g = g.clamp(1e-3, 1.0 - 1e-6);
                             (2.0 * n * g / (1.0 - g)).sqrt() / mag
                         } else {
                             1.0 / hmax.max(f64::MIN_POSITIVE)
+                        };
+                        match g_edge {
+                            Some(ge) if k >= k_edge => w * (self.gaa[o][k] / ge).sqrt().min(1.0),
+                            _ => w,
                         }
                     })
                     .collect()
@@ -346,6 +369,21 @@ pub fn extract(set: &FrfSet, s: &ModalSettings) -> Result<ModalResult, String> {
     }
     res.modes
         .sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    let mut edges: Vec<f64> = set
+        .usable_hi_hz
+        .iter()
+        .copied()
+        .filter(|e| e.is_finite())
+        .collect();
+    edges.sort_by(f64::total_cmp);
+    if let Some(&edge) = edges.get(edges.len() / 2) {
+        for m in res.modes.iter_mut().filter(|m| m.frequency_hz > edge) {
+            m.notes.push(format!(
+                "above the usable band of the force spectrum ({edge:.0} Hz, median over the \
+                 stations): fitted with less weight; confirm with a harder tip"
+            ));
+        }
+    }
     res.auto_mac = auto_mac(&res.modes);
     Ok(res)
 }

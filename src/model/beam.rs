@@ -319,7 +319,8 @@ impl FeModel {
             .solve_lower_triangular(&lk.transpose())
             .ok_or("singular mass factor")?;
         let a = (&a + a.transpose()) * 0.5;
-        let eig = a.symmetric_eigen();
+        let eig = crate::numeric::symmetric_eigen(a)
+            .ok_or("the eigenvalue iteration did not converge (non-finite or degenerate model)")?;
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
         let lt = l.transpose();

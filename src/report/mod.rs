@@ -112,6 +112,13 @@ struct StationOut {
     ac_corner_hz: Option<f64>,
     /// LSFD fit error Σ|H − H_syn|²/Σ|H|² over the band, when modes were fitted.
     fit_error: Option<f64>,
+    /// Where the force spectrum stays within the roll-off limit (hammer layout), Hz; lines above
+    /// the upper edge count less in the fit.
+    usable_band_hz: Option<[f64; 2]>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    first_null_hz: Option<f64>,
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    notes: Vec<String>,
 }
 
 #[derive(Serialize)]
@@ -315,6 +322,9 @@ pub fn result_json(a: &Analysis, m: &ModalResult) -> String {
                     .iter()
                     .position(|&st| st == s.station)
                     .and_then(|i| m.fit_error.get(i).copied()),
+                usable_band_hz: s.result.usable_band_hz,
+                first_null_hz: s.result.first_null_hz,
+                notes: s.result.notes.clone(),
             })
             .collect(),
         modes: modes_out(m),

@@ -6,6 +6,7 @@ pub mod coupling;
 pub mod frf;
 pub mod hits;
 pub mod station;
+pub mod taps;
 pub mod verdict;
 pub mod window;
 

@@ -10,6 +10,7 @@ use super::frf::{CrossSpectra, SpectrumPlan};
 use super::hits::{
     Pulse, find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact,
 };
+use super::taps::find_strikes;
 use super::verdict::Reason;
 use super::window::{exponential, exponential_tau_s, force_window};
 use crate::Complex64;
@@ -40,6 +41,11 @@ pub struct HitReport {
     pub second_impact_s: Option<f64>,
     /// Drop of the force auto-spectrum across the band, dB (hammer layout).
     pub force_drop_db: Option<f64>,
+    /// Highest frequency at which this hit's force spectrum is still within the roll-off limit of
+    /// its largest value, Hz (hammer layout); ∞ (written as null) when it never falls that far
+    /// inside the band.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub force_usable_hz: Option<f64>,
     /// Fraction of this hit's response energy that the station's other hits' FRF does not explain.
     pub residual_fraction: Option<f64>,
     /// Ringing carried over from earlier hits was modelled and removed from this record.
@@ -86,6 +92,13 @@ pub struct StationResult {
     pub trigger_level_fs: f64,
     /// AC-coupling corner undone in the FRF, Hz (hammer layout), when there was one.
     pub ac_corner_hz: Option<f64>,
+    /// Where the force spectrum stays within the roll-off limit of its largest value (hammer
+    /// layout): the band's lower edge and the highest such line, Hz. The median over the hits.
+    pub usable_band_hz: Option<[f64; 2]>,
+    /// The force spectrum's first null inside the band, Hz, when there is one.
+    pub first_null_hz: Option<f64>,
+    /// What limited this station, in words (usable band, weak hits, …); hits are kept.
+    pub notes: Vec<String>,
 }
 
 struct Candidate {
@@ -128,18 +141,43 @@ pub fn analyze_station(
     let lines = k_lo..k_hi + 1;
     let freq_hz: Vec<f64> = lines.clone().map(|k| k as f64 * df).collect();
 
+    // Samples that are not numbers (a damaged float recording) are set to zero so that nothing
+    // downstream sees them; the hits whose records held them are rejected below.
+    let bad_a = a.iter().any(|v| !v.is_finite());
+    let bad_b = b.iter().any(|v| !v.is_finite());
+    let (clean_a, clean_b);
+    let (a, b, bad): (&[f64], &[f64], Vec<usize>) = if bad_a || bad_b {
+        let bad: Vec<usize> = (0..a.len().min(b.len()))
+            .filter(|&i| !a[i].is_finite() || !b[i].is_finite())
+            .collect();
+        let zero = |x: &[f64]| -> Vec<f64> {
+            x.iter()
+                .map(|v| if v.is_finite() { *v } else { 0.0 })
+                .collect()
+        };
+        clean_a = zero(a);
+        clean_b = zero(b);
+        (&clean_a, &clean_b, bad)
+    } else {
+        (a, b, Vec::new())
+    };
     if plan.as_ref().is_none_or(|p| p.len() != n) {
         *plan = Some(SpectrumPlan::new(n));
     }
     let plan = plan.as_mut().expect("plan set above");
 
     let level = level_of(a, setup.trigger.level);
-    let holdoff = setup
-        .trigger
-        .holdoff_s
-        .map(|h| (h * fs as f64).round() as usize)
-        .unwrap_or(n - pre);
-    let triggers = find_triggers(a, level, setup.trigger.slope, holdoff);
+    // A hold-off a person set is obeyed as given; otherwise taps are found by their onsets, so
+    // neither ringing nor a next tap within one record length is mistaken for anything else.
+    let triggers = match setup.trigger.holdoff_s {
+        Some(h) => find_triggers(
+            a,
+            level,
+            setup.trigger.slope,
+            (h * fs as f64).round() as usize,
+        ),
+        None => find_strikes(a, level, setup.trigger.slope, fs),
+    };
     if triggers.is_empty() {
         return Err(format!(
             "no hit found: channel A never crossed the trigger level ({:.3} % of full scale, {:?} slope)",
@@ -202,6 +240,7 @@ pub fn analyze_station(
     let unhp = corner_hz.map(|fc| coupling::inverse_factors(&freq_hz, fc, tau));
 
     let mut hits = Vec::with_capacity(triggers.len());
+    let mut nulls: Vec<Option<f64>> = Vec::new();
     let mut cands: Vec<Option<Candidate>> = Vec::with_capacity(triggers.len());
     for (index, &trig) in triggers.iter().enumerate() {
         let mut rep = HitReport {
@@ -216,6 +255,7 @@ pub fn analyze_station(
             pulse_width_s: None,
             second_impact_s: None,
             force_drop_db: None,
+            force_usable_hz: None,
             residual_fraction: None,
             ringing_removed: false,
             force_window: None,
@@ -227,6 +267,18 @@ pub fn analyze_station(
             continue;
         };
         rep.record_start = Some(start);
+        // The next tap's pulse, in record indices, when it falls inside this record.
+        let next_in_record = spans
+            .get(index + 1)
+            .map(|nx| nx.start.saturating_sub(start))
+            .filter(|&k| k < n);
+        if next_in_record.is_some() {
+            rep.reasons.push(Reason::NextTapInRecord);
+        }
+        let first_bad = bad.partition_point(|&i| i < start);
+        if bad.get(first_bad).is_some_and(|&i| i < start + n) {
+            rep.reasons.push(Reason::Corrupt);
+        }
         let ra = &a[start..start + n];
         let rb = &b[start..start + n];
         // Overload checks see the raw samples; the spectra see the samples with any carried-over
@@ -246,9 +298,6 @@ pub fn analyze_station(
         {
             rep.reasons.push(Reason::Overload);
         }
-        if rep.peak_a_fs < q.weak_fraction {
-            rep.reasons.push(Reason::Weak);
-        }
 
         // Each channel is baseline-removed, scaled to SI units and windowed in one pass, straight
         // into the FFT's input buffer.
@@ -266,7 +315,9 @@ pub fn analyze_station(
                 };
                 let width = pulse.width();
                 rep.pulse_width_s = Some(width as f64 * dt);
-                if let Some(i2) = second_impact(ra, &pulse, sign, q.double_hit_fraction) {
+                // A rebound belongs to this tap; the next tap (already its own reason) does not.
+                let strike = &ra[..next_in_record.unwrap_or(n).max(pulse.end + 1).min(n)];
+                if let Some(i2) = second_impact(strike, &pulse, sign, q.double_hit_fraction) {
                     rep.reasons.push(Reason::DoubleHit);
                     rep.second_impact_s = Some((i2 - pulse.peak) as f64 * dt);
                 }
@@ -312,24 +363,16 @@ pub fn analyze_station(
             }
         };
         if setup.layout == Layout::Hammer && !rep.reasons.contains(&Reason::DoubleHit) {
-            let (mx, mn) = sa.iter().fold((0.0f64, f64::INFINITY), |(mx, mn), c| {
-                let p = c.norm_sqr();
-                (mx.max(p), mn.min(p))
-            });
-            let drop = if mn > 0.0 {
-                10.0 * (mx / mn).log10()
-            } else {
-                f64::INFINITY
-            };
-            rep.force_drop_db = Some(drop);
-            if drop > q.rolloff_db {
-                rep.reasons.push(Reason::TipRolloff);
-            }
+            let shape = force_shape(&sa, &freq_hz, q.rolloff_db);
+            rep.force_drop_db = Some(shape.drop_db);
+            rep.force_usable_hz = Some(shape.usable_hz);
+            nulls.push(shape.first_null_hz);
         }
         hits.push(rep);
         cands.push(Some(Candidate { a: sa, b: sb }));
     }
 
+    let notes = judge_against_siblings(&mut hits, &cands, setup, &freq_hz);
     flag_outliers(&mut hits, &cands, setup);
 
     let mut sums = CrossSpectra::new(freq_hz.len());
@@ -353,6 +396,15 @@ pub fn analyze_station(
             hits_averaged: sums.count,
         }
     });
+    let (usable_band_hz, first_null_hz) = usable_band(&hits, &nulls, [lo, hi]);
+    let mut notes = notes;
+    if !bad.is_empty() {
+        notes.push(format!(
+            "{} samples are not numbers (NaN or infinity); they were read as zero and the hits \
+             whose records hold them are rejected",
+            bad.len()
+        ));
+    }
     Ok(StationResult {
         hits,
         frf,
@@ -361,6 +413,9 @@ pub fn analyze_station(
         exp_tau_s: tau,
         trigger_level_fs: level,
         ac_corner_hz: corner_hz,
+        usable_band_hz,
+        first_null_hz,
+        notes,
     })
 }
 
@@ -466,6 +521,150 @@ fn baseline(ra: &[f64], rb: &[f64], end: usize) -> (f64, f64) {
     }
     let m = |x: &[f64]| x[..end].iter().sum::<f64>() / end as f64;
     (m(ra), m(rb))
+}
+
+/// What a hit's force spectrum says about the tip and the band.
+struct ForceShape {
+    drop_db: f64,
+    usable_hz: f64,
+    first_null_hz: Option<f64>,
+}
+
+/// The force spectrum's in-band drop, the highest line still within `rolloff_db` of its largest
+/// value, and the first null after that (a minimum 30 dB or more below the largest value with the
+/// spectrum rising again after it: a half-sine's first null lies at 1.5/Tc, field notes §1).
+fn force_shape(sa: &[Complex64], freq_hz: &[f64], rolloff_db: f64) -> ForceShape {
+    let p: Vec<f64> = sa.iter().map(|c| c.norm_sqr()).collect();
+    let (mx, mn) = p.iter().fold((0.0f64, f64::INFINITY), |(mx, mn), &v| {
+        (mx.max(v), mn.min(v))
+    });
+    let drop_db = if mn > 0.0 && mx > 0.0 {
+        10.0 * (mx / mn).log10()
+    } else {
+        f64::INFINITY
+    };
+    let limit = mx * 10f64.powf(-rolloff_db / 10.0);
+    let last = freq_hz.len().saturating_sub(1);
+    let edge = p.iter().position(|&v| v < limit).unwrap_or(last + 1);
+    let usable_hz = if edge > last {
+        f64::INFINITY
+    } else {
+        freq_hz[edge.saturating_sub(1)]
+    };
+    let mut first_null_hz = None;
+    if edge <= last {
+        // Follow the fall to its bottom; it is a null when the spectrum climbs back after it.
+        let mut k = edge;
+        while k < last && p[k + 1] <= p[k] {
+            k += 1;
+        }
+        let deep = p[k] < mx * 1e-3;
+        let rises = p[k..].iter().any(|&v| v > 10.0 * p[k]);
+        if deep && rises {
+            first_null_hz = Some(freq_hz[k]);
+        }
+    }
+    ForceShape {
+        drop_db,
+        usable_hz,
+        first_null_hz,
+    }
+}
+
+fn median(mut v: Vec<f64>) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    let m = v.len() / 2;
+    Some(*v.select_nth_unstable_by(m, f64::total_cmp).1)
+}
+
+/// A soft strike or a weak one is a fault of that hit only when its siblings did better; when every
+/// hit of the station shares it, it is a property of the tip, the gain or the band, reported once
+/// for the station while the hits are kept. Returns the station's notes.
+fn judge_against_siblings(
+    hits: &mut [HitReport],
+    cands: &[Option<Candidate>],
+    setup: &Setup,
+    freq_hz: &[f64],
+) -> Vec<String> {
+    let q = &setup.quality;
+    let mut notes = Vec::new();
+    let usable: Vec<usize> = (0..hits.len())
+        .filter(|&i| {
+            cands[i].is_some()
+                && !hits[i]
+                    .reasons
+                    .iter()
+                    .any(|r| matches!(r, Reason::Overload | Reason::DoubleHit))
+        })
+        .collect();
+    let others = |i: usize, f: &dyn Fn(&HitReport) -> Option<f64>| -> Option<f64> {
+        let v: Vec<f64> = usable
+            .iter()
+            .filter(|&&j| j != i)
+            .filter_map(|&j| f(&hits[j]))
+            .collect();
+        (v.len() >= 2).then_some(v).and_then(median)
+    };
+    let band_top = freq_hz.last().copied().unwrap_or(0.0);
+    let mut soft = Vec::new();
+    let mut weak = Vec::new();
+    for &i in &usable {
+        if let (Some(u), Some(m)) = (hits[i].force_usable_hz, others(i, &|h| h.force_usable_hz))
+            && u < band_top
+            && u < 0.7 * m
+        {
+            soft.push(i);
+        }
+        let pk = hits[i].peak_a_fs;
+        if pk < q.weak_fraction && others(i, &|h| Some(h.peak_a_fs)).is_some_and(|m| pk < 0.5 * m) {
+            weak.push(i);
+        }
+    }
+    for i in soft {
+        hits[i].reasons.push(Reason::TipRolloff);
+    }
+    for i in weak {
+        hits[i].reasons.push(Reason::Weak);
+    }
+    let kept: Vec<&HitReport> = usable
+        .iter()
+        .map(|&i| &hits[i])
+        .filter(|h| h.reasons.is_empty())
+        .collect();
+    if !kept.is_empty() && kept.iter().all(|h| h.peak_a_fs < q.weak_fraction) {
+        let top = kept.iter().map(|h| h.peak_a_fs).fold(0.0f64, f64::max);
+        notes.push(format!(
+            "every hit is weak (largest channel-A peak {:.1} % of full scale): the hits are kept, \
+             but raise the input gain or tap harder next time",
+            top * 100.0
+        ));
+    }
+    notes
+}
+
+/// The station's usable band: the median over its kept hits of each hit's usable upper edge.
+fn usable_band(
+    hits: &[HitReport],
+    nulls: &[Option<f64>],
+    [lo, hi]: [f64; 2],
+) -> (Option<[f64; 2]>, Option<f64>) {
+    let edges: Vec<f64> = hits
+        .iter()
+        .filter(|h| h.accepted)
+        .filter_map(|h| h.force_usable_hz)
+        .collect();
+    let edges = if edges.is_empty() {
+        hits.iter().filter_map(|h| h.force_usable_hz).collect()
+    } else {
+        edges
+    };
+    let Some(top) = median(edges) else {
+        return (None, None);
+    };
+    let null = median(nulls.iter().flatten().copied().collect());
+    (Some([lo, top.min(hi)]), null)
 }
 
 /// Leave-one-out comparison of each candidate hit with the station's other hits: the fraction of

@@ -18,6 +18,10 @@ pub enum Reason {
     Outlier,
     /// The hit is too close to the start or end of the recording for a whole record.
     Truncated,
+    /// The next tap came before this hit's record ended.
+    NextTapInRecord,
+    /// The record holds samples that are not numbers (NaN or ∞ in a float recording).
+    Corrupt,
 }
 
 impl Reason {
@@ -30,6 +34,8 @@ impl Reason {
             Reason::TipRolloff => "tip_rolloff",
             Reason::Outlier => "outlier",
             Reason::Truncated => "truncated",
+            Reason::NextTapInRecord => "next_tap_in_record",
+            Reason::Corrupt => "corrupt_samples",
         }
     }
 
@@ -43,16 +49,22 @@ impl Reason {
                 "A channel reached full scale (or was clipped flat). Tap softer or lower the input gain."
             }
             Reason::Weak => {
-                "The hit is weak (peak below 10 % of full scale). Tap harder or raise the gain."
+                "The hit is weak (peak below 10 % of full scale and well below this station's other hits). Tap harder or raise the gain."
             }
             Reason::TipRolloff => {
-                "The force spectrum drops too far inside the band: use a harder tip or narrow the band."
+                "This strike was softer than the station's others: its force spectrum rolls off far below theirs. Tap again, crisply."
             }
             Reason::Outlier => {
                 "This hit's FRF disagrees with the station's other hits: check the hit location and direction."
             }
             Reason::Truncated => {
                 "The hit is too close to the start or end of the recording for a whole record."
+            }
+            Reason::Corrupt => {
+                "The record holds samples that are not numbers (NaN or infinity): the file is damaged there."
+            }
+            Reason::NextTapInRecord => {
+                "The next tap came before this hit's record ended. Wait for the ringing to die down between taps, or shorten the record."
             }
         }
     }

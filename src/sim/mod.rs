@@ -319,8 +319,25 @@ pub struct Scenario {
     pub double_hits: Vec<(u32, usize)>,
     /// Hits to overload channel A: (station, hit index).
     pub overloads: Vec<(u32, usize)>,
+    /// Hits struck weakly (4 % of channel A's full scale): (station, hit index).
+    pub weak_hits: Vec<(u32, usize)>,
+    /// Hits struck softly (a pulse five times longer, as with a glancing blow): (station, hit index).
+    pub soft_hits: Vec<(u32, usize)>,
+    /// A shaft that is not quite round: each flexible mode splits into two bending planes.
+    pub second_plane: Option<SecondPlane>,
     /// Seed.
     pub seed: u64,
+}
+
+/// Two bending planes. The hammer and the accelerometer act along one direction at
+/// `angle_deg` from the first principal plane, so the first plane's modes appear with
+/// cos² of the angle and the second's (at frequencies raised by `split`) with sin².
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct SecondPlane {
+    /// Relative frequency split of the second plane's modes (0.01 = 1 % higher).
+    pub split: f64,
+    /// Angle of the measurement direction from the first principal plane, degrees.
+    pub angle_deg: f64,
 }
 
 impl Default for Scenario {
@@ -365,6 +382,9 @@ impl Scenario {
             jitter: 0.1,
             double_hits: vec![],
             overloads: vec![],
+            weak_hits: vec![],
+            soft_hits: vec![],
+            second_plane: None,
             seed: 1,
         }
     }
@@ -389,15 +409,34 @@ impl Scenario {
                 break;
             }
             let suspension = i < 2 && m.frequency_hz < 50.0;
-            out.push(TruthMode {
-                frequency_hz: m.frequency_hz,
-                damping_ratio: if suspension {
-                    self.suspension_damping_ratio
-                } else {
-                    self.damping_ratio
-                },
-                shape: nodes.iter().map(|&n| m.displacement[n]).collect(),
-            });
+            let shape: Vec<f64> = nodes.iter().map(|&n| m.displacement[n]).collect();
+            let damping_ratio = if suspension {
+                self.suspension_damping_ratio
+            } else {
+                self.damping_ratio
+            };
+            match self.second_plane {
+                Some(sp) if !suspension => {
+                    let (s, c) = sp.angle_deg.to_radians().sin_cos();
+                    out.push(TruthMode {
+                        frequency_hz: m.frequency_hz,
+                        damping_ratio,
+                        shape: shape.iter().map(|v| v * c).collect(),
+                    });
+                    if m.frequency_hz * (1.0 + sp.split) <= fmax {
+                        out.push(TruthMode {
+                            frequency_hz: m.frequency_hz * (1.0 + sp.split),
+                            damping_ratio,
+                            shape: shape.iter().map(|v| v * s).collect(),
+                        });
+                    }
+                }
+                _ => out.push(TruthMode {
+                    frequency_hz: m.frequency_hz,
+                    damping_ratio,
+                    shape,
+                }),
+            }
         }
         Ok(ModalModel { modes: out })
     }
@@ -446,16 +485,22 @@ impl Scenario {
                 let jit = |r: &mut Rng| 1.0 + self.jitter * (2.0 * r.uniform() - 1.0);
                 let double = self.double_hits.contains(&(st, h));
                 let overload = self.overloads.contains(&(st, h));
+                let weak = self.weak_hits.contains(&(st, h));
+                let soft = self.soft_hits.contains(&(st, h));
                 let imp = Impact {
                     time_s: self.lead_s
                         + h as f64 * self.hit_interval_s
                         + 0.05 * self.jitter * rng.uniform(),
                     peak_n: if overload {
                         1.6 * full_scale_n
+                    } else if weak {
+                        0.04 * full_scale_n
                     } else {
                         self.force_n * jit(&mut rng)
                     },
-                    duration_s: self.pulse_s * (1.0 + 0.5 * (jit(&mut rng) - 1.0)),
+                    duration_s: self.pulse_s
+                        * (1.0 + 0.5 * (jit(&mut rng) - 1.0))
+                        * if soft { 5.0 } else { 1.0 },
                     second: double.then_some((2.0e-3, 0.3)),
                 };
                 hits.push(TruthHit {
@@ -464,6 +509,8 @@ impl Scenario {
                     impact: imp,
                     double_hit: double,
                     overload,
+                    weak,
+                    soft,
                 });
                 impacts.push(imp);
             }
@@ -537,6 +584,12 @@ pub struct TruthHit {
     pub double_hit: bool,
     /// Made to overload.
     pub overload: bool,
+    /// Struck weakly.
+    #[serde(default)]
+    pub weak: bool,
+    /// Struck softly (long pulse).
+    #[serde(default)]
+    pub soft: bool,
 }
 
 /// A truth mode as written to `truth.json`.
