@@ -7,7 +7,7 @@ use std::sync::Mutex;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 use crate::acquire::InputError;
-use crate::acquire::wav::Decoder;
+use crate::acquire::wav::{Decoder, NonFinite};
 use crate::acquire::wavset::{PositionSource, WavSet};
 use crate::session::{SavedHit, Session};
 use crate::setup::Setup;
@@ -309,8 +309,13 @@ fn per_station<S: Default, T: Send>(
 /// decoded. The benchmark's baseline: the chain cannot be faster than reading its input.
 pub fn decode_all(data: &Dataset, setup: &Setup) -> Result<usize, InputError> {
     let frames = per_station(data, |dec: &mut Decoder, src| {
-        dec.decode(&src.path, setup.channel_a.index, setup.channel_b.index)
-            .map(|info| info.frames)
+        dec.decode_with(
+            &src.path,
+            setup.channel_a.index,
+            setup.channel_b.index,
+            NonFinite::Keep,
+        )
+        .map(|info| info.frames)
     });
     frames.into_iter().sum()
 }
@@ -321,53 +326,83 @@ struct Worker {
     plan: Option<SpectrumPlan>,
 }
 
-/// When no record length is set, one that fits the tapping: the default length unless the taps
-/// of this test come faster than it (then the longest that ends before the next tap, see
-/// [`taps::record_for_spacing`]). Returns the setup to use and a note when the record changed.
-fn fit_record_to_taps(data: &Dataset, setup: &Setup) -> (Setup, Option<String>) {
-    let mut out = setup.clone();
-    if setup.trigger.record_length_s.is_some() || setup.trigger.holdoff_s.is_some() {
-        return (out, None);
-    }
+/// What a quick look at every recording says about the test as a whole.
+struct Survey {
+    sample_rate_hz: u32,
+    /// Trigger samples of each station's taps.
+    strikes: Vec<Vec<usize>>,
+}
+
+fn survey(data: &Dataset, setup: &Setup) -> Option<Survey> {
     let scans = per_station(data, |dec: &mut Decoder, src| {
         let info = dec
-            .decode(&src.path, setup.channel_a.index, setup.channel_b.index)
+            .decode_with(
+                &src.path,
+                setup.channel_a.index,
+                setup.channel_b.index,
+                NonFinite::Keep,
+            )
             .ok()?;
         let fs = info.sample_rate_hz;
         let level = level_of(&dec.a, setup.trigger.level);
-        Some((
-            fs,
-            taps::find_strikes(&dec.a, level, setup.trigger.slope, fs),
-        ))
+        let strikes = taps::find_strikes(&dec.a, level, setup.trigger.slope, fs);
+        Some((fs, strikes))
     });
-    let Some(fs) = scans.iter().flatten().map(|s| s.0).next() else {
-        return (out, None);
-    };
-    let spacings: Vec<usize> = scans
-        .iter()
-        .flatten()
-        .filter(|s| s.0 == fs)
-        .flat_map(|(_, t)| t.windows(2).map(|w| w[1] - w[0]).collect::<Vec<_>>())
+    let fs = scans.iter().flatten().map(|s| s.0).next()?;
+    let strikes = scans
+        .into_iter()
+        .map(|s| match s {
+            Some((f, t)) if f == fs => t,
+            _ => Vec::new(),
+        })
         .collect();
-    let Some(spacing) = taps::typical_short_spacing(&spacings) else {
-        return (out, None);
-    };
-    let n0 = setup.record_samples(fs);
-    let n = taps::record_for_spacing(n0, spacing, setup.trigger.pretrigger_fraction, fs);
-    if n >= n0 {
-        return (out, None);
+    Some(Survey {
+        sample_rate_hz: fs,
+        strikes,
+    })
+}
+
+/// The record and window that fit this test, where the setup leaves them open.
+///
+/// Record: the default length unless the taps come faster than it (then the longest that ends
+/// before the next tap, see [`taps::record_for_spacing`]). Returns the setup to use and notes on what was chosen.
+fn fit_setup_to_test(data: &Dataset, setup: &Setup) -> (Setup, Vec<String>) {
+    let mut out = setup.clone();
+    let mut notes = Vec::new();
+    let choose_record =
+        setup.trigger.record_length_s.is_none() && setup.trigger.holdoff_s.is_none();
+    if !choose_record {
+        return (out, notes);
     }
-    out.trigger.record_length_s = Some(n as f64 / fs as f64);
-    let note = format!(
-        "taps came {:.2} s apart (shortest tenth of the spacings), less than the default record of \
-         {:.3} s: records of {n} samples ({:.3} s, {:.3} Hz lines) were used so that each ends \
-         before the next tap; leave more time between taps for finer lines",
-        spacing as f64 / fs as f64,
-        n0 as f64 / fs as f64,
-        n as f64 / fs as f64,
-        fs as f64 / n as f64
-    );
-    (out, Some(note))
+    let Some(sv) = survey(data, setup) else {
+        return (out, notes);
+    };
+    let fs = sv.sample_rate_hz;
+    if choose_record {
+        let spacings: Vec<usize> = sv
+            .strikes
+            .iter()
+            .flat_map(|t| t.windows(2).map(|w| w[1] - w[0]).collect::<Vec<_>>())
+            .collect();
+        if let Some(spacing) = taps::typical_short_spacing(&spacings) {
+            let n0 = setup.record_samples(fs);
+            let n = taps::record_for_spacing(n0, spacing, setup.trigger.pretrigger_fraction, fs);
+            if n < n0 {
+                out.trigger.record_length_s = Some(n as f64 / fs as f64);
+                notes.push(format!(
+                    "taps came {:.2} s apart (the shortest ordinary spacing), less than the default \
+                     record of {:.3} s: records of {n} samples ({:.3} s, {:.3} Hz lines) were used \
+                     so that each ends before the next tap; leave more time between taps for finer \
+                     lines",
+                    spacing as f64 / fs as f64,
+                    n0 as f64 / fs as f64,
+                    n as f64 / fs as f64,
+                    fs as f64 / n as f64
+                ));
+            }
+        }
+    }
+    (out, notes)
 }
 
 /// Decodes and analyses every station, using up to `available_parallelism` threads.
@@ -382,14 +417,16 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     if data.stations.is_empty() {
         return Err(InputError::new(&data.origin, "holds no station recordings"));
     }
-    let (setup, record_note) = fit_record_to_taps(data, setup);
+    let (setup, mut notes) = fit_setup_to_test(data, setup);
     let setup = &setup;
-    let mut notes: Vec<String> = record_note.into_iter().collect();
     let progress = Progress::new(data.stations.len());
     let results = per_station(data, |w: &mut Worker, src| {
-        let info = w
-            .decoder
-            .decode(&src.path, setup.channel_a.index, setup.channel_b.index)?;
+        let info = w.decoder.decode_with(
+            &src.path,
+            setup.channel_a.index,
+            setup.channel_b.index,
+            NonFinite::Keep,
+        )?;
         let r = analyze_station(
             &w.decoder.a,
             &w.decoder.b,

@@ -165,7 +165,7 @@ fn data_chunk(bytes: &[u8]) -> Option<(usize, usize)> {
 /// file's bytes, which is several times faster than a per-sample iterator on long recordings.
 pub fn read_two_channels(path: &Path, a: usize, b: usize) -> Result<TwoChannels, InputError> {
     let mut d = Decoder::default();
-    let info = d.decode(path, a, b)?;
+    let info = d.decode_with(path, a, b, NonFinite::Refuse)?;
     Ok(TwoChannels {
         info,
         a: d.a,
@@ -184,15 +184,44 @@ pub struct Decoder {
     pub b: Vec<f64>,
 }
 
+/// What to do with NaN or ±∞ samples in a float recording.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum NonFinite {
+    /// An error naming the file, channel and frame.
+    Refuse,
+    /// Passed on as they are: the signal chain rejects the hits whose records hold them.
+    Keep,
+}
+
 impl Decoder {
-    /// Decodes channels `a` and `b` of `path` into `self.a` and `self.b`.
+    /// Decodes channels `a` and `b` of `path` into `self.a` and `self.b`; a float recording with
+    /// a NaN or ±∞ sample is an error.
     pub fn decode(&mut self, path: &Path, a: usize, b: usize) -> Result<WavInfo, InputError> {
+        self.decode_with(path, a, b, NonFinite::Refuse)
+    }
+
+    /// [`Decoder::decode`] with a choice of what non-finite samples do.
+    pub fn decode_with(
+        &mut self,
+        path: &Path,
+        a: usize,
+        b: usize,
+        non_finite: NonFinite,
+    ) -> Result<WavInfo, InputError> {
         use std::io::Read;
         self.bytes.clear();
         std::fs::File::open(path)
             .and_then(|mut f| f.read_to_end(&mut self.bytes))
             .map_err(|e| InputError::new(path, format!("cannot read: {e}")))?;
-        decode_bytes(path, &self.bytes, a, b, &mut self.a, &mut self.b)
+        decode_bytes(
+            path,
+            &self.bytes,
+            a,
+            b,
+            &mut self.a,
+            &mut self.b,
+            non_finite,
+        )
     }
 }
 
@@ -203,6 +232,7 @@ fn decode_bytes(
     b: usize,
     ca: &mut Vec<f64>,
     cb: &mut Vec<f64>,
+    non_finite: NonFinite,
 ) -> Result<WavInfo, InputError> {
     {
         let r = hound::WavReader::new(std::io::Cursor::new(bytes))
@@ -266,7 +296,7 @@ fn decode_bytes(
                 f32::from_le_bytes([x[0], x[1], x[2], x[3]]) as f64
             }),
         }
-        if info.encoding == SampleEncoding::Float32 {
+        if info.encoding == SampleEncoding::Float32 && non_finite == NonFinite::Refuse {
             for (name, ch) in [("A", &*ca), ("B", &*cb)] {
                 if let Some(i) = ch.iter().position(|v| !v.is_finite()) {
                     return Err(InputError::new(

@@ -178,6 +178,12 @@ pub fn analyze_station(
         ),
         None => find_strikes(a, level, setup.trigger.slope, fs),
     };
+    if triggers.is_empty() && !bad.is_empty() {
+        return Err(format!(
+            "no hit found, and {} samples are non-finite (NaN or infinity): the recording is damaged",
+            bad.len()
+        ));
+    }
     if triggers.is_empty() {
         return Err(format!(
             "no hit found: channel A never crossed the trigger level ({:.3} % of full scale, {:?} slope)",
@@ -613,7 +619,7 @@ fn judge_against_siblings(
     for &i in &usable {
         if let (Some(u), Some(m)) = (hits[i].force_usable_hz, others(i, &|h| h.force_usable_hz))
             && u < band_top
-            && u < 0.7 * m
+            && u < 0.7 * m.min(band_top)
         {
             soft.push(i);
         }
