@@ -1090,7 +1090,11 @@ impl TapgridApp {
             let job = Job::Traces {
                 station: st,
                 path: sa.path.clone(),
-                setup: d.setup.clone(),
+                // The analysis's setup: it holds the record length chosen for the tapping.
+                setup: d
+                    .analysis
+                    .as_ref()
+                    .map_or_else(|| d.setup.clone(), |a| a.setup.clone()),
                 hits: sa.result.hits.clone(),
             };
             self.worker.send(job);
