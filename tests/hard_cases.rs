@@ -127,17 +127,7 @@ fn cases() -> Vec<Case> {
         split: 0.012,
         angle_deg: 35.0,
     });
-    // Known gap (DEVELOPERS.md): the lowest pair, widened by the exponential window to Δf/B ≈ 1,
-    // comes out as one mode with the damping of both; the other three pairs meet the targets.
-    v.push(Case {
-        name: "two bending planes",
-        scenario: sc,
-        band: [100.0, 2500.0],
-        damping_tol: 1.2,
-        df_tol: 5e-4,
-        max_missed: 1,
-        mac_min: None,
-    });
+    v.push(Case::strict("two bending planes", sc, [100.0, 2500.0]));
 
     // ζ = 0.08 % with unhurried tapping: the record is the default, the ringing long.
     let mut sc = base(26);
@@ -182,17 +172,11 @@ fn cases() -> Vec<Case> {
     sc.pulse_s = 3e-4;
     sc.reference_station = 3;
     sc.drive_station = 16;
-    // Known gap: the two lowest flexible modes of this part (64 and 156 Hz) are not reported by
-    // the automatic choice, and the worst MAC of the others is 0.991; not yet understood.
-    v.push(Case {
-        name: "slender shaft with a disc",
-        scenario: sc,
-        band: [40.0, 3000.0],
-        damping_tol: 0.05,
-        df_tol: 2e-4,
-        max_missed: 2,
-        mac_min: Some(0.99),
-    });
+    v.push(Case::strict(
+        "slender shaft with a disc",
+        sc,
+        [40.0, 3000.0],
+    ));
 
     // A short thick-walled tube, 8 stations, 96 kHz, a hard 0.06 ms tip, high modes.
     let mut sc = base(30);

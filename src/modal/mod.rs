@@ -13,7 +13,7 @@ use crate::Complex64;
 use crate::analysis::Analysis;
 use crate::setup::Layout;
 use crate::signal::window::correct_damping;
-use lscf::{PoleStatus, StabilityCriteria, Stabilization};
+use lscf::{Pole, PoleStatus, StabilityCriteria, Stabilization};
 use shape::{mac, mean_phase_deviation_deg, mpc, normalise};
 
 const TAU_F: f64 = 2.0 * std::f64::consts::PI;
@@ -644,7 +644,7 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
         return Ok(());
     }
     let t0 = std::time::Instant::now();
-    let stab = lscf::stabilization(&set.freq_hz, &set.h, &w, fit_order, s.criteria)?;
+    let mut stab = lscf::stabilization(&set.freq_hz, &set.h, &w, fit_order, s.criteria)?;
     res.stabilization_seconds = t0.elapsed().as_secs_f64();
     let poles = &stab.poles;
     // Fully stable poles, clustered by frequency (gaps over 0.2 %), split where one order would
@@ -711,8 +711,7 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
     let mut sorted_gaa = mean_gaa.clone();
     sorted_gaa.sort_by(f64::total_cmp);
     let gaa_median = sorted_gaa[sorted_gaa.len() / 2];
-    let physical = |p: usize| {
-        let pole = &poles[p];
+    let physical_pole = |pole: &Pole| {
         let (fc, zc) = correct_damping(pole.frequency_hz, pole.damping_ratio, set.exp_tau_s);
         let k = set
             .freq_hz
@@ -730,6 +729,7 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
             && mean_gaa[k] > 0.01 * gaa_median
             && pole.mpc > 0.5
     };
+    let physical = |p: usize| physical_pole(&poles[p]);
     let mut cands: Vec<Cand> = match &s.selection {
         // A physical pole stays to the highest orders; a pole that stood for two close modes at
         // low orders vanishes once the model resolves them.
@@ -796,7 +796,60 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
             .total_cmp(&poles[b.pole].frequency_hz)
     });
     cands.dedup_by_key(|c| c.pole);
-    let chosen: Vec<(usize, usize)> = cands.iter().map(|c| (c.pole, c.size)).collect();
+    let mut chosen: Vec<(usize, usize)> = cands.iter().map(|c| (c.pole, c.size)).collect();
+    if s.selection == Selection::Auto {
+        // A pole the global fit gave to two close modes (a split pair from two bending planes,
+        // widened by the exponential window) shows as two columns over a narrow band.
+        let mut splits: Vec<(usize, Vec<(Pole, usize)>)> = Vec::new();
+        for (ci, &(pi, _)) in chosen.iter().enumerate() {
+            let f = poles[pi].frequency_hz;
+            let near: Vec<(Pole, usize)> = local_columns(set, &w, f, s, &physical_pole)
+                .into_iter()
+                .filter(|c| (c.0.frequency_hz / f - 1.0).abs() < 0.015)
+                .filter(|c| {
+                    !chosen.iter().enumerate().any(|(cj, &(pj, _))| {
+                        cj != ci && (poles[pj].frequency_hz / c.0.frequency_hz - 1.0).abs() < 0.003
+                    })
+                })
+                .collect();
+            if near.len() >= 2 {
+                splits.push((ci, near));
+            }
+        }
+        let found = local_poles(set, &res.indicators, &stab, &chosen, s, &physical_pole);
+        for (ci, near) in splits.into_iter().rev() {
+            let f = stab.poles[chosen[ci].0].frequency_hz;
+            chosen.remove(ci);
+            let list: Vec<String> = near
+                .iter()
+                .map(|c| format!("{:.2}", c.0.frequency_hz))
+                .collect();
+            res.warnings.push(format!(
+                "the pole at {f:.1} Hz of the fit over the whole band stood for {} close modes, \
+                 resolved over a narrow band around it (measured {} Hz)",
+                near.len(),
+                list.join(", ")
+            ));
+            for (pole, size) in near {
+                stab.poles.push(pole);
+                chosen.push((stab.poles.len() - 1, size));
+            }
+        }
+        for (pole, size) in found {
+            res.warnings.push(format!(
+                "a resonance at {:.1} Hz that the fit over the whole band did not resolve was \
+                 fitted over a narrow band around it",
+                pole.frequency_hz
+            ));
+            stab.poles.push(pole);
+            chosen.push((stab.poles.len() - 1, size));
+        }
+        chosen.sort_by(|a, b| {
+            stab.poles[a.0]
+                .frequency_hz
+                .total_cmp(&stab.poles[b.0].frequency_hz)
+        });
+    }
     if chosen.is_empty() {
         res.warnings
             .push("no stable physical pole was found in the band".into());
@@ -841,6 +894,145 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
     Ok(())
 }
 
+/// The pole columns of a stabilization diagram over a narrow band around `f` (±15 % or ±40
+/// lines): poles present at a steady frequency (within 0.3 %) through at least 60 % of the upper
+/// half of the orders, with their damping spread within ±25 % and passing `physical`. Noise and
+/// a nearby hum line make the damping jitter between orders at the low end of a wide band, so
+/// frequency stability is what is asked; the local refinement then settles the damping against
+/// the data. Each column is returned as its median pole with the number of orders it stood for,
+/// by frequency.
+fn local_columns(
+    set: &FrfSet,
+    w_all: &[Vec<f64>],
+    f: f64,
+    s: &ModalSettings,
+    physical: &dyn Fn(&Pole) -> bool,
+) -> Vec<(Pole, usize)> {
+    let half = (0.15 * f).max(40.0 * set.df_hz);
+    let k0 = set.freq_hz.partition_point(|&x| x < f - half);
+    let k1 = set.freq_hz.partition_point(|&x| x <= f + half);
+    if k1 < k0 + 24 {
+        return Vec::new();
+    }
+    let h: Vec<Vec<Complex64>> = set.h.iter().map(|v| v[k0..k1].to_vec()).collect();
+    let w: Vec<Vec<f64>> = w_all.iter().map(|v| v[k0..k1].to_vec()).collect();
+    let order = 32.min((k1 - k0 - 2) / 2);
+    let Ok(local) = lscf::stabilization(&set.freq_hz[k0..k1], &h, &w, order, s.criteria) else {
+        return Vec::new();
+    };
+    let mut upper: Vec<&Pole> = local
+        .poles
+        .iter()
+        .filter(|p| {
+            p.status >= PoleStatus::Frequency
+                && 2 * p.order >= local.max_order
+                && (p.frequency_hz / f - 1.0).abs() < 0.02
+        })
+        .collect();
+    upper.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    let orders_upper = local.max_order - local.max_order.div_ceil(2) + 1;
+    let mut out = Vec::new();
+    let mut start = 0;
+    while start < upper.len() {
+        let mut end = start + 1;
+        while end < upper.len()
+            && upper[end].frequency_hz / upper[end - 1].frequency_hz - 1.0 < 0.001
+        {
+            end += 1;
+        }
+        let mut column: Vec<&Pole> = upper[start..end].to_vec();
+        start = end;
+        // A broad pole that strays into the column (noise) is dropped by its damping; then one
+        // pole per order, the one nearest the column's median damping.
+        column.sort_by(|a, b| a.damping_ratio.total_cmp(&b.damping_ratio));
+        let med = column[column.len() / 2].damping_ratio;
+        column.retain(|p| p.damping_ratio > 0.5 * med && p.damping_ratio < 2.0 * med);
+        column.sort_by(|a, b| {
+            a.order.cmp(&b.order).then(
+                (a.damping_ratio - med)
+                    .abs()
+                    .total_cmp(&(b.damping_ratio - med).abs()),
+            )
+        });
+        column.dedup_by_key(|p| p.order);
+        if column.is_empty() || 5 * column.len() < 3 * orders_upper {
+            continue;
+        }
+        column.sort_by(|a, b| a.damping_ratio.total_cmp(&b.damping_ratio));
+        let mid = column[column.len() / 2].damping_ratio;
+        let (q1, q3) = (
+            column[column.len() / 4].damping_ratio,
+            column[3 * column.len() / 4].damping_ratio,
+        );
+        if !(q1 > 0.75 * mid && q3 < 1.25 * mid) {
+            continue;
+        }
+        let pick = column[column.len() / 2].clone();
+        if physical(&pick) {
+            out.push((pick, column.len()));
+        }
+    }
+    out.sort_by(|a, b| a.0.frequency_hz.total_cmp(&b.0.frequency_hz));
+    out
+}
+
+/// Poles for prominent resonances of the Σ|H| indicator that no chosen pole explains, each from
+/// a stabilization diagram over a narrow band around its peak. A band spanning decades leaves the
+/// global z-domain fit ill-conditioned at its low end (poles crowd near z = 1), where a narrow
+/// band resolves them; the same stability and physical checks apply, so a noise peak does not
+/// pass. Returns each pole with the number of orders it was fully stable over.
+fn local_poles(
+    set: &FrfSet,
+    ind: &Indicators,
+    stab: &Stabilization,
+    chosen: &[(usize, usize)],
+    s: &ModalSettings,
+    physical: &dyn Fn(&Pole) -> bool,
+) -> Vec<(Pole, usize)> {
+    let mut out: Vec<(Pole, usize)> = Vec::new();
+    if set.layout != Layout::Hammer || set.freq_hz.len() < 64 {
+        return out;
+    }
+    let y = &ind.sum_abs;
+    let w_all = set.weights(s.coherence_weighting);
+    for k in prominent_peaks(y) {
+        let f = set.freq_hz[k];
+        let near = |g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
+        if chosen.iter().any(|c| near(stab.poles[c.0].frequency_hz))
+            || out.iter().any(|p| near(p.0.frequency_hz))
+        {
+            continue;
+        }
+        // A resonance stands at least 6 dB above the lowest point within ±10 % on each side.
+        let span = ((0.1 * f / set.df_hz) as usize).max(4);
+        let left = y[k.saturating_sub(span)..k]
+            .iter()
+            .fold(f64::INFINITY, |m, &v| m.min(v));
+        let right = y[k + 1..(k + span + 1).min(y.len())]
+            .iter()
+            .fold(f64::INFINITY, |m, &v| m.min(v));
+        if !(y[k] >= 2.0 * left.max(right) || (left.is_infinite() || right.is_infinite())) {
+            continue;
+        }
+        if left.is_infinite() || right.is_infinite() {
+            continue;
+        }
+        let cols = local_columns(set, &w_all, f, s, physical);
+        if let Some(best) = cols
+            .into_iter()
+            .filter(|c| (c.0.frequency_hz / f - 1.0).abs() < 0.01)
+            .min_by(|a, b| {
+                (a.0.frequency_hz - f)
+                    .abs()
+                    .total_cmp(&(b.0.frequency_hz - f).abs())
+            })
+        {
+            out.push(best);
+        }
+    }
+    out
+}
+
 /// LSFD residues, shapes and synthesized FRFs for chosen poles (index into `stab.poles`, and the
 /// number of orders its cluster was stable over).
 fn fit_chosen(
@@ -883,7 +1075,8 @@ fn fit_chosen(
     }
     for (r, &(pi, size)) in chosen.iter().enumerate() {
         let pole = &poles[pi];
-        let raw: Vec<Complex64> = fits.iter().map(|f| f.residues[r]).collect();
+        let raw: Vec<Complex64> = local_residues(set, w, &lambdas, r)
+            .unwrap_or_else(|| fits.iter().map(|f| f.residues[r]).collect());
         let (f_meas, z_meas) = (
             lambdas[r].norm() / TAU_F,
             -lambdas[r].re / lambdas[r].norm(),
@@ -926,6 +1119,49 @@ fn fit_chosen(
     res.fit_error = fits.iter().map(|f| f.fit_error).collect();
     res.synthesized = fits.into_iter().map(|f| f.synthesized).collect();
     Ok(())
+}
+
+/// Residues of pole `r` from an LSFD over a band around it (±10 % or ±30 lines, whichever is
+/// wider), with the poles inside that band and local residuals. Over a wide band the global fit's
+/// weights (1/σ_H from coherence) let the cleanest lines dominate, and a low mode's residue is
+/// then decided by its faint tail far above it; near its own peak it is decided by its peak.
+/// `None` when the band is too narrow for the fit or a station's fit is singular.
+fn local_residues(
+    set: &FrfSet,
+    w: &[Vec<f64>],
+    lambdas: &[Complex64],
+    r: usize,
+) -> Option<Vec<Complex64>> {
+    let f = lambdas[r].norm() / TAU_F;
+    let half = (0.1 * f).max(30.0 * set.df_hz);
+    let (lo, hi) = (f - half, f + half);
+    let k0 = set.freq_hz.partition_point(|&x| x < lo);
+    let k1 = set.freq_hz.partition_point(|&x| x <= hi);
+    let inside: Vec<usize> = (0..lambdas.len())
+        .filter(|&q| {
+            let g = lambdas[q].norm() / TAU_F;
+            g >= lo && g <= hi
+        })
+        .collect();
+    let at = inside.iter().position(|&q| q == r)?;
+    let local: Vec<Complex64> = inside.iter().map(|&q| lambdas[q]).collect();
+    if k1 < k0 + 4 * (2 * local.len() + 2) {
+        return None;
+    }
+    set.h
+        .iter()
+        .zip(w)
+        .map(|(h, wo)| {
+            lsfd::fit_output(
+                &set.freq_hz[k0..k1],
+                &h[k0..k1],
+                &wo[k0..k1],
+                &local,
+                set.exp_tau_s,
+            )
+            .map(|fit| fit.residues[at])
+        })
+        .collect()
 }
 
 /// Manual choice: modes from poles a person picked in the stabilization diagram (indices into

@@ -21,11 +21,12 @@ pub fn refine_poles(
     lambda: &mut [Complex64],
     exp_tau_s: f64,
 ) {
-    // Poles with a neighbour in their local band are refined twice (each sees the other's update);
+    // Poles with a neighbour in their local band are refined again until the sweeps stop moving
+    // them (each sees the other's update; a close pair needs several), at most eight sweeps;
     // isolated poles converge in one pass. Within a pass the poles are independent (each sees the
     // others as they were), so they are spread over the cores.
     let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
-    for sweep in 0..2 {
+    for sweep in 0..8 {
         let current = lambda.to_vec();
         let todo: Vec<usize> = (0..current.len())
             .filter(|&r| sweep == 0 || !neighbours(&current, r).is_empty())
@@ -54,8 +55,13 @@ pub fn refine_poles(
                 .flat_map(|h| h.join().unwrap_or_default())
                 .collect()
         });
+        let mut moved = 0.0f64;
         for (r, l) in updates {
+            moved = moved.max((l - lambda[r]).norm() / lambda[r].norm().max(f64::MIN_POSITIVE));
             lambda[r] = l;
+        }
+        if sweep > 0 && moved < 1e-7 {
+            break;
         }
     }
 }

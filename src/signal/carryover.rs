@@ -87,9 +87,9 @@ pub fn corrections(
     if len < (0.2 * fs as f64) as usize || segs.len() < 2 {
         return none();
     }
-    // Bounded work per station: at most 1500 lines and six decays feed the pole estimate (the
+    // Bounded work per station: at most 4000 lines and six decays feed the pole estimate (the
     // decays' poles are sharp; a coarser line spacing resolves them once the window is removed).
-    let max_len = (1500.0 * fs as f64 / (1.3 * band_hz[1] - 0.8 * band_hz[0]).max(1.0)) as usize;
+    let max_len = (4000.0 * fs as f64 / (1.3 * band_hz[1] - 0.8 * band_hz[0]).max(1.0)) as usize;
     let len = len.min(max_len.max((0.1 * fs as f64) as usize));
     let step = segs.len().div_ceil(6);
     let segs: Vec<(usize, usize)> = segs.into_iter().step_by(step).collect();
