@@ -1,6 +1,7 @@
 //! Modal extraction: mode indicators, peak picking with quadrature sign, half-power damping, the
 //! global LSCF fit with its stabilization diagram, automatic pole choice, LSFD residues and shapes.
 
+pub mod autospectrum;
 pub mod circle;
 pub mod lscf;
 pub mod lsfd;
@@ -490,8 +491,16 @@ fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) {
     chosen.dedup();
     for i in chosen {
         let (d, pk) = interpolate_peak(y, i);
-        let fm = f[i] + d * set.df_hz;
-        let zeta_m = half_power(f, y, i, pk, sensor).map(|(f1, f2)| (f2 - f1) / (2.0 * fm));
+        let mut fm = f[i] + d * set.df_hz;
+        let mut zeta_m = half_power(f, y, i, pk, sensor).map(|(f1, f2)| (f2 - f1) / (2.0 * fm));
+        // Roving sensor: the peak's whole line shape, not its half-power width (which needs
+        // several lines inside the half-power band).
+        if sensor && let Some(z0) = zeta_m {
+            if let Some((f_fit, z_fit)) = autospectrum::fit_peak(f, y, i, fm, z0) {
+                fm = f_fit;
+                zeta_m = Some(z_fit);
+            }
+        }
         let (fc, zc) = match zeta_m {
             Some(z) => {
                 let (fc, zc) = correct_damping(fm, z, set.exp_tau_s);

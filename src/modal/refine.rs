@@ -124,7 +124,7 @@ fn refine_one(
 }
 
 /// A small Nelder–Mead simplex minimiser in two dimensions.
-fn nelder_mead(
+pub(crate) fn nelder_mead(
     f: impl Fn(f64, f64) -> f64,
     x0: [f64; 2],
     step: [f64; 2],
