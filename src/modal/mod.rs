@@ -495,11 +495,12 @@ fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) {
         let mut zeta_m = half_power(f, y, i, pk, sensor).map(|(f1, f2)| (f2 - f1) / (2.0 * fm));
         // Roving sensor: the peak's whole line shape, not its half-power width (which needs
         // several lines inside the half-power band).
-        if sensor && let Some(z0) = zeta_m {
-            if let Some((f_fit, z_fit)) = autospectrum::fit_peak(f, y, i, fm, z0) {
-                fm = f_fit;
-                zeta_m = Some(z_fit);
-            }
+        if sensor
+            && let Some(z0) = zeta_m
+            && let Some((f_fit, z_fit)) = autospectrum::fit_peak(f, y, i, fm, z0)
+        {
+            fm = f_fit;
+            zeta_m = Some(z_fit);
         }
         let (fc, zc) = match zeta_m {
             Some(z) => {
