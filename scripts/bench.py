@@ -70,6 +70,35 @@ def main():
     print(f"  whole modal stage (diagram + choice + local refinement + LSFD)  {m:7.3f} s")
     print(f"  FRF stage of the same run {c:.3f} s; diagram / FRF stage {st / c:.2f}; modal / FRF stage {m / c:.2f}")
 
+    kinds(tmp)
+
+
+# Generated sets of several kinds, 40 stations x 5 hits at 51.2 kHz each: the full `analyze` (hits,
+# verdicts, carry-over handling, AC coupling, FRFs, the automatic modal fit, frf.csv and
+# result.json) against the numpy/scipy FRF pipeline on the same files, in the same run.
+KINDS = [
+    ("24-bit, 0.25 ms tip", ["--encoding", "int24", "--interval", "1.5"], "10:5000"),
+    ("float32, +15 dB noise, 0.2 ms tip", ["--encoding", "float32", "--noise", "1.7e-4",
+                                           "--pulse", "0.0002"], "200:7000"),
+    ("16-bit, taps 1.2 s apart, zeta 0.06 %", ["--encoding", "int16", "--interval", "1.2",
+                                               "--damping", "0.0006", "--pulse", "0.00075"], "100:1800"),
+    ("two bending planes, 1.2 % split", ["--encoding", "int24", "--damping", "0.003",
+                                         "--second-plane", "0.012:35"], "100:2500"),
+]
+
+
+def kinds(tmp):
+    py = sys.executable
+    print("kinds (analyze with the fit and carry-over handling vs the numpy/scipy pipeline with frf.csv):")
+    for i, (name, args, band) in enumerate(KINDS):
+        s = tmp / f"kind{i}"
+        subprocess.run([BIN, "simulate", "--out", s, "--stations", "40", "--hits", "5", "--fs", "51200",
+                        "--seed", str(40 + i), *args], check=True, stdout=subprocess.DEVNULL)
+        t_a = timed([BIN, "analyze", s, "--out", tmp / f"k{i}a", "--band", band,
+                     "--sensitivity", "2.25,1.02"])
+        t_r = timed([py, ROOT / "scripts" / "bench_reference.py", s, tmp / f"k{i}r"])
+        print(f"  {name:42s} analyze {t_a:6.3f} s   numpy/scipy {t_r:6.3f} s   ratio {t_r / t_a:5.1f}x  (target >= 5)")
+
 
 if __name__ == "__main__":
     main()

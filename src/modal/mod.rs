@@ -807,6 +807,7 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
     });
     cands.dedup_by_key(|c| c.pole);
     let mut chosen: Vec<(usize, usize)> = cands.iter().map(|c| (c.pole, c.size)).collect();
+    let t_local = std::time::Instant::now();
     if s.selection == Selection::Auto {
         // A pole the global fit gave to two close modes (a split pair from two bending planes,
         // widened by the exponential window) shows as two columns over a narrow band.
@@ -864,7 +865,15 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
         res.warnings
             .push("no stable physical pole was found in the band".into());
     }
+    let t_fit = std::time::Instant::now();
     fit_chosen(set, res, &stab, &w, &chosen, s.refine_poles)?;
+    if std::env::var_os("TAPGRID_TIMING").is_some() {
+        eprintln!(
+            "timing: modal local diagrams {:.3} s, refinement and residues {:.3} s",
+            (t_fit - t_local).as_secs_f64(),
+            t_fit.elapsed().as_secs_f64()
+        );
+    }
     if s.selection == Selection::Auto {
         // A stable pole whose shape is far from real and whose resonance peak is many times
         // broader than the pole says is not a mode of the part (noise or a leak between

@@ -7,7 +7,7 @@
 //! The local fit minimises the true FRF error where the mode lives (a nonlinear least squares over
 //! two parameters per pole, by Nelder–Mead).
 
-use super::lsfd::fit_output;
+use super::lsfd::shared_weighted_residual;
 use crate::Complex64;
 
 const TAU: f64 = 2.0 * std::f64::consts::PI;
@@ -95,20 +95,33 @@ fn refine_one(
     if hi < lo + 12 {
         return None;
     }
-    let fs = &freq_hz[lo..hi];
     // Only this pole and its neighbours enter the local model; the residual terms stand for
     // every mode farther away.
     let near = neighbours(lambda, r);
+    // One weight per line shared by the stations (their mean) and one scale per station (its
+    // mean weight there), so every station reuses one factorised normal matrix.
+    let line_w: Vec<f64> = (0..freq_hz.len())
+        .map(|k| {
+            if k < lo || k >= hi {
+                0.0
+            } else {
+                weight.iter().map(|w| w[k]).sum::<f64>() / weight.len().max(1) as f64
+            }
+        })
+        .collect();
+    let out_scale: Vec<f64> = weight
+        .iter()
+        .map(|w| {
+            let m = line_w[lo..hi].iter().sum::<f64>();
+            let o = w[lo..hi].iter().sum::<f64>();
+            if m > 0.0 { o / m } else { 1.0 }
+        })
+        .collect();
     let objective = |ls: f64, wd: f64| -> f64 {
         let mut poles: Vec<Complex64> = near.iter().map(|&q| lambda[q]).collect();
         poles.push(Complex64::new(-ls.exp(), wd));
-        h.iter()
-            .zip(weight)
-            .map(|(ho, wo)| {
-                fit_output(fs, &ho[lo..hi], &wo[lo..hi], &poles, exp_tau_s)
-                    .map_or(f64::INFINITY, |fit| fit.weighted_residual)
-            })
-            .sum()
+        shared_weighted_residual(freq_hz, h, lo..hi, &line_w, &out_scale, &poles, exp_tau_s)
+            .unwrap_or(f64::INFINITY)
     };
     let start = [sigma.max(1e-6).ln(), lambda[r].im];
     let step = [0.3, 0.2 * sigma.max(0.05 * TAU)];
