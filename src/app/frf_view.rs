@@ -40,6 +40,23 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             ui.checkbox(&mut app.settings.show_phase, "phase plot");
             ui.checkbox(&mut app.settings.overlay_all, "overlay every station");
             ui.separator();
+            // Where the hammer's force spectrum stays within the roll-off limit: lines above count
+            // less in the fit (the dashed line in the plots).
+            let edge = app
+                .current_station
+                .and_then(|s| frfs.stations.iter().position(|&x| x == s))
+                .and_then(|i| frfs.usable_hi_hz.get(i).copied())
+                .filter(|e| e.is_finite());
+            match edge {
+                Some(e) => ui.label(format!(
+                    "Usable band ends at {e:.0} Hz (force spectrum 20 dB down): lines above count less in the fit."
+                )),
+                None if layout == Layout::Hammer => {
+                    ui.label("Force spectrum within 20 dB over the whole band.")
+                }
+                None => ui.label(""),
+            };
+            ui.separator();
             ui.label("Overlay stations:");
             egui::ScrollArea::vertical()
                 .max_height(ui.available_height() - 40.0)
@@ -95,7 +112,18 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 })
             }
         };
+        let usable_edge = current
+            .and_then(|s| frfs.stations.iter().position(|&x| x == s))
+            .and_then(|i| frfs.usable_hi_hz.get(i).copied())
+            .filter(|e| e.is_finite());
         let mode_lines = |p: &mut egui_plot::PlotUi<'_>| {
+            if let Some(e) = usable_edge {
+                p.vline(
+                    VLine::new("usable band ends", axis.x(e))
+                        .color(egui::Color32::GRAY)
+                        .style(egui_plot::LineStyle::dashed_loose()),
+                );
+            }
             if let Some(m) = &modal {
                 for (k, md) in m.modes.iter().enumerate() {
                     p.vline(
