@@ -159,6 +159,33 @@ pub struct Analysis {
 }
 
 impl Analysis {
+    /// Noise, in words, when it limits the test: the median over the stations (with two or more
+    /// hits averaged) of the share of lines with γ² ≥ 0.9 (common practice) below 80 %.
+    pub fn noise_finding(&self) -> Option<String> {
+        let mut shares: Vec<f64> = self
+            .stations
+            .iter()
+            .filter_map(|s| s.result.frf.as_ref())
+            .filter(|f| f.hits_averaged >= 2 && !f.coherence.is_empty())
+            .map(|f| {
+                f.coherence.iter().filter(|&&g| g >= 0.9).count() as f64 / f.coherence.len() as f64
+            })
+            .collect();
+        if shares.is_empty() {
+            return None;
+        }
+        shares.sort_by(f64::total_cmp);
+        let median = shares[shares.len() / 2];
+        (median < 0.8).then(|| {
+            format!(
+                "noise: at a typical station only {:.0} % of the band has coherence of 0.9 or more; \
+                 tap harder (within the input range), average more hits, check the cables and the \
+                 accelerometer mounting, or narrow the band to where the force is",
+                100.0 * median
+            )
+        })
+    }
+
     /// The force spectrum's usable band against the analysis band, in words, once for the test
     /// (or per station where only some stations are short of the band).
     pub fn usable_band_finding(&self) -> Option<String> {
@@ -245,6 +272,7 @@ impl Analysis {
         }
         w.extend(self.notes.iter().cloned());
         w.extend(self.usable_band_finding());
+        w.extend(self.noise_finding());
         for s in &self.stations {
             for n in &s.result.notes {
                 w.push(format!("station {}: {n}", s.station));
