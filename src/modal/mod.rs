@@ -721,6 +721,9 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
     let mut sorted_gaa = mean_gaa.clone();
     sorted_gaa.sort_by(f64::total_cmp);
     let gaa_median = sorted_gaa[sorted_gaa.len() / 2];
+    let mean_coh: Vec<f64> = (0..set.freq_hz.len())
+        .map(|k| set.coherence.iter().map(|c| c[k]).sum::<f64>() / set.coherence.len() as f64)
+        .collect();
     let physical_pole = |pole: &Pole| {
         let (fc, zc) = correct_damping(pole.frequency_hz, pole.damping_ratio, set.exp_tau_s);
         let k = set
@@ -736,7 +739,9 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
                 set.df_hz,
                 &s.mains_hz,
             )
-            && mean_gaa[k] > 0.01 * gaa_median
+            // Away from force-spectrum nulls, where H is noise — unless the FRF is coherent
+            // there all the same (a resonance past the null that the force still reaches).
+            && (mean_gaa[k] > 0.01 * gaa_median || mean_coh[k] >= 0.9)
             && pole.mpc > 0.5
     };
     let physical = |p: usize| physical_pole(&poles[p]);
