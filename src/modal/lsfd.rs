@@ -28,6 +28,31 @@ pub struct OutputFit {
     pub weighted_residual: f64,
 }
 
+/// One line of the LSFD basis at `f_hz`: for each pole the real and imaginary parts of its
+/// residue's term s'²·[1/(jω − λ') ± 1/(jω − λ'*)], then the lower residual (1) and the upper
+/// residual (s'²), with s' = jω + 1/τ.
+fn basis_row(f_hz: f64, lambda: &[Complex64], exp_tau_s: f64) -> Vec<Complex64> {
+    let inv_tau = if exp_tau_s.is_finite() {
+        1.0 / exp_tau_s
+    } else {
+        0.0
+    };
+    let w = TAU * f_hz;
+    let s = Complex64::new(0.0, w);
+    let sp = Complex64::new(inv_tau, w);
+    let m = sp * sp;
+    let mut b = Vec::with_capacity(2 * lambda.len() + 2);
+    for l in lambda {
+        let g1 = 1.0 / (s - l);
+        let g2 = 1.0 / (s - l.conj());
+        b.push(m * (g1 + g2));
+        b.push(m * Complex64::new(0.0, 1.0) * (g1 - g2));
+    }
+    b.push(Complex64::new(1.0, 0.0));
+    b.push(m);
+    b
+}
+
 /// Fits residues for fixed measured poles `lambda` (rad/s, upper half plane) to one output's FRF.
 pub fn fit_output(
     freq_hz: &[f64],
@@ -38,27 +63,7 @@ pub fn fit_output(
 ) -> Option<OutputFit> {
     let n = lambda.len();
     let cols = 2 * n + 2;
-    let inv_tau = if exp_tau_s.is_finite() {
-        1.0 / exp_tau_s
-    } else {
-        0.0
-    };
-    let basis = |f: f64| -> Vec<Complex64> {
-        let w = TAU * f;
-        let s = Complex64::new(0.0, w);
-        let sp = Complex64::new(inv_tau, w);
-        let m = sp * sp;
-        let mut b = Vec::with_capacity(cols);
-        for l in lambda {
-            let g1 = 1.0 / (s - l);
-            let g2 = 1.0 / (s - l.conj());
-            b.push(m * (g1 + g2));
-            b.push(m * Complex64::new(0.0, 1.0) * (g1 - g2));
-        }
-        b.push(Complex64::new(1.0, 0.0));
-        b.push(m);
-        b
-    };
+    let basis = |f: f64| basis_row(f, lambda, exp_tau_s);
     // Normal equations of the real-valued problem, with columns scaled to unit norm for
     // conditioning (the basis spans many decades).
     let mut ata = DMatrix::<f64>::zeros(cols, cols);
@@ -142,29 +147,9 @@ pub fn shared_weighted_residual(
 ) -> Option<f64> {
     let n = lambda.len();
     let cols = 2 * n + 2;
-    let inv_tau = if exp_tau_s.is_finite() {
-        1.0 / exp_tau_s
-    } else {
-        0.0
-    };
     let rows: Vec<Vec<Complex64>> = freq_hz[lines.clone()]
         .iter()
-        .map(|&f| {
-            let w = TAU * f;
-            let s = Complex64::new(0.0, w);
-            let sp = Complex64::new(inv_tau, w);
-            let m = sp * sp;
-            let mut b = Vec::with_capacity(cols);
-            for l in lambda {
-                let g1 = 1.0 / (s - l);
-                let g2 = 1.0 / (s - l.conj());
-                b.push(m * (g1 + g2));
-                b.push(m * Complex64::new(0.0, 1.0) * (g1 - g2));
-            }
-            b.push(Complex64::new(1.0, 0.0));
-            b.push(m);
-            b
-        })
+        .map(|&f| basis_row(f, lambda, exp_tau_s))
         .collect();
     let lw = &line_weight[lines.clone()];
     let mut scale = vec![0.0f64; cols];
