@@ -28,9 +28,24 @@ pub fn fit_peak(
         .abs()
         .max(1e-12);
     let half = (6.0 * zeta_guess * f_hz).max(6.0 * df).min(0.1 * f_hz);
-    let k0 = freq_hz.partition_point(|&x| x < f_hz - half);
-    let k1 = freq_hz.partition_point(|&x| x <= f_hz + half);
-    if k1 < k0 + 7 || i < k0 || i >= k1 || !y[k0..k1].iter().all(|v| v.is_finite() && *v > 0.0) {
+    let mut k0 = freq_hz.partition_point(|&x| x < f_hz - half);
+    let mut k1 = freq_hz.partition_point(|&x| x <= f_hz + half);
+    if i >= y.len() || i < k0 || i >= k1 {
+        return None;
+    }
+    // Not past the valleys on either side: a neighbouring peak (a close pair) would pull the
+    // single-mode line shape towards it.
+    let mut l = i;
+    while l > k0 && y[l - 1] < y[l] {
+        l -= 1;
+    }
+    let mut r = i;
+    while r + 1 < k1 && y[r + 1] < y[r] {
+        r += 1;
+    }
+    k0 = l;
+    k1 = r + 1;
+    if k1 < k0 + 7 || !y[k0..k1].iter().all(|v| v.is_finite() && *v > 0.0) {
         return None;
     }
     let (fs, ys) = (&freq_hz[k0..k1], &y[k0..k1]);
