@@ -162,7 +162,7 @@ impl Analysis {
     /// Noise, in words, when it limits the test: the median over the stations (with two or more
     /// hits averaged) of the share of lines with γ² ≥ 0.9 (common practice) below 80 %.
     pub fn noise_finding(&self) -> Option<String> {
-        let mut shares: Vec<f64> = self
+        let shares: Vec<f64> = self
             .stations
             .iter()
             .filter_map(|s| s.result.frf.as_ref())
@@ -171,11 +171,7 @@ impl Analysis {
                 f.coherence.iter().filter(|&&g| g >= 0.9).count() as f64 / f.coherence.len() as f64
             })
             .collect();
-        if shares.is_empty() {
-            return None;
-        }
-        shares.sort_by(f64::total_cmp);
-        let median = shares[shares.len() / 2];
+        let median = crate::numeric::median(shares)?;
         (median < 0.8).then(|| {
             format!(
                 "noise: at a typical station only {:.0} % of the band has coherence of 0.9 or more; \
@@ -205,10 +201,7 @@ impl Analysis {
         let (mn, mx) = tops
             .iter()
             .fold((f64::INFINITY, 0.0f64), |(a, b), &t| (a.min(t), b.max(t)));
-        let mut nulls: Vec<f64> = short.iter().filter_map(|s| s.2).collect();
-        nulls.sort_by(f64::total_cmp);
-        let null = nulls
-            .get(nulls.len() / 2)
+        let null = crate::numeric::median(short.iter().filter_map(|s| s.2).collect())
             .map(|f| format!(", its first null near {f:.0} Hz"))
             .unwrap_or_default();
         let which = if short.len() == self.stations.len() {

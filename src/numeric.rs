@@ -1,4 +1,4 @@
-//! Guarded dense linear algebra: every iterative decomposition here is bounded and refuses
+//! Small numeric helpers, and guarded dense linear algebra: every iterative decomposition here is bounded and refuses
 //! non-finite input.
 //!
 //! nalgebra's SVD, Schur and symmetric eigen solvers iterate until convergence by default; on a
@@ -12,6 +12,15 @@ use crate::Complex64;
 
 /// Iterations allowed per row of the matrix: QR-type sweeps need a few per eigenvalue.
 const SWEEPS_PER_ROW: usize = 60;
+
+/// The upper median (element `len / 2` in sorted order); `None` for no values.
+pub fn median(mut v: Vec<f64>) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    let m = v.len() / 2;
+    Some(*v.select_nth_unstable_by(m, f64::total_cmp).1)
+}
 
 /// Whether every entry is finite.
 pub fn all_finite(m: &DMatrix<f64>) -> bool {

@@ -370,14 +370,13 @@ pub fn extract(set: &FrfSet, s: &ModalSettings) -> Result<ModalResult, String> {
     }
     res.modes
         .sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
-    let mut edges: Vec<f64> = set
+    let edges: Vec<f64> = set
         .usable_hi_hz
         .iter()
         .copied()
         .filter(|e| e.is_finite())
         .collect();
-    edges.sort_by(f64::total_cmp);
-    if let Some(&edge) = edges.get(edges.len() / 2) {
+    if let Some(edge) = crate::numeric::median(edges) {
         for m in res.modes.iter_mut().filter(|m| m.frequency_hz > edge) {
             m.notes.push(format!(
                 "above the usable band of the force spectrum ({edge:.0} Hz, median over the \
@@ -832,7 +831,7 @@ fn lscf_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) -> Result<
                 splits.push((ci, near));
             }
         }
-        let found = local_poles(set, &res.indicators, &stab, &chosen, s, &physical_pole);
+        let found = local_poles(set, &res.indicators, &stab, &chosen, &w, s, &physical_pole);
         for (ci, near) in splits.into_iter().rev() {
             let f = stab.poles[chosen[ci].0].frequency_hz;
             chosen.remove(ci);
@@ -1004,12 +1003,13 @@ fn local_columns(
 /// a stabilization diagram over a narrow band around its peak. A band spanning decades leaves the
 /// global z-domain fit ill-conditioned at its low end (poles crowd near z = 1), where a narrow
 /// band resolves them; the same stability and physical checks apply, so a noise peak does not
-/// pass. Returns each pole with the number of orders it was fully stable over.
+/// pass. Returns each pole with the number of orders its column stood for.
 fn local_poles(
     set: &FrfSet,
     ind: &Indicators,
     stab: &Stabilization,
     chosen: &[(usize, usize)],
+    w: &[Vec<f64>],
     s: &ModalSettings,
     physical: &dyn Fn(&Pole) -> bool,
 ) -> Vec<(Pole, usize)> {
@@ -1018,7 +1018,6 @@ fn local_poles(
         return out;
     }
     let y = &ind.sum_abs;
-    let w_all = set.weights(s.coherence_weighting);
     for k in prominent_peaks(y) {
         let f = set.freq_hz[k];
         let near = |g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
@@ -1035,13 +1034,10 @@ fn local_poles(
         let right = y[k + 1..(k + span + 1).min(y.len())]
             .iter()
             .fold(f64::INFINITY, |m, &v| m.min(v));
-        if !(y[k] >= 2.0 * left.max(right) || (left.is_infinite() || right.is_infinite())) {
+        if left.is_infinite() || right.is_infinite() || y[k] < 2.0 * left.max(right) {
             continue;
         }
-        if left.is_infinite() || right.is_infinite() {
-            continue;
-        }
-        let cols = local_columns(set, &w_all, f, s, physical);
+        let cols = local_columns(set, w, f, s, physical);
         if let Some(best) = cols
             .into_iter()
             .filter(|c| (c.0.frequency_hz / f - 1.0).abs() < 0.01)

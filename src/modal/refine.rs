@@ -109,10 +109,10 @@ fn refine_one(
             }
         })
         .collect();
+    let m = line_w[lo..hi].iter().sum::<f64>();
     let out_scale: Vec<f64> = weight
         .iter()
         .map(|w| {
-            let m = line_w[lo..hi].iter().sum::<f64>();
             let o = w[lo..hi].iter().sum::<f64>();
             if m > 0.0 { o / m } else { 1.0 }
         })

@@ -14,6 +14,7 @@ use super::taps::find_strikes;
 use super::verdict::Reason;
 use super::window::{exponential, exponential_tau_s, force_window};
 use crate::Complex64;
+use crate::numeric::median;
 use crate::setup::{AcCoupling, Layout, Setup};
 
 /// The verdict and measurements of one hit.
@@ -575,14 +576,6 @@ fn force_shape(sa: &[Complex64], freq_hz: &[f64], rolloff_db: f64) -> ForceShape
         usable_hz,
         first_null_hz,
     }
-}
-
-fn median(mut v: Vec<f64>) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    let m = v.len() / 2;
-    Some(*v.select_nth_unstable_by(m, f64::total_cmp).1)
 }
 
 /// A soft strike or a weak one is a fault of that hit only when its siblings did better; when every
