@@ -1,15 +1,15 @@
-//! Runs the signal chain over a whole test (a WAV set or a session), station by station in
-//! parallel, and collects the results. This is the entry point the CLI and the GUI share.
+//! Runs the signal chain over a whole test (the recordings of its stations), station by station
+//! in parallel, and collects the results. Where the recordings come from (a WAV set, a session)
+//! is decided above, in `pipeline`.
 
 use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 use crate::acquire::InputError;
 use crate::acquire::wav::{Decoder, NonFinite};
 use crate::acquire::wavset::{PositionSource, WavSet};
-use crate::session::{SavedHit, Session};
 use crate::setup::Setup;
 use crate::signal::hits::level_of;
 use crate::signal::{SpectrumPlan, StationResult, analyze_station, taps};
@@ -82,49 +82,6 @@ impl Dataset {
                 })
                 .collect(),
             origin: set.dir.clone(),
-        }
-    }
-
-    /// From an open session (with its overrides).
-    pub fn from_session(s: &Session) -> Self {
-        let ov = s.overrides();
-        let stations = s
-            .manifest
-            .stations
-            .iter()
-            .filter_map(|st| {
-                let rec = s
-                    .manifest
-                    .recordings
-                    .iter()
-                    .find(|r| r.station == st.station)?;
-                Some(StationSource {
-                    station: st.station,
-                    position_m: st.position_m,
-                    position_source: st.position_source,
-                    path: s.dir.join(&rec.file),
-                    overrides: ov.get(&st.station).cloned().unwrap_or_default(),
-                })
-            })
-            .collect();
-        Self {
-            stations,
-            origin: s.dir.clone(),
-        }
-    }
-
-    /// Opens a path that is either a session folder or a WAV set folder.
-    pub fn open(path: &Path, spacing_m: f64) -> Result<(Self, Option<Session>), InputError> {
-        if Session::is_session(path) {
-            let s = Session::open(path)?;
-            Ok((Self::from_session(&s), Some(s)))
-        } else if path.is_dir() {
-            Ok((Self::from_wavset(&WavSet::scan(path, spacing_m)?), None))
-        } else {
-            Err(InputError::new(
-                path,
-                "is not a folder (expected a WAV set or a session folder)",
-            ))
         }
     }
 }
@@ -222,23 +179,6 @@ impl Analysis {
              hammer would widen the usable band",
             self.setup.quality.rolloff_db
         ))
-    }
-
-    /// Hits in the form saved in a session manifest.
-    pub fn saved_hits(&self) -> Vec<SavedHit> {
-        self.stations
-            .iter()
-            .flat_map(|s| {
-                s.result.hits.iter().map(move |h| SavedHit {
-                    station: s.station,
-                    index: h.index,
-                    time_s: h.time_s,
-                    accepted: h.accepted,
-                    reasons: h.reasons.clone(),
-                    override_accept: h.override_accept,
-                })
-            })
-            .collect()
     }
 
     /// Things a person should know about the result as a whole.
@@ -357,7 +297,7 @@ struct Survey {
 fn survey(data: &Dataset, setup: &Setup) -> Option<Survey> {
     let scans = per_station(data, |dec: &mut Decoder, src| {
         let info = dec
-            .decode_with(
+            .decode_first(
                 &src.path,
                 setup.channel_a.index,
                 setup.channel_b.index,
@@ -438,7 +378,11 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     if data.stations.is_empty() {
         return Err(InputError::new(&data.origin, "holds no station recordings"));
     }
+    let t0 = std::time::Instant::now();
     let (setup, mut notes) = fit_setup_to_test(data, setup);
+    if std::env::var_os("TAPGRID_TIMING").is_some() {
+        eprintln!("timing: survey of taps {:.3} s", t0.elapsed().as_secs_f64());
+    }
     let setup = &setup;
     let progress = Progress::new(data.stations.len());
     let results = per_station(data, |w: &mut Worker, src| {

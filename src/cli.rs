@@ -8,7 +8,7 @@ use clap::{Args, Parser, Subcommand, ValueEnum};
 use crate::acquire::wav::SampleEncoding;
 use crate::acquire::wavset::WavSet;
 use crate::analysis::{self, Dataset};
-use crate::modal::{FrfSet, Method, ModalResult, ModalSettings, Selection};
+use crate::modal::{Method, ModalResult, ModalSettings, Selection};
 use crate::report;
 use crate::session::{Part, Session};
 use crate::setup::{Estimator, Layout, Setup, Slope, TriggerLevel};
@@ -542,18 +542,21 @@ pub struct MarginArgs {
     /// service, else on its supports (undamped: AF unknown).
     #[arg(long)]
     pub model: Option<PathBuf>,
-    /// Orders of running speed.
-    #[arg(long, default_value = "1,2")]
-    pub orders: String,
-    /// AF below which no margin is required.
-    #[arg(long, default_value_t = 2.5)]
-    pub af_threshold: f64,
-    /// Cap of the margin below the range, %.
-    #[arg(long, default_value_t = 16.0)]
-    pub below_cap: f64,
-    /// Cap of the margin above the range, %.
-    #[arg(long, default_value_t = 26.0)]
-    pub above_cap: f64,
+    /// Orders of running speed (default: the model study's, else 1,2).
+    #[arg(long)]
+    pub orders: Option<String>,
+    /// AF below which no margin is required (default: the model study's rule, else 2.5).
+    #[arg(long)]
+    pub af_threshold: Option<f64>,
+    /// Cap of the margin below the range, % (default: the model study's rule, else 16).
+    #[arg(long)]
+    pub below_cap: Option<f64>,
+    /// Cap of the margin above the range, % (default: the model study's rule, else 26).
+    #[arg(long)]
+    pub above_cap: Option<f64>,
+    /// Setup options for `--test` (on top of a session's own).
+    #[command(flatten)]
+    pub setup: SetupArgs,
 }
 
 /// `tapgrid calibrate`.
@@ -761,7 +764,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
         Command::BenchDecode(a) => {
-            let (data, _) = Dataset::open(&a.input, Setup::default().spacing_m)?;
+            let (data, _) = crate::pipeline::open_dataset(&a.input, Setup::default().spacing_m)?;
             let frames = analysis::decode_all(&data, &Setup::default())?;
             println!("decoded {frames} frames");
             Ok(())
@@ -784,8 +787,8 @@ fn demo_session_dir() -> Result<PathBuf> {
     )?)
 }
 
-/// A test opened for analysis: its data, the setup and modal settings (a session's own, with the
-/// options given on top) and the session, when it is one.
+/// A test opened for analysis with the command line's options on top of its own setup and
+/// modal settings (`modal` is `None` for `--modes none`).
 struct Opened {
     data: Dataset,
     setup: Setup,
@@ -794,17 +797,12 @@ struct Opened {
 }
 
 fn open_test(input: &Path, args: &SetupArgs, modal_args: &ModalArgs) -> Result<Opened> {
-    let spacing = args.spacing.unwrap_or(Setup::default().spacing_m);
-    let (data, session) = Dataset::open(input, spacing)?;
-    let (base, fit) = session
-        .as_ref()
-        .map(|s| (s.manifest.setup.clone(), s.manifest.fit.clone()))
-        .unwrap_or_default();
+    let t = crate::pipeline::open_test(input, |s| args.apply(s).map_err(|e| format!("{e:#}")))?;
     Ok(Opened {
-        data,
-        setup: args.apply(base)?,
-        modal: modal_settings(modal_args, fit.unwrap_or_default())?,
-        session,
+        modal: modal_settings(modal_args, t.fit)?,
+        data: t.data,
+        setup: t.setup,
+        session: t.session,
     })
 }
 
@@ -814,20 +812,20 @@ fn fit_modes(
     a: &crate::analysis::Analysis,
     modal: Option<&ModalSettings>,
 ) -> Result<ModalResult> {
-    Ok(match (modal, FrfSet::from_analysis(a)) {
-        (Some(ms), Some(set)) => crate::modal::extract(&set, ms)
-            .map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))?,
-        _ => ModalResult::default(),
-    })
+    match modal {
+        Some(ms) => {
+            crate::pipeline::fit(a, ms).map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))
+        }
+        None => Ok(ModalResult::default()),
+    }
 }
 
-/// A fit's modes as the model study takes them, over the lines the fit saw.
-fn test_modes(m: &ModalResult) -> crate::model::study::TestModes {
-    let band = [
-        m.indicators.freq_hz.first().copied().unwrap_or(0.0),
-        m.indicators.freq_hz.last().copied().unwrap_or(0.0),
-    ];
-    crate::model::study::TestModes::from_modal(m, band)
+impl Opened {
+    /// A fit's modes as the model study takes them, over the band this test covered.
+    fn test_modes(&self, m: &ModalResult) -> crate::model::study::TestModes {
+        let ms = self.modal.clone().unwrap_or_default();
+        crate::pipeline::test_modes(&ms, &self.setup, m)
+    }
 }
 
 fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal_args: &ModalArgs) -> Result<()> {
@@ -835,9 +833,22 @@ fn analyze(input: &Path, out: &Path, args: &SetupArgs, modal_args: &ModalArgs) -
     let t0 = std::time::Instant::now();
     let a = analysis::run(&t.data, &t.setup)?;
     let t1 = std::time::Instant::now();
-    let modes = fit_modes(input, &a, t.modal.as_ref())?;
+    // frf.csv needs only the FRFs: written on its own thread while the fit runs.
+    let (csv, modes) = std::thread::scope(|scope| {
+        let csv = scope.spawn(|| report::write_frf_csv(&a, out));
+        let modes = fit_modes(input, &a, t.modal.as_ref());
+        let csv = csv.join().unwrap_or_else(|_| {
+            Err(crate::acquire::InputError::new(
+                out,
+                "frf.csv writer failed",
+            ))
+        });
+        (csv, modes)
+    });
+    csv?;
+    let modes = modes?;
     let t1b = std::time::Instant::now();
-    report::write_outputs(&a, &modes, out)?;
+    report::write_fit_outputs(&a, &modes, out)?;
     let t2 = std::time::Instant::now();
     if std::env::var_os("TAPGRID_TIMING").is_some() {
         eprintln!(
@@ -862,11 +873,11 @@ fn report(a: ReportArgs) -> Result<()> {
     let t = open_test(&a.input, &a.setup, &a.modal)?;
     let analysis = analysis::run(&t.data, &t.setup)?;
     let modes = fit_modes(&a.input, &analysis, t.modal.as_ref())?;
-    let (part, notes, own_model) = match t.session {
+    let (part, notes, own_model) = match &t.session {
         Some(s) => (
-            s.manifest.part.name,
-            s.manifest.part.notes,
-            s.manifest.model,
+            s.manifest.part.name.clone(),
+            s.manifest.part.notes.clone(),
+            s.manifest.model.clone(),
         ),
         None => (String::new(), String::new(), None),
     };
@@ -876,7 +887,7 @@ fn report(a: ReportArgs) -> Result<()> {
     };
     let result = match &study {
         Some(st) => Some(
-            crate::model::study::evaluate(st, Some(&test_modes(&modes)))
+            crate::pipeline::study(st, Some(&t.test_modes(&modes)))
                 .map_err(|e| anyhow!("{}: shaft model: {e}", a.input.display()))?,
         ),
         None => None,
@@ -914,7 +925,7 @@ fn import(a: ImportArgs) -> Result<()> {
             notes: String::new(),
         },
     )?;
-    s.manifest.hits = result.saved_hits();
+    s.manifest.hits = crate::session::saved_hits(&result);
     s.save()?;
     print!("{}", report::summary(&result));
     println!("session written to {}", a.session.display());
@@ -994,7 +1005,7 @@ fn model(a: ModelArgs) -> Result<()> {
     std::fs::create_dir_all(out)
         .with_context(|| format!("{}: cannot create folder", out.display()))?;
     let path = out.join("modes.json");
-    crate::session::atomic::write_bytes(&path, run::modes_json(&c, &stations).as_bytes())
+    crate::atomic::write_bytes(&path, run::modes_json(&c, &stations).as_bytes())
         .with_context(|| format!("{}: cannot write", path.display()))?;
     println!(
         "{} elements (last refinement changed the frequencies by {:.1e})",
@@ -1031,7 +1042,7 @@ fn model(a: ModelArgs) -> Result<()> {
             csv.push('\n');
         }
         let p = out.join("stiffness_map.csv");
-        crate::session::atomic::write_bytes(&p, csv.as_bytes())
+        crate::atomic::write_bytes(&p, csv.as_bytes())
             .with_context(|| format!("{}: cannot write", p.display()))?;
         println!("wrote {}", p.display());
     }
@@ -1052,28 +1063,28 @@ fn colon_range(text: &str, what: &str) -> Result<(f64, f64)> {
     Ok((p(a)?, p(b)?))
 }
 
-/// Analyses and fits a session or WAV set with its own (or the given) setup.
-fn fitted(input: &Path, setup: &SetupArgs) -> Result<ModalResult> {
-    let (data, session) = Dataset::open(input, Setup::default().spacing_m)?;
-    let (setup, fit) = match &session {
-        Some(s) => (s.manifest.setup.clone(), s.manifest.fit.clone()),
-        None => (setup.apply(Setup::default())?, None),
-    };
-    let a = analysis::run(&data, &setup)?;
-    let fs = FrfSet::from_analysis(&a)
-        .ok_or_else(|| anyhow!("{}: no station has an accepted hit", input.display()))?;
-    crate::modal::extract(&fs, &fit.unwrap_or_default())
-        .map_err(|m| anyhow!("{}: {m}", input.display()))
+/// Analyses and fits a session or WAV set: its own setup and fit settings with the given setup
+/// options on top. Returns the fit and its modes as the model study takes them.
+fn fitted(
+    input: &Path,
+    setup: &SetupArgs,
+) -> Result<(ModalResult, crate::model::study::TestModes)> {
+    let t = open_test(input, setup, &ModalArgs::default())?;
+    let a = analysis::run(&t.data, &t.setup)?;
+    if crate::modal::FrfSet::from_analysis(&a).is_none() {
+        bail!("{}: no station has an accepted hit", input.display());
+    }
+    let m = fit_modes(input, &a, t.modal.as_ref())?;
+    let test = t.test_modes(&m);
+    Ok((m, test))
 }
 
 fn correlate(a: CorrelateArgs) -> Result<()> {
-    use crate::model::study::evaluate;
     let model_path = a.model.clone().unwrap_or_else(|| a.input.clone());
     let mut study = read_study(&model_path)?;
     study.min_mac = a.min_mac;
-    let m = fitted(&a.input, &a.setup)?;
-    let test = test_modes(&m);
-    let r = evaluate(&study, Some(&test)).map_err(|e| {
+    let (_, test) = fitted(&a.input, &a.setup)?;
+    let r = crate::pipeline::study(&study, Some(&test)).map_err(|e| {
         anyhow!(
             "{} against {}: {e}",
             a.input.display(),
@@ -1120,7 +1131,7 @@ fn correlate(a: CorrelateArgs) -> Result<()> {
             .with_context(|| format!("{}: cannot create folder", out.display()))?;
         let p = out.join("correlation.json");
         let text = serde_json::to_string_pretty(&c).unwrap_or_default();
-        crate::session::atomic::write_bytes(&p, text.as_bytes())
+        crate::atomic::write_bytes(&p, text.as_bytes())
             .with_context(|| format!("{}: cannot write", p.display()))?;
         println!("wrote {}", p.display());
     }
@@ -1129,78 +1140,126 @@ fn correlate(a: CorrelateArgs) -> Result<()> {
 
 fn margin(a: MarginArgs) -> Result<()> {
     use crate::model::margin::{MarginRule, Side, check};
+    use crate::model::study::ResonanceSource;
     let study = a.model.as_deref().map(read_study).transpose()?;
     let (lo, hi) = match (&a.speed, study.as_ref().and_then(|s| s.running_speed_rpm)) {
         (Some(t), _) => colon_range(t, "speed")?,
         (None, Some([lo, hi])) => (lo, hi),
         (None, None) => bail!("give the operating range with --speed MIN:MAX (rpm)"),
     };
-    if !(lo > 0.0 && hi >= lo) {
+    if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi >= lo) {
         bail!("--speed: give MIN:MAX rpm with 0 < MIN ≤ MAX");
     }
-    let orders: Vec<u32> = a
-        .orders
-        .split(',')
-        .map(|x| {
-            x.trim()
-                .parse()
-                .map_err(|_| anyhow!("--orders: cannot read {x:?}"))
-        })
-        .collect::<Result<_>>()?;
-    let mut res: Vec<(f64, Option<f64>, &str)> = Vec::new();
+    // The rule and orders: those given, else the model study's (as the report and the window
+    // use them), else the defaults.
+    let base = study.as_ref().map(|s| s.rule).unwrap_or_default();
+    let rule = MarginRule {
+        af_threshold: a.af_threshold.unwrap_or(base.af_threshold),
+        below_cap_pct: a.below_cap.unwrap_or(base.below_cap_pct),
+        above_cap_pct: a.above_cap.unwrap_or(base.above_cap_pct),
+        ..base
+    };
+    for (v, name) in [
+        (rule.af_threshold, "af-threshold"),
+        (rule.below_cap_pct, "below-cap"),
+        (rule.above_cap_pct, "above-cap"),
+    ] {
+        if !(v.is_finite() && (0.0..=1000.0).contains(&v)) {
+            bail!("--{name}: give a number between 0 and 1000, got {v}");
+        }
+    }
+    let orders: Vec<u32> = match &a.orders {
+        Some(t) => t
+            .split(',')
+            .map(|x| {
+                x.trim()
+                    .parse()
+                    .ok()
+                    .filter(|o| (1..=100).contains(o))
+                    .ok_or_else(|| anyhow!("--orders: cannot read {x:?} (orders 1 to 100)"))
+            })
+            .collect::<Result<_>>()?,
+        None => study
+            .as_ref()
+            .map(|s| s.orders.clone())
+            .filter(|o| !o.is_empty())
+            .unwrap_or_else(|| vec![1, 2]),
+    };
+    let mut lines: Vec<(&str, crate::model::margin::MarginCheck)> = Vec::new();
     if let Some(t) = &a.modes {
+        let mut given: Vec<(f64, Option<f64>)> = Vec::new();
         for item in t.split(',').filter(|x| !x.trim().is_empty()) {
             let mut it = item.split(':');
             let f: f64 = it
                 .next()
                 .and_then(|v| v.trim().parse().ok())
+                .filter(|f: &f64| f.is_finite() && *f > 0.0)
                 .ok_or_else(|| anyhow!("--modes: cannot read {item:?}; use F or F:ZETA"))?;
-            let z: Option<f64> = it
-                .next()
-                .map(|v| v.trim().parse())
-                .transpose()
-                .map_err(|_| anyhow!("--modes: cannot read {item:?}"))?;
-            res.push((f, z, "given"));
+            let z: Option<f64> = match it.next() {
+                None => None,
+                Some(v) => Some(
+                    v.trim()
+                        .parse()
+                        .map_err(|_| anyhow!("--modes: cannot read {item:?}; use F or F:ZETA"))?,
+                ),
+            };
+            if it.next().is_some() || z.is_some_and(|z| !(z.is_finite() && z > 0.0 && z < 1.0)) {
+                bail!("--modes: cannot read {item:?}; use F or F:ZETA with 0 < ZETA < 1");
+            }
+            given.push((f, z));
+        }
+        lines.extend(
+            check(&given, [lo, hi], &orders, &rule)
+                .into_iter()
+                .map(|c| ("given", c)),
+        );
+    }
+    let test = a
+        .test
+        .as_ref()
+        .map(|t| fitted(t, &a.setup).map(|(_, test)| test))
+        .transpose()?;
+    match (&study, &a.model) {
+        (Some(st), Some(p)) => {
+            // The model study decides the model's resonances and the measured ones' lines, with
+            // the range, rule and orders above: the same lines as the report and the window.
+            let mut st = st.clone();
+            st.running_speed_rpm = Some([lo, hi]);
+            st.rule = rule;
+            st.orders = orders.clone();
+            let r = crate::pipeline::study(&st, test.as_ref())
+                .map_err(|e| anyhow!("{}: {e}", p.display()))?;
+            for l in r.margins {
+                let source = match l.source {
+                    ResonanceSource::Measured => "measured",
+                    ResonanceSource::ModelInService => "model",
+                    ResonanceSource::ModelAsTested => "model",
+                };
+                lines.push((source, l.check));
+            }
+            for w in &r.warnings {
+                println!("note: {w}");
+            }
+        }
+        _ => {
+            if let Some(t) = &test {
+                let measured: Vec<(f64, Option<f64>)> =
+                    t.modes.iter().map(|m| (m.0, m.1)).collect();
+                lines.extend(
+                    check(&measured, [lo, hi], &orders, &rule)
+                        .into_iter()
+                        .map(|c| ("measured", c)),
+                );
+            }
         }
     }
-    if let Some(t) = &a.test {
-        let m = fitted(t, &SetupArgs::default())?;
-        for md in &m.modes {
-            res.push((md.frequency_hz, md.damping_ratio, "measured"));
-        }
-    }
-    if let (Some(p), Some(st)) = (&a.model, &study) {
-        let shaft = st.in_service().unwrap_or_else(|| st.shaft.clone());
-        let c = crate::model::run::converged_modes_to(
-            &shaft,
-            crate::model::beam::BeamTheory::Timoshenko,
-            crate::model::study::MODEL_MODES,
-            &[],
-            crate::model::study::STUDY_CONVERGED,
-        )
-        .map_err(|e| anyhow!("{}: {e}", p.display()))?;
-        for md in c.modes.iter().filter(|m| !m.rigid_body) {
-            res.push((md.frequency_hz, None, "model"));
-        }
-    }
-    if res.is_empty() {
+    if lines.is_empty() {
         bail!("give resonances with --modes, --test or --model");
     }
-    let rule = MarginRule {
-        af_threshold: a.af_threshold,
-        below_cap_pct: a.below_cap,
-        above_cap_pct: a.above_cap,
-        ..MarginRule::default()
-    };
-    let speeds: Vec<(f64, Option<f64>)> = res.iter().map(|r| (r.0, r.1)).collect();
-    let checks = check(&speeds, [lo, hi], &orders, &rule);
     println!(
         "source    f_hz      order  critical_rpm  AF      side    margin_%  required_%  verdict"
     );
-    for (c, r) in checks.iter().zip(
-        res.iter()
-            .flat_map(|r| std::iter::repeat_n(r, orders.len())),
-    ) {
+    for (source, c) in &lines {
         let side = match c.side {
             Side::Below => "below",
             Side::Inside => "INSIDE",
@@ -1208,7 +1267,7 @@ fn margin(a: MarginArgs) -> Result<()> {
         };
         println!(
             "{:8}  {:8.2}  {:5}  {:12.0}  {:6.1}  {:6}  {:8.1}  {:10.1}  {}",
-            r.2,
+            source,
             c.frequency_hz,
             c.order,
             c.critical_rpm,
@@ -1219,12 +1278,7 @@ fn margin(a: MarginArgs) -> Result<()> {
             if c.ok { "ok" } else { "TOO CLOSE" }
         );
     }
-    println!(
-        "Advisory only: the rule is API RP 684's as recalled from memory (confirm it against the \
-         edition in force); bench frequencies are not installed critical speeds (no gyroscopic \
-         effect, bench supports); the decision belongs to the applicable standard, local codes and \
-         a licensed engineer."
-    );
+    println!("{}", crate::cautions::MARGIN_NOTE);
     Ok(())
 }
 
@@ -1423,9 +1477,9 @@ fn verdict(a: VerdictArgs) -> Result<()> {
     };
     s.set_override(a.station, a.hit, v)
         .map_err(|m| anyhow!("{}: {m}", a.session.display()))?;
-    let data = Dataset::from_session(&s);
+    let data = s.dataset();
     let result = analysis::run(&data, &s.manifest.setup)?;
-    s.manifest.hits = result.saved_hits();
+    s.manifest.hits = crate::session::saved_hits(&result);
     s.save()?;
     print!("{}", report::summary(&result));
     Ok(())

@@ -23,12 +23,15 @@
 pub mod acquire;
 pub mod analysis;
 pub mod app;
+pub mod atomic;
 pub mod capture;
 pub mod cautions;
 pub mod cli;
+pub mod estimate;
 pub mod modal;
 pub mod model;
 pub mod numeric;
+pub mod pipeline;
 pub mod reduce;
 pub mod report;
 pub mod session;

@@ -232,7 +232,7 @@ fn captured_hits_are_the_fed_samples_and_give_the_same_frf() {
     let cb: Vec<f32> = cap.b.iter().map(|&v| v as f32).collect();
     let off = offset(&ca, &a);
     assert!(off >= 0, "capture started after the first hit");
-    let data = Dataset::from_session(&s);
+    let data = s.dataset();
     let got = analysis::run(&data, &s.manifest.setup).unwrap();
     let hits = &got.stations[0].result.hits;
     assert_eq!(hits.len(), 3);

@@ -19,7 +19,7 @@ use tapgrid::Complex64;
 use tapgrid::acquire::wav::SampleEncoding;
 use tapgrid::acquire::wavset::WavSet;
 use tapgrid::analysis::{self, Analysis, Dataset};
-use tapgrid::modal::shape::mac;
+use tapgrid::estimate::shape::mac;
 use tapgrid::modal::{FrfSet, ModalResult, ModalSettings, extract};
 use tapgrid::model::beam::{Disc, Material, Section, Shaft, Support};
 use tapgrid::setup::{Layout, Setup};

@@ -11,7 +11,7 @@ use tapgrid::Complex64;
 use tapgrid::acquire::wav::SampleEncoding;
 use tapgrid::acquire::wavset::{PositionSource, WavSet};
 use tapgrid::analysis::{self, Analysis, Dataset, StationAnalysis};
-use tapgrid::modal::shape::{mac, mac_real};
+use tapgrid::estimate::shape::{mac, mac_real};
 use tapgrid::modal::{FrfSet, Method, ModalResult, ModalSettings, extract};
 use tapgrid::model::beam::{Material, Section, Shaft, Support};
 use tapgrid::setup::{Layout, Setup};

@@ -427,3 +427,56 @@ fn a_model_saved_in_a_session_serves_correlate_and_margin() {
         .code(2)
         .stderr(predicate::str::contains("not a tapgrid session"));
 }
+
+/// `tapgrid margin --model` on a shaft file with a study of its own (range, orders, rule) checks
+/// the same lines as the study that the report and the window show: the study's order 1 only and
+/// its caps, not the command's defaults. (A consistency check between two views; the rule itself
+/// is checked by hand in `margin_command_by_hand`.)
+#[test]
+fn margin_command_uses_the_study_rule_and_orders() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut study = tapgrid::model::study::Study::new(bar(D, L, vec![]));
+    study.running_speed_rpm = Some([2900.0, 3100.0]);
+    study.orders = vec![1];
+    study.rule.below_cap_pct = 12.0;
+    // The study's values travel in a session, so the command must take them from the model
+    // and not from its own defaults.
+    let session = dir.path().join("s");
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .args(["simulate", "--stations", "5", "--hits", "2", "--out"])
+        .arg(dir.path().join("wav"))
+        .assert()
+        .success();
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("import")
+        .arg(dir.path().join("wav"))
+        .arg("--session")
+        .arg(&session)
+        .assert()
+        .success();
+    let mut s = tapgrid::session::Session::open(&session).unwrap();
+    s.manifest.model = Some(study.clone());
+    s.save().unwrap();
+    let out = Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("margin")
+        .arg("--model")
+        .arg(&session)
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    let expected = tapgrid::pipeline::study(&study, None).unwrap().margins;
+    let rows: Vec<&str> = text.lines().filter(|l| l.starts_with("model")).collect();
+    assert_eq!(rows.len(), expected.len(), "{text}");
+    for (row, m) in rows.iter().zip(&expected) {
+        let cols: Vec<&str> = row.split_whitespace().collect();
+        assert_eq!(cols[2], "1", "order: {row}");
+        let req: f64 = cols[7].parse().unwrap();
+        assert!((req - m.check.required_pct).abs() < 0.06, "{row} vs {m:?}");
+    }
+}

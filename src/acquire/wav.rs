@@ -120,13 +120,14 @@ fn info_of<R: std::io::Read>(path: &Path, r: &hound::WavReader<R>) -> Result<Wav
     })
 }
 
-/// Takes two channels (at byte offsets `oa`, `ob` in each frame) out of interleaved sample data.
+/// Takes two channels (at byte offsets `oa`, `ob` in each frame) out of interleaved sample data;
+/// only the first when `ob` is `None` (`cb` is then left empty).
 #[allow(clippy::too_many_arguments)]
 fn deinterleave<F: Fn(&[u8]) -> f64>(
     data: &[u8],
     stride: usize,
     oa: usize,
-    ob: usize,
+    ob: Option<usize>,
     ca: &mut Vec<f64>,
     cb: &mut Vec<f64>,
     scale: f64,
@@ -135,10 +136,15 @@ fn deinterleave<F: Fn(&[u8]) -> f64>(
     ca.clear();
     cb.clear();
     ca.reserve(data.len() / stride);
-    cb.reserve(data.len() / stride);
-    for f in data.chunks_exact(stride) {
-        ca.push(get(&f[oa..]) * scale);
-        cb.push(get(&f[ob..]) * scale);
+    match ob {
+        Some(ob) => {
+            cb.reserve(data.len() / stride);
+            for f in data.chunks_exact(stride) {
+                ca.push(get(&f[oa..]) * scale);
+                cb.push(get(&f[ob..]) * scale);
+            }
+        }
+        None => ca.extend(data.chunks_exact(stride).map(|f| get(&f[oa..]) * scale)),
     }
 }
 
@@ -208,6 +214,39 @@ impl Decoder {
         b: usize,
         non_finite: NonFinite,
     ) -> Result<WavInfo, InputError> {
+        self.decode_channels(path, a, Some(b), non_finite)
+    }
+
+    /// Decodes channel `a` only into `self.a` (`self.b` is left empty): what a scan for taps
+    /// needs, at half the cost. `b` is still checked against the file's channel count.
+    pub fn decode_first(
+        &mut self,
+        path: &Path,
+        a: usize,
+        b: usize,
+        non_finite: NonFinite,
+    ) -> Result<WavInfo, InputError> {
+        let info = self.decode_channels(path, a, None, non_finite)?;
+        if b >= info.channels {
+            return Err(InputError::new(
+                path,
+                format!(
+                    "channel B index {b} is out of range: the file has {} channels (0..{})",
+                    info.channels,
+                    info.channels - 1
+                ),
+            ));
+        }
+        Ok(info)
+    }
+
+    fn decode_channels(
+        &mut self,
+        path: &Path,
+        a: usize,
+        b: Option<usize>,
+        non_finite: NonFinite,
+    ) -> Result<WavInfo, InputError> {
         use std::io::Read;
         self.bytes.clear();
         std::fs::File::open(path)
@@ -229,7 +268,7 @@ fn decode_bytes(
     path: &Path,
     bytes: &[u8],
     a: usize,
-    b: usize,
+    b: Option<usize>,
     ca: &mut Vec<f64>,
     cb: &mut Vec<f64>,
     non_finite: NonFinite,
@@ -238,7 +277,7 @@ fn decode_bytes(
         let r = hound::WavReader::new(std::io::Cursor::new(bytes))
             .map_err(|e| InputError::new(path, describe(e)))?;
         let info = info_of(path, &r)?;
-        for (name, idx) in [("A", a), ("B", b)] {
+        for (name, idx) in [("A", a), ("B", b.unwrap_or(a))] {
             if idx >= info.channels {
                 return Err(InputError::new(
                     path,
@@ -275,7 +314,7 @@ fn decode_bytes(
         }
         let data = &bytes[off..off + len];
         let frames = len / stride;
-        let (oa, ob) = (a * width, b * width);
+        let (oa, ob) = (a * width, b.map(|b| b * width));
         match info.encoding {
             SampleEncoding::Int16 => {
                 deinterleave(data, stride, oa, ob, ca, cb, 1.0 / 32768.0, |x| {
@@ -335,7 +374,7 @@ pub fn write_channels(
         bits_per_sample: bits,
         sample_format: fmt,
     };
-    crate::session::atomic::write_with(path, |file| {
+    crate::atomic::write_with(path, |file| {
         let mut w = hound::WavWriter::new(std::io::BufWriter::new(file), spec)
             .map_err(|e| std::io::Error::other(e.to_string()))?;
         let map = |e: hound::Error| std::io::Error::other(e.to_string());

@@ -142,11 +142,11 @@ impl TapgridApp {
                 let same = self.doc.as_ref().is_some_and(|d| d.path == dir);
                 if same {
                     if let Some(d) = &mut self.doc {
-                        d.data = crate::analysis::Dataset::from_session(&s);
+                        d.data = s.dataset();
                         d.session = Some(s);
                     }
                 } else {
-                    let data = crate::analysis::Dataset::from_session(&s);
+                    let data = s.dataset();
                     self.doc = Some(super::Document::new(dir.clone(), data, Some(s), false));
                 }
                 if self

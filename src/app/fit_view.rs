@@ -6,8 +6,8 @@ use egui_plot::{Line, MarkerShape, Plot, Points, Span, VLine};
 
 use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
 use super::{Command, TapgridApp};
+use crate::estimate::lscf::{PoleStatus, Stabilization};
 use crate::modal::ModalResult;
-use crate::modal::lscf::{PoleStatus, Stabilization};
 
 /// For each mode of a result, the diagram pole it most likely came from: the best-status,
 /// highest-order pole within 1 % (or two lines) of the mode's measured frequency.

@@ -273,19 +273,11 @@ impl Document {
     /// The fitted modes as the model study takes them (real shapes at the stations).
     pub fn test_modes(&self) -> Option<TestModes> {
         let m = self.modal.as_ref()?;
-        let lines = self.frfs.as_ref().map(|f| {
-            [
-                f.freq_hz.first().copied().unwrap_or(0.0),
-                f.freq_hz.last().copied().unwrap_or(0.0),
-            ]
-        });
-        let band = self
-            .modal_settings
-            .band_hz
-            .or(self.setup.band_hz)
-            .or(lines)
-            .unwrap_or([0.0, f64::INFINITY]);
-        Some(TestModes::from_modal(m, band))
+        Some(crate::pipeline::test_modes(
+            &self.modal_settings,
+            &self.setup,
+            m,
+        ))
     }
 
     /// Index of a station in the dataset.
@@ -315,7 +307,7 @@ impl Document {
             st.label = self.labels.get(&st.station).cloned();
         }
         if let Some(a) = &self.analysis {
-            s.manifest.hits = a.saved_hits();
+            s.manifest.hits = crate::session::saved_hits(a);
         }
         s.manifest.model = self.study.clone();
         s.manifest.fit =
@@ -1037,7 +1029,7 @@ impl TapgridApp {
             Outcome::Saved(s) => {
                 let dir = s.dir.clone();
                 if let Some(d) = &mut self.doc {
-                    d.data = Dataset::from_session(&s);
+                    d.data = s.dataset();
                     d.path = dir.clone();
                     d.session = Some(*s);
                     d.read_only = false;
@@ -1371,7 +1363,7 @@ impl TapgridApp {
                 return;
             }
         };
-        match crate::session::atomic::write_bytes(path, text.as_bytes()) {
+        match crate::atomic::write_bytes(path, text.as_bytes()) {
             Ok(()) => self.note(format!("wrote {}", path.display()), false),
             Err(e) => self.note(format!("{}: cannot write: {e}", path.display()), true),
         }
@@ -1410,7 +1402,7 @@ impl TapgridApp {
             let hits = d
                 .analysis
                 .as_ref()
-                .map(|a| a.saved_hits())
+                .map(|a| crate::session::saved_hits(a))
                 .unwrap_or_default();
             self.worker.send(Job::CreateSession {
                 wavset: d.data.origin.clone(),

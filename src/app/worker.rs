@@ -9,9 +9,9 @@ use std::sync::mpsc::{Receiver, Sender, SyncSender};
 
 use crate::acquire::wav::Decoder;
 use crate::analysis::{self, Analysis, Dataset};
-use crate::modal::lscf::Stabilization;
+use crate::estimate::lscf::Stabilization;
 use crate::modal::{self, FrfSet, ModalResult, ModalSettings};
-use crate::model::study::{Study, StudyResult, TestModes, evaluate};
+use crate::model::study::{Study, StudyResult, TestModes};
 use crate::session::Session;
 use crate::setup::Setup;
 use crate::signal::{HitReport, HitTraces, hit_traces};
@@ -327,7 +327,7 @@ fn work(jobs: Receiver<Job>, out: SyncSender<Outcome>, latest: Latest, repaint: 
                 } else {
                     Outcome::Studied {
                         generation,
-                        result: evaluate(&study, test.as_ref()).map(Arc::new),
+                        result: crate::pipeline::study(&study, test.as_ref()).map(Arc::new),
                     }
                 }
             }
@@ -355,7 +355,7 @@ fn work(jobs: Receiver<Job>, out: SyncSender<Outcome>, latest: Latest, repaint: 
 }
 
 fn open(path: PathBuf) -> Outcome {
-    match Dataset::open(&path, Setup::default().spacing_m) {
+    match crate::pipeline::open_dataset(&path, Setup::default().spacing_m) {
         Ok((data, session)) => Outcome::Opened {
             path,
             data,

@@ -1,17 +1,11 @@
 //! Modal extraction: mode indicators, peak picking with quadrature sign, half-power damping, the
 //! global LSCF fit with its stabilization diagram, automatic pole choice, LSFD residues and shapes.
 
-pub mod autospectrum;
-pub mod circle;
-pub mod lscf;
-pub mod lsfd;
-pub mod refine;
-pub mod shape;
-
 use serde::{Deserialize, Serialize};
 
 use crate::Complex64;
 use crate::analysis::Analysis;
+use crate::estimate::{autospectrum, circle, lscf, lsfd, refine, shape};
 use crate::setup::Layout;
 use crate::signal::window::correct_damping;
 use lscf::{Pole, PoleStatus, StabilityCriteria, Stabilization};
@@ -1087,12 +1081,10 @@ fn fit_chosen(
             .collect();
         refine::refine_poles(&set.freq_hz, &set.h, &local, &mut lambdas, set.exp_tau_s);
     }
-    let mut fits = Vec::with_capacity(set.h.len());
-    for (o, (h, wo)) in set.h.iter().zip(w).enumerate() {
-        let fit = lsfd::fit_output(&set.freq_hz, h, wo, &lambdas, set.exp_tau_s)
-            .ok_or_else(|| format!("station {}: the residue fit is singular", set.stations[o]))?;
-        fits.push(fit);
-    }
+    let hs: Vec<&[Complex64]> = set.h.iter().map(Vec::as_slice).collect();
+    let ws: Vec<&[f64]> = w.iter().map(Vec::as_slice).collect();
+    let fits = lsfd::fit_outputs(&set.freq_hz, &hs, &ws, &lambdas, set.exp_tau_s)
+        .map_err(|o| format!("station {}: the residue fit is singular", set.stations[o]))?;
     for (r, &(pi, size)) in chosen.iter().enumerate() {
         let pole = &poles[pi];
         let raw: Vec<Complex64> = local_residues(set, w, &lambdas, r)
@@ -1168,20 +1160,11 @@ fn local_residues(
     if k1 < k0 + 4 * (2 * local.len() + 2) {
         return None;
     }
-    set.h
-        .iter()
-        .zip(w)
-        .map(|(h, wo)| {
-            lsfd::fit_output(
-                &set.freq_hz[k0..k1],
-                &h[k0..k1],
-                &wo[k0..k1],
-                &local,
-                set.exp_tau_s,
-            )
-            .map(|fit| fit.residues[at])
-        })
-        .collect()
+    let hs: Vec<&[Complex64]> = set.h.iter().map(|h| &h[k0..k1]).collect();
+    let ws: Vec<&[f64]> = w.iter().map(|wo| &wo[k0..k1]).collect();
+    lsfd::fit_outputs(&set.freq_hz[k0..k1], &hs, &ws, &local, set.exp_tau_s)
+        .ok()
+        .map(|fits| fits.iter().map(|fit| fit.residues[at]).collect())
 }
 
 /// Manual choice: modes from poles a person picked in the stabilization diagram (indices into

@@ -4,7 +4,7 @@ use serde::Serialize;
 
 use super::beam::{BeamTheory, Shaft};
 use super::run::{converged_modes, interpolate};
-use crate::modal::shape::mac_real;
+use crate::estimate::shape::mac_real;
 
 /// A paired test and model mode.
 #[derive(Debug, Clone, PartialEq, Serialize)]

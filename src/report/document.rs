@@ -101,7 +101,7 @@ pub fn write_html(path: &Path, r: &ReportInput) -> Result<(), InputError> {
         std::fs::create_dir_all(dir)
             .map_err(|e| InputError::new(dir, format!("cannot create folder: {e}")))?;
     }
-    crate::session::atomic::write_bytes(path, html(r).as_bytes())
+    crate::atomic::write_bytes(path, html(r).as_bytes())
         .map_err(|e| InputError::new(path, format!("cannot write: {e}")))
 }
 

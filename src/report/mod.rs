@@ -11,9 +11,9 @@ use serde::Serialize;
 use crate::acquire::InputError;
 use crate::acquire::wavset::PositionSource;
 use crate::analysis::Analysis;
-use crate::modal::lscf::Stabilization;
+use crate::atomic;
+use crate::estimate::lscf::Stabilization;
 use crate::modal::{DampingSource, Method, ModalResult};
-use crate::session::atomic;
 use crate::setup::Setup;
 
 /// Header of `frf.csv` (a stable interface).
@@ -350,20 +350,41 @@ pub fn result_json(a: &Analysis, m: &ModalResult) -> String {
 
 /// Writes `frf.csv` and `result.json` into `dir` (created if needed), atomically.
 pub fn write_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<(), InputError> {
+    write_frf_csv(a, dir)?;
+    write_fit_outputs(a, m, dir)
+}
+
+/// Writes `frf.csv` into `dir` (created if needed), atomically. It depends on the FRFs only, so
+/// a caller may write it while the modal fit runs.
+pub fn write_frf_csv(a: &Analysis, dir: &Path) -> Result<(), InputError> {
     std::fs::create_dir_all(dir)
         .map_err(|e| InputError::new(dir, format!("cannot create output folder: {e}")))?;
     let t = std::time::Instant::now();
     let csv = frf_csv_blocks(a);
     let t1 = t.elapsed();
-    let json = result_json(a, m);
-    let t2 = t.elapsed();
     let p = dir.join("frf.csv");
-    atomic::write_with(&p, |f| {
+    atomic::write_derived_with(&p, |f| {
         use std::io::Write as _;
         csv.iter().try_for_each(|b| f.write_all(b.as_bytes()))
     })
     .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
-    let mut files = vec![("result.json", json)];
+    if std::env::var_os("TAPGRID_TIMING").is_some() {
+        eprintln!(
+            "timing: frf.csv text {:.3} s, write {:.3} s",
+            t1.as_secs_f64(),
+            (t.elapsed() - t1).as_secs_f64()
+        );
+    }
+    Ok(())
+}
+
+/// Writes `result.json` and the fit's tables (stabilization, indicators, synthesized FRFs)
+/// into `dir` (created if needed), atomically.
+pub fn write_fit_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<(), InputError> {
+    std::fs::create_dir_all(dir)
+        .map_err(|e| InputError::new(dir, format!("cannot create output folder: {e}")))?;
+    let t = std::time::Instant::now();
+    let mut files = vec![("result.json", result_json(a, m))];
     if let Some(st) = &m.stabilization {
         files.push(("stabilization.csv", stabilization_csv(st)));
     }
@@ -373,16 +394,11 @@ pub fn write_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<(), In
     }
     for (name, text) in files {
         let p = dir.join(name);
-        atomic::write_bytes(&p, text.as_bytes())
+        atomic::write_derived(&p, text.as_bytes())
             .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
     }
     if std::env::var_os("TAPGRID_TIMING").is_some() {
-        eprintln!(
-            "timing: frf.csv text {:.3} s, result.json text {:.3} s, atomic writes {:.3} s",
-            t1.as_secs_f64(),
-            (t2 - t1).as_secs_f64(),
-            (t.elapsed() - t2).as_secs_f64()
-        );
+        eprintln!("timing: fit outputs {:.3} s", t.elapsed().as_secs_f64());
     }
     Ok(())
 }

@@ -1,8 +1,6 @@
 //! The saved test: a folder with `session.json` (the manifest), `raw/` recordings that are never
 //! modified after capture or import, and derived results. Every write is atomic.
 
-pub mod atomic;
-
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
@@ -11,6 +9,7 @@ use serde::{Deserialize, Serialize};
 use crate::acquire::InputError;
 use crate::acquire::wav::{SampleEncoding, probe};
 use crate::acquire::wavset::{PositionSource, WavSet};
+use crate::analysis::{Analysis, Dataset, StationSource};
 use crate::model::study::Study;
 use crate::setup::Setup;
 use crate::signal::Reason;
@@ -225,7 +224,7 @@ impl Session {
         for s in &set.stations {
             let name = format!("station-{:03}.wav", s.station);
             let dst = raw.join(&name);
-            let bytes = atomic::copy_file(&s.path, &dst)
+            let bytes = crate::atomic::copy_file(&s.path, &dst)
                 .map_err(|e| InputError::new(&dst, format!("cannot copy recording: {e}")))?;
             let info = probe(&dst)?;
             recordings.push(Recording {
@@ -257,7 +256,7 @@ impl Session {
         let path = self.dir.join(MANIFEST);
         let text = serde_json::to_string_pretty(&self.manifest)
             .map_err(|e| InputError::new(&path, format!("cannot encode manifest: {e}")))?;
-        atomic::write_bytes(&path, text.as_bytes())
+        crate::atomic::write_bytes(&path, text.as_bytes())
             .map_err(|e| InputError::new(&path, format!("cannot write: {e}")))
     }
 
@@ -276,7 +275,7 @@ impl Session {
                 std::fs::create_dir_all(parent)
                     .map_err(|e| InputError::new(parent, format!("cannot create folder: {e}")))?;
             }
-            let n = atomic::copy_file(&self.dir.join(&r.file), &dst)
+            let n = crate::atomic::copy_file(&self.dir.join(&r.file), &dst)
                 .map_err(|e| InputError::new(&dst, format!("cannot copy recording: {e}")))?;
             if n != r.bytes {
                 return Err(InputError::new(
@@ -293,6 +292,33 @@ impl Session {
         Ok(copy)
     }
 
+    /// The test to analyse: every station's recording with its saved overrides.
+    pub fn dataset(&self) -> Dataset {
+        let ov = self.overrides();
+        let stations = self
+            .manifest
+            .stations
+            .iter()
+            .filter_map(|st| {
+                let rec = self
+                    .manifest
+                    .recordings
+                    .iter()
+                    .find(|r| r.station == st.station)?;
+                Some(StationSource {
+                    station: st.station,
+                    position_m: st.position_m,
+                    position_source: st.position_source,
+                    path: self.dir.join(&rec.file),
+                    overrides: ov.get(&st.station).cloned().unwrap_or_default(),
+                })
+            })
+            .collect();
+        Dataset {
+            stations,
+            origin: self.dir.clone(),
+        }
+    }
     /// Overrides saved for each station: hit index → accept.
     pub fn overrides(&self) -> BTreeMap<u32, BTreeMap<usize, bool>> {
         let mut out: BTreeMap<u32, BTreeMap<usize, bool>> = BTreeMap::new();
@@ -346,6 +372,23 @@ fn migrate(value: serde_json::Value) -> Result<serde_json::Value, String> {
         )),
         None => Err("has no schema_version".into()),
     }
+}
+
+/// An analysis's hits in the form saved in a session manifest.
+pub fn saved_hits(a: &Analysis) -> Vec<SavedHit> {
+    a.stations
+        .iter()
+        .flat_map(|s| {
+            s.result.hits.iter().map(move |h| SavedHit {
+                station: s.station,
+                index: h.index,
+                time_s: h.time_s,
+                accepted: h.accepted,
+                reasons: h.reasons.clone(),
+                override_accept: h.override_accept,
+            })
+        })
+        .collect()
 }
 
 #[cfg(test)]

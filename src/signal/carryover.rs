@@ -12,7 +12,7 @@ use nalgebra::{DMatrix, DVector};
 use super::frf::SpectrumPlan;
 use super::window::{apply_exponential, exponential_tau_s};
 use crate::Complex64;
-use crate::modal::lscf::{PoleStatus, StabilityCriteria, stabilization};
+use crate::estimate::lscf::{PoleStatus, StabilityCriteria, stabilization_from};
 
 /// Where a hit's pulse lies in the recording (sample indices).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -176,7 +176,8 @@ fn decay_poles(
     if order < 4 {
         return None;
     }
-    let st = stabilization(&freq, &h, &w, order, StabilityCriteria::default()).ok()?;
+    // Only the highest order's poles are used (and the one below, to classify them).
+    let st = stabilization_from(&freq, &h, &w, order, order, StabilityCriteria::default()).ok()?;
     // Poles stable at the highest orders: take those of the last order whose status is stable.
     let top = st.poles.iter().map(|p| p.order).max()?;
     let poles: Vec<Complex64> = st
@@ -220,28 +221,27 @@ fn fit_and_extrapolate(
     let step = (m / 2000).max(1);
     let rows: Vec<usize> = (anchor - m..anchor).step_by(step).collect();
     let cols = 2 * poles.len() + 1;
-    let basis = |i: usize| -> Vec<f64> {
-        let t = (i as f64 - anchor as f64) * dt;
-        let mut b = Vec::with_capacity(cols);
-        for l in poles {
-            let e = (l * t).exp();
-            b.push(e.re);
-            b.push(e.im);
-        }
-        b.push(1.0);
-        b
-    };
-    let mut ata = DMatrix::<f64>::zeros(cols, cols);
-    let mut atb = DVector::<f64>::zeros(cols);
-    for &i in &rows {
-        let b = basis(i);
-        for r in 0..cols {
-            atb[r] += b[r] * x[i];
-            for c in 0..cols {
-                ata[(r, c)] += b[r] * b[c];
+    // The basis at equally spaced rows by recurrence (restarted from the exact value every 256
+    // rows), as for the extrapolation below; the normal equations by one matrix product.
+    let mut basis = DMatrix::<f64>::zeros(rows.len(), cols);
+    let t0 = (rows[0] as f64 - anchor as f64) * dt;
+    for (r, l) in poles.iter().enumerate() {
+        let mult = (l * (step as f64 * dt)).exp();
+        let mut e = Complex64::new(0.0, 0.0);
+        for k in 0..rows.len() {
+            if k % 256 == 0 {
+                e = (l * (t0 + (k * step) as f64 * dt)).exp();
+            } else {
+                e *= mult;
             }
+            basis[(k, 2 * r)] = e.re;
+            basis[(k, 2 * r + 1)] = e.im;
         }
     }
+    basis.column_mut(cols - 1).fill(1.0);
+    let y = DVector::<f64>::from_iterator(rows.len(), rows.iter().map(|&i| x[i]));
+    let ata = basis.tr_mul(&basis);
+    let atb = basis.tr_mul(&y);
     let coef = crate::numeric::svd_solve(ata, &atb, 1e-12)?;
     // The model over the record by recurrence, e^{λ(t+Δt)} = e^{λt}·e^{λΔt}, started afresh from
     // the exact value every 1024 samples so round-off cannot build up: one complex product per

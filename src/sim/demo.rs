@@ -62,7 +62,7 @@ pub fn make_demo(dir: &Path) -> Result<(), InputError> {
     let result = analysis::run(&Dataset::from_wavset(&set), &m.setup)?;
     let _ = std::fs::remove_dir_all(dir);
     let mut s = Session::import_wavset(&set, dir, m.setup.clone(), m.part.clone())?;
-    s.manifest.hits = result.saved_hits();
+    s.manifest.hits = crate::session::saved_hits(&result);
     s.manifest.model = m.model.clone();
     s.save()?;
     let _ = std::fs::remove_dir_all(&set_dir);

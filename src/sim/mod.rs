@@ -16,8 +16,8 @@ use serde::{Deserialize, Serialize};
 use crate::Complex64;
 use crate::acquire::InputError;
 use crate::acquire::wav::{SampleEncoding, write_channels};
+use crate::atomic;
 use crate::model::beam::{BeamTheory, Material, Section, Shaft, Support};
-use crate::session::atomic;
 use crate::setup::Layout;
 
 const TAU: f64 = 2.0 * std::f64::consts::PI;

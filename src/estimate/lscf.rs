@@ -91,6 +91,43 @@ pub struct Stabilization {
     pub max_order: usize,
 }
 
+/// One output's share of the reduced normal equations from its sums over lines
+/// r_d = Σ W²·Re z^d, s_d = Re Σ W²·H·z^d, u_d = Re Σ W²·H*·z^d, t_d = Σ W²|H|²·Re z^d:
+/// the Cholesky factor L of R_o, L⁻¹S_o, and T_o.
+#[allow(clippy::type_complexity)]
+fn output_factor(
+    o: usize,
+    r: &[f64],
+    s: &[f64],
+    u: &[f64],
+    t: &[f64],
+    np: usize,
+) -> Result<(DMatrix<f64>, DMatrix<f64>, DMatrix<f64>), String> {
+    let rm = DMatrix::from_fn(np, np, |i, j| r[i.abs_diff(j)]);
+    let sm = DMatrix::from_fn(np, np, |i, j| if j >= i { -s[j - i] } else { -u[i - j] });
+    let tm = DMatrix::from_fn(np, np, |i, j| t[i.abs_diff(j)]);
+    // A narrow band far from 0 Hz leaves R_o numerically singular at high orders; a tiny ridge
+    // keeps the low orders exact, and the high orders' poles then fail the stability tests.
+    let top = (0..np).map(|i| rm[(i, i)]).fold(0.0f64, f64::max);
+    let chol = [0.0, 1e-13, 1e-11, 1e-9]
+        .iter()
+        .find_map(|&ridge| {
+            let mut m = rm.clone();
+            for i in 0..np {
+                m[(i, i)] += ridge * top;
+            }
+            m.cholesky()
+        })
+        .ok_or_else(|| {
+            format!("output {o}: the weighted basis is singular (too few valid lines?)")
+        })?;
+    let l = chol.l();
+    let x = l
+        .solve_lower_triangular(&sm)
+        .ok_or_else(|| format!("output {o}: singular factor"))?;
+    Ok((l, x, tm))
+}
+
 /// Runs LSCF for orders 1..=`max_order` on FRFs `h[o][k]` at `freq_hz[k]` with per-line weights
 /// `weight[o][k]` (W, not W²). Poles outside the band or unstable are dropped.
 ///
@@ -100,6 +137,23 @@ pub fn stabilization(
     freq_hz: &[f64],
     h: &[Vec<Complex64>],
     weight: &[Vec<f64>],
+    max_order: usize,
+    criteria: StabilityCriteria,
+) -> Result<Stabilization, String> {
+    stabilization_from(freq_hz, h, weight, 1, max_order, criteria)
+}
+
+/// [`stabilization`] for orders `first_order..=max_order` only (the order below `first_order` is
+/// solved too, so that the first order's poles are classified): for a caller that needs the
+/// poles of the highest orders, not a diagram.
+///
+/// # Panics
+/// If the arrays disagree in size (a bug in the caller).
+pub fn stabilization_from(
+    freq_hz: &[f64],
+    h: &[Vec<Complex64>],
+    weight: &[Vec<f64>],
+    first_order: usize,
     max_order: usize,
     criteria: StabilityCriteria,
 ) -> Result<Stabilization, String> {
@@ -129,53 +183,44 @@ pub fn stabilization(
         .collect();
     let np = max_order + 1;
 
-    // Per output: R_o (to factor), X_o = L⁻¹S_o, and ΣT_o.
-    let mut tsum = DMatrix::<f64>::zeros(np, np);
-    let mut factors: Vec<(DMatrix<f64>, DMatrix<f64>)> = Vec::with_capacity(no);
+    // Per output: R_o (to factor), X_o = L⁻¹S_o, and T_o (summed). Their entries are sums over
+    // lines of powers of z times W², W²H and W²|H|² — for every output at once, one product of
+    // the powers [Re z^d; Im z^d] (2·np × lines) with those columns (lines × 4·outputs).
+    let mut powers = DMatrix::<f64>::zeros(2 * np, nf);
+    for (k, &zk) in z.iter().enumerate() {
+        let mut zp = Complex64::new(1.0, 0.0);
+        for d in 0..np {
+            powers[(d, k)] = zp.re;
+            powers[(np + d, k)] = zp.im;
+            zp *= zk;
+        }
+    }
+    let mut data = DMatrix::<f64>::zeros(nf, 4 * no);
     for o in 0..no {
-        let mut r = vec![Complex64::new(0.0, 0.0); np];
-        let mut s = vec![Complex64::new(0.0, 0.0); np];
-        let mut u = vec![Complex64::new(0.0, 0.0); np];
-        let mut t = vec![Complex64::new(0.0, 0.0); np];
         for k in 0..nf {
             let w2 = weight[o][k] * weight[o][k];
             let hk = h[o][k];
-            let (a, b, c) = (w2 * hk, w2 * hk.conj(), w2 * hk.norm_sqr());
-            let mut zp = Complex64::new(1.0, 0.0);
-            for d in 0..np {
-                r[d] += zp * w2;
-                s[d] += zp * a;
-                u[d] += zp * b;
-                t[d] += zp * c;
-                zp *= z[k];
-            }
+            data[(k, 4 * o)] = w2;
+            data[(k, 4 * o + 1)] = w2 * hk.re;
+            data[(k, 4 * o + 2)] = w2 * hk.im;
+            data[(k, 4 * o + 3)] = w2 * hk.norm_sqr();
         }
-        let rm = DMatrix::from_fn(np, np, |i, j| r[i.abs_diff(j)].re);
-        let sm = DMatrix::from_fn(
-            np,
-            np,
-            |i, j| if j >= i { -s[j - i].re } else { -u[i - j].re },
-        );
-        tsum += DMatrix::from_fn(np, np, |i, j| t[i.abs_diff(j)].re);
-        // A narrow band far from 0 Hz leaves R_o numerically singular at high orders; a tiny ridge
-        // keeps the low orders exact, and the high orders' poles then fail the stability tests.
-        let top = (0..np).map(|i| rm[(i, i)]).fold(0.0f64, f64::max);
-        let chol = [0.0, 1e-13, 1e-11, 1e-9]
-            .iter()
-            .find_map(|&ridge| {
-                let mut m = rm.clone();
-                for i in 0..np {
-                    m[(i, i)] += ridge * top;
-                }
-                m.cholesky()
-            })
-            .ok_or_else(|| {
-                format!("output {o}: the weighted basis is singular (too few valid lines?)")
-            })?;
-        let l = chol.l();
-        let x = l
-            .solve_lower_triangular(&sm)
-            .ok_or_else(|| format!("output {o}: singular factor"))?;
+    }
+    let sums = &powers * &data;
+    let per_output = (0..no).map(|o| {
+        let col = |c: usize, row0: usize| -> Vec<f64> {
+            (0..np).map(|d| sums[(row0 + d, 4 * o + c)]).collect()
+        };
+        let (re_h, im_h) = (col(1, 0), col(2, np));
+        let s: Vec<f64> = re_h.iter().zip(&im_h).map(|(a, b)| a - b).collect();
+        let u: Vec<f64> = re_h.iter().zip(&im_h).map(|(a, b)| a + b).collect();
+        output_factor(o, &col(0, 0), &s, &u, &col(3, 0), np)
+    });
+    let mut tsum = DMatrix::<f64>::zeros(np, np);
+    let mut factors: Vec<(DMatrix<f64>, DMatrix<f64>)> = Vec::with_capacity(no);
+    for f in per_output {
+        let (l, x, t) = f?;
+        tsum += t;
         factors.push((l, x));
     }
 
@@ -193,7 +238,7 @@ pub fn stabilization(
             gsum.ger(1.0, &row.transpose(), &row.transpose(), 1.0);
         }
         let p = i;
-        if p == 0 {
+        if p == 0 || p + 1 < first_order {
             continue;
         }
         let m = (tsum.view((0, 0), (p + 1, p + 1)) - gsum.view((0, 0), (p + 1, p + 1))) * 2.0;
@@ -261,7 +306,9 @@ pub fn stabilization(
         for pole in &mut here {
             pole.status = classify(pole, &prev, criteria);
         }
-        out.poles.extend(here.iter().cloned());
+        if p >= first_order {
+            out.poles.extend(here.iter().cloned());
+        }
         prev = here;
     }
     Ok(out)

@@ -7,7 +7,7 @@
 //! The local fit minimises the true FRF error where the mode lives (a nonlinear least squares over
 //! two parameters per pole, by Nelder–Mead).
 
-use super::lsfd::shared_weighted_residual;
+use super::lsfd::LocalBand;
 use crate::Complex64;
 
 const TAU: f64 = 2.0 * std::f64::consts::PI;
@@ -117,11 +117,11 @@ fn refine_one(
             if m > 0.0 { o / m } else { 1.0 }
         })
         .collect();
+    let band = LocalBand::new(freq_hz, h, lo..hi, &line_w, &out_scale);
     let objective = |ls: f64, wd: f64| -> f64 {
         let mut poles: Vec<Complex64> = near.iter().map(|&q| lambda[q]).collect();
         poles.push(Complex64::new(-ls.exp(), wd));
-        shared_weighted_residual(freq_hz, h, lo..hi, &line_w, &out_scale, &poles, exp_tau_s)
-            .unwrap_or(f64::INFINITY)
+        band.residual(&poles, exp_tau_s).unwrap_or(f64::INFINITY)
     };
     let start = [sigma.max(1e-6).ln(), lambda[r].im];
     let step = [0.3, 0.2 * sigma.max(0.05 * TAU)];

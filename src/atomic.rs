@@ -1,4 +1,5 @@
-//! Atomic file writes: temp file in the same folder, fsync, rename, fsync the folder.
+//! Atomic file writes: temp file in the same folder, fsync, rename, fsync the folder (derived
+//! outputs skip the fsyncs, see [`write_derived_with`]).
 //!
 //! A reader (or a crash) sees either the old file or the new one, never a half-written one.
 
@@ -23,15 +24,40 @@ pub fn write_with<F>(path: &Path, fill: F) -> io::Result<()>
 where
     F: FnOnce(&mut File) -> io::Result<()>,
 {
+    write_impl(path, fill, true)
+}
+
+/// [`write_with`] for outputs derived from recordings (FRF tables, fit results): replaced by a
+/// rename as well, so a reader never sees half a file, but not forced to the disk before
+/// returning — a rerun regenerates them, and on a 40-station test the fsync of ~30 MB of text
+/// costs more than the whole FRF stage. Raw recordings and session files never use this.
+pub fn write_derived_with<F>(path: &Path, fill: F) -> io::Result<()>
+where
+    F: FnOnce(&mut File) -> io::Result<()>,
+{
+    write_impl(path, fill, false)
+}
+
+/// [`write_derived_with`] of bytes.
+pub fn write_derived(path: &Path, bytes: &[u8]) -> io::Result<()> {
+    write_derived_with(path, |f| f.write_all(bytes))
+}
+
+fn write_impl<F>(path: &Path, fill: F, sync: bool) -> io::Result<()>
+where
+    F: FnOnce(&mut File) -> io::Result<()>,
+{
     let tmp = temp_path(path);
     let result = (|| {
         let mut f = OpenOptions::new().write(true).create_new(true).open(&tmp)?;
         fill(&mut f)?;
         f.flush()?;
-        f.sync_all()?;
+        if sync {
+            f.sync_all()?;
+        }
         drop(f);
         fs::rename(&tmp, path)?;
-        if let Some(dir) = path.parent() {
+        if let Some(dir) = path.parent().filter(|_| sync) {
             let dir = if dir.as_os_str().is_empty() {
                 Path::new(".")
             } else {
