@@ -430,6 +430,7 @@ fn modal_settings(a: &ModalArgs, base: ModalSettings) -> Result<Option<ModalSett
     if let Some(v) = a.stable_mac {
         m.criteria.mac = v;
     }
+    m.validate().map_err(|e| anyhow!("modal settings: {e}"))?;
     Ok(Some(m))
 }
 
@@ -780,6 +781,9 @@ pub fn run(cli: Cli) -> Result<()> {
     }
 }
 
+/// How long a command waits for another writer of the same session to finish.
+const LOCK_WAIT: std::time::Duration = std::time::Duration::from_secs(30);
+
 /// The bundled demo session, or one the simulator makes on first use.
 fn demo_session_dir() -> Result<PathBuf> {
     Ok(crate::sim::demo::demo_session(
@@ -961,6 +965,7 @@ fn model(a: ModelArgs) -> Result<()> {
     use crate::model::run;
     let shaft = read_study(&a.shaft)?.shaft;
     if let Some(dir) = &a.into {
+        let _lock = crate::session::lock::SessionLock::acquire(dir, "model --into", LOCK_WAIT)?;
         let mut s = crate::session::Session::open(dir)?;
         match &mut s.manifest.model {
             Some(st) => st.shaft = shaft.clone(),
@@ -1469,6 +1474,8 @@ fn calibrate(a: CalibrateArgs) -> Result<()> {
 }
 
 fn verdict(a: VerdictArgs) -> Result<()> {
+    // Read, change and write under the session's lock, so two commands cannot lose an update.
+    let _lock = crate::session::lock::SessionLock::acquire(&a.session, "verdict", LOCK_WAIT)?;
     let mut s = Session::open(&a.session)?;
     let v = match a.verdict {
         VerdictArg::Accept => Some(true),

@@ -27,6 +27,7 @@ pub mod atomic;
 pub mod capture;
 pub mod cautions;
 pub mod cli;
+pub mod clock;
 pub mod estimate;
 pub mod modal;
 pub mod model;

@@ -7,7 +7,7 @@ use std::path::Path;
 
 /// Layers, lowest first; modules within one layer do not use each other.
 const LAYERS: &[&[&str]] = &[
-    &["units", "numeric", "reduce", "cautions", "atomic"],
+    &["units", "numeric", "reduce", "cautions", "atomic", "clock"],
     &["estimate", "setup"],
     &["acquire"],
     &["signal"],

@@ -23,6 +23,15 @@ pub enum SampleEncoding {
 }
 
 impl SampleEncoding {
+    /// Bytes of one sample in a WAV file's data.
+    pub fn bytes_per_sample(self) -> usize {
+        match self {
+            SampleEncoding::Int16 => 2,
+            SampleEncoding::Int24 => 3,
+            SampleEncoding::Int32 | SampleEncoding::Float32 => 4,
+        }
+    }
+
     fn spec(self) -> (u16, hound::SampleFormat) {
         match self {
             SampleEncoding::Int16 => (16, hound::SampleFormat::Int),
@@ -300,11 +309,7 @@ fn decode_bytes(
                 ),
             ));
         }
-        let width = match info.encoding {
-            SampleEncoding::Int16 => 2,
-            SampleEncoding::Int24 => 3,
-            SampleEncoding::Int32 | SampleEncoding::Float32 => 4,
-        };
+        let width = info.encoding.bytes_per_sample();
         let stride = width * info.channels;
         if !len.is_multiple_of(stride) {
             return Err(InputError::new(

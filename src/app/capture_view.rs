@@ -140,14 +140,36 @@ impl TapgridApp {
         match crate::session::Session::open(&dir) {
             Ok(s) => {
                 let same = self.doc.as_ref().is_some_and(|d| d.path == dir);
+                let capturing = self.capture.handle.is_some();
                 if same {
                     if let Some(d) = &mut self.doc {
-                        d.data = s.dataset();
+                        // The recordings and hits as the capture wrote them; positions and
+                        // verdicts the person changed meanwhile are kept (saved once it stops).
+                        let mut data = s.dataset();
+                        for st in &mut data.stations {
+                            if let Some(old) =
+                                d.data.stations.iter().find(|o| o.station == st.station)
+                            {
+                                st.position_m = old.position_m;
+                                st.position_source = old.position_source;
+                                for (k, v) in &old.overrides {
+                                    st.overrides.insert(*k, *v);
+                                }
+                            }
+                        }
+                        d.data = data;
                         d.session = Some(s);
+                        if !capturing {
+                            d.take_lock();
+                        }
                     }
                 } else {
                     let data = s.dataset();
-                    self.doc = Some(super::Document::new(dir.clone(), data, Some(s), false));
+                    let mut doc = super::Document::new(dir.clone(), data, Some(s), false);
+                    if !capturing {
+                        doc.take_lock();
+                    }
+                    self.doc = Some(doc);
                 }
                 if self
                     .doc
@@ -482,6 +504,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
 }
 
 fn start_capture(app: &mut TapgridApp, writable: bool) {
+    // The capture becomes the session's only writer: the window hands its lock over.
+    if writable && let Some(d) = &mut app.doc {
+        d.lock = None;
+    }
     let (dir, setup, part) = match (&app.doc, writable) {
         (Some(d), true) => (d.path.clone(), d.setup.clone(), d.part.clone()),
         (d, _) => (

@@ -206,8 +206,13 @@ pub struct Document {
     pub study_result: Option<Arc<StudyResult>>,
     /// Why the latest evaluation failed.
     pub study_error: Option<String>,
-    /// The bundled demo: never written back.
+    /// Never written back: the bundled demo, or a session another program holds.
     pub read_only: bool,
+    /// Who holds the session when this window could not take it (then read-only).
+    pub locked_by: Option<String>,
+    /// This window's hold on the session (one writer at a time); `None` for a WAV set, the demo,
+    /// a session held elsewhere, or while a capture writes it.
+    pub lock: Option<Arc<crate::session::lock::SessionLock>>,
     /// Changed since the last save.
     pub dirty: bool,
 }
@@ -266,6 +271,8 @@ impl Document {
             study_result: None,
             study_error: None,
             read_only,
+            locked_by: None,
+            lock: None,
             dirty: false,
         }
     }
@@ -295,6 +302,31 @@ impl Document {
     }
 
     /// The session manifest as it should be written now.
+    /// Takes the session's lock for this window; when another program holds it the document
+    /// becomes read-only and says who has it.
+    pub(crate) fn take_lock(&mut self) {
+        if self.session.is_none() || self.read_only || self.lock.is_some() {
+            return;
+        }
+        match crate::session::lock::SessionLock::acquire(
+            &self.path,
+            "tapgrid window",
+            std::time::Duration::ZERO,
+        ) {
+            Ok(l) => {
+                self.lock = Some(Arc::new(l));
+                self.locked_by = None;
+            }
+            Err(e) => {
+                self.read_only = true;
+                self.locked_by = Some(
+                    crate::session::lock::SessionLock::holder(&self.path)
+                        .unwrap_or_else(|| e.to_string()),
+                );
+            }
+        }
+    }
+
     fn session_to_write(&self) -> Option<Session> {
         let mut s = self.session.clone()?;
         s.manifest.setup = self.setup.clone();
@@ -723,7 +755,9 @@ impl TapgridApp {
             }
             if let Some(d) = &self.doc {
                 let mut title = d.part.name.clone();
-                if d.read_only {
+                if let Some(who) = &d.locked_by {
+                    title.push_str(&format!("  (read-only: in use by {who})"));
+                } else if d.read_only {
                     title.push_str("  (demo: read-only, use Save as)");
                 } else if d.dirty {
                     title.push_str("  (unsaved changes)");
@@ -925,7 +959,14 @@ impl TapgridApp {
                 session,
             } => {
                 let read_only = is_bundled_demo(&path);
-                let doc = Document::new(path.clone(), data, session.map(|s| *s), read_only);
+                let mut doc = Document::new(path.clone(), data, session.map(|s| *s), read_only);
+                doc.take_lock();
+                if let Some(who) = &doc.locked_by {
+                    self.note(
+                        format!("opened read-only: the session is in use by {who}"),
+                        true,
+                    );
+                }
                 self.current_station = doc.data.stations.first().map(|s| s.station);
                 self.current_hit = 0;
                 self.selected_mode = 0;
@@ -1033,7 +1074,10 @@ impl TapgridApp {
                     d.path = dir.clone();
                     d.session = Some(*s);
                     d.read_only = false;
+                    d.locked_by = None;
+                    d.lock = None;
                     d.dirty = false;
+                    d.take_lock();
                 }
                 self.settings.recent.retain(|p| p != &dir);
                 self.settings.recent.insert(0, dir.clone());
@@ -1059,6 +1103,11 @@ impl TapgridApp {
             return;
         };
         if !d.dirty || d.read_only {
+            return;
+        }
+        // While a capture writes this session it is the only writer; the window's edits stay
+        // in the document (still marked unsaved) and are written once the capture stops.
+        if self.capture.handle.is_some() && self.capture_dir.as_deref() == Some(d.path.as_path()) {
             return;
         }
         if let Some(s) = d.session_to_write() {
@@ -1375,6 +1424,13 @@ impl TapgridApp {
         };
         if d.read_only || d.session.is_none() {
             self.commands.push(Command::AskPath(PathPurpose::SaveAs));
+            return;
+        }
+        if self.capture.handle.is_some() && self.capture_dir.as_deref() == Some(d.path.as_path()) {
+            self.note(
+                "capture is writing this session: your changes are saved when it stops",
+                false,
+            );
             return;
         }
         if let Some(s) = d.session_to_write() {

@@ -263,95 +263,128 @@ struct Latest {
 fn work(jobs: Receiver<Job>, out: SyncSender<Outcome>, latest: Latest, repaint: impl Fn()) {
     let mut decoder = Decoder::default();
     while let Ok(job) = jobs.recv() {
-        let outcome = match job {
-            Job::Open(path) => open(path),
-            Job::Analyze {
-                generation,
-                data,
-                setup,
-                modal,
-            } => {
-                if latest.analysis.load(Ordering::SeqCst) != generation {
-                    Outcome::Skipped
-                } else {
-                    analyze(generation, &data, &setup, &modal)
-                }
-            }
-            Job::Fit {
-                generation,
-                frfs,
-                modal,
-                picked,
-            } => {
-                if latest.fit.load(Ordering::SeqCst) != generation {
-                    Outcome::Skipped
-                } else {
-                    let r = match &picked {
-                        Some((stab, idx)) => modal::modes_from_poles(&frfs, &modal, stab, idx),
-                        None => modal::extract(&frfs, &modal),
-                    };
-                    Outcome::Fitted {
-                        generation,
-                        modal: r.map(Arc::new),
-                    }
-                }
-            }
-            Job::Traces {
-                station,
-                path,
-                setup,
-                hits,
-            } => match decoder.decode(&path, setup.channel_a.index, setup.channel_b.index) {
-                Ok(info) => Outcome::Traces {
-                    station,
-                    traces: hits
-                        .iter()
-                        .map(|h| hit_traces(&decoder.a, &decoder.b, info.sample_rate_hz, &setup, h))
-                        .collect(),
-                },
-                Err(e) => Outcome::Failed {
-                    what: "Loading hits",
-                    message: e.to_string(),
-                },
-            },
-            Job::ListDevices => {
-                Outcome::Devices(crate::acquire::live::list_inputs().map_err(|e| e.to_string()))
-            }
-            Job::Study {
-                generation,
-                study,
-                test,
-            } => {
-                if latest.study.load(Ordering::SeqCst) != generation {
-                    Outcome::Skipped
-                } else {
-                    Outcome::Studied {
-                        generation,
-                        result: crate::pipeline::study(&study, test.as_ref()).map(Arc::new),
-                    }
-                }
-            }
-            Job::SaveAs { session, dir } => match session.save_as(&dir) {
-                Ok(s) => Outcome::Saved(Box::new(s)),
-                Err(e) => Outcome::Failed {
-                    what: "Saving",
-                    message: e.to_string(),
-                },
-            },
-            Job::CreateSession {
-                wavset,
-                dir,
-                setup,
-                part,
-                hits,
-                model,
-            } => create_session(&wavset, &dir, setup, part, hits, model),
-        };
+        let what = describe(&job);
+        // A bug that panics inside one job must not take the worker down with it (later jobs
+        // would be dropped and the window would say "Analysing…" for ever): the job is reported
+        // failed and the worker goes on with a fresh decoder.
+        let outcome = guarded(what, || run_job(job, &latest, &mut decoder));
+        if matches!(outcome, Outcome::Failed { .. }) {
+            decoder = Decoder::default();
+        }
         if out.send(outcome).is_err() {
             return;
         }
         repaint();
     }
+}
+
+fn run_job(job: Job, latest: &Latest, decoder: &mut Decoder) -> Outcome {
+    match job {
+        Job::Open(path) => open(path),
+        Job::Analyze {
+            generation,
+            data,
+            setup,
+            modal,
+        } => {
+            if latest.analysis.load(Ordering::SeqCst) != generation {
+                Outcome::Skipped
+            } else {
+                analyze(generation, &data, &setup, &modal)
+            }
+        }
+        Job::Fit {
+            generation,
+            frfs,
+            modal,
+            picked,
+        } => {
+            if latest.fit.load(Ordering::SeqCst) != generation {
+                Outcome::Skipped
+            } else {
+                let r = match &picked {
+                    Some((stab, idx)) => modal::modes_from_poles(&frfs, &modal, stab, idx),
+                    None => modal::extract(&frfs, &modal),
+                };
+                Outcome::Fitted {
+                    generation,
+                    modal: r.map(Arc::new),
+                }
+            }
+        }
+        Job::Traces {
+            station,
+            path,
+            setup,
+            hits,
+        } => match decoder.decode(&path, setup.channel_a.index, setup.channel_b.index) {
+            Ok(info) => Outcome::Traces {
+                station,
+                traces: hits
+                    .iter()
+                    .map(|h| hit_traces(&decoder.a, &decoder.b, info.sample_rate_hz, &setup, h))
+                    .collect(),
+            },
+            Err(e) => Outcome::Failed {
+                what: "Loading hits",
+                message: e.to_string(),
+            },
+        },
+        Job::ListDevices => {
+            Outcome::Devices(crate::acquire::live::list_inputs().map_err(|e| e.to_string()))
+        }
+        Job::Study {
+            generation,
+            study,
+            test,
+        } => {
+            if latest.study.load(Ordering::SeqCst) != generation {
+                Outcome::Skipped
+            } else {
+                Outcome::Studied {
+                    generation,
+                    result: crate::pipeline::study(&study, test.as_ref()).map(Arc::new),
+                }
+            }
+        }
+        Job::SaveAs { session, dir } => match session.save_as(&dir) {
+            Ok(s) => Outcome::Saved(Box::new(s)),
+            Err(e) => Outcome::Failed {
+                what: "Saving",
+                message: e.to_string(),
+            },
+        },
+        Job::CreateSession {
+            wavset,
+            dir,
+            setup,
+            part,
+            hits,
+            model,
+        } => create_session(&wavset, &dir, setup, part, hits, model),
+    }
+}
+
+/// Runs a job, turning a panic into a failed outcome that says so.
+fn guarded(what: &'static str, job: impl FnOnce() -> Outcome) -> Outcome {
+    std::panic::catch_unwind(std::panic::AssertUnwindSafe(job)).unwrap_or_else(|panic| {
+        Outcome::Failed {
+            what,
+            message: format!(
+                "internal error ({}); nothing was changed on disk and the next request will run \
+                 — please report this with the input that caused it",
+                panic_text(panic.as_ref())
+            ),
+        }
+    })
+}
+
+/// The message of a panic payload.
+fn panic_text(p: &(dyn std::any::Any + Send)) -> String {
+    p.downcast_ref::<&str>()
+        .map(|s| (*s).to_string())
+        .or_else(|| p.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "a panic without a message".into())
 }
 
 fn open(path: PathBuf) -> Outcome {
@@ -413,5 +446,26 @@ fn create_session(
             what: "Saving",
             message: e.to_string(),
         },
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_panicking_job_becomes_a_failed_outcome_and_the_next_one_runs() {
+        let o = guarded("Analysing", || panic!("index out of bounds"));
+        match o {
+            Outcome::Failed { what, message } => {
+                assert_eq!(what, "Analysing");
+                assert!(message.contains("index out of bounds"), "{message}");
+            }
+            _ => panic!("expected a failed outcome"),
+        }
+        assert!(matches!(
+            guarded("Fitting", || Outcome::Skipped),
+            Outcome::Skipped
+        ));
     }
 }

@@ -110,6 +110,8 @@ pub fn checksum(a: &[f32], b: &[f32]) -> u64 {
 
 /// The engine for one session.
 pub struct Engine {
+    /// Held for the whole capture: the engine is the session's only writer meanwhile.
+    _lock: crate::session::lock::SessionLock,
     session: Session,
     setup: Setup,
     rate: u32,
@@ -137,7 +139,13 @@ impl Engine {
     /// Opens the session at `dir`, or creates it with `setup` and `part`. An existing session's
     /// setup is used as saved (so a continued test stays consistent).
     pub fn open(dir: &Path, setup: Setup, part: Part, rate: u32) -> Result<Self, CaptureError> {
+        let lock_wait = std::time::Duration::from_secs(2);
+        let mut lock = None;
         let session = if Session::is_session(dir) {
+            lock = Some(
+                crate::session::lock::SessionLock::acquire(dir, "capture", lock_wait)
+                    .map_err(|e| CaptureError::Setup(e.to_string()))?,
+            );
             let s = Session::open(dir).map_err(|e| CaptureError::Setup(e.to_string()))?;
             if let Some(r) = s.manifest.recordings.first()
                 && r.sample_rate_hz != rate
@@ -152,11 +160,17 @@ impl Engine {
         } else {
             Session::create(dir, setup, part).map_err(|e| CaptureError::Save(e.to_string()))?
         };
+        let lock = match lock {
+            Some(l) => l,
+            None => crate::session::lock::SessionLock::acquire(dir, "capture", lock_wait)
+                .map_err(|e| CaptureError::Setup(e.to_string()))?,
+        };
         let setup = session.manifest.setup.clone();
         setup
             .validate()
             .map_err(|m| CaptureError::Setup(format!("bad setup: {m}")))?;
         Ok(Self {
+            _lock: lock,
             session,
             setup,
             rate,

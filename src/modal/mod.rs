@@ -91,6 +91,60 @@ impl Default for ModalSettings {
     }
 }
 
+impl ModalSettings {
+    /// Checks every value against its range; returns a sentence naming the bad setting.
+    pub fn validate(&self) -> Result<(), String> {
+        if !(2..=200).contains(&self.max_order) {
+            return Err(format!(
+                "highest model order {} must be between 2 and 200",
+                self.max_order
+            ));
+        }
+        if self.min_stable_orders > self.max_order {
+            return Err(format!(
+                "fewest stable orders {} exceeds the highest order {}",
+                self.min_stable_orders, self.max_order
+            ));
+        }
+        let c = &self.criteria;
+        for (name, v, hi) in [
+            ("stability: frequency change", c.frequency, 1.0),
+            ("stability: damping change", c.damping, 10.0),
+            ("stability: MAC", c.mac, 1.0),
+        ] {
+            if !(v.is_finite() && v > 0.0 && v <= hi) {
+                return Err(format!("{name} {v} must lie in (0, {hi}]"));
+            }
+        }
+        if self.mains_hz.len() > 8
+            || self
+                .mains_hz
+                .iter()
+                .any(|f| !(f.is_finite() && *f > 0.0 && *f <= 1000.0))
+        {
+            return Err("mains frequencies: at most 8, each in (0, 1000] Hz".into());
+        }
+        if let Some([lo, hi]) = self.band_hz
+            && !(lo.is_finite() && hi.is_finite() && lo >= 0.0 && hi > lo && hi <= 1e6)
+        {
+            return Err(format!(
+                "fit band {lo}:{hi} Hz must satisfy 0 ≤ low < high ≤ 1e6"
+            ));
+        }
+        match &self.selection {
+            Selection::Count(n) if *n == 0 || *n > 200 => {
+                Err(format!("mode count {n} must be between 1 and 200"))
+            }
+            Selection::Near(f)
+                if f.len() > 200 || f.iter().any(|x| !(x.is_finite() && *x > 0.0)) =>
+            {
+                Err("modes near: at most 200 positive frequencies".into())
+            }
+            _ => Ok(()),
+        }
+    }
+}
+
 /// One mode.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Mode {

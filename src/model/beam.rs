@@ -5,6 +5,9 @@
 use nalgebra::{DMatrix, DVector};
 use serde::{Deserialize, Serialize};
 
+/// The most sections a shaft may have.
+pub const MAX_SECTIONS: usize = 500;
+
 /// Isotropic material.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Material {
@@ -146,9 +149,52 @@ impl Shaft {
 
     /// Checks the geometry; the message names the bad item.
     pub fn validate(&self) -> Result<(), String> {
+        // Physical limits of a part a bench test or a rotor model can mean; a value outside
+        // them is a typing or unit slip (mm for m), and would otherwise make the refinement
+        // run for minutes and report modes of 0 Hz.
+        let num = |what: String, v: f64, lo: f64, hi: f64, unit: &str| -> Result<(), String> {
+            if v.is_finite() && (lo..=hi).contains(&v) {
+                Ok(())
+            } else {
+                Err(format!(
+                    "{what} {v} {unit} is outside physical limits ({lo} to {hi} {unit})"
+                ))
+            }
+        };
+        let material = |what: &str, m: &Material| -> Result<(), String> {
+            num(
+                format!("{what}: Young's modulus"),
+                m.youngs_modulus_pa,
+                1e6,
+                2e12,
+                "Pa",
+            )?;
+            num(
+                format!("{what}: density"),
+                m.density_kg_m3,
+                10.0,
+                25_000.0,
+                "kg/m³",
+            )?;
+            num(
+                format!("{what}: Poisson's ratio"),
+                m.poisson_ratio,
+                0.0,
+                0.499,
+                "",
+            )
+        };
         if self.sections.is_empty() {
             return Err("the shaft has no sections".into());
         }
+        if self.sections.len() > MAX_SECTIONS {
+            return Err(format!(
+                "the shaft has {} sections: at most {MAX_SECTIONS}",
+                self.sections.len()
+            ));
+        }
+        material("shaft material", &self.material)?;
+        let mut d_max = 0.0f64;
         for (i, s) in self.sections.iter().enumerate() {
             if !(s.length_m.is_finite() && s.length_m > 0.0) {
                 return Err(format!(
@@ -156,17 +202,40 @@ impl Shaft {
                     s.length_m
                 ));
             }
+            num(format!("section {i}: length"), s.length_m, 1e-5, 100.0, "m")?;
             if !(s.outer_diameter_m.is_finite() && s.outer_diameter_m > 0.0) {
                 return Err(format!("section {i}: outer diameter must be positive"));
             }
+            num(
+                format!("section {i}: outer diameter"),
+                s.outer_diameter_m,
+                1e-4,
+                10.0,
+                "m",
+            )?;
             if !(s.inner_diameter_m >= 0.0 && s.inner_diameter_m < s.outer_diameter_m) {
                 return Err(format!(
                     "section {i}: inner diameter {} m must be ≥ 0 and below the outer {} m",
                     s.inner_diameter_m, s.outer_diameter_m
                 ));
             }
+            if let Some(m) = &s.material {
+                material(&format!("section {i}"), m)?;
+            }
+            d_max = d_max.max(s.outer_diameter_m);
         }
         let l = self.length_m();
+        num("the shaft's length".into(), l, 1e-3, 100.0, "m")?;
+        if l / d_max > 2000.0 {
+            return Err(format!(
+                "the shaft is {l} m long and at most {d_max} m thick (length/diameter {:.0}): \
+                 more slender than any shaft (at most 2000); check the units of the lengths",
+                l / d_max
+            ));
+        }
+        if self.supports.len() > 100 || self.discs.len() > 500 {
+            return Err("at most 100 supports and 500 discs".into());
+        }
         for (i, s) in self.supports.iter().enumerate() {
             if !(0.0..=l).contains(&s.position_m) {
                 return Err(format!(
@@ -181,6 +250,24 @@ impl Shaft {
             if kr.is_nan() || kr < 0.0 {
                 return Err(format!("support {i}: rotational stiffness must be ≥ 0"));
             }
+            if s.stiffness_n_per_m.is_finite() {
+                num(
+                    format!("support {i}: stiffness"),
+                    s.stiffness_n_per_m,
+                    0.0,
+                    1e14,
+                    "N/m",
+                )?;
+            }
+            if kr.is_finite() {
+                num(
+                    format!("support {i}: rotational stiffness"),
+                    kr,
+                    0.0,
+                    1e14,
+                    "N·m/rad",
+                )?;
+            }
         }
         for (i, d) in self.discs.iter().enumerate() {
             if !(0.0..=l).contains(&d.position_m) {
@@ -189,6 +276,21 @@ impl Shaft {
                     d.position_m
                 ));
             }
+            num(format!("disc {i}: mass"), d.mass_kg, 0.0, 1e6, "kg")?;
+            num(
+                format!("disc {i}: polar inertia"),
+                d.polar_inertia_kg_m2,
+                0.0,
+                1e6,
+                "kg·m²",
+            )?;
+            num(
+                format!("disc {i}: transverse inertia"),
+                d.transverse_inertia_kg_m2,
+                0.0,
+                1e6,
+                "kg·m²",
+            )?;
         }
         Ok(())
     }

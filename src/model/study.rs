@@ -92,15 +92,34 @@ impl Study {
         if let Some(s) = self.in_service() {
             s.validate().map_err(|m| m.replace("support", "bearing"))?;
         }
-        let range = |name: &str, r: Option<[f64; 2]>| match r {
-            Some([lo, hi]) if !(lo > 0.0 && hi >= lo && hi.is_finite()) => {
-                Err(format!("{name} {lo}–{hi} must satisfy 0 < low ≤ high"))
-            }
+        let range = |name: &str, r: Option<[f64; 2]>, top: f64| match r {
+            Some([lo, hi]) if !(lo > 0.0 && hi >= lo && hi <= top) => Err(format!(
+                "{name} {lo}–{hi} must satisfy 0 < low ≤ high ≤ {top:e}"
+            )),
             _ => Ok(()),
         };
-        range("running speed (rpm)", self.running_speed_rpm)?;
-        range("bearing stiffness band (N/m)", self.bearing_band_n_per_m)?;
-        range("stiffness sweep (N/m)", self.stiffness_range_n_per_m)?;
+        range("running speed (rpm)", self.running_speed_rpm, 1e6)?;
+        range(
+            "bearing stiffness band (N/m)",
+            self.bearing_band_n_per_m,
+            1e14,
+        )?;
+        range("stiffness sweep (N/m)", self.stiffness_range_n_per_m, 1e14)?;
+        if self.orders.len() > 20 || self.orders.iter().any(|&o| o > 100) {
+            return Err("give at most 20 orders of running speed, each at most 100".into());
+        }
+        let r = &self.rule;
+        for (name, v) in [
+            ("AF threshold", r.af_threshold),
+            ("margin cap below the range (%)", r.below_cap_pct),
+            ("margin cap above the range (%)", r.above_cap_pct),
+            ("offset above the range (%)", r.above_offset_pct),
+            ("slope of the rule (%)", r.slope_pct),
+        ] {
+            if !(v.is_finite() && (0.0..=1000.0).contains(&v)) {
+                return Err(format!("margin rule: {name} {v} must lie in 0–1000"));
+            }
+        }
         if let Some([lo, hi]) = self.stiffness_range_n_per_m
             && hi <= lo
         {

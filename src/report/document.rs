@@ -105,33 +105,7 @@ pub fn write_html(path: &Path, r: &ReportInput) -> Result<(), InputError> {
         .map_err(|e| InputError::new(path, format!("cannot write: {e}")))
 }
 
-/// Now as `YYYY-MM-DD HH:MM UTC`.
-pub fn utc_now() -> String {
-    let secs = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map_or(0, |d| d.as_secs());
-    utc_text(secs)
-}
-
-/// Seconds since 1970 as `YYYY-MM-DD HH:MM UTC` (days to civil date: Hinnant's algorithm).
-pub fn utc_text(unix_s: u64) -> String {
-    let days = (unix_s / 86_400) as i64;
-    let rem = unix_s % 86_400;
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let day = doy - (153 * mp + 2) / 5 + 1;
-    let month = if mp < 10 { mp + 3 } else { mp - 9 };
-    let year = yoe + era * 400 + i64::from(month <= 2);
-    format!(
-        "{year:04}-{month:02}-{day:02} {:02}:{:02} UTC",
-        rem / 3600,
-        rem % 3600 / 60
-    )
-}
+pub use crate::clock::{utc_now, utc_text};
 
 fn row(s: &mut String, name: &str, value: &str) {
     let _ = write!(

@@ -1,6 +1,8 @@
 //! The saved test: a folder with `session.json` (the manifest), `raw/` recordings that are never
 //! modified after capture or import, and derived results. Every write is atomic.
 
+pub mod lock;
+
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
@@ -133,6 +135,80 @@ impl Manifest {
     }
 }
 
+impl Manifest {
+    /// Checks every value read from a manifest against its range, before anything is sized
+    /// from it; the error names the field.
+    pub fn check(&self) -> Result<(), String> {
+        self.setup.validate().map_err(|m| format!("setup: {m}"))?;
+        if let Some(f) = &self.fit {
+            f.validate().map_err(|m| format!("fit: {m}"))?;
+        }
+        if let Some(st) = &self.model {
+            st.validate().map_err(|m| format!("model: {m}"))?;
+        }
+        if self.stations.len() > MAX_STATIONS || self.recordings.len() > MAX_STATIONS {
+            return Err(format!("more than {MAX_STATIONS} stations or recordings"));
+        }
+        for s in &self.stations {
+            if !(s.position_m.is_finite() && s.position_m.abs() <= 1000.0) {
+                return Err(format!(
+                    "stations: station {} position {} m is not a position on a part (±1000 m)",
+                    s.station, s.position_m
+                ));
+            }
+        }
+        for r in &self.recordings {
+            if !(1..=MAX_SAMPLE_RATE_HZ).contains(&r.sample_rate_hz) {
+                return Err(format!(
+                    "recordings: {}: sample rate {} Hz out of range (1 to {MAX_SAMPLE_RATE_HZ})",
+                    r.file, r.sample_rate_hz
+                ));
+            }
+            if !(1..=65535).contains(&r.channels) {
+                return Err(format!(
+                    "recordings: {}: {} channels out of range (1 to 65535)",
+                    r.file, r.channels
+                ));
+            }
+            let width = r.encoding.bytes_per_sample() as u64;
+            let need = (r.frames as u64)
+                .checked_mul(r.channels as u64)
+                .and_then(|v| v.checked_mul(width));
+            if need.is_none_or(|n| n > r.bytes) {
+                return Err(format!(
+                    "recordings: {}: {} frames of {} channels do not fit in its {} bytes",
+                    r.file, r.frames, r.channels, r.bytes
+                ));
+            }
+            if r.file.contains("..") || Path::new(&r.file).is_absolute() {
+                return Err(format!(
+                    "recordings: {}: a raw file must lie inside the session folder",
+                    r.file
+                ));
+            }
+        }
+        if self.hits.len() > MAX_STATIONS * MAX_HITS_PER_STATION {
+            return Err(format!("{} hits: too many", self.hits.len()));
+        }
+        for h in &self.hits {
+            if h.index >= MAX_HITS_PER_STATION || !(h.time_s.is_finite() && h.time_s >= 0.0) {
+                return Err(format!(
+                    "hits: station {} hit index {} at {} s is out of range",
+                    h.station, h.index, h.time_s
+                ));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// The most stations (and recordings) a session may hold.
+pub const MAX_STATIONS: usize = 10_000;
+/// The most hits a station's recording may hold.
+pub const MAX_HITS_PER_STATION: usize = 100_000;
+/// The highest sample rate accepted, Hz.
+pub const MAX_SAMPLE_RATE_HZ: u32 = 10_000_000;
+
 /// An open session.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Session {
@@ -177,10 +253,7 @@ impl Session {
                 ));
             }
         }
-        manifest
-            .setup
-            .validate()
-            .map_err(|m| InputError::new(&path, m))?;
+        manifest.check().map_err(|m| InputError::new(&path, m))?;
         Ok(Self {
             dir: dir.to_path_buf(),
             manifest,

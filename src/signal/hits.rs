@@ -35,7 +35,7 @@ pub fn find_triggers(x: &[f64], level: f64, slope: Slope, holdoff: usize) -> Vec
     while i < x.len() {
         if s * x[i - 1] < level && s * x[i] >= level {
             out.push(i);
-            i += holdoff.max(1);
+            i = i.saturating_add(holdoff.max(1));
         } else {
             i += 1;
         }

@@ -118,7 +118,19 @@ pub fn analyze_station(
     overrides: &BTreeMap<usize, bool>,
     plan: &mut Option<SpectrumPlan>,
 ) -> Result<StationResult, String> {
+    if fs == 0 {
+        return Err("the recording's sample rate is 0 Hz".into());
+    }
     let n = setup.record_samples(fs);
+    if n > a.len().min(b.len()) {
+        // Checked before any buffer is sized from the record length.
+        return Err(format!(
+            "the record of {n} samples ({:.3} s) is longer than the whole recording ({} samples,              {:.3} s): choose a shorter record length",
+            n as f64 / fs as f64,
+            a.len().min(b.len()),
+            a.len().min(b.len()) as f64 / fs as f64
+        ));
+    }
     let dt = 1.0 / fs as f64;
     let df = fs as f64 / n as f64;
     let pre = ((setup.trigger.pretrigger_fraction * n as f64).round() as usize).min(n - 1);

@@ -463,8 +463,75 @@ impl Scenario {
         };
     }
 
+    /// Checks every value against a physical range before any recording is sized from it.
+    pub fn validate(&self) -> Result<(), String> {
+        let num = |name: &str, v: f64, lo: f64, hi: f64| -> Result<(), String> {
+            if v.is_finite() && (lo..=hi).contains(&v) {
+                Ok(())
+            } else {
+                Err(format!("{name} {v} is out of range: give {lo} to {hi}"))
+            }
+        };
+        self.shaft.validate()?;
+        if !(2..=1000).contains(&self.stations_m.len()) {
+            return Err(format!(
+                "{} stations: give 2 to 1000",
+                self.stations_m.len()
+            ));
+        }
+        let l = self.shaft.length_m();
+        for x in &self.stations_m {
+            num("station position (m)", *x, 0.0, l)?;
+        }
+        if !(1..=1000).contains(&self.hits_per_station) {
+            return Err(format!(
+                "{} hits per station: give 1 to 1000",
+                self.hits_per_station
+            ));
+        }
+        if !(1000..=1_000_000).contains(&self.rig.sample_rate_hz) {
+            return Err(format!(
+                "sample rate {} Hz: give 1000 to 1000000 Hz",
+                self.rig.sample_rate_hz
+            ));
+        }
+        num("damping ratio", self.damping_ratio, 1e-6, 0.5)?;
+        num(
+            "suspension damping ratio",
+            self.suspension_damping_ratio,
+            0.0,
+            1.0,
+        )?;
+        num("hit interval (s)", self.hit_interval_s, 0.01, 600.0)?;
+        num("lead-in (s)", self.lead_s, 0.0, 600.0)?;
+        num("force (N)", self.force_n, 1e-6, 1e6)?;
+        num("pulse length (s)", self.pulse_s, 1e-6, 0.05)?;
+        num("timing jitter", self.jitter, 0.0, 1.0)?;
+        num("full-scale volts", self.rig.full_scale_volts, 1e-6, 1e4)?;
+        num("sensitivity A (mV)", self.rig.sensitivity_a_mv, 1e-9, 1e9)?;
+        num("sensitivity B (mV)", self.rig.sensitivity_b_mv, 1e-9, 1e9)?;
+        num("hum frequency (Hz)", self.rig.hum_hz, 0.0, 1e5)?;
+        num("hum (V)", self.rig.hum_volts, 0.0, 1e4)?;
+        for v in self.rig.noise_volts {
+            num("noise (V)", v, 0.0, 1e4)?;
+        }
+        if let Some(c) = self.rig.ac_corner_hz {
+            num("AC-coupling corner (Hz)", c, 1e-4, 1000.0)?;
+        }
+        let seconds = self.lead_s + self.hits_per_station as f64 * self.hit_interval_s;
+        let frames = seconds * self.rig.sample_rate_hz as f64;
+        if frames > 2e8 {
+            return Err(format!(
+                "each station's recording would hold {frames:.3e} frames ({seconds:.0} s): at \
+                 most 2e8"
+            ));
+        }
+        Ok(())
+    }
+
     /// Writes the WAV set (`station-NN.wav`, `stations.csv`) and `truth.json` into `dir`.
     pub fn write(&self, dir: &Path) -> Result<Truth, InputError> {
+        self.validate().map_err(|m| InputError::new(dir, m))?;
         let model = self.modal_model().map_err(|m| InputError::new(dir, m))?;
         std::fs::create_dir_all(dir)
             .map_err(|e| InputError::new(dir, format!("cannot create folder: {e}")))?;
