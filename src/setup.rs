@@ -153,7 +153,7 @@ pub enum AcCoupling {
     CornerHz(f64),
 }
 
-/// Per-hit quality limits (field notes §1; common practice).
+/// Per-hit quality limits (Brown, Allemang & Phillips 2015; common practice).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(default)]
 pub struct QualityLimits {
@@ -374,7 +374,11 @@ fn within(name: &str, value: f64, lo: f64, hi: f64, unit: &str) -> Result<(), St
     if !value.is_finite() {
         return Err(format!("{name} is not a number ({value})"));
     }
+    let show = crate::units::show;
     Err(format!(
-        "{name} {value}{unit} is out of range: give {lo}{unit} to {hi}{unit}"
+        "{name} {}{unit} is out of range: give {}{unit} to {}{unit}",
+        show(value),
+        show(lo),
+        show(hi)
     ))
 }

@@ -126,13 +126,24 @@ impl Sensitivity {
     }
 }
 
+/// A number for a message: plain where it reads well, in exponent form when very large or very
+/// small (an absurd value from a file must not print as 300 digits).
+pub fn show(v: f64) -> String {
+    let a = v.abs();
+    if v != 0.0 && a.is_finite() && !(1e-4..1e7).contains(&a) {
+        format!("{v:e}")
+    } else {
+        format!("{v}")
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     #[test]
     fn parses_units() {
-        // 100 mV/g = 10.197 mV/(m/s²) (field notes §1: 100 mV/g = 10.2 mV/(m/s²)).
+        // 100 mV/g = 10.197 mV/(m/s²) (g = 9.80665 m/s², ISO 80000-3).
         let s = Sensitivity::parse("100mV/g").unwrap();
         assert!((s.mv_per_unit - 100.0 / 9.80665).abs() < 1e-12);
         assert_eq!(s.quantity, Some(Quantity::Acceleration));

@@ -1,6 +1,7 @@
 //! Calibration helpers against their definitions: the rms of a sine is its amplitude/√2
 //! (textbook); a free rigid mass has accelerance 1/m (Newton's second law; the mass calibration
-//! of Brown et al. 2015, field notes §1); one signal into both inputs gives H = 1 (field notes §1).
+//! of Brown, Allemang & Phillips 2015); one signal into both inputs gives H = 1 (loopback check,
+//! common practice).
 
 #![allow(clippy::unwrap_used, clippy::expect_used)]
 

@@ -178,7 +178,7 @@ fn sensor_layout_gives_unit_transmissibility_at_the_reference() {
     let csv = std::fs::read_to_string(out.join("frf.csv")).unwrap();
     for l in csv.lines().skip(1).filter(|l| l.starts_with("1,")) {
         let v: Vec<f64> = l.split(',').map(|x| x.parse().unwrap()).collect();
-        // Roving sensor on the reference station: T = 1 and γ² = 1 (field notes §4).
+        // Roving sensor on the reference station: T = 1 and γ² = 1 (Devriendt & Guillaume, MSSP 21, 2007).
         // Independent noise on the channels (30 µV) leaves a few per cent at quiet lines.
         assert!(
             (v[2] - 1.0).abs() < 0.05 && v[3].abs() < 0.05 && v[4] > 0.99,

@@ -1,6 +1,6 @@
 //! FRFs of simulated analytic systems against closed-form accelerance (Ewins 2000), with the
 //! force and exponential windows on. The exponential window's effect is the Laplace shift
-//! theorem (field notes §1): the windowed records' FRF is s'²α(s') with s' = jω + 1/τ.
+//! theorem (Fladung 1997, IMAC XV): the windowed records' FRF is s'²α(s') with s' = jω + 1/τ.
 
 #![allow(clippy::unwrap_used, clippy::expect_used)]
 
@@ -122,7 +122,7 @@ fn three_dof_driving_point_and_transfer_within_half_db_and_two_degrees() {
 #[test]
 fn ac_coupling_is_found_and_undone_down_to_five_times_its_corner() {
     // A 4 Hz first-order AC coupling on both channels: uncorrected, the response keeps +11° at
-    // 20 Hz (field notes §1: +45° at f_c, +5.7° at 10 f_c). tapgrid reads the corner off the hammer's
+    // 20 Hz (first-order high-pass, derived: +45° at f_c, +5.7° at 10 f_c). tapgrid reads the corner off the hammer's
     // tail and divides it out; the FRF then matches the closed form again from 20 Hz.
     let model = three_dof();
     let rig = tapgrid::sim::Rig {
@@ -164,7 +164,7 @@ fn ac_coupling_is_found_and_undone_down_to_five_times_its_corner() {
 
 #[test]
 fn driving_point_accelerance_has_positive_imaginary_part_at_resonances() {
-    // Sign convention (Ewins 2000; field notes §2): Im A_kk > 0 at every resonance.
+    // Sign convention (Ewins 2000, from memory): Im A_kk > 0 at every resonance.
     let model = three_dof();
     let rig = clean_rig(16384);
     let imp = impacts(3, 0.2, 2.0, 200.0, 2e-4);

@@ -89,7 +89,7 @@ fn cases() -> Vec<Case> {
     let sc = base(21);
     v.push(Case::strict("baseline roving hammer", sc, [100.0, 3000.0]));
 
-    // 0.45 ms tip: first null 1.5/Tc = 3.33 kHz inside a 4.5 kHz band (field notes §1); the mode
+    // 0.45 ms tip: first null 1.5/Tc = 3.33 kHz inside a 4.5 kHz band (half-sine pulse spectrum, derived); the mode
     // near 3.99 kHz lies past the null, where the force is about 23 dB down.
     let mut sc = base(22);
     sc.pulse_s = 4.5e-4;

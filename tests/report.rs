@@ -18,7 +18,7 @@ fn bin() -> Command {
     Command::cargo_bin("tapgrid").unwrap()
 }
 
-/// Margin required above the operating range (API RP 684 as summarised in field notes §6, from
+/// Margin required above the operating range (API RP 684, 2nd ed. 2005, from
 /// memory): none below AF 2.5, else min(26, 10 + 17(1 − 1/(AF − 1.5))) %, AF = 1/(2ζ).
 fn api_above_pct(zeta: f64) -> f64 {
     let af = 1.0 / (2.0 * zeta);

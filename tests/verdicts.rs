@@ -1,5 +1,5 @@
 //! Each verdict fires on a crafted record and stays silent on clean ones.
-//! Limits are those of field notes §1 (Brown, Allemang & Phillips 2015; common practice):
+//! Limits are those of Brown, Allemang & Phillips, IMAC XXXIII 2015, and common practice:
 //! overload ≥ 98 % of full scale or a flat top; weak < 10 %; double hit = a second excursion above
 //! 10 % of the peak after the pulse; tip roll-off = force spectrum > 20 dB down inside the band.
 
@@ -156,8 +156,8 @@ fn weak_hit() {
 
 #[test]
 fn soft_tip_rolls_off_inside_the_band() {
-    // A 4 ms half-sine: −20 dB near 1.30/Tc = 325 Hz, first null at 1.5/Tc = 375 Hz (field notes
-    // §1), far inside a 2 kHz band. A 0.2 ms pulse is within 10 dB over the band.
+    // A 4 ms half-sine: −20 dB near 1.30/Tc = 325 Hz, first null at 1.5/Tc = 375 Hz (half-sine
+    // spectrum, derived), far inside a 2 kHz band. A 0.2 ms pulse is within 10 dB over the band.
     let rig = clean_rig(FS);
     let mut imp = impacts(3, 0.3, 2.5, 150.0, 2e-4);
     imp[1].duration_s = 4e-3;

@@ -76,6 +76,9 @@ fn describe(e: hound::Error) -> String {
         hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
             "the WAV file is truncated: its data ends before its header says".to_string()
         }
+        hound::Error::IoError(io) if io.to_string().contains("Failed to read enough bytes") => {
+            "not a readable WAV file (shorter than a WAV header; empty?)".to_string()
+        }
         hound::Error::IoError(io) => format!("cannot read: {io}"),
         hound::Error::Unsupported => "unsupported WAV encoding".to_string(),
         hound::Error::TooWide => "sample width too large".to_string(),
@@ -247,6 +250,27 @@ impl Decoder {
             ));
         }
         Ok(info)
+    }
+
+    /// Decodes channels `a` and `b` of a WAV file already in memory (`label` names it in
+    /// errors) into `self.a` and `self.b`.
+    pub fn decode_slice(
+        &mut self,
+        label: &Path,
+        bytes: &[u8],
+        a: usize,
+        b: usize,
+        non_finite: NonFinite,
+    ) -> Result<WavInfo, InputError> {
+        decode_bytes(
+            label,
+            bytes,
+            a,
+            Some(b),
+            &mut self.a,
+            &mut self.b,
+            non_finite,
+        )
     }
 
     fn decode_channels(

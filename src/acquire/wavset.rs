@@ -65,6 +65,11 @@ pub fn station_number(stem: &str) -> Option<u32> {
 pub fn read_stations_csv(path: &Path) -> Result<BTreeMap<u32, f64>, InputError> {
     let text = std::fs::read_to_string(path)
         .map_err(|e| InputError::new(path, format!("cannot read: {e}")))?;
+    parse_stations_csv(path, &text)
+}
+
+/// [`read_stations_csv`] of text already read (`path` names it in errors).
+pub fn parse_stations_csv(path: &Path, text: &str) -> Result<BTreeMap<u32, f64>, InputError> {
     // Spreadsheet programs often save CSV with a byte-order mark.
     let text = text.trim_start_matches('\u{feff}');
     let mut lines = text

@@ -4,8 +4,8 @@
 //! with pole λ' = λ − 1/τ (the exponential window's Laplace shift), so its acceleration energy
 //! spectrum near the peak is A·ω⁴/|(jω − λ')(jω − λ'*)|² over a flat background B. Fitting that
 //! line shape by nonlinear least squares (σ', ω_d; A and B linear) uses every line of the peak,
-//! where the half-power method needs several lines inside the half-power band (field notes §1:
-//! ≥ 5 lines, common practice) and fails below that.
+//! where the half-power method needs several lines inside the half-power band (≥ 5
+//! lines, common practice) and fails below that.
 
 use super::refine::nelder_mead;
 

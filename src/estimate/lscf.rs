@@ -1,5 +1,5 @@
 //! Least-squares complex frequency-domain estimator, single-reference form (Guillaume et al.,
-//! IMAC XXI 2003; z-domain derivation per Fasana, MSSP 23, 2009; recipe in field notes §3), with
+//! IMAC XXI 2003; z-domain derivation per Fasana, MSSP 23, 2009), with
 //! the stabilization diagram over every model order up to `max_order`.
 //!
 //! Speed: the normal-equation blocks R_o, S_o, T_o are Toeplitz in the z-domain basis, so they come

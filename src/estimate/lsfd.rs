@@ -1,5 +1,5 @@
 //! Least-squares frequency-domain residues with lower and upper residuals (Peeters et al. 2004,
-//! from memory; field notes §3), for accelerance measured through an exponential window.
+//! from memory), for accelerance measured through an exponential window.
 //!
 //! The windowed records' FRF is s'²·α(s') with s' = jω + 1/τ (Laplace shift); the measured poles are
 //! λ' = λ − 1/τ. Fitting A(ω) = s'²·Σ_r [R_r/(jω − λ'_r) + R_r*/(jω − λ'_r*)] + LR + s'²·UR therefore

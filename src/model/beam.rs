@@ -20,7 +20,7 @@ pub struct Material {
 }
 
 impl Material {
-    /// Structural steel: E = 210 GPa, ρ = 7850 kg/m³, ν = 0.3 (field notes §8).
+    /// Structural steel: E = 210 GPa, ρ = 7850 kg/m³, ν = 0.3 (handbook values; common practice).
     pub const STEEL: Material = Material {
         youngs_modulus_pa: 210e9,
         density_kg_m3: 7850.0,
@@ -111,7 +111,7 @@ pub enum BeamTheory {
     EulerBernoulli,
 }
 
-/// Shear coefficient of a circular tube (Cowper 1966, from memory per field notes §5):
+/// Shear coefficient of a circular tube (Cowper 1966, from memory):
 /// κ = 6(1+ν)(1+m²)² / [(7+6ν)(1+m²)² + (20+12ν)m²], m = Di/Do; solid: 6(1+ν)/(7+6ν).
 pub fn cowper_kappa(poisson: f64, inner_over_outer: f64) -> f64 {
     let m2 = inner_over_outer * inner_over_outer;
@@ -156,8 +156,12 @@ impl Shaft {
             if v.is_finite() && (lo..=hi).contains(&v) {
                 Ok(())
             } else {
+                let show = crate::units::show;
                 Err(format!(
-                    "{what} {v} {unit} is outside physical limits ({lo} to {hi} {unit})"
+                    "{what} {} {unit} is outside physical limits ({} to {} {unit})",
+                    show(v),
+                    show(lo),
+                    show(hi)
                 ))
             }
         };
@@ -457,7 +461,7 @@ impl FeModel {
     }
 }
 
-/// Element stiffness and mass (translational + rotary) per field notes §5.
+/// Element stiffness and mass (translational + rotary) (Friedman & Kosmatka, Comput. Struct. 47, 1993).
 fn element(
     s: &Section,
     mat: Material,
@@ -554,7 +558,7 @@ mod tests {
 
     #[test]
     fn free_free_matches_field_notes_check_values() {
-        // Field notes §8 [der]: D = 50 mm, L = 1 m free-free, EB 230.2/634.6/1244.1 Hz,
+        // Derived from the closed forms (Blevins 1979, from memory): D = 50 mm, L = 1 m free-free, EB 230.2/634.6/1244.1 Hz,
         // Timoshenko 228.7/622.9/1200.9 Hz.
         let s = solid(1.0, 0.05);
         let (_, eb) = s.modes(BeamTheory::EulerBernoulli, 5, 80, &[]).unwrap();
@@ -578,7 +582,7 @@ mod tests {
 
     #[test]
     fn kappa_solid() {
-        // Cowper 1966 (from memory, field notes §5): 0.886 at ν = 0.3.
+        // Cowper 1966 (from memory): 0.886 at ν = 0.3.
         assert!((cowper_kappa(0.3, 0.0) - 0.886).abs() < 1e-3);
     }
 }

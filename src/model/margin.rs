@@ -1,4 +1,4 @@
-//! Running-speed margin check (field notes §6, API RP 684 from memory — confirm against the
+//! Running-speed margin check (API RP 684 2nd ed. 2005, from memory — confirm against the
 //! standard in force): amplification factor AF ≈ 1/(2ζ) by the half-power method; no separation
 //! margin needed when AF < 2.5; below the minimum operating speed SM = min[16, 17(1 − 1/(AF − 1.5))] %;
 //! above the maximum continuous speed SM = min[26, 10 + 17(1 − 1/(AF − 1.5))] %. The rule's
@@ -155,7 +155,7 @@ pub fn check(
 mod tests {
     use super::*;
 
-    /// Worked by hand from the formulas above (field notes §6): ζ = 0.05 → AF = 10;
+    /// Worked by hand from the formulas above: ζ = 0.05 → AF = 10;
     /// below: 17(1 − 1/8.5) = 15.0 %; above: 10 + 15.0 = 25.0 %. ζ = 0.25 → AF = 2 < 2.5: none.
     #[test]
     fn rule_by_hand() {

@@ -17,7 +17,12 @@ pub const CONVERGED: f64 = 1e-5;
 pub fn read_shaft(path: &Path) -> Result<Shaft, InputError> {
     let text = std::fs::read_to_string(path)
         .map_err(|e| InputError::new(path, format!("cannot read: {e}")))?;
-    let shaft: Shaft = serde_json::from_str(&text)
+    parse_shaft(path, &text)
+}
+
+/// [`read_shaft`] of text already read (`path` names it in errors).
+pub fn parse_shaft(path: &Path, text: &str) -> Result<Shaft, InputError> {
+    let shaft: Shaft = serde_json::from_str(text)
         .map_err(|e| InputError::new(path, format!("is not a valid shaft model: {e}")))?;
     shaft.validate().map_err(|m| InputError::new(path, m))?;
     Ok(shaft)

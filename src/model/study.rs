@@ -455,7 +455,7 @@ mod tests {
     }
 
     /// The automatic sweep spans K* = 0.1 … 10⁵ in whole decades (common practice: the
-    /// spring-support table of field notes §5 runs K* = 1 … 1000).
+    /// spring-support sweeps of a shaft usually run K* = 1 … 1000).
     #[test]
     fn automatic_sweep_range() {
         let st = Study::new(uniform(1.0, 0.02));

@@ -136,6 +136,18 @@ impl Manifest {
 }
 
 impl Manifest {
+    /// Reads a manifest's text (`path` names it in errors): JSON, format and schema (older ones
+    /// migrated), then every value checked by [`Manifest::check`].
+    pub fn from_json(path: &Path, text: &str) -> Result<Self, InputError> {
+        let value: serde_json::Value = serde_json::from_str(text)
+            .map_err(|e| InputError::new(path, format!("is not valid JSON: {e}")))?;
+        let value = migrate(value).map_err(|m| InputError::new(path, m))?;
+        let manifest: Manifest = serde_json::from_value(value)
+            .map_err(|e| InputError::new(path, format!("is not a valid session manifest: {e}")))?;
+        manifest.check().map_err(|m| InputError::new(path, m))?;
+        Ok(manifest)
+    }
+
     /// Checks every value read from a manifest against its range, before anything is sized
     /// from it; the error names the field.
     pub fn check(&self) -> Result<(), String> {
@@ -153,7 +165,8 @@ impl Manifest {
             if !(s.position_m.is_finite() && s.position_m.abs() <= 1000.0) {
                 return Err(format!(
                     "stations: station {} position {} m is not a position on a part (±1000 m)",
-                    s.station, s.position_m
+                    s.station,
+                    crate::units::show(s.position_m)
                 ));
             }
         }
@@ -229,11 +242,7 @@ impl Session {
         let path = dir.join(MANIFEST);
         let text = std::fs::read_to_string(&path)
             .map_err(|e| InputError::new(&path, format!("cannot read: {e}")))?;
-        let value: serde_json::Value = serde_json::from_str(&text)
-            .map_err(|e| InputError::new(&path, format!("is not valid JSON: {e}")))?;
-        let value = migrate(value).map_err(|m| InputError::new(&path, m))?;
-        let manifest: Manifest = serde_json::from_value(value)
-            .map_err(|e| InputError::new(&path, format!("is not a valid session manifest: {e}")))?;
+        let manifest = Manifest::from_json(&path, &text)?;
         for r in &manifest.recordings {
             let p = dir.join(&r.file);
             let meta = std::fs::metadata(&p).map_err(|e| {
@@ -253,7 +262,6 @@ impl Session {
                 ));
             }
         }
-        manifest.check().map_err(|m| InputError::new(&path, m))?;
         Ok(Self {
             dir: dir.to_path_buf(),
             manifest,

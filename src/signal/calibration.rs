@@ -1,4 +1,4 @@
-//! Calibration helpers (field notes §1): a channel's sensitivity or volts at full scale from a
+//! Calibration helpers (Brown, Allemang & Phillips 2015; common practice): a channel's sensitivity or volts at full scale from a
 //! known tone, the mass check (accelerance of a free rigid mass is 1/m) and the loopback check
 //! (one signal into both inputs: H = 1).
 

@@ -3,8 +3,8 @@
 //! Every input of an audio interface is high-passed (a first-order corner of a few Hz). The
 //! hammer's pulse comes out with a slow negative tail, which the force window cuts, while the
 //! response keeps its share of the high-pass: the measured FRF is HP(s')·H(s') with
-//! s' = jω + 1/τ after the exponential window — an error of +5.7° at ten times the corner (field
-//! notes §1). Past the pulse the hammer channel is y = c + K·e^{−ω_c t} plus hum, so the corner
+//! s' = jω + 1/τ after the exponential window — an error of +5.7° at ten times the corner (first-order
+//! high-pass, derived). Past the pulse the hammer channel is y = c + K·e^{−ω_c t} plus hum, so the corner
 //! can be read off it; dividing the FRF by HP(s') then removes the error exactly.
 
 use nalgebra::{DMatrix, DVector};
@@ -206,7 +206,7 @@ mod tests {
     #[test]
     fn corner_from_a_simulated_hammer_tail() {
         // A half-sine through a first-order high-pass grows a negative tail lasting ≈ 1/(2πf_c)
-        // (field notes §1); the simulated corner is 4 Hz. DC-coupled input: no corner.
+        // (derived); the simulated corner is 4 Hz. DC-coupled input: no corner.
         let model = ModalModel {
             modes: vec![TruthMode {
                 frequency_hz: 300.0,

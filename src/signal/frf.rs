@@ -136,7 +136,7 @@ impl CrossSpectra {
     }
 }
 
-/// One spectral line of an estimator (Bendat & Piersol 2010; Hv per field notes §2).
+/// One spectral line of an estimator (Bendat & Piersol 2010; Hv the SISO total-least-squares line, derived).
 pub fn estimate_line(est: Estimator, gaa: f64, gbb: f64, gab: Complex64) -> Complex64 {
     let zero = Complex64::new(0.0, 0.0);
     match est {
@@ -197,7 +197,7 @@ mod tests {
         for e in [Estimator::H1, Estimator::H2, Estimator::Hv] {
             assert!((estimate_line(e, gaa, gbb, gab) - h).norm() < 1e-12);
         }
-        // Extra response noise power: |H1| ≤ |Hv| ≤ |H2| (field notes §2).
+        // Extra response noise power: |H1| ≤ |Hv| ≤ |H2| (Bendat & Piersol 2010).
         let gbb_noisy = gbb + 0.5;
         let m = |e| estimate_line(e, gaa, gbb_noisy, gab).norm();
         assert!(m(Estimator::H1) <= m(Estimator::Hv) && m(Estimator::Hv) <= m(Estimator::H2));

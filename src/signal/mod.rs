@@ -5,11 +5,13 @@ pub mod carryover;
 pub mod coupling;
 pub mod frf;
 pub mod hits;
+pub mod record;
 pub mod station;
 pub mod taps;
 pub mod verdict;
 pub mod window;
 
 pub use frf::{CrossSpectra, SpectrumPlan};
+pub use record::RecordPlan;
 pub use station::{HitReport, HitTraces, StationFrf, StationResult, analyze_station, hit_traces};
 pub use verdict::Reason;

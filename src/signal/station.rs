@@ -10,9 +10,10 @@ use super::frf::{CrossSpectra, SpectrumPlan};
 use super::hits::{
     Pulse, find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact,
 };
+use super::record::RecordPlan;
 use super::taps::find_strikes;
 use super::verdict::Reason;
-use super::window::{exponential, exponential_tau_s, force_window};
+use super::window::force_window;
 use crate::Complex64;
 use crate::numeric::median;
 use crate::setup::{AcCoupling, Layout, Setup};
@@ -118,41 +119,11 @@ pub fn analyze_station(
     overrides: &BTreeMap<usize, bool>,
     plan: &mut Option<SpectrumPlan>,
 ) -> Result<StationResult, String> {
-    if fs == 0 {
-        return Err("the recording's sample rate is 0 Hz".into());
-    }
-    let n = setup.record_samples(fs);
-    if n > a.len().min(b.len()) {
-        // Checked before any buffer is sized from the record length.
-        return Err(format!(
-            "the record of {n} samples ({:.3} s) is longer than the whole recording ({} samples,              {:.3} s): choose a shorter record length",
-            n as f64 / fs as f64,
-            a.len().min(b.len()),
-            a.len().min(b.len()) as f64 / fs as f64
-        ));
-    }
-    let dt = 1.0 / fs as f64;
-    let df = fs as f64 / n as f64;
-    let pre = ((setup.trigger.pretrigger_fraction * n as f64).round() as usize).min(n - 1);
-    let [lo, hi] = setup.band(fs);
-    let nyquist = fs as f64 / 2.0;
-    if hi > nyquist {
-        // Clipping it quietly would report a band the recording cannot hold.
-        return Err(format!(
-            "the band's upper edge {hi} Hz lies above the Nyquist frequency {nyquist} Hz of this \
-             recording ({fs} Hz sampling); choose a band up to about {:.0} Hz",
-            0.45 * fs as f64
-        ));
-    }
-    let k_lo = (lo / df).ceil().max(1.0) as usize;
-    let k_hi = ((hi / df).floor() as usize).min(n / 2);
-    if k_lo > k_hi {
-        return Err(format!(
-            "the band {lo}:{hi} Hz holds no spectral line at {df:.4} Hz spacing"
-        ));
-    }
-    let lines = k_lo..k_hi + 1;
-    let freq_hz: Vec<f64> = lines.clone().map(|k| k as f64 * df).collect();
+    let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
+    let (n, pre, dt, df) = (rp.n, rp.pre, rp.dt, rp.df);
+    let [lo, hi] = rp.band_hz;
+    let lines = rp.lines.clone();
+    let freq_hz = rp.freq_hz.clone();
 
     // Samples that are not numbers (a damaged float recording) are set to zero so that nothing
     // downstream sees them; the hits whose records held them are rejected below.
@@ -244,11 +215,8 @@ pub fn analyze_station(
             carryover::corrections(b, fs, &spans, pre, n, [lo, hi]),
         ),
     };
-    let scale_a = setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit();
-    let scale_b = setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit();
-    let post_s = (n - pre) as f64 * dt;
-    let tau = exponential_tau_s(post_s, setup.windows.exponential_end);
-    let ew = exponential(n, pre, dt, tau);
+    let (scale_a, scale_b, tau) = (rp.scale_a, rp.scale_b, rp.tau_s);
+    let ew = &rp.exp_window;
     // Undo the interface's high-pass, which the force window leaves in the response only (see
     // `coupling`); in the sensor layout both channels are responses and it cancels.
     let corner_hz = match (setup.layout, setup.ac_coupling) {
@@ -368,7 +336,7 @@ pub fn analyze_station(
                     lines.clone(),
                 );
                 let mut sb =
-                    plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, &ew), dt, lines.clone());
+                    plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, ew), dt, lines.clone());
                 if let Some(u) = &unhp {
                     sb.iter_mut().zip(u).for_each(|(v, u)| *v *= u);
                 }
@@ -376,8 +344,8 @@ pub fn analyze_station(
             }
             Layout::Sensor => {
                 let (ma, mb) = baseline(ra_w, rb_w, pre.saturating_sub(pre / 10));
-                let sa = plan.lines_of(|x| windowed(x, ra_w, ma, scale_a, &ew), dt, lines.clone());
-                let sb = plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, &ew), dt, lines.clone());
+                let sa = plan.lines_of(|x| windowed(x, ra_w, ma, scale_a, ew), dt, lines.clone());
+                let sb = plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, ew), dt, lines.clone());
                 (sa, sb)
             }
         };
@@ -469,17 +437,13 @@ pub fn hit_traces(
     setup: &Setup,
     hit: &HitReport,
 ) -> Option<HitTraces> {
-    let n = setup.record_samples(fs);
+    let rp = RecordPlan::new(setup, fs, a.len().min(b.len())).ok()?;
+    let (n, pre, dt) = (rp.n, rp.pre, rp.dt);
     let start = hit.record_start?;
     if start + n > a.len() || start + n > b.len() {
         return None;
     }
-    let dt = 1.0 / fs as f64;
-    let pre = ((setup.trigger.pretrigger_fraction * n as f64).round() as usize).min(n - 1);
-    let scale_a = setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit();
-    let scale_b = setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit();
-    let tau = exponential_tau_s((n - pre) as f64 * dt, setup.windows.exponential_end);
-    let ew = exponential(n, pre, dt, tau);
+    let ew = rp.exp_window.clone();
     let ra = &a[start..start + n];
     let rb = &b[start..start + n];
     let (window_a, base_end) = match hit.force_window {
@@ -494,15 +458,11 @@ pub fn hit_traces(
         None => (ew.clone(), pre.saturating_sub(pre / 10)),
     };
     let (ma, mb) = baseline(ra, rb, base_end);
-    let ta: Vec<f64> = ra.iter().map(|v| (v - ma) * scale_a).collect();
-    let tb: Vec<f64> = rb.iter().map(|v| (v - mb) * scale_b).collect();
-    let [lo, hi] = setup.band(fs);
-    let df = fs as f64 / n as f64;
-    let k_lo = (lo / df).ceil().max(1.0) as usize;
-    let k_hi = ((hi / df).floor() as usize).min(n / 2);
+    let ta: Vec<f64> = ra.iter().map(|v| (v - ma) * rp.scale_a).collect();
+    let tb: Vec<f64> = rb.iter().map(|v| (v - mb) * rp.scale_b).collect();
     let mut plan = SpectrumPlan::new(n);
     let windowed_a: Vec<f64> = ta.iter().zip(&window_a).map(|(v, w)| v * w).collect();
-    let lines = plan.lines(&windowed_a, dt, k_lo..k_hi + 1);
+    let lines = plan.lines(&windowed_a, dt, rp.lines.clone());
     let p: Vec<f64> = lines.iter().map(|c| c.norm_sqr()).collect();
     let pmax = p.iter().copied().fold(0.0f64, f64::max);
     let spectrum_a_db = p
@@ -522,7 +482,7 @@ pub fn hit_traces(
         window_a,
         window_b: ew,
         pretrigger_samples: pre,
-        spectrum_freq_hz: (k_lo..=k_hi).map(|k| k as f64 * df).collect(),
+        spectrum_freq_hz: rp.freq_hz,
         spectrum_a_db,
     })
 }
@@ -551,7 +511,7 @@ struct ForceShape {
 
 /// The force spectrum's in-band drop, the highest line still within `rolloff_db` of its largest
 /// value, and the first null after that (a minimum 30 dB or more below the largest value with the
-/// spectrum rising again after it: a half-sine's first null lies at 1.5/Tc, field notes §1).
+/// spectrum rising again after it: a half-sine's first null lies at 1.5/Tc, derived).
 fn force_shape(sa: &[Complex64], freq_hz: &[f64], rolloff_db: f64) -> ForceShape {
     let p: Vec<f64> = sa.iter().map(|c| c.norm_sqr()).collect();
     let (mx, mn) = p.iter().fold((0.0f64, f64::INFINITY), |(mx, mn), &v| {

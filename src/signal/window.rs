@@ -70,7 +70,7 @@ mod tests {
 
     #[test]
     fn field_notes_example_delta_zeta() {
-        // Field notes §1 [der]: p = 1 %, Δf = 0.5 Hz (T = 2 s), f_n = 200 Hz adds Δζ ≈ 0.18 %.
+        // Laplace shift (Fladung 1997), derived: p = 1 %, Δf = 0.5 Hz (T = 2 s), f_n = 200 Hz adds Δζ ≈ 0.18 %.
         let tau = exponential_tau_s(2.0, 0.01);
         let added = 1.0 / (tau * 2.0 * std::f64::consts::PI * 200.0);
         assert!((added - 0.00183).abs() < 5e-5, "{added}");

@@ -1,0 +1,330 @@
+//! Commands carried out after the frame: navigation, verdicts, pole picks, files.
+
+use super::*;
+
+impl TapgridApp {
+    pub(super) fn stations(&self) -> Vec<u32> {
+        self.doc
+            .as_ref()
+            .map(|d| d.data.stations.iter().map(|s| s.station).collect())
+            .unwrap_or_default()
+    }
+
+    /// Carries out one command.
+    pub fn apply(&mut self, ctx: &egui::Context, c: Command) {
+        match c {
+            Command::Open(p) => self.worker.send(Job::Open(p)),
+            Command::Save => self.save(),
+            Command::SaveAs(dir) => self.save_as(dir),
+            Command::AskPath(purpose) => {
+                let text = match purpose {
+                    PathPurpose::WriteModel => std::env::current_dir()
+                        .unwrap_or_default()
+                        .join("shaft.json")
+                        .display()
+                        .to_string(),
+                    PathPurpose::WriteReport => self
+                        .doc
+                        .as_ref()
+                        .map(|d| report_default_path(d).display().to_string())
+                        .unwrap_or_default(),
+                    PathPurpose::SaveAs => self
+                        .doc
+                        .as_ref()
+                        .map(|d| {
+                            let name = d
+                                .path
+                                .file_name()
+                                .map(|n| n.to_string_lossy().into_owned())
+                                .unwrap_or_else(|| "session".into());
+                            std::env::current_dir()
+                                .unwrap_or_default()
+                                .join(format!("{name}-session"))
+                                .display()
+                                .to_string()
+                        })
+                        .unwrap_or_default(),
+                    _ => std::env::current_dir()
+                        .unwrap_or_default()
+                        .display()
+                        .to_string(),
+                };
+                self.dialog = Some(PathDialog { purpose, text });
+            }
+            Command::Show(v) => self.settings.view = v,
+            Command::GoStation(s) => {
+                self.current_station = Some(s);
+                self.current_hit = 0;
+            }
+            Command::NextStation | Command::PrevStation => {
+                let st = self.stations();
+                if st.is_empty() {
+                    return;
+                }
+                let i = self
+                    .current_station
+                    .and_then(|c| st.iter().position(|&s| s == c))
+                    .unwrap_or(0);
+                let j = if c == Command::NextStation {
+                    (i + 1).min(st.len() - 1)
+                } else {
+                    i.saturating_sub(1)
+                };
+                self.current_station = Some(st[j]);
+                self.current_hit = 0;
+            }
+            Command::NextHit | Command::PrevHit => {
+                let n = self
+                    .current_station
+                    .and_then(|s| self.doc.as_ref()?.station_analysis(s))
+                    .map_or(0, |s| s.result.hits.len());
+                if n == 0 {
+                    return;
+                }
+                self.current_hit = if c == Command::NextHit {
+                    (self.current_hit + 1).min(n - 1)
+                } else {
+                    self.current_hit.saturating_sub(1)
+                };
+            }
+            Command::SelectHit(h) => self.current_hit = h,
+            Command::SetVerdict {
+                station,
+                hit,
+                accept,
+            } => self.set_verdict(station, hit, accept),
+            Command::VerdictCurrent(accept) => {
+                if let Some(st) = self.current_station {
+                    self.set_verdict(st, self.current_hit, Some(accept));
+                }
+            }
+            Command::Reanalyse => {
+                if let Some(d) = &mut self.doc {
+                    d.dirty = true;
+                }
+                self.request_analysis();
+            }
+            Command::TogglePole {
+                frequency_hz,
+                tolerance_hz,
+            } => self.toggle_pole(frequency_hz, tolerance_hz),
+            Command::AutoPoles => {
+                if let Some(d) = &mut self.doc {
+                    d.picked = None;
+                    d.modal_settings.selection = Selection::Auto;
+                    d.dirty = true;
+                }
+                self.request_fit();
+            }
+            Command::SetFitBand(b) => {
+                if let Some(d) = &mut self.doc {
+                    d.modal_settings.band_hz = b;
+                    d.modal_settings.selection = Selection::Auto;
+                    d.picked = None;
+                    d.dirty = true;
+                }
+                self.request_fit();
+            }
+            Command::TogglePlay => self.playing = !self.playing,
+            Command::ToggleHelp => self.show_help = !self.show_help,
+            Command::SelectMode(m) => {
+                self.selected_mode = m;
+                self.selected_model_mode = None;
+            }
+            Command::SelectModelMode(m) => self.selected_model_mode = Some(m),
+            Command::ModelEdited => {
+                if let Some(d) = &mut self.doc {
+                    d.dirty = true;
+                }
+                self.request_study();
+            }
+            Command::LoadModel(p) => self.load_model(&p),
+            Command::WriteModel(p) => self.write_model(&p),
+            Command::WriteReport(p) => self.write_report(&p),
+            Command::NewModel => {
+                if let Some(d) = &mut self.doc {
+                    d.study = Some(model_edit::first_model(d));
+                    d.dirty = true;
+                }
+                self.request_study();
+            }
+        }
+        ctx.request_repaint();
+    }
+
+    pub(super) fn set_verdict(&mut self, station: u32, hit: usize, accept: Option<bool>) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        let Some(i) = d.station_index(station) else {
+            return;
+        };
+        let known = d
+            .station_analysis(station)
+            .is_some_and(|s| hit < s.result.hits.len());
+        if !known {
+            return;
+        }
+        let ov = &mut d.data.stations[i].overrides;
+        match accept {
+            Some(v) => {
+                ov.insert(hit, v);
+            }
+            None => {
+                ov.remove(&hit);
+            }
+        }
+        d.dirty = true;
+        self.request_analysis();
+    }
+
+    pub(super) fn toggle_pole(&mut self, f: f64, tol: f64) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        let Some(m) = d.modal.clone() else {
+            return;
+        };
+        let Some(stab) = &m.stabilization else {
+            self.note(
+                "no stabilization diagram (peak method): nothing to pick",
+                true,
+            );
+            return;
+        };
+        let mut picked = d
+            .picked
+            .clone()
+            .unwrap_or_else(|| fit_view::poles_of_modes(&m, stab));
+        if let Some(k) = picked
+            .iter()
+            .position(|&p| (stab.poles[p].frequency_hz - f).abs() <= tol)
+        {
+            picked.remove(k);
+        } else if let Some(p) = fit_view::best_pole_near(stab, f, tol) {
+            picked.push(p);
+        } else {
+            self.note(format!("no pole within {tol:.1} Hz of {f:.1} Hz"), true);
+            return;
+        }
+        d.picked = Some(picked);
+        self.request_fit();
+    }
+
+    pub(super) fn load_model(&mut self, path: &Path) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        match crate::model::run::read_shaft(path) {
+            Ok(shaft) => {
+                // The service questions stay; only the shaft is replaced.
+                match &mut d.study {
+                    Some(st) => st.shaft = shaft,
+                    None => d.study = Some(Study::new(shaft)),
+                }
+                d.dirty = true;
+                self.note(format!("read the shaft model {}", path.display()), false);
+                self.request_study();
+            }
+            Err(e) => self.note(e.to_string(), true),
+        }
+    }
+
+    pub(super) fn write_report(&mut self, path: &Path) {
+        let Some(d) = &self.doc else {
+            return;
+        };
+        let Some(analysis) = &d.analysis else {
+            self.note(
+                "the report needs the analysis, which has not finished",
+                true,
+            );
+            return;
+        };
+        let empty = ModalResult::default();
+        let written = crate::report::document::utc_now();
+        let input = crate::report::document::ReportInput {
+            part: &d.part.name,
+            notes: &d.part.notes,
+            source: &d.path,
+            analysis,
+            modes: d.modal.as_deref().unwrap_or(&empty),
+            study: d.study.as_ref().zip(d.study_result.as_deref()),
+            written_utc: &written,
+        };
+        match crate::report::document::write_html(path, &input) {
+            Ok(()) => self.note(format!("wrote the report to {}", path.display()), false),
+            Err(e) => self.note(e.to_string(), true),
+        }
+    }
+
+    pub(super) fn write_model(&mut self, path: &Path) {
+        let Some(st) = self.doc.as_ref().and_then(|d| d.study.as_ref()) else {
+            return;
+        };
+        let text = match serde_json::to_string_pretty(&st.shaft) {
+            Ok(t) => t,
+            Err(e) => {
+                self.note(format!("cannot write the model: {e}"), true);
+                return;
+            }
+        };
+        match crate::atomic::write_bytes(path, text.as_bytes()) {
+            Ok(()) => self.note(format!("wrote {}", path.display()), false),
+            Err(e) => self.note(format!("{}: cannot write: {e}", path.display()), true),
+        }
+    }
+
+    pub(super) fn save(&mut self) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        if d.read_only || d.session.is_none() {
+            self.commands.push(Command::AskPath(PathPurpose::SaveAs));
+            return;
+        }
+        if self.capture.handle.is_some() && self.capture_dir.as_deref() == Some(d.path.as_path()) {
+            self.note(
+                "capture is writing this session: your changes are saved when it stops",
+                false,
+            );
+            return;
+        }
+        if let Some(s) = d.session_to_write() {
+            match s.save() {
+                Ok(()) => {
+                    d.session = Some(s);
+                    d.dirty = false;
+                    self.note("saved", false);
+                }
+                Err(e) => self.note(format!("could not save: {e}"), true),
+            }
+        }
+    }
+
+    pub(super) fn save_as(&mut self, dir: PathBuf) {
+        let Some(d) = &self.doc else {
+            return;
+        };
+        if let Some(s) = d.session_to_write() {
+            self.worker.send(Job::SaveAs {
+                session: Box::new(s),
+                dir,
+            });
+        } else {
+            let hits = d
+                .analysis
+                .as_ref()
+                .map(|a| crate::session::saved_hits(a))
+                .unwrap_or_default();
+            self.worker.send(Job::CreateSession {
+                wavset: d.data.origin.clone(),
+                dir,
+                setup: d.setup.clone(),
+                part: d.part.clone(),
+                hits,
+                model: d.study.clone().map(Box::new),
+            });
+        }
+    }
+}

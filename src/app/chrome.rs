@@ -1,0 +1,213 @@
+//! The window's frame around the views: top bar, status bar, keyboard shortcuts, path dialog.
+
+use super::*;
+
+impl TapgridApp {
+    pub(super) fn top_bar(&mut self, ui: &mut egui::Ui) {
+        ui.horizontal_wrapped(|ui| {
+            ui.menu_button("File", |ui| {
+                if ui.button("Open folder…").clicked() {
+                    self.commands.push(Command::AskPath(PathPurpose::Open));
+                }
+                if ui.button("Replay a WAV set…").clicked() {
+                    self.commands.push(Command::AskPath(PathPurpose::Import));
+                }
+                let can_save = self.doc.as_ref().is_some_and(|d| !d.read_only);
+                if ui
+                    .add_enabled(can_save, egui::Button::new("Save"))
+                    .clicked()
+                {
+                    self.commands.push(Command::Save);
+                }
+                if ui
+                    .add_enabled(
+                        self.doc.is_some(),
+                        egui::Button::new("Save as new session…"),
+                    )
+                    .clicked()
+                {
+                    self.commands.push(Command::AskPath(PathPurpose::SaveAs));
+                }
+                let can_report = self.doc.as_ref().is_some_and(|d| d.analysis.is_some());
+                if ui
+                    .add_enabled(can_report, egui::Button::new("Write report…"))
+                    .clicked()
+                {
+                    self.commands
+                        .push(Command::AskPath(PathPurpose::WriteReport));
+                }
+                ui.separator();
+                ui.label("Recent");
+                for p in self.settings.recent.clone() {
+                    if ui.button(p.display().to_string()).clicked() {
+                        self.commands.push(Command::Open(p));
+                    }
+                }
+            });
+            let theme = if self.settings.dark {
+                "Light theme"
+            } else {
+                "Dark theme"
+            };
+            if ui.button(theme).clicked() {
+                self.settings.dark = !self.settings.dark;
+                style(ui.ctx(), self.settings.dark);
+            }
+            if ui.button("Help").clicked() {
+                self.commands.push(Command::ToggleHelp);
+            }
+            ui.separator();
+            for v in View::ALL {
+                let sel = self.settings.view == v;
+                if ui
+                    .add(egui::Button::selectable(
+                        sel,
+                        egui::RichText::new(v.label()).size(17.0),
+                    ))
+                    .clicked()
+                {
+                    self.commands.push(Command::Show(v));
+                }
+            }
+        });
+    }
+
+    pub(super) fn status_bar(&mut self, ui: &mut egui::Ui) {
+        ui.horizontal(|ui| {
+            if let Some(what) = self.worker.busy() {
+                ui.spinner();
+                ui.label(format!("{what}…"));
+                ui.separator();
+            }
+            if let Some(d) = &self.doc {
+                let mut title = d.part.name.clone();
+                if let Some(who) = &d.locked_by {
+                    title.push_str(&format!("  (read-only: in use by {who})"));
+                } else if d.read_only {
+                    title.push_str("  (demo: read-only, use Save as)");
+                } else if d.dirty {
+                    title.push_str("  (unsaved changes)");
+                }
+                ui.label(egui::RichText::new(title).strong());
+                ui.label(d.path.display().to_string());
+                if let Some(st) = self.current_station {
+                    ui.separator();
+                    ui.label(format!("station {st}"));
+                }
+            }
+            if let Some(m) = self.messages.last() {
+                ui.separator();
+                let color = if m.error {
+                    plots::BAD
+                } else {
+                    ui.visuals().text_color()
+                };
+                ui.label(egui::RichText::new(&m.text).color(color));
+                if ui.small_button("dismiss").clicked() {
+                    self.messages.pop();
+                }
+            }
+        });
+    }
+
+    pub(super) fn shortcuts(&mut self, ctx: &egui::Context) {
+        if ctx.egui_wants_keyboard_input() {
+            return;
+        }
+        use egui::Key;
+        let pressed = |k| ctx.input(|i| i.key_pressed(k));
+        let cmd = ctx.input(|i| i.modifiers.command);
+        if cmd && pressed(Key::S) {
+            self.commands.push(Command::Save);
+            return;
+        }
+        if cmd && pressed(Key::O) {
+            self.commands.push(Command::AskPath(PathPurpose::Open));
+            return;
+        }
+        for (k, c) in [
+            (Key::ArrowRight, Command::NextStation),
+            (Key::ArrowLeft, Command::PrevStation),
+            (Key::N, Command::NextStation),
+            (Key::P, Command::PrevStation),
+            (Key::ArrowDown, Command::NextHit),
+            (Key::ArrowUp, Command::PrevHit),
+            (Key::A, Command::VerdictCurrent(true)),
+            (Key::R, Command::VerdictCurrent(false)),
+            (Key::Space, Command::TogglePlay),
+            (Key::F1, Command::ToggleHelp),
+        ] {
+            if pressed(k) {
+                self.commands.push(c);
+            }
+        }
+        for (k, v) in [
+            (Key::Num1, View::Setup),
+            (Key::Num2, View::Stations),
+            (Key::Num3, View::Hits),
+            (Key::Num4, View::Frf),
+            (Key::Num5, View::Fit),
+            (Key::Num6, View::Modes),
+            (Key::Num7, View::Capture),
+            (Key::Num8, View::Model),
+            (Key::Num9, View::Margins),
+        ] {
+            if pressed(k) {
+                self.commands.push(Command::Show(v));
+            }
+        }
+    }
+
+    pub(super) fn path_dialog(&mut self, ctx: &egui::Context) {
+        let Some(d) = &mut self.dialog else {
+            return;
+        };
+        let title = match d.purpose {
+            PathPurpose::Open => "Open a session or WAV set folder",
+            PathPurpose::Import => "Replay a WAV set folder",
+            PathPurpose::SaveAs => "Save as a new session folder",
+            PathPurpose::LoadModel => "Read a shaft model (JSON file)",
+            PathPurpose::WriteModel => "Write the shaft model (JSON file)",
+            PathPurpose::WriteReport => "Write the test report (HTML file)",
+        };
+        let mut close = false;
+        let mut go = None;
+        egui::Window::new(title)
+            .collapsible(false)
+            .resizable(false)
+            .anchor(egui::Align2::CENTER_CENTER, [0.0, 0.0])
+            .show(ctx, |ui| {
+                ui.label(match d.purpose {
+                    PathPurpose::LoadModel | PathPurpose::WriteModel | PathPurpose::WriteReport => {
+                        "File:"
+                    }
+                    _ => "Folder:",
+                });
+                let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(520.0));
+                let enter = r.lost_focus() && ui.input(|i| i.key_pressed(egui::Key::Enter));
+                ui.horizontal(|ui| {
+                    if ui.button("OK").clicked() || enter {
+                        go = Some(PathBuf::from(d.text.trim()));
+                    }
+                    if ui.button("Cancel").clicked() {
+                        close = true;
+                    }
+                });
+            });
+        if let Some(p) = go {
+            let purpose = d.purpose;
+            self.dialog = None;
+            if !p.as_os_str().is_empty() {
+                self.commands.push(match purpose {
+                    PathPurpose::Open | PathPurpose::Import => Command::Open(p),
+                    PathPurpose::SaveAs => Command::SaveAs(p),
+                    PathPurpose::LoadModel => Command::LoadModel(p),
+                    PathPurpose::WriteModel => Command::WriteModel(p),
+                    PathPurpose::WriteReport => Command::WriteReport(p),
+                });
+            }
+        } else if close {
+            self.dialog = None;
+        }
+    }
+}

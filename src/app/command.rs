@@ -1,0 +1,119 @@
+//! What a view asks for, carried out after the frame.
+
+use super::*;
+
+/// What a view asks for; applied after the frame.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Command {
+    /// Open a session or WAV set folder.
+    Open(PathBuf),
+    /// Write the session.
+    Save,
+    /// Write the test as a session in a new folder.
+    SaveAs(PathBuf),
+    /// Ask for a path (open, import, save as).
+    AskPath(PathPurpose),
+    /// Show a view.
+    Show(View),
+    /// Go to a station.
+    GoStation(u32),
+    /// Next station.
+    NextStation,
+    /// Previous station.
+    PrevStation,
+    /// Next hit of the station.
+    NextHit,
+    /// Previous hit.
+    PrevHit,
+    /// Select a hit.
+    SelectHit(usize),
+    /// A person's verdict on a hit (`None` = back to automatic).
+    SetVerdict {
+        /// Station.
+        station: u32,
+        /// Hit index.
+        hit: usize,
+        /// Accept, reject or automatic.
+        accept: Option<bool>,
+    },
+    /// Verdict on the current hit.
+    VerdictCurrent(bool),
+    /// The setup changed: analyse again.
+    Reanalyse,
+    /// Take or drop the mode of the pole column nearest this frequency (Hz), within a tolerance.
+    TogglePole {
+        /// Frequency clicked, Hz.
+        frequency_hz: f64,
+        /// Half-width of the column, Hz.
+        tolerance_hz: f64,
+    },
+    /// Back to the automatic pole choice.
+    AutoPoles,
+    /// Fit band (`None`: the analysis band); fits again.
+    SetFitBand(Option<[f64; 2]>),
+    /// Play or pause the animation.
+    TogglePlay,
+    /// Open or close the help.
+    ToggleHelp,
+    /// Choose the mode to animate.
+    SelectMode(usize),
+    /// Choose the model mode to animate.
+    SelectModelMode(usize),
+    /// The shaft model or its service questions changed: solve again.
+    ModelEdited,
+    /// Read a shaft model (JSON) into the test.
+    LoadModel(PathBuf),
+    /// Write the shaft model as JSON.
+    WriteModel(PathBuf),
+    /// Write the test report (HTML) of what the window shows.
+    WriteReport(PathBuf),
+    /// A first model: a uniform steel shaft over the stations, free-free.
+    NewModel,
+}
+
+/// Where a report goes by default: beside a session or WAV set (a session's own folder holds only
+/// what the session format defines), or in the working folder for the read-only demo.
+pub(super) fn report_default_path(d: &Document) -> PathBuf {
+    let name = d
+        .path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "test".into());
+    let dir = if d.read_only {
+        std::env::current_dir().unwrap_or_default()
+    } else {
+        d.path.parent().map(Path::to_path_buf).unwrap_or_default()
+    };
+    dir.join(format!("{name}-report.html"))
+}
+
+/// Why a path is being asked for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PathPurpose {
+    /// Open a session or WAV set.
+    Open,
+    /// Import (replay) a WAV set.
+    Import,
+    /// Save as a new session.
+    SaveAs,
+    /// Read a shaft model file.
+    LoadModel,
+    /// Write the shaft model file.
+    WriteModel,
+    /// Write the test report.
+    WriteReport,
+}
+
+pub(super) struct PathDialog {
+    pub(super) purpose: PathPurpose,
+    pub(super) text: String,
+}
+
+/// A line in the message bar.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Message {
+    /// Text.
+    pub text: String,
+    /// An error (else a notice).
+    pub error: bool,
+}

@@ -1,0 +1,147 @@
+//! The command line: a stable, documented interface (see README.md).
+//!
+//! `args` holds the options of every command and their parsers; one file per family of commands
+//! holds their bodies: `test_cmds` (analyze, report, import, verdict), `model_cmds` (model,
+//! correlate, margin), `capture_cmds` (devices, capture, calibrate), `sim_cmds` (simulate).
+
+mod args;
+mod capture_cmds;
+mod model_cmds;
+mod sim_cmds;
+mod test_cmds;
+
+pub use args::*;
+use capture_cmds::{calibrate, capture, devices};
+use model_cmds::{correlate, margin, model};
+use sim_cmds::simulate;
+use test_cmds::{analyze, import, report, verdict};
+
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result, anyhow, bail};
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+use crate::acquire::wav::SampleEncoding;
+use crate::acquire::wavset::WavSet;
+use crate::analysis::{self, Dataset};
+use crate::modal::{Method, ModalResult, ModalSettings, Selection};
+use crate::report;
+use crate::session::{Part, Session};
+use crate::setup::{Estimator, Layout, Setup, Slope, TriggerLevel};
+use crate::sim::Scenario;
+use crate::units::Sensitivity;
+
+/// tapgrid: impact modal testing of shafts and rotors.
+#[derive(Debug, Parser)]
+#[command(
+    name = "tapgrid",
+    version,
+    about,
+    long_about = "tapgrid: impact modal testing of shafts and rotors.\n\nWith no arguments it opens the \
+                  window on the bundled demo session; with a folder it opens that session or WAV set; \
+                  with a subcommand it runs headless.",
+    args_conflicts_with_subcommands = true
+)]
+pub struct Cli {
+    /// A session or WAV set folder to open in the window.
+    pub open: Option<PathBuf>,
+    /// View to show first: capture, setup, stations, hits, frf, poles, modes, model, margins.
+    #[arg(long)]
+    pub view: Option<String>,
+    /// What to do (none: open the window).
+    #[command(subcommand)]
+    pub command: Option<Command>,
+}
+
+/// Subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Analyse a WAV set or a session: hits, verdicts, FRFs → frf.csv and result.json.
+    Analyze(AnalyzeArgs),
+    /// Write a test report (one HTML file): setup, hit verdicts, FRFs, modes, model, margins.
+    Report(ReportArgs),
+    /// Import a WAV set into a new session folder (recordings are copied, never modified).
+    Import(ImportArgs),
+    /// Capture hits from an audio interface into a session, headless (exits 0 when done).
+    Capture(CaptureArgs),
+    /// List audio input devices with the ids `capture --device` takes.
+    Devices,
+    /// Natural frequencies and mode shapes of a shaft model (JSON) → modes.json.
+    Model(ModelArgs),
+    /// Pair a test's modes with a shaft model's by MAC: frequency differences, MAC matrix.
+    Correlate(CorrelateArgs),
+    /// Running-speed margin check of measured modes and/or model critical speeds (advisory).
+    Margin(MarginArgs),
+    /// Calibration helpers on a recording: sensitivity, full-scale volts, mass check, loopback.
+    Calibrate(CalibrateArgs),
+    /// Override a hit's verdict in a session (accept, reject, or back to automatic).
+    Verdict(VerdictArgs),
+    /// Write a simulated WAV set, with truth.json, from tapgrid's own beam physics.
+    Simulate(SimulateArgs),
+    /// Analyse the bundled demo session and print its summary.
+    Demo(DemoArgs),
+    /// Benchmark helper: decode every recording of a set (both channels) and nothing else.
+    #[command(hide = true)]
+    BenchDecode(BenchDecodeArgs),
+}
+
+/// Runs a parsed command line.
+pub fn run(cli: Cli) -> Result<()> {
+    let Some(command) = cli.command else {
+        if let Some(p) = &cli.open
+            && !p.is_dir()
+        {
+            bail!(
+                "{}: is not a folder (expected a session or a WAV set folder)",
+                p.display()
+            );
+        }
+        let view = match cli.view.as_deref() {
+            Some(name) => Some(crate::app::View::from_name(name).ok_or_else(|| {
+                anyhow!(
+                    "--view {name:?}: use capture, setup, stations, hits, frf, poles, modes, \
+                     model or margins"
+                )
+            })?),
+            None => None,
+        };
+        return crate::app::run(cli.open, view);
+    };
+    match command {
+        Command::Analyze(a) => analyze(&a.input, &a.out, &a.setup, &a.modal),
+        Command::Report(a) => report(a),
+        Command::Import(a) => import(a),
+        Command::Capture(a) => capture(a),
+        Command::Devices => devices(),
+        Command::Model(a) => model(a),
+        Command::Correlate(a) => correlate(a),
+        Command::Margin(a) => margin(a),
+        Command::Calibrate(a) => calibrate(a),
+        Command::Verdict(a) => verdict(a),
+        Command::Simulate(a) => simulate(a),
+        Command::BenchDecode(a) => {
+            let (data, _) = crate::pipeline::open_dataset(&a.input, Setup::default().spacing_m)?;
+            let frames = analysis::decode_all(&data, &Setup::default())?;
+            println!("decoded {frames} frames");
+            Ok(())
+        }
+        Command::Demo(a) => {
+            let dir = demo_session_dir()?;
+            let out = a
+                .out
+                .unwrap_or_else(|| std::env::temp_dir().join("tapgrid-demo"));
+            println!("demo session: {}", dir.display());
+            analyze(&dir, &out, &SetupArgs::default(), &ModalArgs::default())
+        }
+    }
+}
+
+/// How long a command waits for another writer of the same session to finish.
+const LOCK_WAIT: std::time::Duration = std::time::Duration::from_secs(30);
+
+/// The bundled demo session, or one the simulator makes on first use.
+fn demo_session_dir() -> Result<PathBuf> {
+    Ok(crate::sim::demo::demo_session(
+        &crate::sim::demo::default_root(),
+    )?)
+}

@@ -1,0 +1,189 @@
+//! Commands on a test: analyse it, write its report, import a WAV set, set a hit's verdict.
+
+use super::model_cmds::read_study;
+use super::*;
+
+/// A test opened for analysis with the command line's options on top of its own setup and
+/// modal settings (`modal` is `None` for `--modes none`).
+pub(super) struct Opened {
+    data: Dataset,
+    setup: Setup,
+    modal: Option<ModalSettings>,
+    session: Option<Session>,
+}
+
+pub(super) fn open_test(input: &Path, args: &SetupArgs, modal_args: &ModalArgs) -> Result<Opened> {
+    let t = crate::pipeline::open_test(input, |s| args.apply(s).map_err(|e| format!("{e:#}")))?;
+    Ok(Opened {
+        modal: modal_settings(modal_args, t.fit)?,
+        data: t.data,
+        setup: t.setup,
+        session: t.session,
+    })
+}
+
+/// The modal fit of an analysed test (empty for `--modes none` or without an accepted hit).
+pub(super) fn fit_modes(
+    input: &Path,
+    a: &crate::analysis::Analysis,
+    modal: Option<&ModalSettings>,
+) -> Result<ModalResult> {
+    match modal {
+        Some(ms) => {
+            crate::pipeline::fit(a, ms).map_err(|m| anyhow!("{}: modal fit: {m}", input.display()))
+        }
+        None => Ok(ModalResult::default()),
+    }
+}
+
+impl Opened {
+    /// A fit's modes as the model study takes them, over the band this test covered.
+    fn test_modes(&self, m: &ModalResult) -> crate::model::study::TestModes {
+        let ms = self.modal.clone().unwrap_or_default();
+        crate::pipeline::test_modes(&ms, &self.setup, m)
+    }
+}
+
+/// Analyses and fits a session or WAV set: its own setup and fit settings with the given setup
+/// options on top. Returns the fit and its modes as the model study takes them.
+pub(super) fn fitted(
+    input: &Path,
+    setup: &SetupArgs,
+) -> Result<(ModalResult, crate::model::study::TestModes)> {
+    let t = open_test(input, setup, &ModalArgs::default())?;
+    let a = analysis::run(&t.data, &t.setup)?;
+    if crate::modal::FrfSet::from_analysis(&a).is_none() {
+        bail!("{}: no station has an accepted hit", input.display());
+    }
+    let m = fit_modes(input, &a, t.modal.as_ref())?;
+    let test = t.test_modes(&m);
+    Ok((m, test))
+}
+
+pub(super) fn analyze(
+    input: &Path,
+    out: &Path,
+    args: &SetupArgs,
+    modal_args: &ModalArgs,
+) -> Result<()> {
+    let t = open_test(input, args, modal_args)?;
+    let t0 = std::time::Instant::now();
+    let a = analysis::run(&t.data, &t.setup)?;
+    let t1 = std::time::Instant::now();
+    // frf.csv needs only the FRFs: written on its own thread while the fit runs.
+    let (csv, modes) = std::thread::scope(|scope| {
+        let csv = scope.spawn(|| report::write_frf_csv(&a, out));
+        let modes = fit_modes(input, &a, t.modal.as_ref());
+        let csv = csv.join().unwrap_or_else(|_| {
+            Err(crate::acquire::InputError::new(
+                out,
+                "frf.csv writer failed",
+            ))
+        });
+        (csv, modes)
+    });
+    csv?;
+    let modes = modes?;
+    let t1b = std::time::Instant::now();
+    report::write_fit_outputs(&a, &modes, out)?;
+    let t2 = std::time::Instant::now();
+    if std::env::var_os("TAPGRID_TIMING").is_some() {
+        eprintln!(
+            "timing: decode+chain {:.3} s, modal {:.3} s (stabilization {:.3} s), outputs {:.3} s",
+            (t1 - t0).as_secs_f64(),
+            (t1b - t1).as_secs_f64(),
+            modes.stabilization_seconds,
+            (t2 - t1b).as_secs_f64()
+        );
+    }
+    print!("{}", report::summary(&a));
+    print!("{}", report::modes_summary(&modes));
+    println!(
+        "wrote {} and {}",
+        out.join("frf.csv").display(),
+        out.join("result.json").display()
+    );
+    Ok(())
+}
+
+pub(super) fn report(a: ReportArgs) -> Result<()> {
+    let t = open_test(&a.input, &a.setup, &a.modal)?;
+    let analysis = analysis::run(&t.data, &t.setup)?;
+    let modes = fit_modes(&a.input, &analysis, t.modal.as_ref())?;
+    let (part, notes, own_model) = match &t.session {
+        Some(s) => (
+            s.manifest.part.name.clone(),
+            s.manifest.part.notes.clone(),
+            s.manifest.model.clone(),
+        ),
+        None => (String::new(), String::new(), None),
+    };
+    let study = match &a.model {
+        Some(p) => Some(read_study(p)?),
+        None => own_model,
+    };
+    let result = match &study {
+        Some(st) => Some(
+            crate::pipeline::study(st, Some(&t.test_modes(&modes)))
+                .map_err(|e| anyhow!("{}: shaft model: {e}", a.input.display()))?,
+        ),
+        None => None,
+    };
+    let written = report::document::utc_now();
+    let part = a.part.unwrap_or(part);
+    let input = report::document::ReportInput {
+        part: &part,
+        notes: &notes,
+        source: &a.input,
+        analysis: &analysis,
+        modes: &modes,
+        study: study.as_ref().zip(result.as_ref()),
+        written_utc: &written,
+    };
+    report::document::write_html(&a.out, &input)?;
+    print!("{}", report::summary(&analysis));
+    print!("{}", report::modes_summary(&modes));
+    println!("wrote {}", a.out.display());
+    Ok(())
+}
+
+pub(super) fn import(a: ImportArgs) -> Result<()> {
+    let setup = a.setup.apply(Setup::default())?;
+    let set = WavSet::scan(&a.wavset, setup.spacing_m)?;
+    let data = Dataset::from_wavset(&set);
+    // Analyse first so a set that cannot be analysed makes no half session.
+    let result = analysis::run(&data, &setup)?;
+    let mut s = Session::import_wavset(
+        &set,
+        &a.session,
+        setup,
+        Part {
+            name: a.part,
+            notes: String::new(),
+        },
+    )?;
+    s.manifest.hits = crate::session::saved_hits(&result);
+    s.save()?;
+    print!("{}", report::summary(&result));
+    println!("session written to {}", a.session.display());
+    Ok(())
+}
+
+pub(super) fn verdict(a: VerdictArgs) -> Result<()> {
+    // Read, change and write under the session's lock, so two commands cannot lose an update.
+    let _lock = crate::session::lock::SessionLock::acquire(&a.session, "verdict", LOCK_WAIT)?;
+    let mut s = Session::open(&a.session)?;
+    let v = match a.verdict {
+        VerdictArg::Accept => Some(true),
+        VerdictArg::Reject => Some(false),
+        VerdictArg::Auto => None,
+    };
+    s.set_override(a.station, a.hit, v)
+        .map_err(|m| anyhow!("{}: {m}", a.session.display()))?;
+    let data = s.dataset();
+    let result = analysis::run(&data, &s.manifest.setup)?;
+    s.manifest.hits = crate::session::saved_hits(&result);
+    s.save()?;
+    print!("{}", report::summary(&result));
+    Ok(())
+}

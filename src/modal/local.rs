@@ -1,0 +1,141 @@
+//! Narrow-band checks of the whole-band fit: local diagrams that split poles standing for two
+//! close modes and find modes a wide band missed.
+
+use super::peak::prominent_peaks;
+use super::*;
+
+/// The pole columns of a stabilization diagram over a narrow band around `f` (±15 % or ±40
+/// lines): poles present at a steady frequency (within 0.3 %) through at least 60 % of the upper
+/// half of the orders, with their damping spread within ±25 % and passing `physical`. Noise and
+/// a nearby hum line make the damping jitter between orders at the low end of a wide band, so
+/// frequency stability is what is asked; the local refinement then settles the damping against
+/// the data. Each column is returned as its median pole with the number of orders it stood for,
+/// by frequency.
+pub(super) fn local_columns(
+    set: &FrfSet,
+    w_all: &[Vec<f64>],
+    f: f64,
+    s: &ModalSettings,
+    physical: &dyn Fn(&Pole) -> bool,
+) -> Vec<(Pole, usize)> {
+    let half = (0.15 * f).max(40.0 * set.df_hz);
+    let k0 = set.freq_hz.partition_point(|&x| x < f - half);
+    let k1 = set.freq_hz.partition_point(|&x| x <= f + half);
+    if k1 < k0 + 24 {
+        return Vec::new();
+    }
+    let h: Vec<Vec<Complex64>> = set.h.iter().map(|v| v[k0..k1].to_vec()).collect();
+    let w: Vec<Vec<f64>> = w_all.iter().map(|v| v[k0..k1].to_vec()).collect();
+    let order = 32.min((k1 - k0 - 2) / 2);
+    let Ok(local) = lscf::stabilization(&set.freq_hz[k0..k1], &h, &w, order, s.criteria) else {
+        return Vec::new();
+    };
+    let mut upper: Vec<&Pole> = local
+        .poles
+        .iter()
+        .filter(|p| {
+            p.status >= PoleStatus::Frequency
+                && 2 * p.order >= local.max_order
+                && (p.frequency_hz / f - 1.0).abs() < 0.02
+        })
+        .collect();
+    upper.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    let orders_upper = local.max_order - local.max_order.div_ceil(2) + 1;
+    let mut out = Vec::new();
+    let mut start = 0;
+    while start < upper.len() {
+        let mut end = start + 1;
+        while end < upper.len()
+            && upper[end].frequency_hz / upper[end - 1].frequency_hz - 1.0 < 0.001
+        {
+            end += 1;
+        }
+        let mut column: Vec<&Pole> = upper[start..end].to_vec();
+        start = end;
+        // A broad pole that strays into the column (noise) is dropped by its damping; then one
+        // pole per order, the one nearest the column's median damping.
+        column.sort_by(|a, b| a.damping_ratio.total_cmp(&b.damping_ratio));
+        let med = column[column.len() / 2].damping_ratio;
+        column.retain(|p| p.damping_ratio > 0.5 * med && p.damping_ratio < 2.0 * med);
+        column.sort_by(|a, b| {
+            a.order.cmp(&b.order).then(
+                (a.damping_ratio - med)
+                    .abs()
+                    .total_cmp(&(b.damping_ratio - med).abs()),
+            )
+        });
+        column.dedup_by_key(|p| p.order);
+        if column.is_empty() || 5 * column.len() < 3 * orders_upper {
+            continue;
+        }
+        column.sort_by(|a, b| a.damping_ratio.total_cmp(&b.damping_ratio));
+        let mid = column[column.len() / 2].damping_ratio;
+        let (q1, q3) = (
+            column[column.len() / 4].damping_ratio,
+            column[3 * column.len() / 4].damping_ratio,
+        );
+        if !(q1 > 0.75 * mid && q3 < 1.25 * mid) {
+            continue;
+        }
+        let pick = column[column.len() / 2].clone();
+        if physical(&pick) {
+            out.push((pick, column.len()));
+        }
+    }
+    out.sort_by(|a, b| a.0.frequency_hz.total_cmp(&b.0.frequency_hz));
+    out
+}
+
+/// Poles for prominent resonances of the Σ|H| indicator that no chosen pole explains, each from
+/// a stabilization diagram over a narrow band around its peak. A band spanning decades leaves the
+/// global z-domain fit ill-conditioned at its low end (poles crowd near z = 1), where a narrow
+/// band resolves them; the same stability and physical checks apply, so a noise peak does not
+/// pass. Returns each pole with the number of orders its column stood for.
+pub(super) fn local_poles(
+    set: &FrfSet,
+    ind: &Indicators,
+    stab: &Stabilization,
+    chosen: &[(usize, usize)],
+    w: &[Vec<f64>],
+    s: &ModalSettings,
+    physical: &dyn Fn(&Pole) -> bool,
+) -> Vec<(Pole, usize)> {
+    let mut out: Vec<(Pole, usize)> = Vec::new();
+    if set.layout != Layout::Hammer || set.freq_hz.len() < 64 {
+        return out;
+    }
+    let y = &ind.sum_abs;
+    for k in prominent_peaks(y) {
+        let f = set.freq_hz[k];
+        let near = |g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
+        if chosen.iter().any(|c| near(stab.poles[c.0].frequency_hz))
+            || out.iter().any(|p| near(p.0.frequency_hz))
+        {
+            continue;
+        }
+        // A resonance stands at least 6 dB above the lowest point within ±10 % on each side.
+        let span = ((0.1 * f / set.df_hz) as usize).max(4);
+        let left = y[k.saturating_sub(span)..k]
+            .iter()
+            .fold(f64::INFINITY, |m, &v| m.min(v));
+        let right = y[k + 1..(k + span + 1).min(y.len())]
+            .iter()
+            .fold(f64::INFINITY, |m, &v| m.min(v));
+        if left.is_infinite() || right.is_infinite() || y[k] < 2.0 * left.max(right) {
+            continue;
+        }
+        let cols = local_columns(set, w, f, s, physical);
+        if let Some(best) = cols
+            .into_iter()
+            .filter(|c| (c.0.frequency_hz / f - 1.0).abs() < 0.01)
+            .min_by(|a, b| {
+                (a.0.frequency_hz - f)
+                    .abs()
+                    .total_cmp(&(b.0.frequency_hz - f).abs())
+            })
+        {
+            out.push(best);
+        }
+    }
+    out
+}

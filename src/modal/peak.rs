@@ -1,0 +1,247 @@
+//! The peak method: modes from prominent peaks, signs from the quadrature response, damping
+//! from half-power points and circle fits.
+
+use super::*;
+
+/// Local maxima of `y` standing at least 3 dB above the higher of their two flanking minima.
+pub(super) fn prominent_peaks(y: &[f64]) -> Vec<usize> {
+    let n = y.len();
+    let mut out = Vec::new();
+    for i in 1..n.saturating_sub(1) {
+        if !(y[i] > y[i - 1] && y[i] >= y[i + 1]) {
+            continue;
+        }
+        let mut l = i;
+        let mut lmin = y[i];
+        while l > 0 && y[l - 1] <= y[i] {
+            l -= 1;
+            lmin = lmin.min(y[l]);
+        }
+        let mut r = i;
+        let mut rmin = y[i];
+        while r + 1 < n && y[r + 1] <= y[i] {
+            r += 1;
+            rmin = rmin.min(y[r]);
+        }
+        if y[i] >= std::f64::consts::SQRT_2 * lmin.max(rmin) {
+            out.push(i);
+        }
+    }
+    out
+}
+
+/// Parabolic interpolation of ln(y) around line i: (fractional offset, peak value).
+pub(super) fn interpolate_peak(y: &[f64], i: usize) -> (f64, f64) {
+    if i == 0 || i + 1 >= y.len() || y[i - 1] <= 0.0 || y[i + 1] <= 0.0 {
+        return (0.0, y[i]);
+    }
+    let (a, b, c) = (y[i - 1].ln(), y[i].ln(), y[i + 1].ln());
+    let den = a - 2.0 * b + c;
+    if den >= 0.0 {
+        return (0.0, y[i]);
+    }
+    let d = 0.5 * (a - c) / den;
+    (d, (b - 0.25 * (a - c) * d).exp())
+}
+
+/// Half-power width of the peak at line i of a magnitude-like `y` (`power`: y is already a
+/// power, so its half-power level is y/2 rather than y/√2). Returns (f1, f2).
+pub(super) fn half_power(
+    f: &[f64],
+    y: &[f64],
+    i: usize,
+    peak: f64,
+    power: bool,
+) -> Option<(f64, f64)> {
+    let level = if power {
+        peak / 2.0
+    } else {
+        peak / std::f64::consts::SQRT_2
+    };
+    let mut l = i;
+    while l > 0 && y[l] > level {
+        l -= 1;
+    }
+    let mut r = i;
+    while r + 1 < y.len() && y[r] > level {
+        r += 1;
+    }
+    if y[l] > level || y[r] > level || l == i || r == i {
+        return None;
+    }
+    let cross = |a: usize, b: usize| f[a] + (level - y[a]) * (f[b] - f[a]) / (y[b] - y[a]);
+    Some((cross(l, l + 1), cross(r - 1, r)))
+}
+
+pub(super) fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings) {
+    let sensor = set.layout == Layout::Sensor;
+    let y = if sensor {
+        &res.indicators.sum_response_autospectra
+    } else {
+        &res.indicators.sum_abs
+    };
+    let f = &set.freq_hz;
+    let mut peaks = prominent_peaks(y);
+    // Rank by height for Count/Near selections.
+    let mut chosen: Vec<usize> = match &s.selection {
+        Selection::Auto => peaks.clone(),
+        Selection::Count(n) => {
+            peaks.sort_by(|a, b| y[*b].total_cmp(&y[*a]));
+            peaks.into_iter().take(*n).collect()
+        }
+        Selection::Near(list) => list
+            .iter()
+            .filter_map(|&target| {
+                peaks
+                    .iter()
+                    .copied()
+                    .min_by(|a, b| (f[*a] - target).abs().total_cmp(&(f[*b] - target).abs()))
+            })
+            .collect(),
+    };
+    chosen.sort_unstable();
+    chosen.dedup();
+    for i in chosen {
+        let (d, pk) = interpolate_peak(y, i);
+        let mut fm = f[i] + d * set.df_hz;
+        let mut zeta_m = half_power(f, y, i, pk, sensor).map(|(f1, f2)| (f2 - f1) / (2.0 * fm));
+        // Roving sensor: the peak's whole line shape, not its half-power width (which needs
+        // several lines inside the half-power band).
+        if sensor
+            && let Some(z0) = zeta_m
+            && let Some((f_fit, z_fit)) = autospectrum::fit_peak(f, y, i, fm, z0)
+        {
+            fm = f_fit;
+            zeta_m = Some(z_fit);
+        }
+        let (fc, zc) = match zeta_m {
+            Some(z) => {
+                let (fc, zc) = correct_damping(fm, z, set.exp_tau_s);
+                (fc, Some(zc))
+            }
+            None => (fm, None),
+        };
+        let window_zeta = if set.exp_tau_s.is_finite() {
+            1.0 / (set.exp_tau_s * 2.0 * std::f64::consts::PI * fm)
+        } else {
+            0.0
+        };
+        if is_hum(fc, zc.unwrap_or(0.0), window_zeta, set.df_hz, &s.mains_hz) {
+            continue;
+        }
+        if sensor && zc.is_none() {
+            res.warnings.push(format!(
+                "a response peak at {fm:.2} Hz has no half-power points in the band; not reported as a mode"
+            ));
+            continue;
+        }
+        // A structural resonance is coherent at its peak; hum lines (random phase from hit to hit),
+        // noise spikes and force-spectrum nulls are not.
+        let coh = set.coherence.iter().map(|c| c[i]).sum::<f64>() / set.coherence.len() as f64;
+        if !sensor && coh < 0.8 {
+            continue;
+        }
+        let raw: Vec<Complex64> = set
+            .h
+            .iter()
+            .map(|h| {
+                if sensor {
+                    // In-phase / out-of-phase sign of the transmissibility.
+                    Complex64::new(h[i].norm() * h[i].re.signum(), 0.0)
+                } else {
+                    // Quadrature: signed Im(accelerance) at the peak (Ewins 2000).
+                    Complex64::new(h[i].im, 0.0)
+                }
+            })
+            .collect();
+        let (hp_local, cf) = local_damping(set, fc);
+        let (zc, source) = match (cf, zc) {
+            (Some(c), _) if c > 0.0 => (Some(c), Some(DampingSource::CircleFit)),
+            (_, Some(z)) => (
+                Some(z),
+                Some(if sensor {
+                    DampingSource::ResponseAutospectrum
+                } else {
+                    DampingSource::HalfPower
+                }),
+            ),
+            _ => (None, None),
+        };
+        let mut notes = vec![
+            "peak picking: a single peak may hide two closely spaced modes (e.g. two bending planes); the lscf method resolves them"
+                .to_string(),
+        ];
+        if zeta_m.is_none() {
+            notes.push("half-power points not found inside the band: damping unknown".into());
+        }
+        if sensor {
+            notes.push(
+                "roving sensor: damping from the response auto-spectra; shapes are unscaled".into(),
+            );
+        }
+        res.modes.push(Mode {
+            frequency_hz: fc,
+            damping_ratio: zc,
+            method: Method::Peak,
+            damping_source: source,
+            mpc: mpc(&raw),
+            mpd_deg: mean_phase_deviation_deg(&raw),
+            shape: normalise(&raw, set.reference),
+            measured_frequency_hz: fm,
+            measured_damping_ratio: zeta_m,
+            stable_orders: 0,
+            damping_half_power: if sensor {
+                zc.filter(|_| cf.is_none())
+            } else {
+                hp_local
+            },
+            damping_circle_fit: cf,
+            notes,
+        });
+    }
+}
+
+/// Half-power and circle-fit damping of the resonance near `f_hz` (hammer layout), both with the
+/// exponential window removed.
+pub(super) fn local_damping(set: &FrfSet, f_hz: f64) -> (Option<f64>, Option<f64>) {
+    if set.layout == Layout::Sensor || set.freq_hz.len() < 8 {
+        return (None, None);
+    }
+    let k = set
+        .freq_hz
+        .partition_point(|&x| x < f_hz)
+        .clamp(1, set.freq_hz.len() - 2);
+    // The strongest station at the resonance carries the best signal.
+    let Some(o) =
+        (0..set.h.len()).max_by(|&a, &b| set.h[a][k].norm().total_cmp(&set.h[b][k].norm()))
+    else {
+        return (None, None);
+    };
+    let mags: Vec<f64> = set.h[o].iter().map(|c| c.norm()).collect();
+    let peak = (k.saturating_sub(2)..=(k + 2).min(mags.len() - 1))
+        .max_by(|&a, &b| mags[a].total_cmp(&mags[b]))
+        .unwrap_or(k);
+    let (d, pk) = interpolate_peak(&mags, peak);
+    let fm = set.freq_hz[peak] + d * set.df_hz;
+    let hp =
+        half_power(&set.freq_hz, &mags, peak, pk, false).map(|(f1, f2)| (f2 - f1) / (2.0 * fm));
+    let half = hp.map_or(3, |z| {
+        ((2.0 * z * fm / set.df_hz).round() as usize).clamp(3, 40)
+    });
+    let lo = peak.saturating_sub(half);
+    let hi = (peak + half).min(set.freq_hz.len() - 1);
+    let cf = circle::circle_fit(&set.freq_hz, &set.h[o], lo, hi);
+    let corr = |f: f64, z: f64| correct_damping(f, z, set.exp_tau_s).1;
+    (hp.map(|z| corr(fm, z)), cf.map(|(f, z)| corr(f, z)))
+}
+
+/// An undamped line at a mains harmonic: hum, not a mode. `window_zeta` is the damping the
+/// exponential window alone gives a pure line; an estimate well below it is a line, not a mode.
+pub(super) fn is_hum(f: f64, zeta_true: f64, window_zeta: f64, df: f64, mains: &[f64]) -> bool {
+    let tol = (0.5 * df).max(0.3);
+    zeta_true < 3e-4f64.max(0.75 * window_zeta)
+        && mains.iter().any(|&m| {
+            let k = (f / m).round();
+            k >= 1.0 && (f - k * m).abs() <= tol
+        })
+}
