@@ -417,14 +417,16 @@ fn a_wav_set_without_model_gets_one_from_its_stations() {
     std::fs::write(&bad, "not json").expect("write");
     h.state_mut()
         .push(tapgrid::app::Command::LoadModel(bad.clone()));
-    h.run_steps(2);
+    // Disk work runs on the window's I/O thread: wait for it.
+    settle(&mut h);
     let m = h.state().messages.last().expect("a message").clone();
     assert!(m.error && m.text.contains("shaft.json"), "{m:?}");
     // Written out and read back, the shaft is the same.
     let out = tmp.path().join("out.json");
     h.state_mut()
         .push(tapgrid::app::Command::WriteModel(out.clone()));
-    h.run_steps(2);
+    // Disk work runs on the window's I/O thread: wait for it.
+    settle(&mut h);
     let back = tapgrid::model::run::read_shaft(&out).expect("written model reads back");
     assert_eq!(
         &back,
@@ -471,7 +473,8 @@ fn the_file_menu_writes_the_report_of_what_the_window_shows() {
     );
     h.state_mut()
         .push(tapgrid::app::Command::WriteReport(page.clone()));
-    h.run_steps(2);
+    // Disk work runs on the window's I/O thread: wait for it.
+    settle(&mut h);
     let html = std::fs::read_to_string(&page).expect("the report was written");
     let d = h.state().doc.as_ref().expect("open");
     for m in &d.modal.as_ref().expect("fitted").modes {
@@ -544,4 +547,31 @@ fn a_pole_choice_is_saved_with_the_session_and_honoured_on_reopening() {
     };
     assert_eq!(modes_written(&[]), 4);
     assert_eq!(modes_written(&["--modes", "auto"]), 5);
+}
+
+/// One writer per session: a second program holding the session makes the window open it
+/// read-only and say who has it; the window's own copy (after Save as) holds the lock itself,
+/// so a `verdict` command meanwhile would wait (here: the lock is seen held).
+#[test]
+fn a_session_held_by_another_program_opens_read_only_and_names_the_holder() {
+    let (_tmp, dir, mut h) = demo_copy();
+    settle(&mut h);
+    // The window holds its copy.
+    let holder = tapgrid::session::lock::SessionLock::holder(&dir).expect("the window holds it");
+    assert!(holder.contains("tapgrid window"), "{holder}");
+    drop(h);
+    // Another program holds it: a new window opens it read-only and names that program.
+    let lock = tapgrid::session::lock::SessionLock::acquire(
+        &dir,
+        "verdict",
+        std::time::Duration::from_secs(5),
+    )
+    .expect("free once the window closed");
+    let mut h = harness_on(Settings::default(), dir.clone());
+    settle(&mut h);
+    let d = h.state().doc.as_ref().expect("open");
+    assert!(d.read_only);
+    assert!(d.locked_by.as_deref().unwrap_or("").contains("verdict"));
+    h.get_by_label_contains("in use by");
+    drop(lock);
 }

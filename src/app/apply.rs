@@ -212,21 +212,8 @@ impl TapgridApp {
     }
 
     pub(super) fn load_model(&mut self, path: &Path) {
-        let Some(d) = &mut self.doc else {
-            return;
-        };
-        match crate::model::run::read_shaft(path) {
-            Ok(shaft) => {
-                // The service questions stay; only the shaft is replaced.
-                match &mut d.study {
-                    Some(st) => st.shaft = shaft,
-                    None => d.study = Some(Study::new(shaft)),
-                }
-                d.dirty = true;
-                self.note(format!("read the shaft model {}", path.display()), false);
-                self.request_study();
-            }
-            Err(e) => self.note(e.to_string(), true),
+        if self.doc.is_some() {
+            self.io.send(Job::ReadShaft(path.to_path_buf()));
         }
     }
 
@@ -234,44 +221,35 @@ impl TapgridApp {
         let Some(d) = &self.doc else {
             return;
         };
-        let Some(analysis) = &d.analysis else {
+        let Some(analysis) = d.analysis.clone() else {
             self.note(
                 "the report needs the analysis, which has not finished",
                 true,
             );
             return;
         };
-        let empty = ModalResult::default();
-        let written = crate::report::document::utc_now();
-        let input = crate::report::document::ReportInput {
-            part: &d.part.name,
-            notes: &d.part.notes,
-            source: &d.path,
+        let job = super::worker::ReportJob {
+            path: path.to_path_buf(),
+            part: d.part.clone(),
+            source: d.path.clone(),
             analysis,
-            modes: d.modal.as_deref().unwrap_or(&empty),
-            study: d.study.as_ref().zip(d.study_result.as_deref()),
-            written_utc: &written,
+            modes: d.modal.clone(),
+            study: d.study.clone().zip(d.study_result.clone()),
         };
-        match crate::report::document::write_html(path, &input) {
-            Ok(()) => self.note(format!("wrote the report to {}", path.display()), false),
-            Err(e) => self.note(e.to_string(), true),
-        }
+        self.io.send(Job::WriteReport(Box::new(job)));
     }
 
     pub(super) fn write_model(&mut self, path: &Path) {
         let Some(st) = self.doc.as_ref().and_then(|d| d.study.as_ref()) else {
             return;
         };
-        let text = match serde_json::to_string_pretty(&st.shaft) {
-            Ok(t) => t,
-            Err(e) => {
-                self.note(format!("cannot write the model: {e}"), true);
-                return;
-            }
-        };
-        match crate::atomic::write_bytes(path, text.as_bytes()) {
-            Ok(()) => self.note(format!("wrote {}", path.display()), false),
-            Err(e) => self.note(format!("{}: cannot write: {e}", path.display()), true),
+        match serde_json::to_string_pretty(&st.shaft) {
+            Ok(t) => self.io.send(Job::WriteFile {
+                path: path.to_path_buf(),
+                bytes: t.into_bytes(),
+                what: "shaft model",
+            }),
+            Err(e) => self.note(format!("cannot write the model: {e}"), true),
         }
     }
 
@@ -291,14 +269,10 @@ impl TapgridApp {
             return;
         }
         if let Some(s) = d.session_to_write() {
-            match s.save() {
-                Ok(()) => {
-                    d.session = Some(s);
-                    d.dirty = false;
-                    self.note("saved", false);
-                }
-                Err(e) => self.note(format!("could not save: {e}"), true),
-            }
+            self.io.send(Job::SaveSession {
+                session: Box::new(s),
+                announce: true,
+            });
         }
     }
 

@@ -133,53 +133,56 @@ impl TapgridApp {
         }
     }
 
+    /// Reads the capture's session again, off the window's thread; [`Self::reopened`] takes it.
     fn reload_capture_session(&mut self) {
-        let Some(dir) = self.capture_dir.clone() else {
+        if let Some(dir) = self.capture_dir.clone() {
+            self.io.send(super::worker::Job::Reopen(dir));
+        }
+    }
+
+    /// A session the capture wrote, read again: recordings and hits as it wrote them, with the
+    /// person's changes made meanwhile kept.
+    pub(super) fn reopened(&mut self, s: crate::session::Session) {
+        let dir = s.dir.clone();
+        if self.capture_dir.as_deref() != Some(dir.as_path()) {
             return;
-        };
-        match crate::session::Session::open(&dir) {
-            Ok(s) => {
-                let same = self.doc.as_ref().is_some_and(|d| d.path == dir);
-                let capturing = self.capture.handle.is_some();
-                if same {
-                    if let Some(d) = &mut self.doc {
-                        // The recordings and hits as the capture wrote them; positions and
-                        // verdicts the person changed meanwhile are kept (saved once it stops).
-                        let mut data = s.dataset();
-                        for st in &mut data.stations {
-                            if let Some(old) =
-                                d.data.stations.iter().find(|o| o.station == st.station)
-                            {
-                                st.position_m = old.position_m;
-                                st.position_source = old.position_source;
-                                for (k, v) in &old.overrides {
-                                    st.overrides.insert(*k, *v);
-                                }
-                            }
-                        }
-                        d.data = data;
-                        d.session = Some(s);
-                        if !capturing {
-                            d.take_lock();
+        }
+        let same = self.doc.as_ref().is_some_and(|d| d.path == dir);
+        let capturing = self.capture.handle.is_some();
+        if same {
+            if let Some(d) = &mut self.doc {
+                // The recordings and hits as the capture wrote them; positions and
+                // verdicts the person changed meanwhile are kept (saved once it stops).
+                let mut data = s.dataset();
+                for st in &mut data.stations {
+                    if let Some(old) = d.data.stations.iter().find(|o| o.station == st.station) {
+                        st.position_m = old.position_m;
+                        st.position_source = old.position_source;
+                        for (k, v) in &old.overrides {
+                            st.overrides.insert(*k, *v);
                         }
                     }
-                } else {
-                    let data = s.dataset();
-                    let mut doc = super::Document::new(dir.clone(), data, Some(s), false);
-                    if !capturing {
-                        doc.take_lock();
-                    }
-                    self.doc = Some(doc);
                 }
-                if self
-                    .doc
-                    .as_ref()
-                    .is_some_and(|d| !d.data.stations.is_empty())
-                {
-                    self.request_analysis();
+                d.data = data;
+                d.session = Some(s);
+                if !capturing {
+                    d.take_lock();
                 }
             }
-            Err(e) => self.note(format!("cannot reopen the capture session: {e}"), true),
+        } else {
+            let data = s.dataset();
+            let mut doc = super::Document::new(dir.clone(), data, Some(s), false);
+            if !capturing {
+                doc.take_lock();
+            }
+            self.doc = Some(doc);
+        }
+        if self
+            .doc
+            .as_ref()
+            .is_some_and(|d| !d.data.stations.is_empty())
+        {
+            self.request_analysis();
         }
     }
 }

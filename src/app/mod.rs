@@ -84,6 +84,9 @@ pub struct TapgridApp {
     /// Counts analyses received: a new value means new data for the caches.
     pub(crate) analysis_stamp: u64,
     pub(crate) worker: Worker,
+    /// Disk work (saving, reading a session again, writing the report or a model) on a thread
+    /// of its own, so neither the window nor a running analysis waits for it.
+    pub(crate) io: Worker,
     commands: Vec<Command>,
     dialog: Option<PathDialog>,
     last_time: Option<f64>,
@@ -100,12 +103,15 @@ impl TapgridApp {
     /// A new app that will open `path` (or nothing) once its first frame runs.
     pub fn new(settings: Settings, path: Option<PathBuf>) -> Self {
         let ctx_slot: Arc<OnceLock<egui::Context>> = Arc::new(OnceLock::new());
-        let for_worker = ctx_slot.clone();
-        let worker = Worker::start(move || {
-            if let Some(c) = for_worker.get() {
-                c.request_repaint();
+        let repaint = |slot: Arc<OnceLock<egui::Context>>| {
+            move || {
+                if let Some(c) = slot.get() {
+                    c.request_repaint();
+                }
             }
-        });
+        };
+        let worker = Worker::start(repaint(ctx_slot.clone()));
+        let io = Worker::start(repaint(ctx_slot.clone()));
         let mut app = Self {
             settings,
             doc: None,
@@ -124,6 +130,7 @@ impl TapgridApp {
             traces_requested: None,
             analysis_stamp: 0,
             worker,
+            io,
             commands: Vec::new(),
             dialog: None,
             last_time: None,
@@ -161,9 +168,9 @@ impl TapgridApp {
         self.commands.push(c);
     }
 
-    /// What the worker is busy with.
+    /// What the workers are busy with (analysis first, then disk work).
     pub fn busy(&self) -> Option<&'static str> {
-        self.worker.busy()
+        self.worker.busy().or_else(|| self.io.busy())
     }
 
     /// How overlaid traces are drawn (the benchmark compares the modes).
@@ -173,7 +180,7 @@ impl TapgridApp {
 
     /// True when nothing is queued: no command waiting and the worker idle.
     pub fn idle(&self) -> bool {
-        self.commands.is_empty() && self.worker.busy().is_none()
+        self.commands.is_empty() && self.busy().is_none()
     }
 
     /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
@@ -183,7 +190,7 @@ impl TapgridApp {
             style(ctx, self.settings.dark);
         }
         let deadline = std::time::Instant::now() + std::time::Duration::from_millis(4);
-        while let Some(o) = self.worker.try_recv() {
+        while let Some(o) = self.io.try_recv().or_else(|| self.worker.try_recv()) {
             self.receive(o);
             if std::time::Instant::now() > deadline {
                 ctx.request_repaint();
@@ -205,7 +212,7 @@ impl TapgridApp {
         if self.playing && self.settings.view.animates() {
             ctx.request_repaint();
         }
-        if self.worker.busy().is_some() {
+        if self.busy().is_some() {
             ctx.request_repaint_after(std::time::Duration::from_millis(100));
         }
         self.apply_pending(ctx);

@@ -175,6 +175,34 @@ impl TapgridApp {
             Outcome::Traces { station, traces } => {
                 self.traces = Some((station, Arc::new(traces)));
             }
+            Outcome::SessionSaved { session, announce } => {
+                if let Some(d) = &mut self.doc
+                    && d.path == session.dir
+                {
+                    d.session = Some(*session.clone());
+                    // Changes made while it was being written keep the document unsaved.
+                    d.dirty = d
+                        .session_to_write()
+                        .is_some_and(|w| w.manifest != session.manifest);
+                }
+                if announce {
+                    self.note("saved", false);
+                }
+            }
+            Outcome::Reopened(s) => self.reopened(*s),
+            Outcome::ShaftRead { path, shaft } => {
+                if let Some(d) = &mut self.doc {
+                    // The service questions stay; only the shaft is replaced.
+                    match &mut d.study {
+                        Some(st) => st.shaft = *shaft,
+                        None => d.study = Some(Study::new(*shaft)),
+                    }
+                    d.dirty = true;
+                    self.note(format!("read the shaft model {}", path.display()), false);
+                    self.request_study();
+                }
+            }
+            Outcome::Wrote(message) => self.note(message, false),
             Outcome::Saved(s) => {
                 let dir = s.dir.clone();
                 if let Some(d) = &mut self.doc {
@@ -219,13 +247,10 @@ impl TapgridApp {
             return;
         }
         if let Some(s) = d.session_to_write() {
-            match s.save() {
-                Ok(()) => {
-                    d.session = Some(s);
-                    d.dirty = false;
-                }
-                Err(e) => self.note(format!("could not save: {e}"), true),
-            }
+            self.io.send(Job::SaveSession {
+                session: Box::new(s),
+                announce: false,
+            });
         }
     }
 

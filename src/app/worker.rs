@@ -71,6 +71,28 @@ pub enum Job {
         /// New folder.
         dir: PathBuf,
     },
+    /// Write a session's manifest in place (`announce`: say so when done).
+    SaveSession {
+        /// The session as it should be written.
+        session: Box<Session>,
+        /// A person asked for it (else an autosave, done quietly).
+        announce: bool,
+    },
+    /// Read a session again (after a capture wrote it).
+    Reopen(PathBuf),
+    /// Read a shaft model JSON file.
+    ReadShaft(PathBuf),
+    /// Write bytes to a file atomically; `what` names it in the message.
+    WriteFile {
+        /// Where.
+        path: PathBuf,
+        /// What.
+        bytes: Vec<u8>,
+        /// Its name for the message.
+        what: &'static str,
+    },
+    /// Write the HTML test report.
+    WriteReport(Box<ReportJob>),
     /// Make a new session from a WAV set.
     CreateSession {
         /// The WAV set folder.
@@ -139,6 +161,24 @@ pub enum Outcome {
     },
     /// A request was superseded and not run.
     Skipped,
+    /// A session's manifest was written in place.
+    SessionSaved {
+        /// The session as written.
+        session: Box<Session>,
+        /// A person asked for it.
+        announce: bool,
+    },
+    /// A session read again.
+    Reopened(Box<Session>),
+    /// A shaft model read from a file.
+    ShaftRead {
+        /// The file.
+        path: PathBuf,
+        /// The shaft.
+        shaft: Box<crate::model::beam::Shaft>,
+    },
+    /// A file was written: the message to show.
+    Wrote(String),
     /// A job failed; the message names the file.
     Failed {
         /// What was being done.
@@ -146,6 +186,22 @@ pub enum Outcome {
         /// Why it failed.
         message: String,
     },
+}
+
+/// What the report needs, owned so the worker can write it while the window goes on.
+pub struct ReportJob {
+    /// Where.
+    pub path: PathBuf,
+    /// Part name and notes.
+    pub part: crate::session::Part,
+    /// The test's folder.
+    pub source: PathBuf,
+    /// The analysis.
+    pub analysis: Arc<Analysis>,
+    /// The fit (empty when none).
+    pub modes: Option<Arc<ModalResult>>,
+    /// The model study and its result, when there is one.
+    pub study: Option<(Study, Arc<StudyResult>)>,
 }
 
 /// Handle to the worker thread.
@@ -247,7 +303,11 @@ fn describe(job: &Job) -> &'static str {
         Job::Analyze { .. } => "Analysing",
         Job::Fit { .. } => "Fitting",
         Job::Traces { .. } => "Loading hits",
-        Job::SaveAs { .. } | Job::CreateSession { .. } => "Saving",
+        Job::SaveAs { .. } | Job::CreateSession { .. } | Job::SaveSession { .. } => "Saving",
+        Job::Reopen(_) => "Reading the session",
+        Job::ReadShaft(_) => "Reading the shaft model",
+        Job::WriteFile { .. } => "Writing",
+        Job::WriteReport(_) => "Writing the report",
         Job::ListDevices => "Listing audio inputs",
         Job::Study { .. } => "Solving the shaft model",
     }
@@ -362,6 +422,59 @@ fn run_job(job: Job, latest: &Latest, decoder: &mut Decoder) -> Outcome {
             hits,
             model,
         } => create_session(&wavset, &dir, setup, part, hits, model),
+        Job::SaveSession { session, announce } => match session.save() {
+            Ok(()) => Outcome::SessionSaved { session, announce },
+            Err(e) => Outcome::Failed {
+                what: "Saving",
+                message: e.to_string(),
+            },
+        },
+        Job::Reopen(dir) => match Session::open(&dir) {
+            Ok(s) => Outcome::Reopened(Box::new(s)),
+            Err(e) => Outcome::Failed {
+                what: "Reading the session",
+                message: e.to_string(),
+            },
+        },
+        Job::ReadShaft(path) => match crate::model::run::read_shaft(&path) {
+            Ok(shaft) => Outcome::ShaftRead {
+                path,
+                shaft: Box::new(shaft),
+            },
+            Err(e) => Outcome::Failed {
+                what: "Reading the shaft model",
+                message: e.to_string(),
+            },
+        },
+        Job::WriteFile { path, bytes, what } => match crate::atomic::write_bytes(&path, &bytes) {
+            Ok(()) => Outcome::Wrote(format!("wrote the {what} to {}", path.display())),
+            Err(e) => Outcome::Failed {
+                what: "Writing",
+                message: format!("{}: cannot write: {e}", path.display()),
+            },
+        },
+        Job::WriteReport(r) => write_report(&r),
+    }
+}
+
+fn write_report(r: &ReportJob) -> Outcome {
+    let empty = ModalResult::default();
+    let written = crate::report::document::utc_now();
+    let input = crate::report::document::ReportInput {
+        part: &r.part.name,
+        notes: &r.part.notes,
+        source: &r.source,
+        analysis: &r.analysis,
+        modes: r.modes.as_deref().unwrap_or(&empty),
+        study: r.study.as_ref().map(|(s, res)| (s, res.as_ref())),
+        written_utc: &written,
+    };
+    match crate::report::document::write_html(&r.path, &input) {
+        Ok(()) => Outcome::Wrote(format!("wrote the report to {}", r.path.display())),
+        Err(e) => Outcome::Failed {
+            what: "Writing the report",
+            message: e.to_string(),
+        },
     }
 }
 

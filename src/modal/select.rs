@@ -9,31 +9,11 @@ pub(super) struct Cluster {
     members: Vec<usize>,
 }
 
-pub(super) fn lscf_modes(
-    set: &FrfSet,
-    res: &mut ModalResult,
-    s: &ModalSettings,
-) -> Result<(), String> {
-    let w = set.weights(s.coherence_weighting);
-    let fit_order = s.max_order.min(set.freq_hz.len().saturating_sub(2) / 2);
-    if fit_order < s.max_order {
-        res.warnings.push(format!(
-            "the band holds {} lines: model order limited to {fit_order} (asked {})",
-            set.freq_hz.len(),
-            s.max_order
-        ));
-    }
-    if fit_order < 2 {
-        res.warnings
-            .push("the band is too narrow for a curve fit".into());
-        return Ok(());
-    }
-    let t0 = std::time::Instant::now();
-    let mut stab = lscf::stabilization(&set.freq_hz, &set.h, &w, fit_order, s.criteria)?;
-    res.stabilization_seconds = t0.elapsed().as_secs_f64();
-    let poles = &stab.poles;
-    // Fully stable poles, clustered by frequency (gaps over 0.2 %), split where one order would
-    // give two poles to a cluster (two close modes).
+/// Fully stable poles (frequency, damping and shape), clustered by frequency — a gap over 0.2 %
+/// starts a new cluster — and split at their widest gap where one model order gives a cluster
+/// two poles (two close modes; only for clusters of four or more, so a lone doubled pole of
+/// noise does not make two modes). Clusters in ascending frequency; members index `poles`.
+pub(super) fn clusters_of_stable_poles(poles: &[Pole]) -> Vec<Cluster> {
     let mut idx: Vec<usize> = (0..poles.len())
         .filter(|&i| poles[i].status == PoleStatus::FrequencyDampingShape)
         .collect();
@@ -79,6 +59,33 @@ pub(super) fn lscf_modes(
             .frequency_hz
             .total_cmp(&poles[b.members[0]].frequency_hz)
     });
+    split
+}
+
+pub(super) fn lscf_modes(
+    set: &FrfSet,
+    res: &mut ModalResult,
+    s: &ModalSettings,
+) -> Result<(), String> {
+    let w = set.weights(s.coherence_weighting);
+    let fit_order = s.max_order.min(set.freq_hz.len().saturating_sub(2) / 2);
+    if fit_order < s.max_order {
+        res.warnings.push(format!(
+            "the band holds {} lines: model order limited to {fit_order} (asked {})",
+            set.freq_hz.len(),
+            s.max_order
+        ));
+    }
+    if fit_order < 2 {
+        res.warnings
+            .push("the band is too narrow for a curve fit".into());
+        return Ok(());
+    }
+    let t0 = std::time::Instant::now();
+    let mut stab = lscf::stabilization(&set.freq_hz, &set.h, &w, fit_order, s.criteria)?;
+    res.stabilization_seconds = t0.elapsed().as_secs_f64();
+    let poles = &stab.poles;
+    let split = clusters_of_stable_poles(poles);
 
     // Candidate modes: the median member of each cluster.
     struct Cand {
@@ -291,4 +298,80 @@ pub(super) fn lscf_modes(
     }
     res.stabilization = Some(stab);
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pole(order: usize, f: f64, status: PoleStatus) -> Pole {
+        let w = 2.0 * std::f64::consts::PI * f;
+        Pole {
+            order,
+            lambda: Complex64::new(-0.001 * w, w),
+            frequency_hz: f,
+            damping_ratio: 0.001,
+            status,
+            mpc: 1.0,
+            shape: vec![Complex64::new(1.0, 0.0)],
+        }
+    }
+
+    /// Policy: only fully stable poles count; poles within 0.2 % form one cluster.
+    #[test]
+    fn stable_poles_within_a_fifth_of_a_percent_make_one_cluster() {
+        let full = PoleStatus::FrequencyDampingShape;
+        let poles = vec![
+            pole(10, 100.0, full),
+            pole(11, 100.1, full),
+            pole(12, 100.15, full),
+            pole(12, 250.0, PoleStatus::Frequency), // not fully stable: ignored
+            pole(13, 300.0, full),
+        ];
+        let c = clusters_of_stable_poles(&poles);
+        assert_eq!(c.len(), 2);
+        assert_eq!(c[0].members, vec![0, 1, 2]);
+        assert_eq!(c[1].members, vec![4]);
+    }
+
+    /// Policy: a cluster in which one order has two poles holds two close modes and is split at
+    /// its widest gap — but only with four or more members.
+    #[test]
+    fn a_cluster_with_two_poles_of_one_order_is_split_at_its_widest_gap() {
+        let full = PoleStatus::FrequencyDampingShape;
+        // Two modes 0.3 % apart, each seen at orders 20 and 21, bridged by close spacing.
+        let poles = vec![
+            pole(20, 500.0, full),
+            pole(21, 500.4, full),
+            pole(20, 501.0, full),
+            pole(21, 501.5, full),
+        ];
+        let c = clusters_of_stable_poles(&poles);
+        assert_eq!(c.len(), 2, "split into two modes");
+        assert_eq!(c[0].members, vec![0, 1]);
+        assert_eq!(c[1].members, vec![2, 3]);
+        // Three members, one order doubled: too little evidence, kept as one.
+        let c = clusters_of_stable_poles(&poles[..3]);
+        assert_eq!(c.len(), 1);
+    }
+
+    /// Policy: an undamped line at a mains harmonic is hum; a damped mode there is not.
+    #[test]
+    fn hum_is_an_undamped_line_at_a_mains_harmonic() {
+        let window_zeta = 1e-4;
+        assert!(is_hum(150.0, 1e-5, window_zeta, 0.5, &[50.0]));
+        assert!(is_hum(180.2, 1e-5, window_zeta, 0.5, &[50.0, 60.0]));
+        assert!(
+            !is_hum(150.0, 0.01, window_zeta, 0.5, &[50.0]),
+            "damped: a mode"
+        );
+        assert!(
+            !is_hum(157.0, 1e-5, window_zeta, 0.5, &[50.0]),
+            "not a harmonic"
+        );
+        assert!(
+            !is_hum(150.0, 1e-5, window_zeta, 0.5, &[]),
+            "no mains given"
+        );
+    }
 }
