@@ -65,9 +65,145 @@ pub fn symmetric_eigen(m: DMatrix<f64>) -> Option<SymmetricEigen<f64, nalgebra::
     SymmetricEigen::try_new(m, f64::EPSILON, iters)
 }
 
+/// The lowest `count` eigenpairs of the sparse symmetric pencil K φ = λ M φ (M positive definite,
+/// K positive semi-definite: a free part's rigid-body modes have λ = 0), by subspace iteration on
+/// the shifted inverse (K + c M)⁻¹ M (Bathe, Finite Element Procedures, 1996, §11.6). The sparse
+/// Cholesky factor is nalgebra-sparse's; each iteration costs a few banded solves, so a mesh of
+/// thousands of degrees of freedom takes milliseconds where a dense solve takes seconds.
+///
+/// Returns the eigenvalues (ascending) and M-orthonormal eigenvectors (columns); `None` when the
+/// shifted matrix cannot be factored, the input is not finite, or the iteration does not converge
+/// to 1e-10 (relative) within 300 steps.
+pub fn lowest_modes_sparse(
+    k: &nalgebra_sparse::CscMatrix<f64>,
+    m: &nalgebra_sparse::CscMatrix<f64>,
+    count: usize,
+) -> Option<(Vec<f64>, DMatrix<f64>)> {
+    use nalgebra_sparse::factorization::CscCholesky;
+    let n = k.nrows();
+    if n == 0 || count == 0 || m.nrows() != n {
+        return None;
+    }
+    if !k.values().iter().chain(m.values()).all(|v| v.is_finite()) {
+        return None;
+    }
+    let count = count.min(n);
+    let q = n.min((2 * count).max(count + 8));
+    // The shift: small against the pencil's scale (the mean of K_ii/M_ii) so the lowest modes
+    // converge fastest, large enough that K + cM is positive definite with rigid-body modes.
+    let diag = |a: &nalgebra_sparse::CscMatrix<f64>, i: usize| {
+        a.col(i)
+            .row_indices()
+            .iter()
+            .zip(a.col(i).values())
+            .find(|(r, _)| **r == i)
+            .map_or(0.0, |(_, v)| *v)
+    };
+    let ratios: Vec<f64> = (0..n)
+        .filter(|&i| diag(m, i) > 0.0)
+        .map(|i| diag(k, i).abs() / diag(m, i))
+        .filter(|r| *r > 0.0)
+        .collect();
+    let scale = if ratios.is_empty() {
+        1.0
+    } else {
+        ratios.iter().map(|r| r.ln()).sum::<f64>() / ratios.len() as f64
+    }
+    .exp();
+    let shift = 1e-6 * scale;
+    let a = k + &(m * shift);
+    let chol = CscCholesky::factor(&a).ok()?;
+    // Start: the mass diagonal and deterministic pseudo-random vectors.
+    let mut state: u64 = 0x2545_f491_4f6c_dd1d;
+    let mut x = DMatrix::<f64>::from_fn(n, q, |i, j| {
+        if j == 0 {
+            diag(m, i)
+        } else {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+        }
+    });
+    let mut previous: Option<Vec<f64>> = None;
+    for step in 0..300 {
+        let y = m * &x;
+        // The solve scales each direction by 1/(λ + c), which spans many decades between the
+        // rigid-body and the highest wanted modes: an orthonormal basis of the same span keeps
+        // the projected matrices well conditioned.
+        let z = chol.solve(&y).qr().q();
+        if !all_finite(&z) {
+            return None;
+        }
+        let kr = z.tr_mul(&(k * &z));
+        let mr = z.tr_mul(&(m * &z));
+        let kr = (&kr + kr.transpose()) * 0.5;
+        let mr = (&mr + mr.transpose()) * 0.5;
+        let lm = mr.cholesky()?.l();
+        let lk = lm.solve_lower_triangular(&kr)?;
+        let c = lm.solve_lower_triangular(&lk.transpose())?;
+        let c = (&c + c.transpose()) * 0.5;
+        let eig = symmetric_eigen(c)?;
+        let mut order: Vec<usize> = (0..q).collect();
+        order.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
+        let values: Vec<f64> = order.iter().map(|&i| eig.eigenvalues[i]).collect();
+        let v = DMatrix::<f64>::from_fn(q, q, |r, c| eig.eigenvectors[(r, order[c])]);
+        let qm = lm.transpose().solve_upper_triangular(&v)?;
+        x = &z * qm;
+        if !all_finite(&x) {
+            return None;
+        }
+        let top = values[count - 1].abs().max(f64::MIN_POSITIVE);
+        // Largest relative change of the wanted eigenvalues since the last step (rigid-body
+        // modes, λ ≈ 0, measured against the highest wanted one).
+        let change = previous.as_ref().map(|p| {
+            (0..count)
+                .map(|i| (values[i] - p[i]).abs() / values[i].abs().max(1e-3 * top))
+                .fold(0.0f64, f64::max)
+        });
+        // Converged, or settled at round-off (an ill-conditioned mesh can keep the last digits
+        // moving at 1e-11 for ever).
+        if change.is_some_and(|c| c <= 1e-10 || (step >= 60 && c <= 1e-8)) {
+            let vecs = x.columns(0, count).into_owned();
+            return Some((values[..count].to_vec(), vecs));
+        }
+        previous = Some(values);
+    }
+    None
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The lowest modes of a fixed–fixed chain of 400 equal masses and springs against the
+    /// closed form λ_j = (4k/m) sin²(jπ/(2(N+1))) (any vibration text, e.g. Meirovitch 2001).
+    #[test]
+    fn sparse_lowest_modes_of_a_spring_chain_match_the_closed_form() {
+        let n = 400;
+        let (kk, mm) = (1.0e6, 2.0);
+        let mut kc = nalgebra_sparse::CooMatrix::new(n, n);
+        let mut mc = nalgebra_sparse::CooMatrix::new(n, n);
+        for i in 0..n {
+            kc.push(i, i, 2.0 * kk);
+            mc.push(i, i, mm);
+            if i + 1 < n {
+                kc.push(i, i + 1, -kk);
+                kc.push(i + 1, i, -kk);
+            }
+        }
+        let k = nalgebra_sparse::CscMatrix::from(&kc);
+        let m = nalgebra_sparse::CscMatrix::from(&mc);
+        let (vals, vecs) = lowest_modes_sparse(&k, &m, 6).expect("converges");
+        for (j, v) in vals.iter().enumerate() {
+            let s = ((j + 1) as f64 * std::f64::consts::PI / (2.0 * (n + 1) as f64)).sin();
+            let exact = 4.0 * kk / mm * s * s;
+            assert!((v / exact - 1.0).abs() < 1e-9, "mode {j}: {v} vs {exact}");
+        }
+        // M-orthonormal.
+        let g = vecs.tr_mul(&(&m * &vecs));
+        assert!((g - DMatrix::<f64>::identity(6, 6)).abs().max() < 1e-9);
+    }
 
     #[test]
     fn non_finite_input_returns_none_at_once() {

@@ -1,8 +1,8 @@
 //! Two-node Timoshenko beam elements (Friedman & Kosmatka 1993; Davis, Henshell & Warburton 1972),
 //! assembled for a stepped shaft with rigid discs and spring supports, and the generalized
-//! symmetric eigenproblem K φ = ω² M φ solved with nalgebra (Cholesky + symmetric eigen).
+//! symmetric eigenproblem K φ = ω² M φ solved for its lowest modes on the sparse matrices
+//! (`numeric::lowest_modes_sparse`: shift-invert subspace iteration).
 
-use nalgebra::{DMatrix, DVector};
 use serde::{Deserialize, Serialize};
 
 /// The most sections a shaft may have.
@@ -124,10 +124,10 @@ pub fn cowper_kappa(poisson: f64, inner_over_outer: f64) -> f64 {
 pub struct FeModel {
     /// Node positions, m; DOFs are [w_0, θ_0, w_1, θ_1, …].
     pub nodes_m: Vec<f64>,
-    /// Stiffness matrix.
-    pub k: DMatrix<f64>,
+    /// Stiffness matrix (sparse: banded in node order).
+    pub k: nalgebra_sparse::CscMatrix<f64>,
     /// Mass matrix.
-    pub m: DMatrix<f64>,
+    pub m: nalgebra_sparse::CscMatrix<f64>,
 }
 
 /// A mode of the model.
@@ -333,16 +333,18 @@ impl Shaft {
             }
         }
         let ndof = 2 * nodes.len();
-        let mut kg = DMatrix::<f64>::zeros(ndof, ndof);
-        let mut mg = DMatrix::<f64>::zeros(ndof, ndof);
+        // Triplets; repeated entries (shared nodes, supports, discs) are summed into the sparse
+        // matrices below.
+        let mut kg = nalgebra_sparse::CooMatrix::<f64>::new(ndof, ndof);
+        let mut mg = nalgebra_sparse::CooMatrix::<f64>::new(ndof, ndof);
         for e in 0..nodes.len() - 1 {
             let (x0, x1) = (nodes[e], nodes[e + 1]);
             let sec = self.section_at(0.5 * (x0 + x1));
             let (ke, me) = element(sec, sec.material.unwrap_or(self.material), x1 - x0, theory);
             for i in 0..4 {
                 for j in 0..4 {
-                    kg[(2 * e + i, 2 * e + j)] += ke[i][j];
-                    mg[(2 * e + i, 2 * e + j)] += me[i][j];
+                    kg.push(2 * e + i, 2 * e + j, ke[i][j]);
+                    mg.push(2 * e + i, 2 * e + j, me[i][j]);
                 }
             }
         }
@@ -355,18 +357,18 @@ impl Shaft {
         };
         for s in &self.supports {
             let n = node_of(s.position_m);
-            kg[(2 * n, 2 * n)] += s.stiffness_n_per_m;
-            kg[(2 * n + 1, 2 * n + 1)] += s.rotational_stiffness_n_m_per_rad;
+            kg.push(2 * n, 2 * n, s.stiffness_n_per_m);
+            kg.push(2 * n + 1, 2 * n + 1, s.rotational_stiffness_n_m_per_rad);
         }
         for d in &self.discs {
             let n = node_of(d.position_m);
-            mg[(2 * n, 2 * n)] += d.mass_kg;
-            mg[(2 * n + 1, 2 * n + 1)] += d.transverse_inertia_kg_m2;
+            mg.push(2 * n, 2 * n, d.mass_kg);
+            mg.push(2 * n + 1, 2 * n + 1, d.transverse_inertia_kg_m2);
         }
         Ok(FeModel {
             nodes_m: nodes,
-            k: kg,
-            m: mg,
+            k: nalgebra_sparse::CscMatrix::from(&kg),
+            m: nalgebra_sparse::CscMatrix::from(&mg),
         })
     }
 
@@ -411,32 +413,11 @@ impl FeModel {
     /// Solves K φ = ω² M φ for the lowest `count` modes. `free` marks an unsupported part, whose
     /// two lowest modes are rigid-body modes.
     pub fn solve(&self, count: usize, free: bool) -> Result<Vec<BeamMode>, String> {
-        let chol = self
-            .m
-            .clone()
-            .cholesky()
-            .ok_or("the mass matrix is not positive definite")?;
-        let l = chol.l();
-        // A = L⁻¹ K L⁻ᵀ is symmetric with the same eigenvalues.
-        let lk = l
-            .solve_lower_triangular(&self.k)
-            .ok_or("singular mass factor")?;
-        let a = l
-            .solve_lower_triangular(&lk.transpose())
-            .ok_or("singular mass factor")?;
-        let a = (&a + a.transpose()) * 0.5;
-        let eig = crate::numeric::symmetric_eigen(a)
+        let (values, vectors) = crate::numeric::lowest_modes_sparse(&self.k, &self.m, count)
             .ok_or("the eigenvalue iteration did not converge (non-finite or degenerate model)")?;
-        let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
-        order.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
-        let lt = l.transpose();
         let mut out = Vec::new();
-        for (rank, &i) in order.iter().take(count).enumerate() {
-            let y: DVector<f64> = eig.eigenvectors.column(i).into_owned();
-            let phi = lt
-                .solve_upper_triangular(&y)
-                .ok_or("singular mass factor")?;
-            let w2 = eig.eigenvalues[i].max(0.0);
+        for (rank, (&w2, phi)) in values.iter().zip(vectors.column_iter()).enumerate() {
+            let w2 = w2.max(0.0);
             let mut disp: Vec<f64> = (0..self.nodes_m.len()).map(|n| phi[2 * n]).collect();
             // Sign: make the largest-magnitude displacement positive, so shapes compare stably.
             let big = disp
