@@ -22,7 +22,7 @@ pub const MAP_NOTE: &str = "Undamped critical speeds of a non-rotating Timoshenk
      isotropic bearings as plain springs without damping, pedestal or foundation mass.";
 
 /// Advisory wording of the margin check.
-pub const MARGIN_NOTE: &str = "Advisory only. The rule is API RP 684's as recalled from memory: \
-     confirm it against the edition in force, or the standard that applies to this machine. Bench \
+pub const MARGIN_NOTE: &str = "Advisory only. API RP 684 rule (verify against your edition, or \
+     use the standard that applies to this machine). Bench \
      frequencies are not installed critical speeds. Decisions on running speeds belong to the \
      applicable standard, local codes and a competent, licensed engineer.";

@@ -104,6 +104,16 @@ pub fn study(study: &Study, test: Option<&TestModes>) -> Result<StudyResult, Str
     evaluate(study, test)
 }
 
+/// [`study`] reusing the model's solves kept in `cache` (the window's worker keeps one, so a new
+/// fit only pairs modes and checks margins again).
+pub fn study_cached(
+    study: &Study,
+    test: Option<&TestModes>,
+    cache: &mut crate::model::study::ModelCache,
+) -> Result<StudyResult, String> {
+    crate::model::study::evaluate_cached(study, test, cache)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -225,7 +225,7 @@ fn import_override_and_reanalyse_a_session() {
             "--station",
             "2",
             "--hit",
-            "1",
+            "2",
             "--set",
             "accept",
         ])
@@ -261,7 +261,7 @@ fn import_override_and_reanalyse_a_session() {
             "--station",
             "2",
             "--hit",
-            "1",
+            "2",
             "--set",
             "auto",
         ])

@@ -173,7 +173,7 @@ fn a_shaft_with_an_absurd_section_is_refused_at_once() {
             .arg(t.path().join("o")),
         "shaft.json",
     );
-    assert!(err.contains("section 1: length"), "{err}");
+    assert!(err.contains("section 2: length"), "{err}");
     // Density of a gas and a modulus of jelly are not a shaft either.
     let shaft = serde_json::json!({
         "material": {"youngs_modulus_pa": 2.0e11, "density_kg_m3": 1.2, "poisson_ratio": 0.3},
@@ -202,7 +202,7 @@ fn two_writers_at_once_lose_no_update() {
             std::process::Command::new(assert_cmd::cargo::cargo_bin("tapgrid"))
                 .args(["verdict"])
                 .arg(&s)
-                .args(["--station", station, "--hit", "0", "--set", v])
+                .args(["--station", station, "--hit", "1", "--set", v])
                 .stdout(std::process::Stdio::null())
                 .stderr(std::process::Stdio::piped())
                 .spawn()
@@ -253,7 +253,7 @@ fn a_writer_killed_at_any_instant_leaves_an_openable_session() {
         let mut child = std::process::Command::new(assert_cmd::cargo::cargo_bin("tapgrid"))
             .arg("verdict")
             .arg(&s)
-            .args(["--station", "3", "--hit", "1", "--set"])
+            .args(["--station", "3", "--hit", "2", "--set"])
             .arg(if i % 2 == 0 { "reject" } else { "auto" })
             .stdout(std::process::Stdio::null())
             .stderr(std::process::Stdio::null())
@@ -269,7 +269,7 @@ fn a_writer_killed_at_any_instant_leaves_an_openable_session() {
     bin()
         .arg("verdict")
         .arg(&s)
-        .args(["--station", "3", "--hit", "1", "--set", "auto"])
+        .args(["--station", "3", "--hit", "2", "--set", "auto"])
         .assert()
         .success();
     let temps: Vec<String> = std::fs::read_dir(&s)

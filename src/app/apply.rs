@@ -258,6 +258,14 @@ impl TapgridApp {
             return;
         };
         if d.read_only || d.session.is_none() {
+            let why = if let Some(who) = &d.locked_by {
+                format!("the session is in use by {who}: save a copy in a new folder")
+            } else if d.session.is_none() {
+                "a WAV set is saved as a new session: choose its folder".to_string()
+            } else {
+                "the demo is read-only: save a copy in a new folder".to_string()
+            };
+            self.note(why, false);
             self.commands.push(Command::AskPath(PathPurpose::SaveAs));
             return;
         }

@@ -57,13 +57,14 @@ impl TapgridApp {
                 self.commands.push(Command::ToggleHelp);
             }
             ui.separator();
-            for v in View::ALL {
+            for (n, v) in (1..).zip(View::ALL) {
                 let sel = self.settings.view == v;
                 if ui
                     .add(egui::Button::selectable(
                         sel,
                         egui::RichText::new(v.label()).size(17.0),
                     ))
+                    .on_hover_text(format!("key {n}"))
                     .clicked()
                 {
                     self.commands.push(Command::Show(v));
@@ -83,6 +84,8 @@ impl TapgridApp {
                 let mut title = d.part.name.clone();
                 if let Some(who) = &d.locked_by {
                     title.push_str(&format!("  (read-only: in use by {who})"));
+                } else if d.session.is_none() {
+                    title.push_str("  (WAV set: Save as makes it a session)");
                 } else if d.read_only {
                     title.push_str("  (demo: read-only, use Save as)");
                 } else if d.dirty {
@@ -141,17 +144,19 @@ impl TapgridApp {
                 self.commands.push(c);
             }
         }
-        for (k, v) in [
-            (Key::Num1, View::Setup),
-            (Key::Num2, View::Stations),
-            (Key::Num3, View::Hits),
-            (Key::Num4, View::Frf),
-            (Key::Num5, View::Fit),
-            (Key::Num6, View::Modes),
-            (Key::Num7, View::Capture),
-            (Key::Num8, View::Model),
-            (Key::Num9, View::Margins),
-        ] {
+        // Keys 1–9 open the tabs in the order they are drawn.
+        let keys = [
+            Key::Num1,
+            Key::Num2,
+            Key::Num3,
+            Key::Num4,
+            Key::Num5,
+            Key::Num6,
+            Key::Num7,
+            Key::Num8,
+            Key::Num9,
+        ];
+        for (k, v) in keys.into_iter().zip(View::ALL) {
             if pressed(k) {
                 self.commands.push(Command::Show(v));
             }

@@ -307,12 +307,9 @@ pub fn service_editor(ui: &mut egui::Ui, st: &mut Study, orders_text: &mut Strin
     ui.add_space(6.0);
     ui.label(RichText::new("Separation margin rule").strong());
     ui.label(
-        RichText::new(
-            "API RP 684 as recalled from memory: confirm against the edition in force, or set \
-             your own.",
-        )
-        .small()
-        .color(WARN),
+        RichText::new("API RP 684 rule (verify against your edition), or set your own.")
+            .small()
+            .color(WARN),
     );
     let r = &mut st.rule;
     egui::Grid::new("rule").num_columns(2).show(ui, |ui| {
@@ -332,7 +329,7 @@ pub fn service_editor(ui: &mut egui::Ui, st: &mut Study, orders_text: &mut Strin
         changed |= plain(ui, &mut r.above_cap_pct, 0.0..=100.0, 0.5);
         ui.end_row();
     });
-    if ui.button("Rule back to API RP 684 numbers").clicked() {
+    if ui.button("Reset to the API RP 684 rule").clicked() {
         st.rule = MarginRule::default();
         changed = true;
     }

@@ -90,9 +90,10 @@ impl TapgridApp {
                 self.settings.recent.insert(0, path.clone());
                 self.settings.recent.truncate(8);
                 self.note(format!("opened {}", path.display()), false);
-                // The model needs no test: draw it first, correlate once the fit is in.
-                self.request_study();
+                // The hit analysis first (the stations fill in), then the model, which needs no
+                // test to be drawn; it is correlated again once the fit is in.
                 self.request_analysis();
+                self.request_study();
             }
             Outcome::Analyzed {
                 generation,

@@ -322,14 +322,18 @@ struct Latest {
 
 fn work(jobs: Receiver<Job>, out: SyncSender<Outcome>, latest: Latest, repaint: impl Fn()) {
     let mut decoder = Decoder::default();
+    let mut model_cache = crate::model::study::ModelCache::default();
     while let Ok(job) = jobs.recv() {
         let what = describe(&job);
         // A bug that panics inside one job must not take the worker down with it (later jobs
         // would be dropped and the window would say "Analysing…" for ever): the job is reported
         // failed and the worker goes on with a fresh decoder.
-        let outcome = guarded(what, || run_job(job, &latest, &mut decoder));
+        let outcome = guarded(what, || {
+            run_job(job, &latest, &mut decoder, &mut model_cache)
+        });
         if matches!(outcome, Outcome::Failed { .. }) {
             decoder = Decoder::default();
+            model_cache = Default::default();
         }
         if out.send(outcome).is_err() {
             return;
@@ -338,7 +342,12 @@ fn work(jobs: Receiver<Job>, out: SyncSender<Outcome>, latest: Latest, repaint: 
     }
 }
 
-fn run_job(job: Job, latest: &Latest, decoder: &mut Decoder) -> Outcome {
+fn run_job(
+    job: Job,
+    latest: &Latest,
+    decoder: &mut Decoder,
+    model_cache: &mut crate::model::study::ModelCache,
+) -> Outcome {
     match job {
         Job::Open(path) => open(path),
         Job::Analyze {
@@ -403,7 +412,8 @@ fn run_job(job: Job, latest: &Latest, decoder: &mut Decoder) -> Outcome {
             } else {
                 Outcome::Studied {
                     generation,
-                    result: crate::pipeline::study(&study, test.as_ref()).map(Arc::new),
+                    result: crate::pipeline::study_cached(&study, test.as_ref(), model_cache)
+                        .map(Arc::new),
                 }
             }
         }

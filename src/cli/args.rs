@@ -576,7 +576,8 @@ pub struct VerdictArgs {
     /// Station.
     #[arg(long)]
     pub station: u32,
-    /// Hit index (0-based, in recording order).
+    /// Hit number in the station's recording, counted from 1 — as the window, the summary and
+    /// the report number hits.
     #[arg(long)]
     pub hit: usize,
     /// The verdict.
@@ -652,7 +653,12 @@ pub(super) fn station_hit(s: &str) -> Result<(u32, usize)> {
     let (a, b) = s
         .split_once(':')
         .ok_or_else(|| anyhow!("expected STATION:HIT, got {s:?}"))?;
-    Ok((a.trim().parse()?, b.trim().parse()?))
+    // People count hits from 1; the simulator's scenario stores the 0-based index.
+    let hit: usize = b.trim().parse()?;
+    let index = hit
+        .checked_sub(1)
+        .ok_or_else(|| anyhow!("{s:?}: hits are counted from 1"))?;
+    Ok((a.trim().parse()?, index))
 }
 
 /// `tapgrid demo`.

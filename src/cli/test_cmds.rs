@@ -178,7 +178,11 @@ pub(super) fn verdict(a: VerdictArgs) -> Result<()> {
         VerdictArg::Reject => Some(false),
         VerdictArg::Auto => None,
     };
-    s.set_override(a.station, a.hit, v)
+    let index = a
+        .hit
+        .checked_sub(1)
+        .ok_or_else(|| anyhow!("--hit: hits are counted from 1"))?;
+    s.set_override(a.station, index, v)
         .map_err(|m| anyhow!("{}: {m}", a.session.display()))?;
     let data = s.dataset();
     let result = analysis::run(&data, &s.manifest.setup)?;

@@ -199,7 +199,7 @@ impl Shaft {
         }
         material("shaft material", &self.material)?;
         let mut d_max = 0.0f64;
-        for (i, s) in self.sections.iter().enumerate() {
+        for (i, s) in (1..).zip(self.sections.iter()) {
             if !(s.length_m.is_finite() && s.length_m > 0.0) {
                 return Err(format!(
                     "section {i}: length {} m must be positive",
@@ -240,7 +240,7 @@ impl Shaft {
         if self.supports.len() > 100 || self.discs.len() > 500 {
             return Err("at most 100 supports and 500 discs".into());
         }
-        for (i, s) in self.supports.iter().enumerate() {
+        for (i, s) in (1..).zip(self.supports.iter()) {
             if !(0.0..=l).contains(&s.position_m) {
                 return Err(format!(
                     "support {i} at {} m is outside the part (0–{l} m)",
@@ -273,7 +273,7 @@ impl Shaft {
                 )?;
             }
         }
-        for (i, d) in self.discs.iter().enumerate() {
+        for (i, d) in (1..).zip(self.discs.iter()) {
             if !(0.0..=l).contains(&d.position_m) {
                 return Err(format!(
                     "disc {i} at {} m is outside the part (0–{l} m)",

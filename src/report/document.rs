@@ -215,7 +215,7 @@ fn hits_section(s: &mut String, a: &Analysis) {
                 let why: Vec<&str> = h.reasons.iter().map(|r| r.sentence()).collect();
                 notes.push(format!(
                     "hit {}: {}{}",
-                    h.index,
+                    h.index + 1,
                     why.join(" "),
                     if h.override_accept == Some(true) {
                         " Kept by a person's override."
@@ -224,7 +224,10 @@ fn hits_section(s: &mut String, a: &Analysis) {
                     }
                 ));
             } else if h.override_accept == Some(false) {
-                notes.push(format!("hit {}: rejected by a person's override.", h.index));
+                notes.push(format!(
+                    "hit {}: rejected by a person's override.",
+                    h.index + 1
+                ));
             }
         }
         let pos = format!(

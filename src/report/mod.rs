@@ -437,7 +437,7 @@ pub fn summary(a: &Analysis) -> String {
                 let w: Vec<&str> = h.reasons.iter().map(|r| r.word()).collect();
                 probs.push(format!(
                     "hit {} {}{}",
-                    h.index,
+                    h.index + 1,
                     w.join("+"),
                     match h.override_accept {
                         Some(true) => " (kept by override)",
@@ -445,7 +445,7 @@ pub fn summary(a: &Analysis) -> String {
                     }
                 ));
             } else if h.override_accept == Some(false) {
-                probs.push(format!("hit {} rejected by override", h.index));
+                probs.push(format!("hit {} rejected by override", h.index + 1));
             }
         }
         let _ = writeln!(
