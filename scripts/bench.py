@@ -71,6 +71,21 @@ def main():
     print(f"  FRF stage of the same run {c:.3f} s; diagram / FRF stage {st / c:.2f}; modal / FRF stage {m / c:.2f}")
 
     kinds(tmp)
+    window_waits(tmp)
+
+
+def window_waits(tmp):
+    """The window's waits on the bundled demo: a verdict change until the worker is idle, and the
+    commands that solve the shaft model (README: Performance)."""
+    demo = ROOT / "sample-sessions" / "pump-shaft"
+    p = subprocess.run([BIN, "bench-verdict", demo, "--repeat", str(max(REPEAT, 5))],
+                       check=True, capture_output=True, text=True)
+    print("window (demo session):")
+    print("  " + p.stdout.strip() + "  (target <= 0.3 s)")
+    t_c = timed([BIN, "correlate", demo])
+    t_r = timed([BIN, "report", demo, "--out", tmp / "demo-report.html"])
+    t_m = timed([BIN, "margin", "--model", demo])
+    print(f"  correlate {t_c:.3f} s, report {t_r:.3f} s, margin --model {t_m:.3f} s")
 
 
 # Generated sets of several kinds, 40 stations x 5 hits at 51.2 kHz each: the full `analyze` (hits,

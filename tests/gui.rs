@@ -362,7 +362,7 @@ fn speed_margins_view_shows_the_map_bands_and_cautions() {
     settle(&mut h);
     h.get_by_label("Critical speeds against the stiffness of the bearings in service");
     h.get_by_label_contains("no gyroscopic effect");
-    h.get_by_label_contains("Advisory only. The rule is API RP 684");
+    h.get_by_label_contains("Advisory only. API RP 684 rule (verify against your edition");
     h.get_by_label_contains("Separation margins, operating range 2900–3000 rpm");
     let d = h.state().doc.as_ref().expect("open");
     let r = d.study_result.clone().expect("solved");

@@ -9,6 +9,16 @@ pub struct BenchDecodeArgs {
     pub input: PathBuf,
 }
 
+/// `tapgrid bench-verdict`.
+#[derive(Debug, Args)]
+pub struct BenchVerdictArgs {
+    /// A session folder with a shaft model.
+    pub input: PathBuf,
+    /// Repetitions (the median is printed).
+    #[arg(long, default_value_t = 5)]
+    pub repeat: usize,
+}
+
 /// Layout choice on the command line.
 #[derive(Debug, Clone, Copy, ValueEnum)]
 pub enum LayoutArg {

@@ -14,7 +14,7 @@ pub use args::*;
 use capture_cmds::{calibrate, capture, devices};
 use model_cmds::{correlate, margin, model};
 use sim_cmds::simulate;
-use test_cmds::{analyze, import, report, verdict};
+use test_cmds::{analyze, bench_verdict, import, report, verdict};
 
 use std::path::{Path, PathBuf};
 
@@ -83,6 +83,10 @@ pub enum Command {
     /// Benchmark helper: decode every recording of a set (both channels) and nothing else.
     #[command(hide = true)]
     BenchDecode(BenchDecodeArgs),
+    /// Benchmark helper: what the window's worker does after a verdict changes on a session —
+    /// analysis, fit and the model study with its solves cached — timed, `--repeat` times.
+    #[command(hide = true)]
+    BenchVerdict(BenchVerdictArgs),
 }
 
 /// Runs a parsed command line.
@@ -119,6 +123,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Calibrate(a) => calibrate(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
+        Command::BenchVerdict(a) => bench_verdict(&a),
         Command::BenchDecode(a) => {
             let (data, _) = crate::pipeline::open_dataset(&a.input, Setup::default().spacing_m)?;
             let frames = analysis::decode_all(&data, &Setup::default())?;

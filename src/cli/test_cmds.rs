@@ -191,3 +191,39 @@ pub(super) fn verdict(a: VerdictArgs) -> Result<()> {
     print!("{}", report::summary(&result));
     Ok(())
 }
+
+/// Times the window's work after a verdict change: the analysis, the fit, and the model study
+/// with the model's solves already cached (as the worker keeps them), median of `repeat`; also
+/// the first study (no cache).
+pub(super) fn bench_verdict(a: &BenchVerdictArgs) -> Result<()> {
+    let t = open_test(&a.input, &SetupArgs::default(), &ModalArgs::default())?;
+    let study = t
+        .session
+        .as_ref()
+        .and_then(|s| s.manifest.model.clone())
+        .ok_or_else(|| anyhow!("{}: the session has no shaft model", a.input.display()))?;
+    let ms = t.modal.clone().unwrap_or_default();
+    let mut cache = crate::model::study::ModelCache::default();
+    let t0 = std::time::Instant::now();
+    let analysis = analysis::run(&t.data, &t.setup)?;
+    let m = fit_modes(&a.input, &analysis, t.modal.as_ref())?;
+    let test = crate::pipeline::test_modes(&ms, &t.setup, &m);
+    crate::pipeline::study_cached(&study, Some(&test), &mut cache).map_err(|e| anyhow!(e))?;
+    let first = t0.elapsed().as_secs_f64();
+    let mut times = Vec::new();
+    for _ in 0..a.repeat.max(1) {
+        let t0 = std::time::Instant::now();
+        let analysis = analysis::run(&t.data, &t.setup)?;
+        let m = fit_modes(&a.input, &analysis, t.modal.as_ref())?;
+        let test = crate::pipeline::test_modes(&ms, &t.setup, &m);
+        crate::pipeline::study_cached(&study, Some(&test), &mut cache).map_err(|e| anyhow!(e))?;
+        times.push(t0.elapsed().as_secs_f64());
+    }
+    times.sort_by(f64::total_cmp);
+    println!(
+        "verdict change to idle: {:.3} s (median of {}); first, model solved: {first:.3} s",
+        times[times.len() / 2],
+        times.len()
+    );
+    Ok(())
+}
