@@ -575,3 +575,65 @@ fn a_session_held_by_another_program_opens_read_only_and_names_the_holder() {
     h.get_by_label_contains("in use by");
     drop(lock);
 }
+
+/// Keys 1–9 open the tabs in the order they are drawn; a station whose every hit is kept —
+/// some by a person — is a good station; a hit a person rejected says so.
+#[test]
+fn keys_follow_the_tabs_and_verdicts_by_a_person_read_as_such() {
+    let mut h = open_demo();
+    for (k, v) in [
+        (egui::Key::Num1, View::ALL[0]),
+        (egui::Key::Num5, View::ALL[4]),
+        (egui::Key::Num9, View::ALL[8]),
+    ] {
+        h.key_press(k);
+        h.run_steps(2);
+        assert_eq!(h.state().settings.view, v);
+    }
+    // Station 4 of the demo holds a double hit; keep it by hand: every hit kept, a good station.
+    let st = h
+        .state()
+        .doc
+        .as_ref()
+        .unwrap()
+        .data
+        .stations
+        .iter()
+        .map(|s| s.station)
+        .find(|&s| {
+            let d = h.state().doc.as_ref().unwrap();
+            d.station_analysis(s)
+                .is_some_and(|a| a.result.hits.iter().any(|x| !x.accepted))
+        })
+        .expect("the demo has a rejected hit");
+    let rejected: Vec<usize> = h
+        .state()
+        .doc
+        .as_ref()
+        .unwrap()
+        .station_analysis(st)
+        .unwrap()
+        .result
+        .hits
+        .iter()
+        .filter(|x| !x.accepted)
+        .map(|x| x.index)
+        .collect();
+    for hit in &rejected {
+        h.state_mut().push(tapgrid::app::Command::SetVerdict {
+            station: st,
+            hit: *hit,
+            accept: Some(true),
+        });
+    }
+    settle(&mut h);
+    let d = h.state().doc.as_ref().unwrap();
+    let sa = d.station_analysis(st).unwrap();
+    assert!(sa.result.hits.iter().all(|x| x.accepted));
+    // The hit view of that station says who decided.
+    h.state_mut().current_station = Some(st);
+    h.state_mut().current_hit = rejected[0];
+    h.get_by_label("Hit check").click();
+    settle(&mut h);
+    h.get_by_label("KEPT by you");
+}

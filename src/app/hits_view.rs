@@ -65,10 +65,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             }
             ui.separator();
             if let Some(h) = hits.get(hi) {
-                let (big, color) = if h.accepted {
-                    ("KEPT", GOOD)
-                } else {
-                    ("REJECTED", BAD)
+                let (big, color) = match (h.accepted, h.override_accept) {
+                    (true, Some(true)) => ("KEPT by you", GOOD),
+                    (true, _) => ("KEPT", GOOD),
+                    (false, Some(false)) => ("REJECTED by you", BAD),
+                    (false, _) => ("REJECTED", BAD),
                 };
                 ui.label(RichText::new(big).size(34.0).strong().color(color));
                 if h.reasons.is_empty() {
@@ -76,6 +77,28 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 }
                 for r in &h.reasons {
                     ui.label(RichText::new(r.sentence()).size(17.0).color(WARN));
+                    if *r == crate::signal::Reason::Overload {
+                        // Which channel: the one at full scale, else the one clipped flat.
+                        let limit = doc.setup.quality.overload_fraction;
+                        let which: Vec<String> = [("A", h.peak_a_fs), ("B", h.peak_b_fs)]
+                            .iter()
+                            .filter(|(_, p)| *p >= limit)
+                            .map(|(c, p)| {
+                                format!("channel {c} peaked at {:.1} % of full scale", p * 100.0)
+                            })
+                            .collect();
+                        let text = if which.is_empty() {
+                            format!(
+                                "Clipped flat below full scale (A {:.1} %, B {:.1} %): a converter \
+                                 or conditioner limit.",
+                                h.peak_a_fs * 100.0,
+                                h.peak_b_fs * 100.0
+                            )
+                        } else {
+                            format!("{}.", which.join("; "))
+                        };
+                        ui.label(RichText::new(text).color(WARN));
+                    }
                 }
                 match h.override_accept {
                     Some(true) => ui.label("You accepted this hit."),

@@ -272,6 +272,34 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
         ))
         .strong(),
     );
+    // The verdict first, then the lines.
+    let close: Vec<&crate::model::study::MarginLine> =
+        r.margins.iter().filter(|l| !l.check.ok).collect();
+    if close.is_empty() {
+        ui.label(
+            RichText::new(format!(
+                "All {} resonance–order lines clear the rule.",
+                r.margins.len()
+            ))
+            .color(GOOD),
+        );
+    } else {
+        let worst = close
+            .iter()
+            .map(|l| l.check.critical_rpm)
+            .map(|c| format!("{c:.0} rpm"))
+            .collect::<Vec<_>>()
+            .join(", ");
+        ui.label(
+            RichText::new(format!(
+                "{} of {} lines TOO CLOSE to the operating range: critical speeds at {worst}.",
+                close.len(),
+                r.margins.len()
+            ))
+            .color(BAD)
+            .strong(),
+        );
+    }
     egui::Grid::new("margin-grid")
         .striped(true)
         .num_columns(10)

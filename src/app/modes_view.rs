@@ -118,6 +118,25 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             ui.label(
                 RichText::new("MAC 0 (dark) … 1 (bright); off-diagonal should be near 0").small(),
             );
+            // Two modes whose shapes look alike at these stations: too few stations to tell
+            // them apart (spatial aliasing), or one mode found twice.
+            for i in 0..m.auto_mac.len() {
+                for j in i + 1..m.auto_mac.len() {
+                    let v = m.auto_mac[i][j];
+                    if v > 0.9 {
+                        ui.label(
+                            RichText::new(format!(
+                                "Modes {} and {} have MAC {v:.2}: the stations cannot tell their \
+                                 shapes apart (add stations between, or one mode was found twice)",
+                                i + 1,
+                                j + 1
+                            ))
+                            .color(WARN)
+                            .small(),
+                        );
+                    }
+                }
+            }
         });
     let md = &m.modes[sel];
     egui::CentralPanel::default().show(ui, |ui| {

@@ -10,6 +10,8 @@ use super::{Command, Document, TapgridApp, View};
 pub enum StationState {
     /// No recording yet.
     NotMeasured,
+    /// Recorded; its analysis has not come back yet.
+    Analysing,
     /// Every hit accepted.
     Good,
     /// An FRF, but some hits were rejected or overridden.
@@ -23,6 +25,7 @@ impl StationState {
     pub fn color(self) -> Color32 {
         match self {
             StationState::NotMeasured => IDLE,
+            StationState::Analysing => ACCENT.gamma_multiply(0.45),
             StationState::Good => GOOD,
             StationState::Partly => WARN,
             StationState::Problem => BAD,
@@ -33,6 +36,7 @@ impl StationState {
     pub fn word(self) -> &'static str {
         match self {
             StationState::NotMeasured => "not measured",
+            StationState::Analysing => "being analysed",
             StationState::Good => "all hits accepted",
             StationState::Partly => "some hits rejected",
             StationState::Problem => "no usable FRF",
@@ -43,19 +47,19 @@ impl StationState {
 /// The state of a station and a sentence for its hover text.
 pub fn state_of(doc: &Document, station: u32) -> (StationState, String) {
     let Some(sa) = doc.station_analysis(station) else {
-        let why = if doc.station_index(station).is_some() {
+        let (state, why) = if doc.station_index(station).is_some() {
             if doc.analysis_error.is_some() {
-                "analysis failed (see the message bar)"
+                (
+                    StationState::Problem,
+                    "analysis failed (see the message bar)",
+                )
             } else {
-                "being analysed"
+                (StationState::Analysing, "being analysed")
             }
         } else {
-            "no recording yet"
+            (StationState::NotMeasured, "no recording yet")
         };
-        return (
-            StationState::NotMeasured,
-            format!("Station {station}: {why}"),
-        );
+        return (state, format!("Station {station}: {why}"));
     };
     let hits = &sa.result.hits;
     let accepted = hits.iter().filter(|h| h.accepted).count();
@@ -81,9 +85,10 @@ pub fn state_of(doc: &Document, station: u32) -> (StationState, String) {
             ));
         }
     }
+    // A hit a person kept counts as kept: every hit accepted is a good station, whoever decided.
     let state = if accepted == 0 {
         StationState::Problem
-    } else if accepted < hits.len() || hits.iter().any(|h| h.override_accept.is_some()) {
+    } else if accepted < hits.len() {
         StationState::Partly
     } else {
         StationState::Good
@@ -237,6 +242,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     ui.horizontal(|ui| {
         for s in [
             StationState::NotMeasured,
+            StationState::Analysing,
             StationState::Good,
             StationState::Partly,
             StationState::Problem,
