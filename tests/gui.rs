@@ -154,7 +154,7 @@ fn a_station_cell_click_then_a_verdict_flip_changes_the_frf() {
     // Averages of two hits instead of three: a different (but close) FRF.
     let diff: f64 = before.iter().zip(&after).map(|(a, b)| (a - b).norm()).sum();
     assert!(diff > 0.0);
-    h.get_by_label("REJECTED");
+    h.get_by_label("REJECTED by you");
     // The keyboard: A accepts the hit shown again.
     h.key_press(egui::Key::A);
     settle(&mut h);
