@@ -32,10 +32,13 @@ pub fn utc_text(unix_s: u64) -> String {
 mod tests {
     use super::*;
 
-    /// Civil dates from day counts (Hinnant, "chrono-Compatible Low-Level Date Algorithms", 2013).
+    /// Civil dates from day counts (Hinnant, "chrono-Compatible Low-Level Date Algorithms", 2013):
+    /// the Unix epoch; 2000-03-01 (day 11017, after the leap day of a century year divisible by
+    /// 400); 2026-12-02 12:34 UTC = 1796214840 s (date(1) -u -d).
     #[test]
     fn known_dates() {
         assert_eq!(utc_text(0), "1970-01-01 00:00 UTC");
         assert_eq!(utc_text(11_017 * 86_400), "2000-03-01 00:00 UTC");
+        assert_eq!(utc_text(1_796_214_840), "2026-12-02 12:34 UTC");
     }
 }

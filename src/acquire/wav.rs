@@ -226,7 +226,7 @@ impl Decoder {
         b: usize,
         non_finite: NonFinite,
     ) -> Result<WavInfo, InputError> {
-        self.decode_channels(path, a, Some(b), non_finite)
+        self.decode_channels(path, a, b, true, non_finite)
     }
 
     /// Decodes channel `a` only into `self.a` (`self.b` is left empty): what a scan for taps
@@ -238,18 +238,7 @@ impl Decoder {
         b: usize,
         non_finite: NonFinite,
     ) -> Result<WavInfo, InputError> {
-        let info = self.decode_channels(path, a, None, non_finite)?;
-        if b >= info.channels {
-            return Err(InputError::new(
-                path,
-                format!(
-                    "channel B index {b} is out of range: the file has {} channels (0..{})",
-                    info.channels,
-                    info.channels - 1
-                ),
-            ));
-        }
-        Ok(info)
+        self.decode_channels(path, a, b, false, non_finite)
     }
 
     /// Decodes channels `a` and `b` of a WAV file already in memory (`label` names it in
@@ -265,19 +254,21 @@ impl Decoder {
         decode_bytes(
             label,
             bytes,
-            a,
-            Some(b),
+            [a, b],
+            true,
             &mut self.a,
             &mut self.b,
             non_finite,
         )
     }
 
+    /// Both channel indices are checked; channel `b` is decoded only when `want_b`.
     fn decode_channels(
         &mut self,
         path: &Path,
         a: usize,
-        b: Option<usize>,
+        b: usize,
+        want_b: bool,
         non_finite: NonFinite,
     ) -> Result<WavInfo, InputError> {
         use std::io::Read;
@@ -288,8 +279,8 @@ impl Decoder {
         decode_bytes(
             path,
             &self.bytes,
-            a,
-            b,
+            [a, b],
+            want_b,
             &mut self.a,
             &mut self.b,
             non_finite,
@@ -300,8 +291,8 @@ impl Decoder {
 fn decode_bytes(
     path: &Path,
     bytes: &[u8],
-    a: usize,
-    b: Option<usize>,
+    [a, b]: [usize; 2],
+    want_b: bool,
     ca: &mut Vec<f64>,
     cb: &mut Vec<f64>,
     non_finite: NonFinite,
@@ -310,7 +301,7 @@ fn decode_bytes(
         let r = hound::WavReader::new(std::io::Cursor::new(bytes))
             .map_err(|e| InputError::new(path, describe(e)))?;
         let info = info_of(path, &r)?;
-        for (name, idx) in [("A", a), ("B", b.unwrap_or(a))] {
+        for (name, idx) in [("A", a), ("B", b)] {
             if idx >= info.channels {
                 return Err(InputError::new(
                     path,
@@ -343,7 +334,7 @@ fn decode_bytes(
         }
         let data = &bytes[off..off + len];
         let frames = len / stride;
-        let (oa, ob) = (a * width, b.map(|b| b * width));
+        let (oa, ob) = (a * width, want_b.then_some(b * width));
         match info.encoding {
             SampleEncoding::Int16 => {
                 deinterleave(data, stride, oa, ob, ca, cb, 1.0 / 32768.0, |x| {

@@ -718,17 +718,3 @@ fn map_plot(
     );
     s.push_str(&plot(&frame, &series));
 }
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn civil_dates_from_unix_seconds() {
-        // Reference values: the Unix epoch; 2000-03-01 (day 11017, after a leap day of a
-        // century year divisible by 400); 2026-12-02 12:34 UTC = 1796214840 s (date(1) -u -d).
-        assert_eq!(utc_text(0), "1970-01-01 00:00 UTC");
-        assert_eq!(utc_text(11_017 * 86_400), "2000-03-01 00:00 UTC");
-        assert_eq!(utc_text(1_796_214_840), "2026-12-02 12:34 UTC");
-    }
-}
