@@ -323,6 +323,30 @@ fn survey(data: &Dataset, setup: &Setup) -> Option<Survey> {
     })
 }
 
+/// A hint when the recordings look like the other layout: in the hammer layout, channel A that
+/// keeps ringing after most taps (every hit then reads as struck twice) is an accelerometer, not
+/// a force gauge — a roving-accelerometer test opened with the default layout.
+fn layout_hint(setup: &Setup, stations: &[StationAnalysis]) -> Option<String> {
+    if setup.layout != crate::setup::Layout::Hammer {
+        return None;
+    }
+    let hits: Vec<&crate::signal::HitReport> =
+        stations.iter().flat_map(|s| s.result.hits.iter()).collect();
+    let double = hits
+        .iter()
+        .filter(|h| h.reasons.contains(&crate::signal::Reason::DoubleHit))
+        .count();
+    (hits.len() >= 4 && double * 10 >= hits.len() * 6).then(|| {
+        format!(
+            "{double} of {} hits read as struck twice: channel A keeps ringing after each tap, as \
+             a reference accelerometer does, not a force gauge. If this is a roving-accelerometer \
+             test, analyse it in the sensor layout (--layout sensor; in the window: Test setup, \
+             roving accelerometer)",
+            hits.len()
+        )
+    })
+}
+
 /// The record and window that fit this test, where the setup leaves them open.
 ///
 /// Record: the default length unless the taps come faster than it (then the longest that ends
@@ -445,6 +469,9 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
         && let Some(e) = first_problem
     {
         return Err(e);
+    }
+    if let Some(n) = layout_hint(setup, &stations) {
+        notes.push(n);
     }
     Ok(Analysis {
         setup: setup.clone(),

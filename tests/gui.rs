@@ -637,3 +637,22 @@ fn keys_follow_the_tabs_and_verdicts_by_a_person_read_as_such() {
     settle(&mut h);
     h.get_by_label("KEPT by you");
 }
+
+/// A roving-accelerometer WAV set opened in the default (hammer) layout: the station map says why
+/// every hit reads as struck twice and what to change.
+#[test]
+fn a_roving_sensor_set_in_the_hammer_layout_gets_a_layout_hint() {
+    let set = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("sample-sessions/pump-shaft-roving-sensor");
+    let mut h = harness_on(
+        Settings {
+            cautions_read: true,
+            ..Settings::default()
+        },
+        set,
+    );
+    settle(&mut h);
+    h.get_by_label("Station map").click();
+    settle(&mut h);
+    h.get_by_label_contains("analyse it in the sensor layout");
+}

@@ -1,6 +1,6 @@
 //! The station map: the part drawn to scale with one cell per station, coloured by its state.
 
-use eframe::egui::{self, Align2, Color32, FontId, Rect, Sense, Stroke, pos2, vec2};
+use eframe::egui::{self, Align2, Color32, FontId, Rect, RichText, Sense, Stroke, pos2, vec2};
 
 use super::plots::{ACCENT, BAD, GOOD, IDLE, WARN};
 use super::{Command, Document, TapgridApp, View};
@@ -239,6 +239,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         "{recorded} stations recorded, {good} with every hit accepted. Click a station to select it; \
          hover for its hits."
     ));
+    // What the analysis found about the test as a whole (usable band, record length chosen,
+    // a layout that looks wrong, stations left out), as the summary and the report say it.
+    if let Some(a) = &doc.analysis {
+        for w in a.warnings() {
+            ui.label(RichText::new(w).color(WARN));
+        }
+    }
     ui.horizontal(|ui| {
         for s in [
             StationState::NotMeasured,
