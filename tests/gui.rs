@@ -655,4 +655,22 @@ fn a_roving_sensor_set_in_the_hammer_layout_gets_a_layout_hint() {
     h.get_by_label("Station map").click();
     settle(&mut h);
     h.get_by_label_contains("analyse it in the sensor layout");
+    // One click analyses it as what it is: hits kept, no hint.
+    h.get_by_label("Analyse as a roving-accelerometer test")
+        .click();
+    settle(&mut h);
+    let d = h.state().doc.as_ref().expect("open");
+    assert_eq!(d.setup.layout, tapgrid::setup::Layout::Sensor);
+    let a = d.analysis.as_ref().expect("analysed");
+    let kept = a
+        .stations
+        .iter()
+        .flat_map(|s| s.result.hits.iter())
+        .filter(|x| x.accepted)
+        .count();
+    assert!(kept >= 12, "{kept} hits kept");
+    assert!(
+        h.query_by_label_contains("analyse it in the sensor layout")
+            .is_none()
+    );
 }

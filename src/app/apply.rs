@@ -98,6 +98,17 @@ impl TapgridApp {
                     self.set_verdict(st, self.current_hit, Some(accept));
                 }
             }
+            Command::UseLayout(layout) => {
+                if let Some(d) = &mut self.doc {
+                    d.setup.layout = layout;
+                    d.dirty = true;
+                    self.note(
+                        format!("analysing in the {} layout", layout_word(layout)),
+                        false,
+                    );
+                }
+                self.request_analysis();
+            }
             Command::Reanalyse => {
                 if let Some(d) = &mut self.doc {
                     d.dirty = true;
@@ -308,5 +319,12 @@ impl TapgridApp {
                 model: d.study.clone().map(Box::new),
             });
         }
+    }
+}
+
+fn layout_word(l: crate::setup::Layout) -> &'static str {
+    match l {
+        crate::setup::Layout::Hammer => "roving-hammer",
+        crate::setup::Layout::Sensor => "roving-accelerometer",
     }
 }

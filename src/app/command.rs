@@ -40,6 +40,8 @@ pub enum Command {
     VerdictCurrent(bool),
     /// The setup changed: analyse again.
     Reanalyse,
+    /// Analyse the test in this layout (the hint when channel A rings like an accelerometer).
+    UseLayout(crate::setup::Layout),
     /// Take or drop the mode of the pole column nearest this frequency (Hz), within a tolerance.
     TogglePole {
         /// Frequency clicked, Hz.

@@ -153,7 +153,9 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
         .y_grid_spacer(egui_plot::log_grid_spacer(10))
         .include_x(x_lo)
         .include_x(x_hi)
-        .legend(egui_plot::Legend::default().position(egui_plot::Corner::RightBottom))
+        // Top left: over the flat upper curves' start, clear of the running-speed lines and of
+        // the bearing band where the curves bend.
+        .legend(egui_plot::Legend::default().position(egui_plot::Corner::LeftTop))
         .show(ui, |p| {
             if let Some([lo, hi]) = study.running_speed_rpm {
                 for (n, &k) in study.orders.iter().enumerate() {

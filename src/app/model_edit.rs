@@ -58,7 +58,13 @@ fn sci(ui: &mut egui::Ui, v: &mut f64, suffix: &str) -> bool {
         DragValue::new(v)
             .speed(speed)
             .range(0.0..=1e15)
-            .custom_formatter(|n, _| format!("{n:.3e}"))
+            .custom_formatter(|n, _| {
+                if n == 0.0 {
+                    "0".to_string()
+                } else {
+                    format!("{n:.3e}")
+                }
+            })
             .custom_parser(|s| s.trim().parse::<f64>().ok())
             .suffix(suffix),
     )

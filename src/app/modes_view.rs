@@ -205,7 +205,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             .height(ui.available_height().max(120.0))
             .y_axis_label(unit)
             .y_axis_min_width(56.0)
-            .legend(egui_plot::Legend::default());
+            // Bottom left: low levels below the first resonance, away from the peaks.
+            .legend(egui_plot::Legend::default().position(egui_plot::Corner::LeftBottom));
         let h = &frfs.h;
         let mag = |i: usize, k: usize| plots::db(h[i][k].norm());
         let shown: Vec<usize> = traces.iter().map(|t| t.0).collect();

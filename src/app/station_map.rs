@@ -241,9 +241,18 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     ));
     // What the analysis found about the test as a whole (usable band, record length chosen,
     // a layout that looks wrong, stations left out), as the summary and the report say it.
+    let mut switch_layout = false;
     if let Some(a) = &doc.analysis {
         for w in a.warnings() {
-            ui.label(RichText::new(w).color(WARN));
+            ui.label(RichText::new(&w).color(WARN));
+            if w.contains("sensor layout") && doc.setup.layout == crate::setup::Layout::Hammer {
+                if ui
+                    .button("Analyse as a roving-accelerometer test")
+                    .clicked()
+                {
+                    switch_layout = true;
+                }
+            }
         }
     }
     ui.horizontal(|ui| {
@@ -259,6 +268,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             ui.label(s.word());
         }
     });
+    if switch_layout {
+        app.push(Command::UseLayout(crate::setup::Layout::Sensor));
+    }
     ui.add_space(8.0);
     let h = (ui.available_height() * 0.45).clamp(120.0, 260.0);
     strip(ui, app, h);
