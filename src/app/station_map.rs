@@ -245,13 +245,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     if let Some(a) = &doc.analysis {
         for w in a.warnings() {
             ui.label(RichText::new(&w).color(WARN));
-            if w.contains("sensor layout") && doc.setup.layout == crate::setup::Layout::Hammer {
-                if ui
+            if w.contains("sensor layout")
+                && doc.setup.layout == crate::setup::Layout::Hammer
+                && ui
                     .button("Analyse as a roving-accelerometer test")
                     .clicked()
-                {
-                    switch_layout = true;
-                }
+            {
+                switch_layout = true;
             }
         }
     }
