@@ -674,3 +674,12 @@ fn a_roving_sensor_set_in_the_hammer_layout_gets_a_layout_hint() {
             .is_none()
     );
 }
+
+/// The capture view's overload lamps are dark before anything was captured.
+#[test]
+fn no_overload_is_shown_before_a_capture() {
+    let mut h = open_demo();
+    h.get_by_label("Live capture").click();
+    settle(&mut h);
+    assert!(h.query_by_label("OVERLOAD").is_none());
+}

@@ -13,7 +13,6 @@ use crate::acquire::source::Health;
 use crate::capture::{Event, HitEvent};
 
 /// Runtime state of the capture view.
-#[derive(Default)]
 pub struct CaptureState {
     /// Listed inputs.
     pub devices: Option<Result<Vec<DeviceInfo>, String>>,
@@ -27,7 +26,7 @@ pub struct CaptureState {
     pub levels: [f32; 2],
     /// Peak hold (value, time s).
     pub hold: [(f32, f64); 2],
-    /// Last overload time, s.
+    /// Last overload time, s (−∞: never).
     pub over: [f64; 2],
     /// The last hit saved.
     pub last_hit: Option<HitEvent>,
@@ -37,6 +36,25 @@ pub struct CaptureState {
     pub message: Option<(String, bool)>,
     /// Folder for a new session when the open test is not a writable session.
     pub new_session: String,
+}
+
+impl Default for CaptureState {
+    fn default() -> Self {
+        Self {
+            devices: None,
+            handle: None,
+            station: 0,
+            armed: None,
+            levels: [0.0; 2],
+            hold: [(0.0, 0.0); 2],
+            // Never overloaded: a lamp lit for the first two seconds of every run was a false alarm.
+            over: [f64::NEG_INFINITY; 2],
+            last_hit: None,
+            health: Health::default(),
+            message: None,
+            new_session: String::new(),
+        }
+    }
 }
 
 impl TapgridApp {

@@ -155,9 +155,21 @@ pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
     let reference = doc.setup.reference_station;
     let current = app.current_station;
     let mut clicked = None;
+    // While capturing, a station is done when it holds the planned number of kept hits: fewer
+    // kept is not yet good, however clean they are.
+    let planned = (app.settings.view == View::Capture).then_some(app.settings.hits_per_station);
     for &(st, pos) in &stations {
         let x = to_x(pos);
-        let (state, hover) = state_of(doc, st);
+        let (mut state, mut hover) = state_of(doc, st);
+        if let (Some(n), StationState::Good) = (planned, state) {
+            let kept = doc
+                .station_analysis(st)
+                .map_or(0, |a| a.result.hits.iter().filter(|h| h.accepted).count());
+            if kept < n {
+                state = StationState::Partly;
+                hover.push_str(&format!("\n{kept} of {n} planned hits kept so far"));
+            }
+        }
         let c = Rect::from_center_size(
             pos2(x, shaft_y - shaft_h / 2.0 - 8.0 - cell / 2.0),
             vec2(cell, cell),
