@@ -270,8 +270,7 @@ impl Setup {
     /// pass here before any size is computed from them.
     pub fn validate(&self) -> Result<(), String> {
         let t = &self.trigger;
-        within("pretrigger fraction", t.pretrigger_fraction, 0.0, 0.9, "")?;
-        if t.pretrigger_fraction >= 0.9 {
+        if !(0.0..0.9).contains(&t.pretrigger_fraction) {
             return Err(format!(
                 "pretrigger fraction {} must be in [0, 0.9)",
                 t.pretrigger_fraction
@@ -293,9 +292,6 @@ impl Setup {
             _ => {}
         }
         within("full-scale volts", self.full_scale_volts, 1e-6, 1e4, "V")?;
-        if self.full_scale_volts <= 0.0 {
-            return Err("full-scale volts must be positive".into());
-        }
         for (name, c) in [("A", &self.channel_a), ("B", &self.channel_b)] {
             within(
                 &format!("channel {name} sensitivity"),
@@ -337,9 +333,6 @@ impl Setup {
             ));
         }
         within("station spacing", self.spacing_m, 1e-5, 1000.0, "m")?;
-        if self.spacing_m <= 0.0 {
-            return Err("station spacing must be positive".into());
-        }
         if let AcCoupling::CornerHz(f) = self.ac_coupling {
             within("AC-coupling corner", f, 1e-4, 1000.0, "Hz")?;
         }

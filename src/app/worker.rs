@@ -327,11 +327,12 @@ fn work(jobs: Receiver<Job>, out: SyncSender<Outcome>, latest: Latest, repaint: 
         let what = describe(&job);
         // A bug that panics inside one job must not take the worker down with it (later jobs
         // would be dropped and the window would say "Analysing…" for ever): the job is reported
-        // failed and the worker goes on with a fresh decoder.
-        let outcome = guarded(what, || {
+        // failed and the worker goes on with a fresh decoder and model cache (whatever the job
+        // left half-done in them is not to be trusted).
+        let (outcome, panicked) = guarded(what, || {
             run_job(job, &latest, &mut decoder, &mut model_cache)
         });
-        if matches!(outcome, Outcome::Failed { .. }) {
+        if panicked {
             decoder = Decoder::default();
             model_cache = Default::default();
         }
@@ -488,18 +489,22 @@ fn write_report(r: &ReportJob) -> Outcome {
     }
 }
 
-/// Runs a job, turning a panic into a failed outcome that says so.
-fn guarded(what: &'static str, job: impl FnOnce() -> Outcome) -> Outcome {
-    std::panic::catch_unwind(std::panic::AssertUnwindSafe(job)).unwrap_or_else(|panic| {
-        Outcome::Failed {
-            what,
-            message: format!(
-                "internal error ({}); nothing was changed on disk and the next request will run \
+/// Runs a job, turning a panic into a failed outcome that says so; `true` when it panicked.
+fn guarded(what: &'static str, job: impl FnOnce() -> Outcome) -> (Outcome, bool) {
+    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(job)) {
+        Ok(o) => (o, false),
+        Err(panic) => (
+            Outcome::Failed {
+                what,
+                message: format!(
+                    "internal error ({}); nothing was changed on disk and the next request will run \
                  — please report this with the input that caused it",
-                panic_text(panic.as_ref())
-            ),
-        }
-    })
+                    panic_text(panic.as_ref())
+                ),
+            },
+            true,
+        ),
+    }
 }
 
 /// The message of a panic payload.
@@ -578,7 +583,8 @@ mod tests {
 
     #[test]
     fn a_panicking_job_becomes_a_failed_outcome_and_the_next_one_runs() {
-        let o = guarded("Analysing", || panic!("index out of bounds"));
+        let (o, panicked) = guarded("Analysing", || panic!("index out of bounds"));
+        assert!(panicked);
         match o {
             Outcome::Failed { what, message } => {
                 assert_eq!(what, "Analysing");
@@ -588,7 +594,7 @@ mod tests {
         }
         assert!(matches!(
             guarded("Fitting", || Outcome::Skipped),
-            Outcome::Skipped
+            (Outcome::Skipped, false)
         ));
     }
 }

@@ -119,24 +119,21 @@ fn basis_rows(freq_hz: &[f64], lambda: &[Complex64], exp_tau_s: f64) -> Vec<Vec<
         .collect()
 }
 
-fn fit_one(
-    rows: &[Vec<Complex64>],
-    h: &[Complex64],
+/// The real-valued LSFD basis: each line's row weighted, its real and imaginary parts as two
+/// rows, every column scaled to unit norm (the modal and residual terms span many decades, and
+/// unscaled normal equations would lose them). Returns the matrix and the scale of each column
+/// (coefficient of the unscaled column = solution × scale); `None` for non-finite values.
+fn weighted_basis<'a>(
+    rows: impl ExactSizeIterator<Item = &'a [Complex64]>,
     weight: &[f64],
-    n: usize,
-) -> Option<OutputFit> {
-    let cols = 2 * n + 2;
-    // The real-valued problem (real and imaginary rows) weighted, its columns scaled to unit norm
-    // for conditioning (the basis spans many decades), solved by its normal equations.
+    cols: usize,
+) -> Option<(DMatrix<f64>, Vec<f64>)> {
     let mut b = DMatrix::<f64>::zeros(2 * rows.len(), cols);
-    let mut y = DVector::<f64>::zeros(2 * rows.len());
-    for (k, (row, (&w, hk))) in rows.iter().zip(weight.iter().zip(h)).enumerate() {
+    for (k, (row, &w)) in rows.zip(weight).enumerate() {
         for (c, v) in row.iter().enumerate() {
             b[(2 * k, c)] = w * v.re;
             b[(2 * k + 1, c)] = w * v.im;
         }
-        y[2 * k] = w * hk.re;
-        y[2 * k + 1] = w * hk.im;
     }
     let mut scale = vec![1.0f64; cols];
     for (c, mut col) in b.column_iter_mut().enumerate() {
@@ -146,7 +143,24 @@ fn fit_one(
             scale[c] = 1.0 / nrm;
         }
     }
-    if !crate::numeric::all_finite(&b) || !y.iter().all(|v| v.is_finite()) {
+    crate::numeric::all_finite(&b).then_some((b, scale))
+}
+
+fn fit_one(
+    rows: &[Vec<Complex64>],
+    h: &[Complex64],
+    weight: &[f64],
+    n: usize,
+) -> Option<OutputFit> {
+    let cols = 2 * n + 2;
+    // Solved by its normal equations.
+    let (b, scale) = weighted_basis(rows.iter().map(Vec::as_slice), weight, cols)?;
+    let mut y = DVector::<f64>::zeros(2 * rows.len());
+    for (k, (&w, hk)) in weight.iter().zip(h).enumerate() {
+        y[2 * k] = w * hk.re;
+        y[2 * k + 1] = w * hk.im;
+    }
+    if !y.iter().all(|v| v.is_finite()) {
         return None;
     }
     let ata = b.tr_mul(&b);
@@ -229,25 +243,12 @@ impl LocalBand {
     /// formed explicitly (not as ‖h‖² − bᵀx) so a near-perfect fit keeps its digits.
     pub fn residual(&self, lambda: &[Complex64], exp_tau_s: f64) -> Option<f64> {
         let cols = 2 * lambda.len() + 2;
-        let l = self.freq_hz.len();
-        let mut basis = DMatrix::<f64>::zeros(2 * l, cols);
-        for (k, (&f, &w)) in self.freq_hz.iter().zip(&self.line_weight).enumerate() {
-            for (c, v) in basis_row(f, lambda, exp_tau_s).iter().enumerate() {
-                basis[(2 * k, c)] = w * v.re;
-                basis[(2 * k + 1, c)] = w * v.im;
-            }
-        }
-        // Column scaling keeps the normal matrix well conditioned (the residual terms and the
-        // modal terms differ by orders of magnitude).
-        for mut col in basis.column_iter_mut() {
-            let n = col.norm();
-            if n > 0.0 {
-                col /= n;
-            }
-        }
-        if !crate::numeric::all_finite(&basis) {
-            return None;
-        }
+        let rows: Vec<Vec<Complex64>> = self
+            .freq_hz
+            .iter()
+            .map(|&f| basis_row(f, lambda, exp_tau_s))
+            .collect();
+        let (basis, _) = weighted_basis(rows.iter().map(Vec::as_slice), &self.line_weight, cols)?;
         let ata = basis.tr_mul(&basis);
         let atb = basis.tr_mul(&self.weighted_h);
         let x = match ata.clone().cholesky() {
