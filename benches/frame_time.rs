@@ -76,7 +76,7 @@ fn scene(path: &std::path::Path, view: View, mode: PlotMode) -> (f64, f64, usize
             d.as_secs_f64() * 1e3
         })
         .collect();
-    assert!(app.playing || view != View::Modes);
+    assert!(app.ui.playing || view != View::Modes);
     times.sort_by(f64::total_cmp);
     let stations = app.doc.as_ref().map_or(0, |d| d.data.stations.len());
     (

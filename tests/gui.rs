@@ -8,7 +8,7 @@ use std::time::{Duration, Instant};
 use eframe::egui;
 use egui_kittest::Harness;
 use egui_kittest::kittest::{NodeT, Queryable};
-use tapgrid::app::{Settings, TapgridApp, View};
+use tapgrid::app::{Command, Settings, TapgridApp, View};
 
 fn demo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("sample-sessions/pump-shaft")
@@ -83,6 +83,41 @@ fn open_demo() -> Harness<'static, TapgridApp> {
     h
 }
 
+/// The setup view edits a copy and sends it back: typed text reaches the document through the
+/// command queue, and a changed station position is analysed again (common practice: an editor
+/// never holds the document it edits).
+#[test]
+fn setup_edits_reach_the_document_through_commands() {
+    let mut h = open_demo();
+    h.get_by_label("Test setup").click();
+    settle(&mut h);
+    let before = h.state().doc.as_ref().expect("doc").part.name.clone();
+    let field = h.get_by_role_and_label(egui::accesskit::Role::TextInput, "name");
+    field.focus();
+    field.type_text(" rev B");
+    h.run_steps(3);
+    let d = h.state().doc.as_ref().expect("doc");
+    assert_eq!(d.part.name, format!("{before} rev B"));
+    assert!(d.dirty);
+    // A moved station is analysed again at its new place.
+    let d = h.state().doc.as_ref().expect("doc");
+    let mut edit = tapgrid::app::SetupEdit {
+        setup: d.setup.clone(),
+        part: d.part.clone(),
+        labels: d.labels.clone(),
+        positions_m: d.data.stations.iter().map(|s| s.position_m).collect(),
+        analyse: true,
+    };
+    edit.positions_m[0] += 0.005;
+    let moved = edit.positions_m[0];
+    h.state_mut().push(Command::EditSetup(Box::new(edit)));
+    settle(&mut h);
+    let d = h.state().doc.as_ref().expect("doc");
+    assert_eq!(d.data.stations[0].position_m, moved);
+    let a = d.analysis.as_ref().expect("analysis");
+    assert_eq!(a.stations[0].position_m, moved);
+}
+
 #[test]
 fn every_view_by_its_label_and_the_help() {
     let mut h = open_demo();
@@ -102,20 +137,20 @@ fn every_view_by_its_label_and_the_help() {
     h.step();
     h.get_by_label("Help").click();
     h.run_steps(2);
-    assert!(h.state().show_help);
+    assert!(h.state().ui.show_help);
     h.get_by_label("Keyboard");
     h.get_by_label_contains("locked out");
     h.get_by_label("Close help").click_accesskit();
     h.run_steps(2);
-    assert!(!h.state().show_help);
+    assert!(!h.state().ui.show_help);
     // F1 opens it too, and arrow keys walk the stations.
     h.key_press(egui::Key::F1);
     h.run_steps(2);
-    assert!(h.state().show_help);
-    let first = h.state().current_station;
+    assert!(h.state().ui.show_help);
+    let first = h.state().ui.current_station;
     h.key_press(egui::Key::ArrowRight);
     h.step();
-    assert_eq!(h.state().current_station, first.map(|s| s + 1));
+    assert_eq!(h.state().ui.current_station, first.map(|s| s + 1));
 }
 
 #[test]
@@ -126,7 +161,7 @@ fn a_station_cell_click_then_a_verdict_flip_changes_the_frf() {
     h.step();
     h.get_by_label("Station 3").click();
     settle(&mut h);
-    assert_eq!(h.state().current_station, Some(3));
+    assert_eq!(h.state().ui.current_station, Some(3));
 
     let station_frf = |h: &Harness<'static, TapgridApp>| {
         let d = h.state().doc.as_ref().expect("open");
@@ -207,27 +242,30 @@ fn the_animation_plays_and_pauses() {
     let mut h = open_demo();
     h.get_by_label("Mode shapes").click();
     settle(&mut h);
-    assert!(h.state().playing);
-    let p0 = h.state().phase_rad;
+    assert!(h.state().ui.playing);
+    let p0 = h.state().ui.phase_rad;
     for _ in 0..10 {
         h.step();
     }
-    assert!(h.state().phase_rad != p0, "the shape moves while playing");
+    assert!(
+        h.state().ui.phase_rad != p0,
+        "the shape moves while playing"
+    );
     h.get_by_label("Pause").click();
     h.step();
-    assert!(!h.state().playing);
-    let p1 = h.state().phase_rad;
+    assert!(!h.state().ui.playing);
+    let p1 = h.state().ui.phase_rad;
     for _ in 0..10 {
         h.step();
     }
-    assert_eq!(h.state().phase_rad, p1, "paused means still");
+    assert_eq!(h.state().ui.phase_rad, p1, "paused means still");
     h.key_press(egui::Key::Space);
     h.step();
-    assert!(h.state().playing);
+    assert!(h.state().ui.playing);
     // Choosing another mode animates that one.
     h.get_by_label("3").click();
     h.step();
-    assert_eq!(h.state().selected_mode, 2);
+    assert_eq!(h.state().ui.selected_mode, 2);
 }
 
 #[test]
@@ -270,7 +308,7 @@ fn live_capture_from_the_generator_saves_and_shows_a_hit() {
     h.get_by_label("Live capture").click();
     h.run_steps(2);
     h.state_mut().settings.capture_device = Some("generator".into());
-    h.state_mut().capture.new_session = session.display().to_string();
+    h.state_mut().ui.capture_folder = session.display().to_string();
     h.get_by_label("Start capture").click();
     // The generator taps every 1.5 s in real time; wait for the first saved hit.
     let t0 = Instant::now();
@@ -341,18 +379,18 @@ fn shaft_model_view_pairs_every_demo_mode_and_animates_both() {
         assert!(((p.model_hz - t) / t).abs() < 1e-3, "{} vs {t}", p.model_hz);
     }
     // The model mode follows the selected test mode; a model-mode button picks one directly.
-    assert_eq!(h.state().selected_model_mode, None);
+    assert_eq!(h.state().ui.selected_model_mode, None);
     let label = format!("4: {:.1} Hz", r.tested.modes[3].frequency_hz);
     h.get_by_label(&label).click();
     h.run_steps(2);
-    assert_eq!(h.state().selected_model_mode, Some(3));
+    assert_eq!(h.state().ui.selected_model_mode, Some(3));
     h.get_by_label_contains("Model mode 4 —");
     // Both shapes move while playing.
-    let p0 = h.state().phase_rad;
+    let p0 = h.state().ui.phase_rad;
     for _ in 0..10 {
         h.step();
     }
-    assert!(h.state().phase_rad != p0);
+    assert!(h.state().ui.phase_rad != p0);
 }
 
 #[test]
@@ -631,8 +669,8 @@ fn keys_follow_the_tabs_and_verdicts_by_a_person_read_as_such() {
     let sa = d.station_analysis(st).unwrap();
     assert!(sa.result.hits.iter().all(|x| x.accepted));
     // The hit view of that station says who decided.
-    h.state_mut().current_station = Some(st);
-    h.state_mut().current_hit = rejected[0];
+    h.state_mut().ui.current_station = Some(st);
+    h.state_mut().ui.current_hit = rejected[0];
     h.get_by_label("Hit check").click();
     settle(&mut h);
     h.get_by_label("KEPT by you");

@@ -53,8 +53,8 @@ impl TapgridApp {
             }
             Command::Show(v) => self.settings.view = v,
             Command::GoStation(s) => {
-                self.current_station = Some(s);
-                self.current_hit = 0;
+                self.ui.current_station = Some(s);
+                self.ui.current_hit = 0;
             }
             Command::NextStation | Command::PrevStation => {
                 let st = self.stations();
@@ -62,6 +62,7 @@ impl TapgridApp {
                     return;
                 }
                 let i = self
+                    .ui
                     .current_station
                     .and_then(|c| st.iter().position(|&s| s == c))
                     .unwrap_or(0);
@@ -70,32 +71,33 @@ impl TapgridApp {
                 } else {
                     i.saturating_sub(1)
                 };
-                self.current_station = Some(st[j]);
-                self.current_hit = 0;
+                self.ui.current_station = Some(st[j]);
+                self.ui.current_hit = 0;
             }
             Command::NextHit | Command::PrevHit => {
                 let n = self
+                    .ui
                     .current_station
                     .and_then(|s| self.doc.as_ref()?.station_analysis(s))
                     .map_or(0, |s| s.result.hits.len());
                 if n == 0 {
                     return;
                 }
-                self.current_hit = if c == Command::NextHit {
-                    (self.current_hit + 1).min(n - 1)
+                self.ui.current_hit = if c == Command::NextHit {
+                    (self.ui.current_hit + 1).min(n - 1)
                 } else {
-                    self.current_hit.saturating_sub(1)
+                    self.ui.current_hit.saturating_sub(1)
                 };
             }
-            Command::SelectHit(h) => self.current_hit = h,
+            Command::SelectHit(h) => self.ui.current_hit = h,
             Command::SetVerdict {
                 station,
                 hit,
                 accept,
             } => self.set_verdict(station, hit, accept),
             Command::VerdictCurrent(accept) => {
-                if let Some(st) = self.current_station {
-                    self.set_verdict(st, self.current_hit, Some(accept));
+                if let Some(st) = self.ui.current_station {
+                    self.set_verdict(st, self.ui.current_hit, Some(accept));
                 }
             }
             Command::UseLayout(layout) => {
@@ -136,19 +138,28 @@ impl TapgridApp {
                 }
                 self.request_fit();
             }
-            Command::TogglePlay => self.playing = !self.playing,
-            Command::ToggleHelp => self.show_help = !self.show_help,
+            Command::TogglePlay => self.ui.playing = !self.ui.playing,
+            Command::ToggleHelp => self.ui.show_help = !self.ui.show_help,
             Command::SelectMode(m) => {
-                self.selected_mode = m;
-                self.selected_model_mode = None;
+                self.ui.selected_mode = m;
+                self.ui.selected_model_mode = None;
             }
-            Command::SelectModelMode(m) => self.selected_model_mode = Some(m),
-            Command::ModelEdited => {
+            Command::SelectModelMode(m) => self.ui.selected_model_mode = Some(m),
+            Command::EditSetup(e) => self.edit_setup(*e),
+            Command::EditStudy(st) => {
                 if let Some(d) = &mut self.doc {
+                    d.study = Some(*st);
                     d.dirty = true;
                 }
                 self.request_study();
             }
+            Command::StartCapture => self.start_capture(),
+            Command::CaptureControl(c) => {
+                if let Some(h) = &self.capture.handle {
+                    let _ = h.controls.send(c);
+                }
+            }
+            Command::ListDevices => self.worker.send(Job::ListDevices),
             Command::LoadModel(p) => self.load_model(&p),
             Command::WriteModel(p) => self.write_model(&p),
             Command::WriteReport(p) => self.write_report(&p),
@@ -161,6 +172,26 @@ impl TapgridApp {
             }
         }
         ctx.request_repaint();
+    }
+
+    fn edit_setup(&mut self, e: SetupEdit) {
+        let Some(d) = &mut self.doc else {
+            return;
+        };
+        if e.positions_m.len() != d.data.stations.len() {
+            // The recordings changed under the edit (a capture added a station): drop it.
+            return;
+        }
+        for (src, x) in d.data.stations.iter_mut().zip(&e.positions_m) {
+            src.position_m = *x;
+        }
+        d.setup = e.setup;
+        d.part = e.part;
+        d.labels = e.labels;
+        d.dirty = true;
+        if e.analyse {
+            self.request_analysis();
+        }
     }
 
     pub(super) fn set_verdict(&mut self, station: u32, hit: usize, accept: Option<bool>) {

@@ -7,7 +7,7 @@ use egui_plot::{Line, Plot};
 
 use super::capture_thread::{self, Control, Report};
 use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
-use super::{TapgridApp, station_map};
+use super::{Command, TapgridApp, ViewCtx, station_map};
 use crate::acquire::live::DeviceInfo;
 use crate::acquire::source::Health;
 use crate::capture::{Event, HitEvent};
@@ -18,8 +18,6 @@ pub struct CaptureState {
     pub devices: Option<Result<Vec<DeviceInfo>, String>>,
     /// The running capture.
     pub handle: Option<capture_thread::CaptureHandle>,
-    /// Station to arm next.
-    pub station: u32,
     /// Station armed now.
     pub armed: Option<u32>,
     /// Latest peak levels, fraction of full scale.
@@ -34,8 +32,6 @@ pub struct CaptureState {
     pub health: Health,
     /// Last message (text, is an error).
     pub message: Option<(String, bool)>,
-    /// Folder for a new session when the open test is not a writable session.
-    pub new_session: String,
 }
 
 impl Default for CaptureState {
@@ -43,7 +39,6 @@ impl Default for CaptureState {
         Self {
             devices: None,
             handle: None,
-            station: 0,
             armed: None,
             levels: [0.0; 2],
             hold: [(0.0, 0.0); 2],
@@ -52,7 +47,6 @@ impl Default for CaptureState {
             last_hit: None,
             health: Health::default(),
             message: None,
-            new_session: String::new(),
         }
     }
 }
@@ -92,7 +86,7 @@ impl TapgridApp {
                 }
                 Report::Event(Event::Armed { station, accepted }) => {
                     self.capture.armed = Some(station);
-                    self.current_station = Some(station);
+                    self.ui.current_station = Some(station);
                     self.capture.message = Some((
                         format!("Tap station {station} ({accepted} kept so far)"),
                         false,
@@ -100,7 +94,7 @@ impl TapgridApp {
                     reload = true;
                 }
                 Report::Event(Event::Hit(h)) => {
-                    self.current_station = Some(h.station);
+                    self.ui.current_station = Some(h.station);
                     self.capture.message = Some((
                         format!(
                             "Tap station {}: {} of {} kept",
@@ -132,7 +126,7 @@ impl TapgridApp {
         }
         // The capture thread arms the next station itself; follow it here.
         if let Some(next) = advance {
-            self.capture.station = next;
+            self.ui.capture_station = next;
         }
         if let Some(r) = ended {
             self.capture.handle = None;
@@ -249,7 +243,7 @@ fn meter(ui: &mut egui::Ui, label: &str, level: f32, hold: f32, over: bool) {
 }
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     let now = ui.input(|i| i.time);
     if app.doc.is_some() {
         station_map::strip(ui, app, 96.0);
@@ -286,7 +280,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                     .add_enabled(!running, egui::Button::new("Refresh"))
                     .clicked()
                 {
-                    app.worker.send(super::worker::Job::ListDevices);
+                    app.push(Command::ListDevices);
                 }
             });
             if let Some(Err(e)) = &app.capture.devices {
@@ -306,19 +300,17 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 ));
             } else {
                 ui.label("Into a new session folder:");
-                if app.capture.new_session.is_empty() {
+                if app.ui.capture_folder.is_empty() {
                     let stamp = std::time::SystemTime::now()
                         .duration_since(std::time::UNIX_EPOCH)
                         .map_or(0, |d| d.as_secs());
-                    app.capture.new_session = crate::sim::demo::default_root()
+                    app.ui.capture_folder = crate::sim::demo::default_root()
                         .join("sessions")
                         .join(format!("capture-{stamp}"))
                         .display()
                         .to_string();
                 }
-                ui.add(
-                    egui::TextEdit::singleline(&mut app.capture.new_session).desired_width(330.0),
-                );
+                ui.add(egui::TextEdit::singleline(&mut app.ui.capture_folder).desired_width(330.0));
             }
             egui::Grid::new("capture-grid")
                 .num_columns(2)
@@ -359,10 +351,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                     ));
                     ui.end_row();
                     ui.label("station");
-                    if app.capture.station == 0 {
-                        app.capture.station = app.current_station.unwrap_or(1);
+                    if app.ui.capture_station == 0 {
+                        app.ui.capture_station = app.ui.current_station.unwrap_or(1);
                     }
-                    ui.add(egui::DragValue::new(&mut app.capture.station).range(1..=999));
+                    ui.add(egui::DragValue::new(&mut app.ui.capture_station).range(1..=999));
                     ui.end_row();
                     ui.label("hits per station");
                     let a = ui.add(
@@ -385,14 +377,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                         ui.label(RichText::new("cannot read the order").color(BAD));
                         ui.end_row();
                     }
-                    if (a.changed() || b.changed() || o.changed())
-                        && let Some(h) = &app.capture.handle
-                    {
-                        let _ = h.controls.send(Control::Plan(
-                            app.settings.hits_per_station,
-                            app.settings.auto_advance,
-                        ));
-                        let _ = h.controls.send(Control::Order(order.unwrap_or_default()));
+                    if (a.changed() || b.changed() || o.changed()) && running {
+                        let plan =
+                            Control::Plan(app.settings.hits_per_station, app.settings.auto_advance);
+                        app.push(Command::CaptureControl(plan));
+                        let order = Control::Order(order.unwrap_or_default());
+                        app.push(Command::CaptureControl(order));
                     }
                 });
             ui.horizontal(|ui| {
@@ -401,18 +391,15 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                         .button(RichText::new("Start capture").size(20.0))
                         .clicked()
                     {
-                        start_capture(app, writable);
+                        app.push(Command::StartCapture);
                     }
                 } else {
-                    if ui.button(RichText::new("Stop").size(20.0)).clicked()
-                        && let Some(h) = &app.capture.handle
-                    {
-                        let _ = h.controls.send(Control::Stop);
+                    if ui.button(RichText::new("Stop").size(20.0)).clicked() {
+                        app.push(Command::CaptureControl(Control::Stop));
                     }
-                    if ui.button("Arm station").clicked()
-                        && let Some(h) = &app.capture.handle
-                    {
-                        let _ = h.controls.send(Control::Arm(app.capture.station));
+                    if ui.button("Arm station").clicked() {
+                        let st = app.ui.capture_station;
+                        app.push(Command::CaptureControl(Control::Arm(st)));
                     }
                 }
             });
@@ -420,16 +407,14 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 if ui
                     .add_enabled(running, egui::Button::new("Undo last hit"))
                     .clicked()
-                    && let Some(h) = &app.capture.handle
                 {
-                    let _ = h.controls.send(Control::Undo);
+                    app.push(Command::CaptureControl(Control::Undo));
                 }
                 if ui
                     .add_enabled(running, egui::Button::new("Redo station"))
                     .clicked()
-                    && let Some(h) = &app.capture.handle
                 {
-                    let _ = h.controls.send(Control::Redo);
+                    app.push(Command::CaptureControl(Control::Redo));
                 }
             });
             let hl = app.capture.health;
@@ -524,44 +509,52 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     });
 }
 
-fn start_capture(app: &mut TapgridApp, writable: bool) {
-    // The capture becomes the session's only writer: the window hands its lock over.
-    if writable && let Some(d) = &mut app.doc {
-        d.lock = None;
+impl TapgridApp {
+    /// Starts a capture: into the open session when it is writable, else into the folder typed.
+    pub(super) fn start_capture(&mut self) {
+        let writable = self
+            .doc
+            .as_ref()
+            .is_some_and(|d| d.session.is_some() && !d.read_only);
+        // The capture becomes the session's only writer: the window hands its lock over.
+        if writable && let Some(d) = &mut self.doc {
+            d.lock = None;
+        }
+        let (dir, setup, part) = match (&self.doc, writable) {
+            (Some(d), true) => (d.path.clone(), d.setup.clone(), d.part.clone()),
+            (d, _) => (
+                std::path::PathBuf::from(self.ui.capture_folder.trim()),
+                d.as_ref().map(|d| d.setup.clone()).unwrap_or_default(),
+                d.as_ref().map(|d| d.part.clone()).unwrap_or_default(),
+            ),
+        };
+        self.capture_dir = Some(dir.clone());
+        let ctx = self.ctx_slot.clone();
+        let device = self
+            .settings
+            .capture_device
+            .clone()
+            .unwrap_or_else(|| "generator".into());
+        self.capture.message = Some((format!("Opening {device}…"), false));
+        self.capture.handle = Some(capture_thread::start(
+            capture_thread::Start {
+                device,
+                session: dir,
+                setup,
+                part,
+                station: self.ui.capture_station.max(1),
+                hits: self.settings.hits_per_station,
+                auto_advance: self.settings.auto_advance,
+                order: capture_thread::parse_order(&self.settings.station_order)
+                    .unwrap_or_default(),
+                rate_hz: self.settings.capture_rate_hz,
+                buffer_frames: self.settings.capture_buffer_frames,
+            },
+            move || {
+                if let Some(c) = ctx.get() {
+                    c.request_repaint_after(std::time::Duration::from_millis(16));
+                }
+            },
+        ));
     }
-    let (dir, setup, part) = match (&app.doc, writable) {
-        (Some(d), true) => (d.path.clone(), d.setup.clone(), d.part.clone()),
-        (d, _) => (
-            std::path::PathBuf::from(app.capture.new_session.trim()),
-            d.as_ref().map(|d| d.setup.clone()).unwrap_or_default(),
-            d.as_ref().map(|d| d.part.clone()).unwrap_or_default(),
-        ),
-    };
-    app.capture_dir = Some(dir.clone());
-    let ctx = app.ctx_slot.clone();
-    let device = app
-        .settings
-        .capture_device
-        .clone()
-        .unwrap_or_else(|| "generator".into());
-    app.capture.message = Some((format!("Opening {device}…"), false));
-    app.capture.handle = Some(capture_thread::start(
-        capture_thread::Start {
-            device,
-            session: dir,
-            setup,
-            part,
-            station: app.capture.station.max(1),
-            hits: app.settings.hits_per_station,
-            auto_advance: app.settings.auto_advance,
-            order: capture_thread::parse_order(&app.settings.station_order).unwrap_or_default(),
-            rate_hz: app.settings.capture_rate_hz,
-            buffer_frames: app.settings.capture_buffer_frames,
-        },
-        move || {
-            if let Some(c) = ctx.get() {
-                c.request_repaint_after(std::time::Duration::from_millis(16));
-            }
-        },
-    ));
 }

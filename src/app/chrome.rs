@@ -93,7 +93,7 @@ impl TapgridApp {
                 }
                 ui.label(egui::RichText::new(title).strong());
                 ui.label(d.path.display().to_string());
-                if let Some(st) = self.current_station {
+                if let Some(st) = self.ui.current_station {
                     ui.separator();
                     ui.label(format!("station {st}"));
                 }

@@ -61,8 +61,16 @@ pub enum Command {
     SelectMode(usize),
     /// Choose the model mode to animate.
     SelectModelMode(usize),
-    /// The shaft model or its service questions changed: solve again.
-    ModelEdited,
+    /// The setup view's edited copy of the setup, part, labels and positions.
+    EditSetup(Box<SetupEdit>),
+    /// The model editors' edited copy of the shaft model and its service questions: solve again.
+    EditStudy(Box<Study>),
+    /// Start capturing into the open session (when it is writable) or a new folder.
+    StartCapture,
+    /// Tell the running capture something.
+    CaptureControl(super::capture_thread::Control),
+    /// List the audio inputs again.
+    ListDevices,
     /// Read a shaft model (JSON) into the test.
     LoadModel(PathBuf),
     /// Write the shaft model as JSON.

@@ -5,7 +5,7 @@ use eframe::egui::{self, RichText};
 use egui_plot::{Line, MarkerShape, Plot, Points, Span, VLine};
 
 use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
-use super::{Command, TapgridApp};
+use super::{Command, ViewCtx};
 use crate::estimate::lscf::{PoleStatus, Stabilization};
 use crate::modal::ModalResult;
 
@@ -88,8 +88,8 @@ fn marker(s: PoleStatus) -> (MarkerShape, egui::Color32, f32, &'static str) {
 }
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
-    let Some(doc) = &app.doc else {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
+    let Some(doc) = app.doc else {
         return;
     };
     let Some(frfs) = doc.frfs.clone() else {
@@ -144,7 +144,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             cmds.push(Command::AutoPoles);
         }
         ui.separator();
-        let mut edit = app.fit_band_edit.unwrap_or(band);
+        let mut edit = app.ui.fit_band_edit.unwrap_or(band);
         ui.label("fit band");
         let lo = ui.add(
             egui::DragValue::new(&mut edit[0])
@@ -160,14 +160,14 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 .speed(1.0),
         );
         if lo.changed() || hi.changed() {
-            app.fit_band_edit = Some(edit);
+            app.ui.fit_band_edit = Some(edit);
         }
         if (lo.drag_stopped() || lo.lost_focus() || hi.drag_stopped() || hi.lost_focus())
             && edit != band
             && edit[1] > edit[0]
         {
             cmds.push(Command::SetFitBand(Some(edit)));
-            app.fit_band_edit = None;
+            app.ui.fit_band_edit = None;
         }
         if ui
             .add_enabled(
@@ -177,7 +177,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             .clicked()
         {
             cmds.push(Command::SetFitBand(None));
-            app.fit_band_edit = None;
+            app.ui.fit_band_edit = None;
         }
     });
     ui.label(
@@ -210,7 +210,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     for p in &stab.poles {
         groups[p.status as usize].push([p.frequency_hz, p.order as f64]);
     }
-    let live_band = app.fit_band_edit.unwrap_or(band);
+    let live_band = app.ui.fit_band_edit.unwrap_or(band);
     let h = (ui.available_height() - 90.0).max(200.0);
     let r = Plot::new("stabilization")
         .height(h)
@@ -271,12 +271,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             if resp.dragged() {
                 let mut b = live_band;
                 b[e] = x.clamp(full[0], full[1]);
-                app.fit_band_edit = Some(b);
+                app.ui.fit_band_edit = Some(b);
             }
             if resp.drag_stopped() {
                 ui.ctx()
                     .data_mut(|d| d.insert_temp::<Option<usize>>(drag_id, None));
-                if let Some(b) = app.fit_band_edit.take()
+                if let Some(b) = app.ui.fit_band_edit.take()
                     && b[1] > b[0]
                 {
                     cmds.push(Command::SetFitBand(Some(b)));

@@ -5,16 +5,16 @@ use eframe::egui::{self, RichText};
 use egui_plot::{Line, Plot, VLine};
 
 use super::plots::{self, ACCENT, FreqAxis, WARN};
-use super::{TapgridApp, station_map};
+use super::{ViewCtx, station_map};
 use crate::setup::Layout;
 
 /// A plot of the review: its name, the plot, the plotted value of trace i at line k.
 type Pane<'a> = (&'static str, Plot<'a>, &'a dyn Fn(usize, usize) -> f64);
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     station_map::strip(ui, app, 96.0);
-    let Some(doc) = &app.doc else {
+    let Some(doc) = app.doc else {
         return;
     };
     let Some(frfs) = doc.frfs.clone() else {
@@ -43,7 +43,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             // Where the hammer's force spectrum stays within the roll-off limit: lines above count
             // less in the fit (the dashed line in the plots).
             let edge = app
-                .current_station
+                .ui.current_station
                 .and_then(|s| frfs.stations.iter().position(|&x| x == s))
                 .and_then(|i| frfs.usable_hi_hz.get(i).copied())
                 .filter(|e| e.is_finite());
@@ -62,22 +62,22 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 .max_height(ui.available_height() - 40.0)
                 .show(ui, |ui| {
                     for &s in &frfs.stations {
-                        let mut on = app.overlay.contains(&s);
+                        let mut on = app.ui.overlay.contains(&s);
                         if ui.checkbox(&mut on, format!("station {s}")).changed() {
                             if on {
-                                app.overlay.insert(s);
+                                app.ui.overlay.insert(s);
                             } else {
-                                app.overlay.remove(&s);
+                                app.ui.overlay.remove(&s);
                             }
                         }
                     }
                 });
         });
-    let current = app.current_station;
+    let current = app.ui.current_station;
     let shown: Vec<usize> = (0..frfs.stations.len())
         .filter(|&i| {
             let s = frfs.stations[i];
-            app.settings.overlay_all || current == Some(s) || app.overlay.contains(&s)
+            app.settings.overlay_all || current == Some(s) || app.ui.overlay.contains(&s)
         })
         .collect();
     egui::CentralPanel::default().show(ui, |ui| {
@@ -190,12 +190,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 .y_axis_min_width(56.0)
                 .link_axis(link, [true, false])
                 .link_cursor(link, [true, false]);
-            let cache = app.overlays.entry(name).or_default();
+            let cache = app.ui.overlays.entry(name).or_default();
             plots::overlaid(
                 ui,
                 plot,
                 egui::Id::unique(name),
-                &mut app.plot_scratch,
+                &mut app.ui.plot_scratch,
                 cache,
                 plots::stamp((&base, name)),
                 f,
@@ -228,7 +228,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         };
         let columns = ui.available_width() as usize;
         let b = plots::last_bounds(ui.ctx(), egui::Id::unique("frf-mag"));
-        let pts = app.plot_scratch.reduced(f, |k| vals[k], axis, b, columns);
+        let pts = app
+            .ui
+            .plot_scratch
+            .reduced(f, |k| vals[k], axis, b, columns);
         axis.configure(Plot::new(id))
             .height(h_each)
             .link_axis(link, [true, false])

@@ -5,18 +5,18 @@ use eframe::egui::{self, RichText};
 use egui_plot::{HLine, Line, LineStyle, Plot, VLine};
 
 use super::plots::{self, ACCENT, BAD, GOOD, WARN};
-use super::{Command, TapgridApp, station_map};
+use super::{Command, ViewCtx, station_map};
 use crate::setup::Layout;
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     station_map::strip(ui, app, 96.0);
-    let Some(st) = app.current_station else {
+    let Some(st) = app.ui.current_station else {
         ui.label("Choose a station.");
         return;
     };
-    let traces = app.current_traces();
-    let Some(doc) = &app.doc else {
+    let traces = app.traces.clone();
+    let Some(doc) = app.doc else {
         return;
     };
     let Some(sa) = doc.station_analysis(st) else {
@@ -28,7 +28,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     let qa = layout.channel_a_quantity();
     let rolloff = doc.setup.quality.rolloff_db;
     let band = doc.setup.band_hz;
-    let hi = app.current_hit.min(hits.len().saturating_sub(1));
+    let hi = app.ui.current_hit.min(hits.len().saturating_sub(1));
     let mut cmds = Vec::new();
 
     egui::Panel::left("hit-list")
@@ -205,10 +205,14 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         ] {
             let pid = egui::Id::unique(id);
             let bounds = plots::last_bounds(ui.ctx(), pid);
-            let pts = app.plot_scratch.reduced_time(&t.time_s, y, bounds, columns);
+            let pts = app
+                .ui
+                .plot_scratch
+                .reduced_time(&t.time_s, y, bounds, columns);
             let peak = y.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(1e-12);
             let wy: Vec<f64> = w.iter().map(|v| v * peak).collect();
             let wpts = app
+                .ui
                 .plot_scratch
                 .reduced_time(&t.time_s, &wy, bounds, columns);
             let mut plot = Plot::new(pid)

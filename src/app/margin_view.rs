@@ -8,7 +8,7 @@ use egui_plot::{Axis, GridMark, Line, MarkerShape, Plot, Points, Span, VLine};
 use super::help::CAUTIONS;
 use super::model_edit;
 use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
-use super::{Command, TapgridApp};
+use super::{Command, ViewCtx};
 use crate::model::margin::Side;
 use crate::model::study::{ResonanceSource, Study, StudyResult};
 
@@ -35,13 +35,13 @@ fn rpm_tick(m: GridMark) -> String {
 }
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     let mut cmds = Vec::new();
-    let orders_edit = &mut app.orders_edit;
-    let Some(doc) = &mut app.doc else {
+    let orders_edit = &mut app.ui.orders_edit;
+    let Some(doc) = app.doc else {
         return;
     };
-    let Some(study) = &mut doc.study else {
+    let Some(mut study) = doc.study.clone() else {
         ui.vertical_centered(|ui| {
             ui.add_space(80.0);
             ui.label(
@@ -69,8 +69,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         .show(ui, |ui| {
             egui::ScrollArea::vertical().show(ui, |ui| {
                 ui.heading("In service");
-                if model_edit::service_editor(ui, study, text) {
-                    cmds.push(Command::ModelEdited);
+                // Any difference is sent, whether or not the editor flagged it.
+                if model_edit::service_editor(ui, &mut study, text)
+                    || doc.study.as_ref() != Some(&study)
+                {
+                    cmds.push(Command::EditStudy(Box::new(study.clone())));
                 }
             });
         });

@@ -25,11 +25,13 @@ mod command;
 mod document;
 mod outcomes;
 mod settings;
+mod view_ctx;
 
 pub use command::{Command, Message, PathPurpose};
 use command::{PathDialog, report_default_path};
 pub use document::Document;
 pub use settings::{Settings, View};
+pub use view_ctx::{SetupEdit, UiState, ViewCtx};
 
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
@@ -55,27 +57,8 @@ pub struct TapgridApp {
     pub settings: Settings,
     /// The open test.
     pub doc: Option<Document>,
-    /// Station shown.
-    pub current_station: Option<u32>,
-    /// Hit shown (index within the station).
-    pub current_hit: usize,
-    /// Mode animated.
-    pub selected_mode: usize,
-    /// Model mode animated beside it (index into the model's modes, rigid ones included);
-    /// `None` follows the pairing of the selected test mode.
-    pub selected_model_mode: Option<usize>,
-    /// The orders of running speed as typed.
-    pub(crate) orders_edit: Option<String>,
-    /// The animation runs.
-    pub playing: bool,
-    /// Animation phase, radians.
-    pub phase_rad: f64,
-    /// Stations overlaid in the FRF review (besides the current one).
-    pub overlay: BTreeSet<u32>,
-    /// Station for measured vs synthesized.
-    pub synth_station: Option<u32>,
-    /// Help panel open.
-    pub show_help: bool,
+    /// The window's own state: selections, animation, what is being typed.
+    pub ui: UiState,
     /// Messages for the person.
     pub messages: Vec<Message>,
     /// Cut hits of one station for the hit view.
@@ -90,9 +73,6 @@ pub struct TapgridApp {
     commands: Vec<Command>,
     dialog: Option<PathDialog>,
     last_time: Option<f64>,
-    fit_band_edit: Option<[f64; 2]>,
-    plot_scratch: plots::Scratch,
-    overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
     /// Live capture state.
     pub capture: capture_view::CaptureState,
     capture_dir: Option<PathBuf>,
@@ -115,16 +95,7 @@ impl TapgridApp {
         let mut app = Self {
             settings,
             doc: None,
-            current_station: None,
-            current_hit: 0,
-            selected_mode: 0,
-            selected_model_mode: None,
-            orders_edit: None,
-            playing: true,
-            phase_rad: 0.0,
-            overlay: BTreeSet::new(),
-            synth_station: None,
-            show_help: false,
+            ui: UiState::default(),
             messages: Vec::new(),
             traces: None,
             traces_requested: None,
@@ -134,9 +105,6 @@ impl TapgridApp {
             commands: Vec::new(),
             dialog: None,
             last_time: None,
-            fit_band_edit: None,
-            plot_scratch: plots::Scratch::default(),
-            overlays: Default::default(),
             capture: Default::default(),
             capture_dir: None,
             ctx_slot,
@@ -175,7 +143,7 @@ impl TapgridApp {
 
     /// How overlaid traces are drawn (the benchmark compares the modes).
     pub fn set_plot_mode(&mut self, mode: plots::PlotMode) {
-        self.plot_scratch.mode = mode;
+        self.ui.plot_scratch.mode = mode;
     }
 
     /// True when nothing is queued: no command waiting and the worker idle.
@@ -200,20 +168,23 @@ impl TapgridApp {
         let now = ctx.input(|i| i.time);
         self.drain_capture(now);
         if let Some(t0) = self.last_time
-            && self.playing
+            && self.ui.playing
             && self.settings.view.animates()
         {
             let dt = (now - t0).clamp(0.0, 0.1);
-            self.phase_rad = (self.phase_rad
+            self.ui.phase_rad = (self.ui.phase_rad
                 + std::f64::consts::TAU * self.settings.speed_hz as f64 * dt)
                 % std::f64::consts::TAU;
         }
         self.last_time = Some(now);
-        if self.playing && self.settings.view.animates() {
+        if self.ui.playing && self.settings.view.animates() {
             ctx.request_repaint();
         }
         if self.busy().is_some() {
             ctx.request_repaint_after(std::time::Duration::from_millis(100));
+        }
+        if self.settings.view == View::Hits {
+            self.request_traces();
         }
         self.apply_pending(ctx);
     }
@@ -231,7 +202,7 @@ impl TapgridApp {
         self.shortcuts(&ctx);
         egui::Panel::top("tapgrid-top").show(ui, |ui| self.top_bar(ui));
         egui::Panel::bottom("tapgrid-status").show(ui, |ui| self.status_bar(ui));
-        if self.show_help {
+        if self.ui.show_help {
             egui::Panel::right("tapgrid-help")
                 .default_size(380.0)
                 .show(ui, |ui| help::panel(ui, &mut self.commands));
@@ -250,16 +221,18 @@ impl TapgridApp {
                 });
                 return;
             }
-            match self.settings.view {
-                View::Setup => setup_view::show(ui, self),
-                View::Stations => station_map::show(ui, self),
-                View::Hits => hits_view::show(ui, self),
-                View::Frf => frf_view::show(ui, self),
-                View::Fit => fit_view::show(ui, self),
-                View::Modes => modes_view::show(ui, self),
-                View::Capture => capture_view::show(ui, self),
-                View::Model => model_view::show(ui, self),
-                View::Margins => margin_view::show(ui, self),
+            let view = self.settings.view;
+            let mut cx = self.view_ctx();
+            match view {
+                View::Setup => setup_view::show(ui, &mut cx),
+                View::Stations => station_map::show(ui, &mut cx),
+                View::Hits => hits_view::show(ui, &mut cx),
+                View::Frf => frf_view::show(ui, &mut cx),
+                View::Fit => fit_view::show(ui, &mut cx),
+                View::Modes => modes_view::show(ui, &mut cx),
+                View::Capture => capture_view::show(ui, &mut cx),
+                View::Model => model_view::show(ui, &mut cx),
+                View::Margins => margin_view::show(ui, &mut cx),
             }
         });
         if !self.settings.cautions_read {

@@ -7,17 +7,17 @@ use egui_plot::{Line, LineStyle, MarkerShape, Plot, Points};
 
 use super::model_edit;
 use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
-use super::{Command, PathPurpose, TapgridApp};
+use super::{Command, PathPurpose, ViewCtx};
 use crate::model::run::interpolate;
 use crate::model::study::{Study, StudyResult};
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     let mut cmds = Vec::new();
-    let Some(doc) = &mut app.doc else {
+    let Some(doc) = app.doc else {
         return;
     };
-    let Some(study) = &mut doc.study else {
+    let Some(mut study) = doc.study.clone() else {
         ui.vertical_centered(|ui| {
             ui.add_space(80.0);
             ui.label(RichText::new("This test has no shaft model yet.").size(22.0));
@@ -51,8 +51,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                         cmds.push(Command::AskPath(PathPurpose::WriteModel));
                     }
                 });
-                if model_edit::shaft_editor(ui, study) {
-                    cmds.push(Command::ModelEdited);
+                // Any difference is sent, whether or not the editor flagged it.
+                if model_edit::shaft_editor(ui, &mut study) || doc.study.as_ref() != Some(&study) {
+                    cmds.push(Command::EditStudy(Box::new(study.clone())));
                 }
             });
         });
@@ -79,8 +80,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             ui.label(RichText::new(w).color(WARN).small());
         }
         let n_test = modal.as_ref().map_or(0, |m| m.modes.len());
-        let test_sel = (n_test > 0).then(|| app.selected_mode.min(n_test - 1));
+        let test_sel = (n_test > 0).then(|| app.ui.selected_mode.min(n_test - 1));
         let model_sel = app
+            .ui
             .selected_model_mode
             .filter(|&j| j < r.tested.modes.len())
             .or_else(|| {
@@ -353,7 +355,7 @@ fn shape_plot_frame(id: &str, height: f32, x1: f64, limit: f64) -> Plot<'static>
 
 fn measured_plot(
     ui: &mut egui::Ui,
-    app: &TapgridApp,
+    app: &ViewCtx,
     m: &crate::modal::ModalResult,
     k: usize,
     r: &StudyResult,
@@ -362,7 +364,7 @@ fn measured_plot(
 ) {
     let md = &m.modes[k];
     let amp = app.settings.amplitude as f64;
-    let (c, s) = (app.phase_rad.cos(), app.phase_rad.sin());
+    let (c, s) = (app.ui.phase_rad.cos(), app.ui.phase_rad.sin());
     let pts: Vec<[f64; 2]> = m
         .positions_m
         .iter()
@@ -425,7 +427,7 @@ fn measured_plot(
 
 fn model_plot(
     ui: &mut egui::Ui,
-    app: &TapgridApp,
+    app: &ViewCtx,
     r: &StudyResult,
     j: usize,
     modal: Option<&crate::modal::ModalResult>,
@@ -445,7 +447,7 @@ fn model_plot(
         j,
         test.as_ref().map(|(p, s)| (p.as_slice(), s.as_slice())),
     );
-    let amp = app.settings.amplitude as f64 * app.phase_rad.cos();
+    let amp = app.settings.amplitude as f64 * app.ui.phase_rad.cos();
     let line: Vec<[f64; 2]> = nodes.iter().zip(&v).map(|(x, y)| [*x, amp * y]).collect();
     let node_x = super::modes_view::nodes(&nodes, &v);
     ui.label(

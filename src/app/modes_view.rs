@@ -5,7 +5,7 @@ use eframe::egui::{self, Align2, RichText};
 use egui_plot::{Line, LineStyle, MarkerShape, Plot, PlotPoint, Points, Text};
 
 use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
-use super::{Command, TapgridApp};
+use super::{Command, ViewCtx};
 use crate::modal::{DampingSource, Method, Mode};
 
 fn damping_word(s: Option<DampingSource>) -> &'static str {
@@ -44,8 +44,8 @@ pub fn nodes(positions_m: &[f64], values: &[f64]) -> Vec<f64> {
 }
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
-    let Some(doc) = &app.doc else {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
+    let Some(doc) = app.doc else {
         return;
     };
     let Some(m) = doc.modal.clone() else {
@@ -61,7 +61,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         }
         return;
     }
-    let sel = app.selected_mode.min(m.modes.len() - 1);
+    let sel = app.ui.selected_mode.min(m.modes.len() - 1);
     egui::Panel::left("mode-table")
         .default_size(440.0)
         .show(ui, |ui| {
@@ -94,7 +94,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 });
             ui.separator();
             ui.horizontal(|ui| {
-                let label = if app.playing { "Pause" } else { "Play" };
+                let label = if app.ui.playing { "Pause" } else { "Play" };
                 if ui.button(label).clicked() {
                     cmds.push(Command::TogglePlay);
                 }
@@ -148,8 +148,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
         };
         let stations = &m.stations;
         let st = app
+            .ui
             .synth_station
-            .or(app.current_station)
+            .or(app.ui.current_station)
             .filter(|s| stations.contains(s))
             .unwrap_or(stations[0]);
         ui.horizontal(|ui| {
@@ -162,7 +163,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                             .selectable_label(s == st, format!("station {s}"))
                             .clicked()
                         {
-                            app.synth_station = Some(s);
+                            app.ui.synth_station = Some(s);
                         }
                     }
                 });
@@ -193,7 +194,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             .filter(|s| !s.is_empty())
             .map(|syn| {
                 let f = &m.indicators.freq_hz;
-                app.plot_scratch
+                app.ui
+                    .plot_scratch
                     .reduced(f, |k| plots::db(syn[k].norm()), axis, bounds, columns)
             });
         let unit = match frfs.layout {
@@ -216,12 +218,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             shown,
             axis.log,
         ));
-        let cache = app.overlays.entry("synth-plot").or_default();
+        let cache = app.ui.overlays.entry("synth-plot").or_default();
         plots::overlaid(
             ui,
             plot,
             id,
-            &mut app.plot_scratch,
+            &mut app.ui.plot_scratch,
             cache,
             stamp,
             &frfs.freq_hz,
@@ -247,7 +249,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
 
 fn shape_plot(
     ui: &mut egui::Ui,
-    app: &TapgridApp,
+    app: &ViewCtx,
     md: &Mode,
     positions: &[f64],
     stations: &[u32],
@@ -255,7 +257,7 @@ fn shape_plot(
     height: f32,
 ) {
     let amp = app.settings.amplitude as f64;
-    let th = app.phase_rad;
+    let th = app.ui.phase_rad;
     let (c, s) = (th.cos(), th.sin());
     // Re(φ e^{iθ}): a real mode stands, a complex one travels.
     let y: Vec<f64> = md

@@ -75,16 +75,16 @@ impl TapgridApp {
                         true,
                     );
                 }
-                self.current_station = doc.data.stations.first().map(|s| s.station);
-                self.current_hit = 0;
-                self.selected_mode = 0;
-                self.selected_model_mode = None;
-                self.orders_edit = None;
-                self.overlay.clear();
+                self.ui.current_station = doc.data.stations.first().map(|s| s.station);
+                self.ui.current_hit = 0;
+                self.ui.selected_mode = 0;
+                self.ui.selected_model_mode = None;
+                self.ui.orders_edit = None;
+                self.ui.overlay.clear();
                 self.traces = None;
                 self.traces_requested = None;
-                self.synth_station = None;
-                self.fit_band_edit = None;
+                self.ui.synth_station = None;
+                self.ui.fit_band_edit = None;
                 self.doc = Some(doc);
                 self.settings.recent.retain(|p| p != &path);
                 self.settings.recent.insert(0, path.clone());
@@ -255,11 +255,18 @@ impl TapgridApp {
         }
     }
 
-    /// The cut hits of the current station, when loaded for the latest analysis.
-    pub fn current_traces(&mut self) -> Option<Arc<Vec<Option<HitTraces>>>> {
-        let st = self.current_station?;
-        let d = self.doc.as_ref()?;
-        let sa = d.station_analysis(st)?;
+    /// Asks the worker for the current station's cut hits when they are not yet made for the
+    /// latest analysis (the hit view draws them once they arrive).
+    pub(super) fn request_traces(&mut self) {
+        let Some(st) = self.ui.current_station else {
+            return;
+        };
+        let Some(d) = self.doc.as_ref() else {
+            return;
+        };
+        let Some(sa) = d.station_analysis(st) else {
+            return;
+        };
         if self.traces_requested != Some((st, self.analysis_stamp)) {
             self.traces_requested = Some((st, self.analysis_stamp));
             let job = Job::Traces {
@@ -273,10 +280,6 @@ impl TapgridApp {
                 hits: sa.result.hits.clone(),
             };
             self.worker.send(job);
-        }
-        match &self.traces {
-            Some((s, t)) if *s == st => Some(t.clone()),
-            _ => None,
         }
     }
 }

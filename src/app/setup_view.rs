@@ -4,7 +4,7 @@
 use eframe::egui::{self, DragValue, RichText};
 
 use super::plots::{BAD, WARN};
-use super::{Command, TapgridApp};
+use super::{Command, SetupEdit, ViewCtx};
 use crate::setup::{AcCoupling, Estimator, Layout, Setup, Slope, TriggerLevel};
 
 fn optional(
@@ -30,13 +30,19 @@ fn optional(
 }
 
 /// Draws the view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
-    let Some(doc) = &mut app.doc else {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
+    let Some(doc) = app.doc else {
         return;
     };
-    let before = doc.setup.clone();
-    let before_positions: Vec<f64> = doc.data.stations.iter().map(|s| s.position_m).collect();
-    let mut cmds = Vec::new();
+    // The view edits a copy and sends it back; the document changes only through the command.
+    let original = SetupEdit {
+        setup: doc.setup.clone(),
+        part: doc.part.clone(),
+        labels: doc.labels.clone(),
+        positions_m: doc.data.stations.iter().map(|s| s.position_m).collect(),
+        analyse: false,
+    };
+    let mut draft = original.clone();
     egui::ScrollArea::vertical().show(ui, |ui| {
         ui.heading("Test setup");
         if doc.read_only {
@@ -50,20 +56,16 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             ui.group(|ui| {
                 ui.label(RichText::new("Part").strong());
                 egui::Grid::new("part").num_columns(2).show(ui, |ui| {
-                    ui.label("name");
-                    if ui.text_edit_singleline(&mut doc.part.name).changed() {
-                        doc.dirty = true;
-                    }
+                    let l = ui.label("name");
+                    ui.text_edit_singleline(&mut draft.part.name).labelled_by(l.id);
                     ui.end_row();
                     ui.label("notes");
-                    if ui.text_edit_multiline(&mut doc.part.notes).changed() {
-                        doc.dirty = true;
-                    }
+                    ui.text_edit_multiline(&mut draft.part.notes);
                     ui.end_row();
                 });
             });
             ui.group(|ui| {
-                let s = &mut doc.setup;
+                let s = &mut draft.setup;
                 ui.label(RichText::new("Layout and channels").strong());
                 ui.horizontal(|ui| {
                     ui.radio_value(&mut s.layout, Layout::Hammer, "roving hammer (A = force, B = fixed accelerometer)");
@@ -96,11 +98,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                 let stations: Vec<u32> = doc.data.stations.iter().map(|s| s.station).collect();
                 ui.horizontal(|ui| {
                     ui.label("reference station");
-                    let text = doc.setup.reference_station.map_or("not set".into(), |r| format!("station {r}"));
+                    let text = draft.setup.reference_station.map_or("not set".into(), |r| format!("station {r}"));
                     egui::ComboBox::from_id_salt("reference").selected_text(text).show_ui(ui, |ui| {
-                        ui.selectable_value(&mut doc.setup.reference_station, None, "not set");
+                        ui.selectable_value(&mut draft.setup.reference_station, None, "not set");
                         for &st in &stations {
-                            ui.selectable_value(&mut doc.setup.reference_station, Some(st), format!("station {st}"));
+                            ui.selectable_value(&mut draft.setup.reference_station, Some(st), format!("station {st}"));
                         }
                     });
                 });
@@ -109,19 +111,23 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
                     ui.label("position");
                     ui.label("label");
                     ui.end_row();
-                    for src in &mut doc.data.stations {
-                        ui.label(src.station.to_string());
-                        ui.add(DragValue::new(&mut src.position_m).speed(0.001).range(-100.0..=100.0).suffix(" m"));
-                        let label = doc.labels.entry(src.station).or_default();
-                        if ui.add(egui::TextEdit::singleline(label).desired_width(140.0)).changed() {
-                            doc.dirty = true;
+                    for (&st, x) in stations.iter().zip(&mut draft.positions_m) {
+                        ui.label(st.to_string());
+                        ui.add(DragValue::new(x).speed(0.001).range(-100.0..=100.0).suffix(" m"));
+                        let mut label = draft.labels.get(&st).cloned().unwrap_or_default();
+                        if ui.add(egui::TextEdit::singleline(&mut label).desired_width(140.0)).changed() {
+                            if label.is_empty() {
+                                draft.labels.remove(&st);
+                            } else {
+                                draft.labels.insert(st, label);
+                            }
                         }
                         ui.end_row();
                     }
                 });
             });
             let ui = &mut cols[1];
-            let s = &mut doc.setup;
+            let s = &mut draft.setup;
             ui.group(|ui| {
                 ui.label(RichText::new("Trigger and record").strong());
                 egui::Grid::new("trigger").num_columns(2).show(ui, |ui| {
@@ -255,25 +261,24 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
             });
         });
     });
-    let positions: Vec<f64> = doc.data.stations.iter().map(|s| s.position_m).collect();
-    let changed = doc.setup != before || positions != before_positions;
-    // Drags re-run once released, so a long drag does not queue a run per frame.
-    let dragging = ui.ctx().egui_is_using_pointer();
-    let pending_id = egui::Id::unique("setup-pending");
-    let pending: bool = ui.ctx().data(|d| d.get_temp(pending_id)).unwrap_or(false);
-    if changed || pending {
-        if dragging || validate(&doc.setup).is_some() {
-            ui.ctx().data_mut(|d| d.insert_temp(pending_id, true));
-        } else {
-            ui.ctx().data_mut(|d| d.insert_temp(pending_id, false));
-            cmds.push(Command::Reanalyse);
-        }
+    // Drags re-run once released, so a long drag does not queue a run per frame; an invalid
+    // setup waits until it is valid.
+    if draft.setup != original.setup || draft.positions_m != original.positions_m {
+        app.ui.setup_pending = true;
     }
-    if let Some(e) = validate(&doc.setup) {
+    let invalid = validate(&draft.setup);
+    let analyse = app.ui.setup_pending && !ui.ctx().egui_is_using_pointer() && invalid.is_none();
+    if analyse {
+        app.ui.setup_pending = false;
+    }
+    if draft != original {
+        draft.analyse = analyse;
+        app.push(Command::EditSetup(Box::new(draft)));
+    } else if analyse {
+        app.push(Command::Reanalyse);
+    }
+    if let Some(e) = invalid {
         ui.label(RichText::new(format!("Setup not valid: {e}")).color(BAD));
-    }
-    for c in cmds {
-        app.push(c);
     }
 }
 

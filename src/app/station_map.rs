@@ -3,7 +3,7 @@
 use eframe::egui::{self, Align2, Color32, FontId, Rect, RichText, Sense, Stroke, pos2, vec2};
 
 use super::plots::{ACCENT, BAD, GOOD, IDLE, WARN};
-use super::{Command, Document, TapgridApp, View};
+use super::{Command, Document, View, ViewCtx};
 
 /// A station's state at a glance.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -117,8 +117,8 @@ fn all_stations(doc: &Document) -> Vec<(u32, f64)> {
 
 /// Draws the part with its station cells in a strip of the given height; clicking a cell
 /// pushes [`Command::GoStation`].
-pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
-    let Some(doc) = &app.doc else {
+pub fn strip(ui: &mut egui::Ui, app: &mut ViewCtx, height: f32) {
+    let Some(doc) = app.doc else {
         return;
     };
     let stations = all_stations(doc);
@@ -153,7 +153,7 @@ pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
     let text = visuals.text_color();
     let small = FontId::proportional((cell * 0.45).clamp(11.0, 16.0));
     let reference = doc.setup.reference_station;
-    let current = app.current_station;
+    let current = app.ui.current_station;
     let mut clicked = None;
     // While capturing, a station is done when it holds the planned number of kept hits: fewer
     // kept is not yet good, however clean they are.
@@ -235,8 +235,8 @@ pub fn strip(ui: &mut egui::Ui, app: &mut TapgridApp, height: f32) {
 }
 
 /// The station map view.
-pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
-    let Some(doc) = &app.doc else {
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
+    let Some(doc) = app.doc else {
         return;
     };
     let recorded = doc.data.stations.len();
@@ -287,10 +287,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TapgridApp) {
     let h = (ui.available_height() * 0.45).clamp(120.0, 260.0);
     strip(ui, app, h);
     ui.add_space(8.0);
-    let Some(st) = app.current_station else {
+    let Some(st) = app.ui.current_station else {
         return;
     };
-    let Some(doc) = &app.doc else {
+    let Some(doc) = app.doc else {
         return;
     };
     let (state, hover) = state_of(doc, st);

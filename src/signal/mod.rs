@@ -3,6 +3,7 @@
 pub mod calibration;
 pub mod carryover;
 pub mod coupling;
+mod cut;
 pub mod frf;
 pub mod hits;
 pub mod record;

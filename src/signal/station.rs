@@ -4,14 +4,12 @@ use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
-use super::carryover::{self, PulseSpan};
+use super::carryover;
 use super::coupling;
+use super::cut::{Candidate, FiniteChannels, HitCutter, baseline, locate_taps, pulse_spans};
 use super::frf::{CrossSpectra, SpectrumPlan};
-use super::hits::{
-    Pulse, find_pulse, find_triggers, flat_top_at, level_of, peak_abs, second_impact,
-};
+use super::hits::level_of;
 use super::record::RecordPlan;
-use super::taps::find_strikes;
 use super::verdict::Reason;
 use super::window::force_window;
 use crate::Complex64;
@@ -103,11 +101,6 @@ pub struct StationResult {
     pub notes: Vec<String>,
 }
 
-struct Candidate {
-    a: Vec<Complex64>,
-    b: Vec<Complex64>,
-}
-
 /// Analyses one station's recording (`a`, `b` in full-scale units at `fs`).
 /// `overrides` maps hit index → accept (true) / reject (false).
 /// Errors are sentences for the user (the caller names the file).
@@ -120,250 +113,97 @@ pub fn analyze_station(
     plan: &mut Option<SpectrumPlan>,
 ) -> Result<StationResult, String> {
     let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
-    let (n, pre, dt, df) = (rp.n, rp.pre, rp.dt, rp.df);
-    let [lo, hi] = rp.band_hz;
-    let lines = rp.lines.clone();
-    let freq_hz = rp.freq_hz.clone();
-
-    // Samples that are not numbers (a damaged float recording) are set to zero so that nothing
-    // downstream sees them; the hits whose records held them are rejected below.
-    let bad_a = a.iter().any(|v| !v.is_finite());
-    let bad_b = b.iter().any(|v| !v.is_finite());
-    let (clean_a, clean_b);
-    let (a, b, bad): (&[f64], &[f64], Vec<usize>) = if bad_a || bad_b {
-        let bad: Vec<usize> = (0..a.len().min(b.len()))
-            .filter(|&i| !a[i].is_finite() || !b[i].is_finite())
-            .collect();
-        let zero = |x: &[f64]| -> Vec<f64> {
-            x.iter()
-                .map(|v| if v.is_finite() { *v } else { 0.0 })
-                .collect()
-        };
-        clean_a = zero(a);
-        clean_b = zero(b);
-        (&clean_a, &clean_b, bad)
-    } else {
-        (a, b, Vec::new())
-    };
-    if plan.as_ref().is_none_or(|p| p.len() != n) {
-        *plan = Some(SpectrumPlan::new(n));
+    let finite = FiniteChannels::of(a, b);
+    let (a, b) = (finite.a(), finite.b());
+    if plan.as_ref().is_none_or(|p| p.len() != rp.n) {
+        *plan = Some(SpectrumPlan::new(rp.n));
     }
     let plan = plan.as_mut().expect("plan set above");
 
     let level = level_of(a, setup.trigger.level);
-    // A hold-off a person set is obeyed as given; otherwise taps are found by their onsets, so
-    // neither ringing nor a next tap within one record length is mistaken for anything else.
-    let triggers = match setup.trigger.holdoff_s {
-        Some(h) => find_triggers(
-            a,
-            level,
-            setup.trigger.slope,
-            (h * fs as f64).round() as usize,
-        ),
-        None => find_strikes(a, level, setup.trigger.slope, fs),
-    };
-    if triggers.is_empty() && !bad.is_empty() {
-        return Err(format!(
-            "no hit found, and {} samples are non-finite (NaN or infinity): the recording is damaged",
-            bad.len()
-        ));
-    }
-    if triggers.is_empty() {
-        return Err(format!(
-            "no hit found: channel A never crossed the trigger level ({:.3} % of full scale, {:?} slope)",
-            level * 100.0,
-            setup.trigger.slope
-        ));
-    }
-
-    let sign = setup.trigger.slope.sign();
-    let q = &setup.quality;
-    // Soft tips give pulses of several ms; 20 ms bounds the search for the peak.
-    let max_pulse = (0.02 * fs as f64) as usize;
-    // Each hammer pulse is located once, in the whole recording; the records and the carry-over
-    // and coupling models all use it.
-    let pulses: Vec<Option<Pulse>> = triggers
-        .iter()
-        .map(|&t| (setup.layout == Layout::Hammer).then(|| find_pulse(a, t, sign, max_pulse)))
-        .collect();
-    let spans: Vec<PulseSpan> = triggers
-        .iter()
-        .zip(&pulses)
-        .map(|(&t, p)| match p {
-            Some(p) => PulseSpan {
-                trigger: t,
-                start: p.start,
-                end: p.end + 1,
-            },
-            None => PulseSpan {
-                trigger: t,
-                start: t.saturating_sub(fs as usize / 1000),
-                end: (t + 3 * fs as usize / 1000).min(a.len()),
-            },
-        })
-        .collect();
+    let triggers = locate_taps(a, fs, setup, level, finite.bad.len())?;
+    let (pulses, spans) = pulse_spans(a, fs, setup, &triggers);
     // Ringing from earlier hits: always on the response; on the reference too when it is an
     // accelerometer (sensor layout).
+    let (pre, n, band) = (rp.pre, rp.n, rp.band_hz);
     let (corr_a, corr_b) = match (setup.remove_carryover, setup.layout) {
         (false, _) => (vec![None; spans.len()], vec![None; spans.len()]),
         (true, Layout::Hammer) => (
             vec![None; spans.len()],
-            carryover::corrections(b, fs, &spans, pre, n, [lo, hi]),
+            carryover::corrections(b, fs, &spans, pre, n, band),
         ),
         (true, Layout::Sensor) => (
-            carryover::corrections(a, fs, &spans, pre, n, [lo, hi]),
-            carryover::corrections(b, fs, &spans, pre, n, [lo, hi]),
+            carryover::corrections(a, fs, &spans, pre, n, band),
+            carryover::corrections(b, fs, &spans, pre, n, band),
         ),
     };
-    let (scale_a, scale_b, tau) = (rp.scale_a, rp.scale_b, rp.tau_s);
-    let ew = &rp.exp_window;
     // Undo the interface's high-pass, which the force window leaves in the response only (see
     // `coupling`); in the sensor layout both channels are responses and it cancels.
+    let sign = setup.trigger.slope.sign();
     let corner_hz = match (setup.layout, setup.ac_coupling) {
         (Layout::Sensor, _) | (_, AcCoupling::None) => None,
         (Layout::Hammer, AcCoupling::CornerHz(f)) => Some(f),
         (Layout::Hammer, AcCoupling::Auto) => coupling::station_corner_hz(a, &spans, fs, sign, 3),
     };
-    let unhp = corner_hz.map(|fc| coupling::inverse_factors(&freq_hz, fc, tau));
-
+    let cutter = HitCutter {
+        a,
+        b,
+        fs,
+        setup,
+        rp: &rp,
+        bad: &finite.bad,
+        spans: &spans,
+        pulses: &pulses,
+        corr_a: &corr_a,
+        corr_b: &corr_b,
+        unhp: corner_hz.map(|fc| coupling::inverse_factors(&rp.freq_hz, fc, rp.tau_s)),
+    };
     let mut hits = Vec::with_capacity(triggers.len());
     let mut nulls: Vec<Option<f64>> = Vec::new();
     let mut cands: Vec<Option<Candidate>> = Vec::with_capacity(triggers.len());
     for (index, &trig) in triggers.iter().enumerate() {
-        let mut rep = HitReport {
-            index,
-            time_s: trig as f64 * dt,
-            record_start: None,
-            reasons: Vec::new(),
-            override_accept: overrides.get(&index).copied(),
-            accepted: false,
-            peak_a_fs: 0.0,
-            peak_b_fs: 0.0,
-            pulse_width_s: None,
-            second_impact_s: None,
-            force_drop_db: None,
-            force_usable_hz: None,
-            residual_fraction: None,
-            ringing_removed: false,
-            force_window: None,
-        };
-        let Some(start) = trig.checked_sub(pre).filter(|s| s + n <= a.len()) else {
-            rep.reasons.push(Reason::Truncated);
-            hits.push(rep);
-            cands.push(None);
-            continue;
-        };
-        rep.record_start = Some(start);
-        // The next tap's pulse, in record indices, when it falls inside this record.
-        let next_in_record = spans
-            .get(index + 1)
-            .map(|nx| nx.start.saturating_sub(start))
-            .filter(|&k| k < n);
-        if next_in_record.is_some() {
-            rep.reasons.push(Reason::NextTapInRecord);
+        let cut = cutter.cut(plan, index, trig, overrides.get(&index).copied());
+        if let Some(null) = cut.first_null_hz {
+            nulls.push(null);
         }
-        let first_bad = bad.partition_point(|&i| i < start);
-        if bad.get(first_bad).is_some_and(|&i| i < start + n) {
-            rep.reasons.push(Reason::Corrupt);
-        }
-        let ra = &a[start..start + n];
-        let rb = &b[start..start + n];
-        // Overload checks see the raw samples; the spectra see the samples with any carried-over
-        // ringing removed.
-        let fix = |raw: &[f64], c: &Option<Vec<f64>>| -> Option<Vec<f64>> {
-            c.as_ref()
-                .map(|c| raw.iter().zip(c).map(|(r, c)| r - c).collect())
-        };
-        let (fa, fb) = (fix(ra, &corr_a[index]), fix(rb, &corr_b[index]));
-        rep.ringing_removed = fa.is_some() || fb.is_some();
-        rep.peak_a_fs = peak_abs(ra);
-        rep.peak_b_fs = peak_abs(rb);
-        if rep.peak_a_fs >= q.overload_fraction
-            || rep.peak_b_fs >= q.overload_fraction
-            || flat_top_at(ra, rep.peak_a_fs)
-            || flat_top_at(rb, rep.peak_b_fs)
-        {
-            rep.reasons.push(Reason::Overload);
-        }
-
-        // Each channel is baseline-removed, scaled to SI units and windowed in one pass, straight
-        // into the FFT's input buffer.
-        let ra_w: &[f64] = fa.as_deref().unwrap_or(ra);
-        let rb_w: &[f64] = fb.as_deref().unwrap_or(rb);
-        let (sa, sb) = match setup.layout {
-            Layout::Hammer => {
-                // The file-level pulse, in record indices (clipped to the record).
-                let fp = pulses[index].expect("hammer layout locates every pulse");
-                let pulse = Pulse {
-                    start: fp.start.max(start) - start,
-                    peak: fp.peak.clamp(start, start + n - 1) - start,
-                    end: fp.end.clamp(start, start + n - 1) - start,
-                    peak_value: fp.peak_value,
-                };
-                let width = pulse.width();
-                rep.pulse_width_s = Some(width as f64 * dt);
-                // A rebound belongs to this tap; the next tap (already its own reason) does not.
-                let strike = &ra[..next_in_record.unwrap_or(n).max(pulse.end + 1).min(n)];
-                if let Some(i2) = second_impact(strike, &pulse, sign, q.double_hit_fraction) {
-                    rep.reasons.push(Reason::DoubleHit);
-                    rep.second_impact_s = Some((i2 - pulse.peak) as f64 * dt);
-                }
-                let lead = width;
-                let wstart = pulse.start.saturating_sub(lead);
-                let unity = setup
-                    .windows
-                    .force_unity_s
-                    .map(|s| (s * fs as f64).round() as usize)
-                    .unwrap_or(4 * width)
-                    .max(1);
-                let taper = setup
-                    .windows
-                    .force_taper_s
-                    .map(|s| (s * fs as f64).round() as usize)
-                    .unwrap_or(width);
-                rep.force_window = Some([wstart, unity, taper]);
-                let (ma, mb) = baseline(ra_w, rb_w, wstart.saturating_sub(taper));
-                let (lo, fw) = force_window(n, wstart, unity, taper);
-                let sa = plan.lines_of(
-                    |x| {
-                        x.fill(0.0);
-                        for (k, w) in fw.iter().enumerate() {
-                            let i = lo + k;
-                            x[i] = (ra_w[i] - ma) * scale_a * w * ew[i];
-                        }
-                    },
-                    dt,
-                    lines.clone(),
-                );
-                let mut sb =
-                    plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, ew), dt, lines.clone());
-                if let Some(u) = &unhp {
-                    sb.iter_mut().zip(u).for_each(|(v, u)| *v *= u);
-                }
-                (sa, sb)
-            }
-            Layout::Sensor => {
-                let (ma, mb) = baseline(ra_w, rb_w, pre.saturating_sub(pre / 10));
-                let sa = plan.lines_of(|x| windowed(x, ra_w, ma, scale_a, ew), dt, lines.clone());
-                let sb = plan.lines_of(|x| windowed(x, rb_w, mb, scale_b, ew), dt, lines.clone());
-                (sa, sb)
-            }
-        };
-        if setup.layout == Layout::Hammer && !rep.reasons.contains(&Reason::DoubleHit) {
-            let shape = force_shape(&sa, &freq_hz, q.rolloff_db);
-            rep.force_drop_db = Some(shape.drop_db);
-            rep.force_usable_hz = Some(shape.usable_hz);
-            nulls.push(shape.first_null_hz);
-        }
-        hits.push(rep);
-        cands.push(Some(Candidate { a: sa, b: sb }));
+        hits.push(cut.report);
+        cands.push(cut.spectra);
     }
 
-    let notes = judge_against_siblings(&mut hits, &cands, setup, &freq_hz);
+    let mut notes = judge_against_siblings(&mut hits, &cands, setup, &rp.freq_hz);
     flag_outliers(&mut hits, &cands, setup);
+    let frf = average_accepted(&mut hits, &cands, setup, &rp.freq_hz);
+    let (usable_band_hz, first_null_hz) = usable_band(&hits, &nulls, band);
+    if !finite.bad.is_empty() {
+        notes.push(format!(
+            "{} samples are not numbers (NaN or infinity); they were read as zero and the hits \
+             whose records hold them are rejected",
+            finite.bad.len()
+        ));
+    }
+    Ok(StationResult {
+        hits,
+        frf,
+        record_samples: n,
+        df_hz: rp.df,
+        exp_tau_s: rp.tau_s,
+        trigger_level_fs: level,
+        ac_corner_hz: corner_hz,
+        usable_band_hz,
+        first_null_hz,
+        notes,
+    })
+}
 
+/// The decisions (a person's override wins) and the average of the accepted hits' spectra.
+fn average_accepted(
+    hits: &mut [HitReport],
+    cands: &[Option<Candidate>],
+    setup: &Setup,
+    freq_hz: &[f64],
+) -> Option<StationFrf> {
     let mut sums = CrossSpectra::new(freq_hz.len());
-    for (rep, c) in hits.iter_mut().zip(&cands) {
+    for (rep, c) in hits.iter_mut().zip(cands) {
         rep.accepted = c.is_some() && rep.override_accept.unwrap_or(rep.reasons.is_empty());
         if rep.accepted
             && let Some(c) = c
@@ -371,38 +211,17 @@ pub fn analyze_station(
             sums.add(&c.a, &c.b);
         }
     }
-    let frf = (sums.count > 0).then(|| {
+    (sums.count > 0).then(|| {
         let (gaa, gbb, gab) = sums.averaged();
         StationFrf {
             h: sums.estimate(setup.estimator),
             coherence: sums.coherence(),
-            freq_hz,
+            freq_hz: freq_hz.to_vec(),
             gaa,
             gbb,
             gab,
             hits_averaged: sums.count,
         }
-    });
-    let (usable_band_hz, first_null_hz) = usable_band(&hits, &nulls, [lo, hi]);
-    let mut notes = notes;
-    if !bad.is_empty() {
-        notes.push(format!(
-            "{} samples are not numbers (NaN or infinity); they were read as zero and the hits \
-             whose records hold them are rejected",
-            bad.len()
-        ));
-    }
-    Ok(StationResult {
-        hits,
-        frf,
-        record_samples: n,
-        df_hz: df,
-        exp_tau_s: tau,
-        trigger_level_fs: level,
-        ac_corner_hz: corner_hz,
-        usable_band_hz,
-        first_null_hz,
-        notes,
     })
 }
 
@@ -485,69 +304,6 @@ pub fn hit_traces(
         spectrum_freq_hz: rp.freq_hz,
         spectrum_a_db,
     })
-}
-
-/// `out = (raw − mean) · scale · w`.
-fn windowed(out: &mut [f64], raw: &[f64], mean: f64, scale: f64, w: &[f64]) {
-    for ((o, r), w) in out.iter_mut().zip(raw).zip(w) {
-        *o = (r - mean) * scale * w;
-    }
-}
-
-fn baseline(ra: &[f64], rb: &[f64], end: usize) -> (f64, f64) {
-    if end < 8 {
-        return (0.0, 0.0);
-    }
-    let m = |x: &[f64]| x[..end].iter().sum::<f64>() / end as f64;
-    (m(ra), m(rb))
-}
-
-/// What a hit's force spectrum says about the tip and the band.
-struct ForceShape {
-    drop_db: f64,
-    usable_hz: f64,
-    first_null_hz: Option<f64>,
-}
-
-/// The force spectrum's in-band drop, the highest line still within `rolloff_db` of its largest
-/// value, and the first null after that (a minimum 30 dB or more below the largest value with the
-/// spectrum rising again after it: a half-sine's first null lies at 1.5/Tc, derived).
-fn force_shape(sa: &[Complex64], freq_hz: &[f64], rolloff_db: f64) -> ForceShape {
-    let p: Vec<f64> = sa.iter().map(|c| c.norm_sqr()).collect();
-    let (mx, mn) = p.iter().fold((0.0f64, f64::INFINITY), |(mx, mn), &v| {
-        (mx.max(v), mn.min(v))
-    });
-    let drop_db = if mn > 0.0 && mx > 0.0 {
-        10.0 * (mx / mn).log10()
-    } else {
-        f64::INFINITY
-    };
-    let limit = mx * 10f64.powf(-rolloff_db / 10.0);
-    let last = freq_hz.len().saturating_sub(1);
-    let edge = p.iter().position(|&v| v < limit).unwrap_or(last + 1);
-    let usable_hz = if edge > last {
-        f64::INFINITY
-    } else {
-        freq_hz[edge.saturating_sub(1)]
-    };
-    let mut first_null_hz = None;
-    if edge <= last {
-        // Follow the fall to its bottom; it is a null when the spectrum climbs back after it.
-        let mut k = edge;
-        while k < last && p[k + 1] <= p[k] {
-            k += 1;
-        }
-        let deep = p[k] < mx * 1e-3;
-        let rises = p[k..].iter().any(|&v| v > 10.0 * p[k]);
-        if deep && rises {
-            first_null_hz = Some(freq_hz[k]);
-        }
-    }
-    ForceShape {
-        drop_db,
-        usable_hz,
-        first_null_hz,
-    }
 }
 
 /// A soft strike or a weak one is a fault of that hit only when its siblings did better; when every
