@@ -130,11 +130,55 @@ impl TapgridApp {
                 self.request_fit();
             }
             Command::SetFitBand(b) => {
+                let mut kept = None;
                 if let Some(d) = &mut self.doc {
+                    // A person's choice survives a band change for the modes still inside it.
+                    let chosen: Option<Vec<f64>> = match (&d.picked, &d.modal_settings.selection) {
+                        (Some(p), _) => d.modal.as_ref().and_then(|m| {
+                            let st = m.stabilization.as_ref()?;
+                            Some(
+                                p.iter()
+                                    .filter_map(|&i| st.poles.get(i).map(|x| x.frequency_hz))
+                                    .collect(),
+                            )
+                        }),
+                        (None, Selection::Near(list)) => Some(list.clone()),
+                        _ => None,
+                    };
                     d.modal_settings.band_hz = b;
-                    d.modal_settings.selection = Selection::Auto;
                     d.picked = None;
+                    d.modal_settings.selection = match chosen {
+                        Some(list) => {
+                            let inside: Vec<f64> = list
+                                .iter()
+                                .copied()
+                                .filter(|f| b.is_none_or(|[lo, hi]| *f >= lo && *f <= hi))
+                                .collect();
+                            kept = Some((inside.len(), list.len() - inside.len()));
+                            if inside.is_empty() {
+                                Selection::Auto
+                            } else {
+                                Selection::Near(inside)
+                            }
+                        }
+                        None => Selection::Auto,
+                    };
                     d.dirty = true;
+                }
+                if let Some((n, dropped)) = kept {
+                    let text = if n == 0 {
+                        "none of your chosen modes is inside the new band: back to the automatic \
+                         choice"
+                            .to_string()
+                    } else if dropped > 0 {
+                        format!(
+                            "kept your {n} chosen modes inside the new band; {dropped} outside it \
+                             dropped"
+                        )
+                    } else {
+                        format!("kept your {n} chosen modes")
+                    };
+                    self.note(text, false);
                 }
                 self.request_fit();
             }
@@ -234,6 +278,7 @@ impl TapgridApp {
             );
             return;
         };
+        let mut caution = None;
         let mut picked = d
             .picked
             .clone()
@@ -244,12 +289,43 @@ impl TapgridApp {
         {
             picked.remove(k);
         } else if let Some(p) = fit_view::best_pole_near(stab, f, tol) {
+            use crate::estimate::lscf::PoleStatus;
+            let pole = &stab.poles[p];
+            match pole.status {
+                PoleStatus::New => {
+                    self.note(
+                        format!(
+                            "no stable pole within {tol:.1} Hz of {f:.1} Hz: nothing taken (a mode \
+                             shows as a column of poles repeating over the orders)"
+                        ),
+                        true,
+                    );
+                    return;
+                }
+                PoleStatus::Frequency | PoleStatus::FrequencyDamping => caution = Some((
+                    format!(
+                        "took the pole at {:.1} Hz, which is not fully stable (its {} changes \
+                         between orders): check its shape and the synthesized FRF",
+                        pole.frequency_hz,
+                        if pole.status == PoleStatus::Frequency {
+                            "damping and shape"
+                        } else {
+                            "shape"
+                        }
+                    ),
+                    false,
+                )),
+                PoleStatus::FrequencyDampingShape => {}
+            }
             picked.push(p);
         } else {
             self.note(format!("no pole within {tol:.1} Hz of {f:.1} Hz"), true);
             return;
         }
         d.picked = Some(picked);
+        if let Some((text, error)) = caution {
+            self.note(text, error);
+        }
         self.request_fit();
     }
 

@@ -3,10 +3,10 @@
 //! coherence; undo, redo, auto-advance.
 
 use eframe::egui::{self, Color32, RichText, Sense, Stroke, vec2};
-use egui_plot::{Line, Plot};
+use egui_plot::Line;
 
 use super::capture_thread::{self, Control, Report};
-use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
+use super::plots::{self, accent, bad, good, idle, warn};
 use super::{Command, TapgridApp, ViewCtx, station_map};
 use crate::acquire::live::DeviceInfo;
 use crate::acquire::source::Health;
@@ -211,11 +211,11 @@ fn meter(ui: &mut egui::Ui, label: &str, level: f32, hold: f32, over: bool) {
             rect.left() + ((db + 60.0) / 60.0).clamp(0.0, 1.0) * rect.width()
         };
         let color = if level > 0.9 {
-            BAD
+            bad()
         } else if level > 0.5 {
-            WARN
+            warn()
         } else {
-            GOOD
+            good()
         };
         p.rect_filled(
             egui::Rect::from_min_max(rect.min, egui::pos2(x(level), rect.bottom())),
@@ -233,11 +233,11 @@ fn meter(ui: &mut egui::Ui, label: &str, level: f32, hold: f32, over: bool) {
         ui.painter().circle_filled(
             lamp.center(),
             9.0,
-            if over { BAD } else { IDLE.gamma_multiply(0.4) },
+            if over { bad() } else { idle().gamma_multiply(0.4) },
         );
         ui.label(format!("{:5.1} dBFS", 20.0 * level.max(1e-6).log10()));
         if over {
-            ui.label(RichText::new("OVERLOAD").color(BAD).strong());
+            ui.label(RichText::new("OVERLOAD").color(bad()).strong());
         }
     });
 }
@@ -284,7 +284,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 }
             });
             if let Some(Err(e)) = &app.capture.devices {
-                ui.label(RichText::new(e).color(BAD));
+                ui.label(RichText::new(e).color(bad()));
             }
             let writable = app
                 .doc
@@ -374,7 +374,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     let order = capture_thread::parse_order(&app.settings.station_order);
                     if order.is_none() && !app.settings.station_order.trim().is_empty() {
                         ui.label("");
-                        ui.label(RichText::new("cannot read the order").color(BAD));
+                        ui.label(RichText::new("cannot read the order").color(bad()));
                         ui.end_row();
                     }
                     if (a.changed() || b.changed() || o.changed()) && running {
@@ -419,7 +419,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             });
             let hl = app.capture.health;
             let c = if hl.overrun_frames + hl.stream_errors > 0 {
-                BAD
+                bad()
             } else {
                 ui.visuals().text_color()
             };
@@ -433,7 +433,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             ui.separator();
             ui.label(
                 RichText::new("Before tapping: machine stopped and locked out, eye protection on.")
-                    .color(WARN),
+                    .color(warn()),
             );
         });
     egui::CentralPanel::default().show(ui, |ui| {
@@ -441,16 +441,16 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             ui.label(
                 RichText::new(m)
                     .size(26.0)
-                    .color(if *err { BAD } else { ACCENT }),
+                    .color(if *err { bad() } else { accent() }),
             );
         } else if !running {
             ui.label(RichText::new("Not capturing. Choose an input and start.").size(24.0));
         }
         if let Some(h) = &app.capture.last_hit {
             let (word, color) = if h.accepted {
-                ("KEPT", GOOD)
+                ("KEPT", good())
             } else {
-                ("REJECTED", BAD)
+                ("REJECTED", bad())
             };
             ui.label(
                 RichText::new(format!("Station {} hit {}: {word}", h.station, h.index + 1))
@@ -459,7 +459,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     .color(color),
             );
             for r in &h.reasons {
-                ui.label(RichText::new(r.sentence()).size(22.0).color(WARN));
+                ui.label(RichText::new(r.sentence()).size(22.0).color(warn()));
             }
             ui.label(format!(
                 "{} kept on this station · saved in {} · verdict {:.0} ms after the record ended",
@@ -487,14 +487,14 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 .zip(&frf.coherence)
                 .map(|(f, g)| [*f, *g])
                 .collect();
-            Plot::new("capture-mag")
+            plots::plot("capture-mag")
                 .height(h_each)
                 .link_axis(link, [true, false])
                 .y_axis_min_width(56.0)
                 .x_axis_label("frequency (Hz)")
                 .y_axis_label("running FRF (dB re 1 (m/s²)/N)")
-                .show(ui, |p| p.line(Line::new("running FRF", mag).color(ACCENT)));
-            Plot::new("capture-coh")
+                .show(ui, |p| p.line(Line::new("running FRF", mag).color(accent())));
+            plots::plot("capture-coh")
                 .height(h_each)
                 .link_axis(link, [true, false])
                 .y_axis_min_width(56.0)

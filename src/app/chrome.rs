@@ -101,7 +101,7 @@ impl TapgridApp {
             if let Some(m) = self.messages.last() {
                 ui.separator();
                 let color = if m.error {
-                    plots::BAD
+                    plots::bad()
                 } else {
                     ui.visuals().text_color()
                 };

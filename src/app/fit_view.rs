@@ -2,9 +2,9 @@
 //! or drops that mode; the fit band's edges drag; the stable columns are also listed as buttons.
 
 use eframe::egui::{self, RichText};
-use egui_plot::{Line, MarkerShape, Plot, Points, Span, VLine};
+use egui_plot::{Line, MarkerShape, Points, Span, VLine};
 
-use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
+use super::plots::{self, accent, bad, good, idle, warn};
 use super::{Command, ViewCtx};
 use crate::estimate::lscf::{PoleStatus, Stabilization};
 use crate::modal::ModalResult;
@@ -68,23 +68,89 @@ pub fn stable_columns(stab: &Stabilization, min_orders: usize) -> Vec<(f64, usiz
 
 fn marker(s: PoleStatus) -> (MarkerShape, egui::Color32, f32, &'static str) {
     match s {
-        PoleStatus::New => (MarkerShape::Circle, IDLE, 1.5, "new pole"),
-        PoleStatus::Frequency => (
-            MarkerShape::Square,
-            WARN.gamma_multiply(0.8),
-            2.0,
-            "frequency stable",
-        ),
-        PoleStatus::FrequencyDamping => (
-            MarkerShape::Diamond,
-            ACCENT,
-            3.0,
-            "frequency and damping stable",
-        ),
-        PoleStatus::FrequencyDampingShape => {
-            (MarkerShape::Plus, GOOD, 5.0, "fully stable (f, ζ, shape)")
+        PoleStatus::New => (MarkerShape::Circle, idle(), 1.5, "new"),
+        PoleStatus::Frequency => (MarkerShape::Square, warn(), 2.5, "f stable"),
+        PoleStatus::FrequencyDamping => (MarkerShape::Diamond, accent(), 3.5, "f, ζ stable"),
+        PoleStatus::FrequencyDampingShape => (MarkerShape::Plus, good(), 5.5, "f, ζ, shape stable"),
+    }
+}
+
+/// Colour of the scaled mode indicator behind the poles: the text colour, faint.
+fn indicator_colour(ui: &egui::Ui) -> egui::Color32 {
+    ui.visuals().text_color().gamma_multiply(0.45)
+}
+
+/// Paints one marker glyph as the plot draws it (the toolkit's legend draws every glyph as a
+/// circle).
+fn glyph(p: &egui::Painter, c: egui::Pos2, shape: MarkerShape, color: egui::Color32, r: f32) {
+    use egui::{Stroke, pos2, vec2};
+    let r = r.max(3.0);
+    match shape {
+        MarkerShape::Circle => {
+            p.circle_filled(c, r, color);
+        }
+        MarkerShape::Square => {
+            p.rect_filled(egui::Rect::from_center_size(c, vec2(2.0 * r, 2.0 * r) * 0.9), 0.0, color);
+        }
+        MarkerShape::Diamond => {
+            let pts = vec![
+                pos2(c.x, c.y - r),
+                pos2(c.x + r, c.y),
+                pos2(c.x, c.y + r),
+                pos2(c.x - r, c.y),
+            ];
+            p.add(egui::Shape::convex_polygon(pts, color, Stroke::NONE));
+        }
+        _ => {
+            let s = Stroke::new(2.0, color);
+            p.line_segment([pos2(c.x - r, c.y), pos2(c.x + r, c.y)], s);
+            p.line_segment([pos2(c.x, c.y - r), pos2(c.x, c.y + r)], s);
         }
     }
+}
+
+/// The diagram's key, above the plot so it hides no pole: the exact glyphs, what each status
+/// means with the tolerances in force, the indicator, the taken modes and the band.
+fn key(ui: &mut egui::Ui, c: &crate::estimate::lscf::StabilityCriteria) {
+    ui.horizontal_wrapped(|ui| {
+        ui.label(RichText::new("Key:").strong());
+        for s in [
+            PoleStatus::New,
+            PoleStatus::Frequency,
+            PoleStatus::FrequencyDamping,
+            PoleStatus::FrequencyDampingShape,
+        ] {
+            let (shape, color, radius, name) = marker(s);
+            let (r, p) = ui.allocate_painter(egui::vec2(14.0, 14.0), egui::Sense::hover());
+            glyph(&p, r.rect.center(), shape, color, radius);
+            ui.label(name);
+        }
+        ui.label(
+            RichText::new(format!(
+                "(against the next lower order: f within {:.1} %, ζ within {:.0} %, shape MAC ≥ {:.2})",
+                c.frequency * 100.0,
+                c.damping * 100.0,
+                c.mac
+            ))
+            .small(),
+        );
+        let (r, p) = ui.allocate_painter(egui::vec2(22.0, 14.0), egui::Sense::hover());
+        let ic = indicator_colour(ui);
+        p.line_segment(
+            [r.rect.left_center(), r.rect.right_center()],
+            egui::Stroke::new(1.5, ic),
+        );
+        ui.label("mode indicator");
+        let (r, p) = ui.allocate_painter(egui::vec2(10.0, 16.0), egui::Sense::hover());
+        p.line_segment(
+            [r.rect.center_top(), r.rect.center_bottom()],
+            egui::Stroke::new(2.0, bad()),
+        );
+        ui.label("taken as a mode");
+        let (r, p) = ui.allocate_painter(egui::vec2(18.0, 14.0), egui::Sense::hover());
+        p.rect_filled(r.rect, 0.0, accent().gamma_multiply(0.15));
+        ui.label("fit band");
+    });
 }
 
 /// Draws the view.
@@ -211,8 +277,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         groups[p.status as usize].push([p.frequency_hz, p.order as f64]);
     }
     let live_band = app.ui.fit_band_edit.unwrap_or(band);
+    key(ui, &doc.modal_settings.criteria);
+    let ic = indicator_colour(ui);
     let h = (ui.available_height() - 90.0).max(200.0);
-    let r = Plot::new("stabilization")
+    let r = plots::plot("stabilization")
         .height(h)
         .allow_drag(false)
         .allow_double_click_reset(true)
@@ -220,9 +288,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         .y_axis_label("model order")
         .include_y(0.0)
         .include_y(max_order + 1.0)
-        .legend(egui_plot::Legend::default().position(egui_plot::Corner::LeftTop))
         .show(ui, |p| {
-            p.line(Line::new("mode indicator (scaled)", scaled).color(IDLE));
+            p.line(Line::new("mode indicator (scaled)", scaled).color(ic));
             let statuses = [
                 PoleStatus::New,
                 PoleStatus::Frequency,
@@ -238,13 +305,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                         .radius(radius),
                 );
             }
-            for (k, f) in picked_f.iter().enumerate() {
-                let _ = k;
-                p.vline(VLine::new("taken as a mode", *f).color(BAD).width(1.5));
+            for f in &picked_f {
+                p.vline(VLine::new("taken as a mode", *f).color(bad()).width(1.5));
             }
             p.span(
-                Span::new("fit band", live_band[0]..=live_band[1])
-                    .fill(ACCENT.gamma_multiply(0.06))
+                Span::new("", live_band[0]..=live_band[1])
+                    .fill(accent().gamma_multiply(0.15))
                     .border_style(egui_plot::LineStyle::dashed_loose()),
             );
         });
@@ -255,8 +321,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     if let Some(pos) = resp.interact_pointer_pos().or(resp.hover_pos()) {
         let x = tr.value_from_position(pos).x;
         let px_per_hz = tr.dpos_dvalue_x().abs().max(1e-12);
-        let near = |e: f64| ((e - x) * px_per_hz).abs() < 8.0;
         if resp.drag_started() {
+            // Judged where the button went down: a fast drag has left the edge by the time the
+            // toolkit calls it a drag.
+            let x = ui
+                .input(|i| i.pointer.press_origin())
+                .map_or(x, |o| tr.value_from_position(o).x);
+            let near = |e: f64| ((e - x) * px_per_hz).abs() < 10.0;
             let edge = if near(live_band[0]) {
                 Some(0usize)
             } else if near(live_band[1]) {
@@ -299,8 +370,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             } else {
                 format!("take {f:.1} Hz")
             };
+            let button = if taken {
+                egui::Button::new(RichText::new(text).color(egui::Color32::WHITE)).fill(good())
+            } else {
+                egui::Button::new(text)
+            };
             if ui
-                .add(egui::Button::selectable(taken, text))
+                .add(button)
                 .on_hover_text(format!("{n} fully stable poles in this column"))
                 .clicked()
             {

@@ -4,7 +4,7 @@
 use eframe::egui::{self, RichText};
 use egui_plot::{Line, Plot, VLine};
 
-use super::plots::{self, ACCENT, FreqAxis, WARN};
+use super::plots::{self, accent, FreqAxis, warn};
 use super::{ViewCtx, station_map};
 use crate::setup::Layout;
 
@@ -31,6 +31,26 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     };
     let axis = FreqAxis {
         log: app.settings.log_frequency,
+    };
+    // Each shown station's colour, for the key beside its checkbox.
+    let colour_of = |app: &ViewCtx, s: u32| -> Option<egui::Color32> {
+        let current = app.ui.current_station;
+        let mut n = 0;
+        for &x in &frfs.stations {
+            let on = app.settings.overlay_all || current == Some(x) || app.ui.overlay.contains(&x);
+            if !on {
+                continue;
+            }
+            if x == s {
+                return Some(if current == Some(x) {
+                    accent()
+                } else {
+                    plots::trace_color(n)
+                });
+            }
+            n += 1;
+        }
+        None
     };
     egui::Panel::left("frf-options")
         .default_size(230.0)
@@ -63,7 +83,27 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 .show(ui, |ui| {
                     for &s in &frfs.stations {
                         let mut on = app.ui.overlay.contains(&s);
-                        if ui.checkbox(&mut on, format!("station {s}")).changed() {
+                        let key = colour_of(app, s);
+                        let changed = ui
+                            .horizontal(|ui| {
+                                let (r, p) =
+                                    ui.allocate_painter(egui::vec2(18.0, 4.0), egui::Sense::hover());
+                                if let Some(c) = key {
+                                    p.line_segment(
+                                        [r.rect.left_center(), r.rect.right_center()],
+                                        egui::Stroke::new(3.0, c),
+                                    );
+                                }
+                                let current = app.ui.current_station == Some(s);
+                                let text = if current {
+                                    format!("station {s} (current)")
+                                } else {
+                                    format!("station {s}")
+                                };
+                                ui.checkbox(&mut on, text).changed()
+                            })
+                            .inner;
+                        if changed {
                             if on {
                                 app.ui.overlay.insert(s);
                             } else {
@@ -90,26 +130,49 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         let h_each = ((ui.available_height() - 10.0 * n_plots) / n_plots).max(110.0);
         let link = egui::Id::unique("frf-x");
         let f = &frfs.freq_hz;
-        let readout = move |name: &str, x: f64, y: f64, yunit: &str| {
+        // The read-out names the curve and gives its value at the nearest line, not the
+        // cursor's height.
+        let cur_i = current.and_then(|s| frfs.stations.iter().position(|&x| x == s));
+        let nearest = move |x: f64| {
             let fx = axis.f(x);
-            if name.is_empty() {
-                format!("{fx:.1} Hz\n{y:.2} {yunit}")
+            let k = f.partition_point(|&v| v < fx).min(f.len().saturating_sub(1));
+            if k > 0 && (f[k - 1] - fx).abs() < (f[k] - fx).abs() {
+                k - 1
             } else {
-                format!("{name}\n{fx:.1} Hz\n{y:.2} {yunit}")
+                k
             }
         };
-        let label = |yunit: &'static str| {
+        let frfs_ref: &crate::modal::FrfSet = &frfs;
+        let label = |yunit: &'static str, value: &'static str| {
+            let frfs = frfs_ref;
+            let (h, coh) = (&frfs.h, &frfs.coherence);
             move |p: &egui_plot::HoverPosition<'_>| -> Option<String> {
-                Some(match p {
+                let (name, x) = match p {
                     egui_plot::HoverPosition::NearDataPoint {
                         plot_name,
                         position,
                         ..
-                    } => readout(plot_name, position.x, position.y, yunit),
-                    egui_plot::HoverPosition::Elsewhere { position } => {
-                        readout("", position.x, position.y, yunit)
-                    }
-                })
+                    } => (plot_name.to_string(), position.x),
+                    egui_plot::HoverPosition::Elsewhere { position } => (String::new(), position.x),
+                };
+                let i = frfs
+                    .stations
+                    .iter()
+                    .position(|s| name == format!("station {s}"))
+                    .or(cur_i)?;
+                if f.is_empty() {
+                    return None;
+                }
+                let k = nearest(x);
+                let y = match value {
+                    "mag" => plots::db(h[i][k].norm()),
+                    "phase" => h[i][k].arg().to_degrees(),
+                    _ => coh[i][k],
+                };
+                Some(format!(
+                    "station {}\n{:.1} Hz\n{y:.2} {yunit}",
+                    frfs.stations[i], f[k]
+                ))
             }
         };
         let usable_edge = current
@@ -128,7 +191,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 for (k, md) in m.modes.iter().enumerate() {
                     p.vline(
                         VLine::new(format!("mode {}", k + 1), axis.x(md.measured_frequency_hz))
-                            .color(WARN.gamma_multiply(0.6)),
+                            .color(warn().gamma_multiply(0.6)),
                     );
                 }
             }
@@ -138,7 +201,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             .enumerate()
             .map(|(n, &i)| {
                 let c = if current == Some(frfs.stations[i]) {
-                    ACCENT
+                    accent()
                 } else {
                     plots::trace_color(n)
                 };
@@ -159,29 +222,29 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         let coherence = |i: usize, k: usize| coh[i][k];
         let mut panes: Vec<Pane<'_>> = vec![(
             "frf-mag",
-            axis.configure(Plot::new("frf-mag"))
-                .y_axis_label(format!("{quantity} ({unit})"))
-                .label_formatter(label(unit)),
+            axis.configure(plots::plot("frf-mag"))
+                .y_axis_label(format!("{quantity}\n{unit}"))
+                .label_formatter(label(unit, "mag")),
             &mag,
         )];
         if app.settings.show_phase {
             panes.push((
                 "frf-phase",
-                axis.configure(Plot::new("frf-phase"))
+                axis.configure(plots::plot("frf-phase"))
                     .include_y(-180.0)
                     .include_y(180.0)
-                    .y_axis_label("phase (degrees)")
-                    .label_formatter(label("°")),
+                    .y_axis_label("phase\ndegrees")
+                    .label_formatter(label("°", "phase")),
                 &phase,
             ));
         }
         panes.push((
             "frf-coh",
-            axis.configure(Plot::new("frf-coh"))
+            axis.configure(plots::plot("frf-coh"))
                 .include_y(0.0)
                 .include_y(1.05)
-                .y_axis_label("coherence γ² (0…1)")
-                .label_formatter(label("")),
+                .y_axis_label("coherence\nγ² (0…1)")
+                .label_formatter(label("", "coherence")),
             &coherence,
         ));
         for (name, plot, value) in panes {
@@ -232,15 +295,23 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             .ui
             .plot_scratch
             .reduced(f, |k| vals[k], axis, b, columns);
-        axis.configure(Plot::new(id))
+        axis.configure(plots::plot(id))
             .height(h_each)
             .link_axis(link, [true, false])
             .link_cursor(link, [true, false])
-            .y_axis_label(format!("mode indicator ({yunit})"))
+            .y_axis_label(format!("mode indicator\n{yunit}"))
             .y_axis_min_width(56.0)
-            .label_formatter(label(yunit))
+            .label_formatter(|p| {
+                let x = match p {
+                    egui_plot::HoverPosition::NearDataPoint { position, .. }
+                    | egui_plot::HoverPosition::Elsewhere { position } => position.x,
+                };
+                let k = nearest(x);
+                let v = vals.get(k)?;
+                Some(format!("{name}\n{:.1} Hz\n{v:.2} {yunit}", f[k]))
+            })
             .show(ui, |p| {
-                p.line(Line::new(name, pts).color(ACCENT));
+                p.line(Line::new(name, pts).color(accent()));
                 if let Some(m) = &modal {
                     for (k, md) in m.modes.iter().enumerate() {
                         p.vline(
@@ -248,7 +319,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                                 format!("mode {} — {:.1} Hz", k + 1, md.frequency_hz),
                                 axis.x(md.measured_frequency_hz),
                             )
-                            .color(WARN),
+                            .color(warn()),
                         );
                     }
                 }

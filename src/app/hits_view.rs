@@ -2,9 +2,9 @@
 //! verdict in words, the person's override and the force spectrum against the roll-off limit.
 
 use eframe::egui::{self, RichText};
-use egui_plot::{HLine, Line, LineStyle, Plot, VLine};
+use egui_plot::{HLine, Line, LineStyle, VLine};
 
-use super::plots::{self, ACCENT, BAD, GOOD, WARN};
+use super::plots::{self, accent, bad, good, warn};
 use super::{Command, ViewCtx, station_map};
 use crate::setup::Layout;
 
@@ -41,9 +41,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             ));
             for h in &hits {
                 let (word, color) = if h.accepted {
-                    ("kept", GOOD)
+                    ("kept", good())
                 } else {
-                    ("rejected", BAD)
+                    ("rejected", bad())
                 };
                 let by = if h.override_accept.is_some() {
                     " (by you)"
@@ -66,17 +66,17 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             ui.separator();
             if let Some(h) = hits.get(hi) {
                 let (big, color) = match (h.accepted, h.override_accept) {
-                    (true, Some(true)) => ("KEPT by you", GOOD),
-                    (true, _) => ("KEPT", GOOD),
-                    (false, Some(false)) => ("REJECTED by you", BAD),
-                    (false, _) => ("REJECTED", BAD),
+                    (true, Some(true)) => ("KEPT by you", good()),
+                    (true, _) => ("KEPT", good()),
+                    (false, Some(false)) => ("REJECTED by you", bad()),
+                    (false, _) => ("REJECTED", bad()),
                 };
                 ui.label(RichText::new(big).size(34.0).strong().color(color));
                 if h.reasons.is_empty() {
                     ui.label("No problem found.");
                 }
                 for r in &h.reasons {
-                    ui.label(RichText::new(r.sentence()).size(17.0).color(WARN));
+                    ui.label(RichText::new(r.sentence()).size(17.0).color(warn()));
                     if *r == crate::signal::Reason::Overload {
                         // Which channel: the one at full scale, else the one clipped flat.
                         let limit = doc.setup.quality.overload_fraction;
@@ -97,7 +97,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                         } else {
                             format!("{}.", which.join("; "))
                         };
-                        ui.label(RichText::new(text).color(WARN));
+                        ui.label(RichText::new(text).color(warn()));
                     }
                 }
                 match h.override_accept {
@@ -215,8 +215,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 .ui
                 .plot_scratch
                 .reduced_time(&t.time_s, &wy, bounds, columns);
-            let mut plot = Plot::new(pid)
+            let mut plot = plots::plot(pid)
                 .height(h_each)
+                .legend(
+                    egui_plot::Legend::default()
+                        .position(egui_plot::Corner::RightTop)
+                        .background_alpha(0.85),
+                )
                 .y_axis_min_width(56.0)
                 .x_axis_label(if x_range.is_some() {
                     "time from trigger (s) — zoomed on the force window; double-click resets"
@@ -231,17 +236,26 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             };
             let t_start = t.time_s[0];
             let r = plot.show(ui, |p| {
+                // Labelled at the foot of the shading: at its head the label sat on the window line.
                 p.span(
                     egui_plot::Span::new("pretrigger", t_start..=0.0)
-                        .fill(plots::IDLE.gamma_multiply(0.12)),
+                        .fill(plots::idle().gamma_multiply(0.12))
+                        .label_align(egui::Align2::LEFT_BOTTOM),
                 );
-                p.line(Line::new(name, pts).color(ACCENT));
+                p.line(Line::new(name, pts).color(accent()));
                 p.line(
-                    Line::new("window (scaled to peak)", wpts)
-                        .color(WARN)
+                    Line::new(
+                        if name == "channel A" && layout == Layout::Hammer {
+                            "force × exponential window (dashed, scaled to the peak)"
+                        } else {
+                            "exponential window (dashed, scaled to the peak)"
+                        },
+                        wpts,
+                    )
+                        .color(warn())
                         .style(LineStyle::dashed_loose()),
                 );
-                p.vline(VLine::new("trigger", 0.0).color(GOOD));
+                p.vline(VLine::new("trigger", 0.0).color(good()));
             });
             plots::keep_bounds(ui.ctx(), pid, *r.transform.bounds());
         }
@@ -255,22 +269,27 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             Layout::Hammer => "force spectrum (dB re its largest line)",
             Layout::Sensor => "reference spectrum (dB re its largest line)",
         };
-        Plot::new("hit-spectrum")
+        plots::plot("hit-spectrum")
             .height(h_each)
+            .legend(
+                egui_plot::Legend::default()
+                    .position(egui_plot::Corner::LeftBottom)
+                    .background_alpha(0.85),
+            )
             .x_axis_label("frequency (Hz)")
             .y_axis_label(title)
             .include_y(0.0)
             .include_y(-rolloff - 10.0)
             .show(ui, |p| {
-                p.line(Line::new("windowed channel A", fpts).color(ACCENT));
+                p.line(Line::new("windowed channel A", fpts).color(accent()));
                 if layout == Layout::Hammer {
                     p.hline(
-                        HLine::new(format!("roll-off limit −{rolloff:.0} dB"), -rolloff).color(BAD),
+                        HLine::new(format!("roll-off limit −{rolloff:.0} dB"), -rolloff).color(bad()),
                     );
                 }
                 if let Some([lo, hi]) = band {
-                    p.vline(VLine::new("band", lo).color(plots::IDLE));
-                    p.vline(VLine::new("band", hi).color(plots::IDLE));
+                    p.vline(VLine::new("analysis band", lo).color(plots::idle()));
+                    p.vline(VLine::new("analysis band", hi).color(plots::idle()));
                 }
             });
     });

@@ -3,11 +3,11 @@
 //! overlaid, the critical speeds at nominal stiffness, and the separation-margin check.
 
 use eframe::egui::{self, RichText};
-use egui_plot::{Axis, GridMark, Line, MarkerShape, Plot, Points, Span, VLine};
+use egui_plot::{Axis, GridMark, Line, MarkerShape, Points, Span, VLine};
 
 use super::help::CAUTIONS;
 use super::model_edit;
-use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
+use super::plots::{self, accent, bad, good, idle, warn};
 use super::{Command, ViewCtx};
 use crate::model::margin::Side;
 use crate::model::study::{ResonanceSource, Study, StudyResult};
@@ -82,13 +82,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     let error = doc.study_error.clone();
     egui::CentralPanel::default().show(ui, |ui| {
         if let Some(e) = &error {
-            ui.label(RichText::new(format!("The model cannot be solved: {e}")).color(BAD));
+            ui.label(RichText::new(format!("The model cannot be solved: {e}")).color(bad()));
         }
         let Some(r) = result else {
             ui.label("Solving the shaft model…");
             return;
         };
-        ui.label(RichText::new(MAP_NOTE).color(WARN));
+        ui.label(RichText::new(MAP_NOTE).color(warn()));
         let h = (ui.available_height() * 0.55).max(240.0);
         map_plot(ui, &study, &r, h);
         ui.separator();
@@ -99,7 +99,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 ui.add_space(6.0);
                 margin_table(ui, &study, &r);
                 ui.add_space(6.0);
-                ui.label(RichText::new(MARGIN_NOTE).color(WARN));
+                ui.label(RichText::new(MARGIN_NOTE).color(warn()));
                 for c in CAUTIONS.iter().skip(3) {
                     ui.label(RichText::new(format!("• {c}")).small());
                 }
@@ -146,7 +146,7 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
         .map(|c| c.modes.iter().map(|m| m.frequency_hz * 60.0).collect())
         .unwrap_or_default();
     let ui_text = ui.visuals().strong_text_color();
-    Plot::new("stiffness-map")
+    plots::plot("stiffness-map")
         .height(height)
         .x_axis_label("support stiffness (N/m, log scale)")
         .y_axis_label("critical speed = 60 × natural frequency (rpm, log scale)")
@@ -164,7 +164,7 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
                 for (n, &k) in study.orders.iter().enumerate() {
                     // The orders fade with their number; all share the warning hue so they never
                     // read as one of the mode lines.
-                    let c = BAD.gamma_multiply(1.0 / (n as f32 + 1.0));
+                    let c = bad().gamma_multiply(1.0 / (n as f32 + 1.0));
                     p.span(
                         Span::new(
                             format!("{k}× running speed"),
@@ -181,8 +181,8 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
                 p.span(
                     Span::new("bearing stiffness band", lo.log10()..=hi.log10())
                         .axis(Axis::X)
-                        .fill(ACCENT.gamma_multiply(0.2))
-                        .border_color(ACCENT),
+                        .fill(accent().gamma_multiply(0.2))
+                        .border_color(accent()),
                 );
             }
             for (i, row) in map.frequencies_hz.iter().enumerate() {
@@ -201,7 +201,7 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
             if let Some(&k) = nominal.first().filter(|k| **k > 0.0) {
                 p.vline(
                     VLine::new("nominal stiffness", k.log10())
-                        .color(IDLE)
+                        .color(idle())
                         .style(egui_plot::LineStyle::dashed_loose()),
                 );
                 if map.bearings && !service_rpm.is_empty() {
@@ -286,7 +286,7 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
                 "All {} resonance–order lines clear the rule.",
                 r.margins.len()
             ))
-            .color(GOOD),
+            .color(good()),
         );
     } else {
         let worst = close
@@ -301,7 +301,7 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
                 close.len(),
                 r.margins.len()
             ))
-            .color(BAD)
+            .color(bad())
             .strong(),
         );
     }
@@ -353,9 +353,9 @@ fn margin_table(ui: &mut egui::Ui, study: &Study, r: &StudyResult) {
                     "—".into()
                 });
                 if c.ok {
-                    ui.label(RichText::new("clear").color(GOOD));
+                    ui.label(RichText::new("clear").color(good()));
                 } else {
-                    ui.label(RichText::new("TOO CLOSE").color(BAD).strong());
+                    ui.label(RichText::new("TOO CLOSE").color(bad()).strong());
                 }
                 ui.end_row();
             }

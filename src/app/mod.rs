@@ -277,15 +277,18 @@ fn is_bundled_demo(path: &Path) -> bool {
     }
 }
 
-/// Theme and text sizes readable at arm's length.
+/// Theme, palette and text sizes readable at arm's length. tapgrid's own look: a blue-slate dark
+/// theme and a warm-paper light one, cobalt selection, square-ish corners, strong headings.
 pub fn style(ctx: &egui::Context, dark: bool) {
+    plots::set_dark(dark);
     ctx.set_theme(if dark {
         egui::Theme::Dark
     } else {
         egui::Theme::Light
     });
+    let accent = plots::accent();
     ctx.all_styles_mut(|s| {
-        use egui::{FontFamily, FontId, TextStyle};
+        use egui::{Color32, CornerRadius, FontFamily, FontId, Stroke, TextStyle};
         s.text_styles = [
             (
                 TextStyle::Heading,
@@ -308,6 +311,36 @@ pub fn style(ctx: &egui::Context, dark: bool) {
         .into();
         s.spacing.item_spacing = egui::vec2(10.0, 6.0);
         s.spacing.button_padding = egui::vec2(8.0, 4.0);
+        let v = &mut s.visuals;
+        if v.dark_mode {
+            v.panel_fill = Color32::from_rgb(24, 28, 34);
+            v.window_fill = Color32::from_rgb(30, 35, 42);
+            v.extreme_bg_color = Color32::from_rgb(16, 19, 24);
+            v.faint_bg_color = Color32::from_rgb(32, 37, 45);
+            v.override_text_color = Some(Color32::from_rgb(226, 230, 236));
+        } else {
+            v.panel_fill = Color32::from_rgb(248, 246, 241);
+            v.window_fill = Color32::from_rgb(252, 251, 248);
+            v.extreme_bg_color = Color32::from_rgb(255, 255, 253);
+            v.faint_bg_color = Color32::from_rgb(238, 235, 228);
+            v.override_text_color = Some(Color32::from_rgb(28, 30, 34));
+        }
+        v.selection.bg_fill = accent.gamma_multiply(if v.dark_mode { 0.55 } else { 0.25 });
+        v.selection.stroke = Stroke::new(1.5, accent);
+        v.hyperlink_color = accent;
+        let r = CornerRadius::same(3);
+        v.window_corner_radius = r;
+        for w in [
+            &mut v.widgets.noninteractive,
+            &mut v.widgets.inactive,
+            &mut v.widgets.hovered,
+            &mut v.widgets.active,
+            &mut v.widgets.open,
+        ] {
+            w.corner_radius = r;
+        }
+        // Buttons stand out from text: a visible outline at rest.
+        v.widgets.inactive.bg_stroke = Stroke::new(1.0, v.widgets.noninteractive.bg_stroke.color);
     });
 }
 

@@ -4,7 +4,7 @@
 use eframe::egui::{self, DragValue, RichText};
 
 use super::Document;
-use super::plots::WARN;
+use super::plots::warn;
 use crate::model::beam::{Disc, Material, Section, Shaft, Support};
 use crate::model::margin::MarginRule;
 use crate::model::study::Study;
@@ -174,7 +174,7 @@ pub fn shaft_editor(ui: &mut egui::Ui, st: &mut Study) -> bool {
         changed |= plain(ui, &mut st.min_mac, 0.0..=1.0, 0.01);
     });
     if let Err(e) = st.validate() {
-        ui.label(RichText::new(e).color(WARN));
+        ui.label(RichText::new(e).color(warn()));
     }
     changed
 }
@@ -315,7 +315,7 @@ pub fn service_editor(ui: &mut egui::Ui, st: &mut Study, orders_text: &mut Strin
     ui.label(
         RichText::new("API RP 684 rule (verify against your edition), or set your own.")
             .small()
-            .color(WARN),
+            .color(warn()),
     );
     let r = &mut st.rule;
     egui::Grid::new("rule").num_columns(2).show(ui, |ui| {
@@ -340,7 +340,7 @@ pub fn service_editor(ui: &mut egui::Ui, st: &mut Study, orders_text: &mut Strin
         changed = true;
     }
     if let Err(e) = st.validate() {
-        ui.label(RichText::new(e).color(WARN));
+        ui.label(RichText::new(e).color(warn()));
     }
     changed
 }

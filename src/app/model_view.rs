@@ -6,7 +6,7 @@ use eframe::egui::{self, Align2, Color32, FontId, RichText, Sense, Stroke, pos2,
 use egui_plot::{Line, LineStyle, MarkerShape, Plot, Points};
 
 use super::model_edit;
-use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
+use super::plots::{self, accent, bad, good, idle, warn};
 use super::{Command, PathPurpose, ViewCtx};
 use crate::model::run::interpolate;
 use crate::model::study::{Study, StudyResult};
@@ -69,7 +69,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         .collect();
     egui::CentralPanel::default().show(ui, |ui| {
         if let Some(e) = &error {
-            ui.label(RichText::new(format!("The model cannot be solved: {e}")).color(BAD));
+            ui.label(RichText::new(format!("The model cannot be solved: {e}")).color(bad()));
         }
         drawing(ui, &study, &stations, 190.0);
         let Some(r) = result else {
@@ -77,7 +77,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             return;
         };
         for w in &r.warnings {
-            ui.label(RichText::new(w).color(WARN).small());
+            ui.label(RichText::new(w).color(warn()).small());
         }
         let n_test = modal.as_ref().map_or(0, |m| m.modes.len());
         let test_sel = (n_test > 0).then(|| app.ui.selected_mode.min(n_test - 1));
@@ -184,7 +184,7 @@ pub fn drawing(ui: &mut egui::Ui, study: &Study, stations: &[(u32, f64)], height
             pos2(sc.x(-0.02 * length), sc.y0),
             pos2(sc.x(1.02 * length), sc.y0),
         ],
-        Stroke::new(1.0, IDLE),
+        Stroke::new(1.0, idle()),
     );
     let mut x = 0.0;
     for s in &shaft.sections {
@@ -221,7 +221,7 @@ pub fn drawing(ui: &mut egui::Ui, study: &Study, stations: &[(u32, f64)], height
         painter.rect_filled(
             egui::Rect::from_center_size(pos2(cx, sc.y0), vec2(8.0, 2.0 * h)),
             1.0,
-            WARN,
+            warn(),
         );
         painter.text(
             pos2(cx + 6.0, sc.y0 - h),
@@ -234,13 +234,13 @@ pub fn drawing(ui: &mut egui::Ui, study: &Study, stations: &[(u32, f64)], height
     for s in &shaft.supports {
         let cx = sc.x(s.position_m);
         let top = sc.y0 + half_at(s.position_m);
-        spring(&painter, cx, top, top + 0.22 * height, GOOD);
+        spring(&painter, cx, top, top + 0.22 * height, good());
         painter.text(
             pos2(cx + 8.0, top + 0.2 * height),
             Align2::LEFT_BOTTOM,
             format!("{:.1e} N/m", s.stiffness_n_per_m),
             FontId::proportional(12.0),
-            GOOD,
+            good(),
         );
     }
     for b in &study.bearings {
@@ -254,7 +254,7 @@ pub fn drawing(ui: &mut egui::Ui, study: &Study, stations: &[(u32, f64)], height
         painter.add(egui::Shape::convex_polygon(
             tri,
             Color32::TRANSPARENT,
-            Stroke::new(2.0, ACCENT),
+            Stroke::new(2.0, accent()),
         ));
     }
     let tick_y = rect.top() + 16.0;
@@ -262,14 +262,14 @@ pub fn drawing(ui: &mut egui::Ui, study: &Study, stations: &[(u32, f64)], height
         let cx = sc.x(p);
         painter.line_segment(
             [pos2(cx, tick_y + 4.0), pos2(cx, sc.y0 - half_at(p) - 2.0)],
-            Stroke::new(1.0, ACCENT.gamma_multiply(0.6)),
+            Stroke::new(1.0, accent().gamma_multiply(0.6)),
         );
         painter.text(
             pos2(cx, tick_y),
             Align2::CENTER_CENTER,
             st.to_string(),
             FontId::proportional(12.0),
-            ACCENT,
+            accent(),
         );
     }
     // Scale bar and legend.
@@ -341,7 +341,7 @@ fn model_shape(r: &StudyResult, j: usize, test: Option<(&[f64], &[f64])>) -> (Ve
 }
 
 fn shape_plot_frame(id: &str, height: f32, x1: f64, limit: f64) -> Plot<'static> {
-    Plot::new(id.to_owned())
+    plots::plot(id.to_owned())
         .height(height)
         .allow_drag(false)
         .allow_zoom(false)
@@ -379,7 +379,7 @@ fn measured_plot(
             md.frequency_hz
         ))
         .size(17.0)
-        .color(ACCENT),
+        .color(accent()),
     );
     let x1 = r.tested.nodes_m.last().copied().unwrap_or(1.0);
     let limit = 1.25 * amp.max(0.2);
@@ -407,7 +407,7 @@ fn measured_plot(
         .show(ui, |p| {
             p.line(
                 Line::new("", vec![[0.0, 0.0], [x1, 0.0]])
-                    .color(IDLE)
+                    .color(idle())
                     .width(5.0),
             );
             if let Some((j, line)) = overlay {
@@ -416,12 +416,12 @@ fn measured_plot(
                         format!("model mode {} (fitted to the stations)", j + 1),
                         line,
                     )
-                    .color(WARN)
+                    .color(warn())
                     .style(LineStyle::dashed_loose()),
                 );
             }
-            p.line(Line::new("measured", pts.clone()).color(ACCENT).width(3.0));
-            p.points(Points::new("", pts).radius(5.0).color(ACCENT).filled(true));
+            p.line(Line::new("measured", pts.clone()).color(accent()).width(3.0));
+            p.points(Points::new("", pts).radius(5.0).color(accent()).filled(true));
         });
 }
 
@@ -458,7 +458,7 @@ fn model_plot(
             if mode.rigid_body { " (rigid body)" } else { "" }
         ))
         .size(17.0)
-        .color(WARN),
+        .color(warn()),
     );
     let x1 = nodes.last().copied().unwrap_or(1.0);
     let limit = 1.25 * (app.settings.amplitude as f64).max(0.2);
@@ -467,10 +467,10 @@ fn model_plot(
         .show(ui, |p| {
             p.line(
                 Line::new("undeformed", vec![[0.0, 0.0], [x1, 0.0]])
-                    .color(IDLE)
+                    .color(idle())
                     .width(5.0),
             );
-            p.line(Line::new("model", line).color(WARN).width(3.0));
+            p.line(Line::new("model", line).color(warn()).width(3.0));
             p.points(
                 Points::new(
                     "nodes",
@@ -478,7 +478,7 @@ fn model_plot(
                 )
                 .shape(MarkerShape::Cross)
                 .radius(8.0)
-                .color(BAD),
+                .color(bad()),
             );
         });
 }
@@ -525,20 +525,20 @@ fn correlation_table(
                             ui.label(format!("{}", p.model + 1));
                             ui.label(format!("{:.2}", p.model_hz));
                             let dc = if p.difference_pct.abs() <= 5.0 {
-                                GOOD
+                                good()
                             } else {
-                                WARN
+                                warn()
                             };
                             ui.label(RichText::new(format!("{:+.2}", p.difference_pct)).color(dc));
-                            let mc = if p.mac >= 0.9 { GOOD } else { WARN };
+                            let mc = if p.mac >= 0.9 { good() } else { warn() };
                             ui.label(RichText::new(format!("{:.3}", p.mac)).color(mc));
                         }
                         None => {
                             ui.label("");
-                            ui.label(RichText::new("none").color(BAD));
+                            ui.label(RichText::new("none").color(bad()));
                             ui.label("");
                             ui.label("");
-                            ui.label(RichText::new("unpaired").color(BAD));
+                            ui.label(RichText::new("unpaired").color(bad()));
                         }
                     }
                     ui.end_row();
@@ -553,7 +553,7 @@ fn correlation_table(
                     j + 1,
                     r.tested.modes[j].frequency_hz
                 ))
-                .color(WARN),
+                .color(warn()),
             );
         }
     } else {

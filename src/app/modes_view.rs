@@ -2,9 +2,9 @@
 //! heat map, and measured against synthesized FRF for a chosen station.
 
 use eframe::egui::{self, Align2, RichText};
-use egui_plot::{Line, LineStyle, MarkerShape, Plot, PlotPoint, Points, Text};
+use egui_plot::{Line, LineStyle, MarkerShape, PlotPoint, Points, Text};
 
-use super::plots::{self, ACCENT, BAD, GOOD, IDLE, WARN};
+use super::plots::{self, accent, bad, good, idle, warn};
 use super::{Command, ViewCtx};
 use crate::modal::{DampingSource, Method, Mode};
 
@@ -57,7 +57,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     if m.modes.is_empty() {
         ui.label("No mode was found in the band. See the pole-picking view.");
         for w in &m.warnings {
-            ui.label(RichText::new(w).color(WARN));
+            ui.label(RichText::new(w).color(warn()));
         }
         return;
     }
@@ -85,7 +85,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                                 .map_or("—".into(), |z| format!("{:.3}", z * 100.0)),
                         );
                         ui.label(damping_word(md.damping_source));
-                        let mpc_color = if md.mpc >= 0.9 { GOOD } else { WARN };
+                        let mpc_color = if md.mpc >= 0.9 { good() } else { warn() };
                         ui.label(RichText::new(format!("{:.3}", md.mpc)).color(mpc_color));
                         ui.label(method_word(md.method))
                             .on_hover_text(md.notes.join("\n"));
@@ -105,7 +105,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 egui::Slider::new(&mut app.settings.speed_hz, 0.1..=3.0).text("cycles per second"),
             );
             for w in &m.warnings {
-                ui.label(RichText::new(w).color(WARN).small());
+                ui.label(RichText::new(w).color(warn()).small());
             }
             ui.separator();
             ui.label(RichText::new("Auto-MAC").strong());
@@ -131,7 +131,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                                 i + 1,
                                 j + 1
                             ))
-                            .color(WARN)
+                            .color(warn())
                             .small(),
                         );
                     }
@@ -187,7 +187,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             }
         }
         if let Some(i) = i_set {
-            traces.push((i, format!("measured, station {st}"), ACCENT));
+            traces.push((i, format!("measured, station {st}"), accent()));
         }
         let syn_pts = i_m
             .and_then(|i| m.synthesized.get(i))
@@ -203,7 +203,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             crate::setup::Layout::Sensor => "transmissibility (dB re 1)",
         };
         let plot = axis
-            .configure(Plot::new(id))
+            .configure(plots::plot(id))
             .height(ui.available_height().max(120.0))
             .y_axis_label(unit)
             .y_axis_min_width(56.0)
@@ -235,7 +235,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 if let Some(pts) = syn_pts {
                     p.line(
                         Line::new(format!("synthesized, station {st}"), pts)
-                            .color(BAD)
+                            .color(bad())
                             .style(LineStyle::dashed_dense()),
                     );
                 }
@@ -295,7 +295,7 @@ fn shape_plot(
     );
     let limit = 1.25 * amp.max(0.2);
     let text_color = ui.visuals().text_color();
-    Plot::new("mode-shape")
+    plots::plot("mode-shape")
         .height(height)
         .allow_drag(false)
         .allow_zoom(false)
@@ -309,28 +309,28 @@ fn shape_plot(
         .show(ui, |p| {
             p.line(
                 Line::new("undeformed", vec![[x0, 0.0], [x1, 0.0]])
-                    .color(IDLE)
+                    .color(idle())
                     .width(6.0),
             );
             p.line(
                 Line::new("envelope", envelope_hi)
-                    .color(IDLE)
+                    .color(idle())
                     .style(LineStyle::dotted_dense()),
             );
             p.line(
                 Line::new("envelope", envelope_lo)
-                    .color(IDLE)
+                    .color(idle())
                     .style(LineStyle::dotted_dense()),
             );
             p.line(
                 Line::new("deformed", deformed.clone())
-                    .color(ACCENT)
+                    .color(accent())
                     .width(3.0),
             );
             p.points(
                 Points::new("stations", deformed.clone())
                     .radius(5.0)
-                    .color(ACCENT)
+                    .color(accent())
                     .filled(true),
             );
             p.points(
@@ -340,7 +340,7 @@ fn shape_plot(
                 )
                 .shape(MarkerShape::Cross)
                 .radius(9.0)
-                .color(BAD),
+                .color(bad()),
             );
             for ((st, pt), ph) in stations.iter().zip(&deformed).zip(&md.shape) {
                 let mut label = format!("{st}: {:+.2}", ph.re);

@@ -5,21 +5,140 @@ use egui_plot::{GridMark, PlotBounds, PlotPoint, PlotPoints};
 
 use crate::reduce;
 
-/// Good (accepted) — a blue-green that stays apart from the warning colours for most colour vision.
-pub const GOOD: Color32 = Color32::from_rgb(38, 166, 154);
-/// A problem (rejected hit, failed fit).
-pub const BAD: Color32 = Color32::from_rgb(230, 97, 60);
-/// Needs a look (accepted with warnings, overridden).
-pub const WARN: Color32 = Color32::from_rgb(232, 178, 48);
-/// Not measured.
-pub const IDLE: Color32 = Color32::from_rgb(128, 128, 128);
-/// Highlight (current station, selected mode).
-pub const ACCENT: Color32 = Color32::from_rgb(86, 140, 230);
+static DARK: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(true);
 
-/// A colour per overlaid trace, spread around the hue circle by the golden angle.
+/// Chooses the palette for the theme (called when the theme is set).
+pub fn set_dark(dark: bool) {
+    DARK.store(dark, std::sync::atomic::Ordering::Relaxed);
+}
+
+/// The theme now in use is dark.
+pub fn is_dark() -> bool {
+    DARK.load(std::sync::atomic::Ordering::Relaxed)
+}
+
+// tapgrid's palette: teal for good, vermilion for a problem, ochre for a caution, slate for not
+// measured, cobalt for the selection. Each has a light-theme twin dark enough to read as text on
+// white (contrast ≥ 4.5:1, WCAG 2.1 §1.4.3) and a dark-theme twin light enough on near-black.
+fn pick(dark: Color32, light: Color32) -> Color32 {
+    if is_dark() { dark } else { light }
+}
+
+/// Good (accepted) — a blue-green that stays apart from the warning colours for most colour vision.
+pub fn good() -> Color32 {
+    pick(Color32::from_rgb(38, 166, 154), Color32::from_rgb(0, 110, 98))
+}
+/// A problem (rejected hit, failed fit).
+pub fn bad() -> Color32 {
+    pick(Color32::from_rgb(236, 104, 66), Color32::from_rgb(180, 50, 14))
+}
+/// Needs a look (accepted with warnings, overridden, cautions).
+pub fn warn() -> Color32 {
+    pick(Color32::from_rgb(232, 178, 48), Color32::from_rgb(138, 90, 0))
+}
+/// Not measured.
+pub fn idle() -> Color32 {
+    pick(Color32::from_rgb(128, 128, 128), Color32::from_rgb(105, 105, 110))
+}
+/// Highlight (current station, selected mode).
+pub fn accent() -> Color32 {
+    pick(Color32::from_rgb(96, 150, 240), Color32::from_rgb(28, 84, 188))
+}
+
+/// A colour per overlaid trace, spread around the hue circle by the golden angle; deeper on a
+/// light background so thin lines stay visible.
 pub fn trace_color(i: usize) -> Color32 {
     let h = (0.58 + i as f32 * 0.381_966) % 1.0;
-    egui::ecolor::Hsva::new(h, 0.6, 0.85, 1.0).into()
+    let (sat, val) = if is_dark() { (0.6, 0.85) } else { (0.85, 0.62) };
+    egui::ecolor::Hsva::new(h, sat, val, 1.0).into()
+}
+
+/// A plot with tapgrid's axes: ticks on 1-2-5 steps with a labelled tick at least every 64 px
+/// across and 24 px up, so every axis carries readable labels however short the plot (the
+/// toolkit's decade steps left lone "0" labels), printed with the decimals their step needs.
+pub fn plot<'a>(id: impl egui::AsIdSalt) -> egui_plot::Plot<'a> {
+    // Labels at full strength from the spacing the ladder guarantees (the toolkit fades them
+    // in over 60–80 px across, 20–30 px up).
+    egui_plot::Plot::new(id)
+        .custom_x_axes(vec![
+            egui_plot::AxisHints::new_x().label_spacing(egui::Rangef::new(40.0, 41.0)),
+        ])
+        .custom_y_axes(vec![
+            egui_plot::AxisHints::new_y().label_spacing(egui::Rangef::new(16.0, 17.0)),
+        ])
+        .grid_spacing(egui::Rangef::new(GRID_MIN_PX as f32, 300.0))
+        .x_grid_spacer(|g| nice_grid(g, X_LABEL_PX))
+        .y_grid_spacer(|g| nice_grid(g, Y_LABEL_PX))
+        .x_axis_formatter(tick_label)
+        .y_axis_formatter(tick_label)
+}
+
+/// Least spacing of labelled ticks across (room for "10000" and a gap) and up, px.
+const X_LABEL_PX: f64 = 64.0;
+const Y_LABEL_PX: f64 = 24.0;
+
+/// Smallest spacing of grid lines, px (the toolkit sizes `base_step_size` from it).
+const GRID_MIN_PX: f64 = 8.0;
+
+/// A tick's value with as many decimals as its step needs.
+pub fn tick_label(m: GridMark, _range: &std::ops::RangeInclusive<f64>) -> String {
+    let decimals = (-m.step_size.log10().floor()).clamp(0.0, 6.0) as usize;
+    let v = if m.value.abs() < m.step_size * 1e-6 {
+        0.0
+    } else {
+        m.value
+    };
+    format!("{v:.decimals$}")
+}
+
+/// The smallest 1-2-5 value (× a power of ten) at or above `x`.
+fn nice_at_least(x: f64) -> f64 {
+    let unit = 10f64.powf(x.log10().floor());
+    [1.0, 2.0, 5.0, 10.0]
+        .into_iter()
+        .map(|m| m * unit)
+        .find(|v| *v >= x * (1.0 - 1e-9))
+        .unwrap_or(10.0 * unit)
+}
+
+/// Grid marks: fine lines at the smallest 1-2-5 step the toolkit allows, and a labelled level
+/// at the smallest 1-2-5 multiple of it at least `label_px` apart.
+pub fn nice_grid(input: egui_plot::GridInput, label_px: f64) -> Vec<GridMark> {
+    let (lo, hi) = input.bounds;
+    let base = input.base_step_size.abs();
+    if !(lo.is_finite() && hi.is_finite() && base.is_finite() && base > 0.0 && hi > lo) {
+        return Vec::new();
+    }
+    let fine = nice_at_least(base);
+    let px_per_unit = GRID_MIN_PX / base;
+    let mut label = fine;
+    while label * px_per_unit < label_px {
+        let next = nice_at_least(label * 1.000_001);
+        // Keep the labelled level a whole number of fine steps (2 → 5 is not).
+        let q = next / fine;
+        label = if (q - q.round()).abs() < 1e-6 {
+            next
+        } else {
+            nice_at_least(next * 1.000_001)
+        };
+    }
+    let first = (lo / fine).ceil() as i64;
+    let last = (hi / fine).floor() as i64;
+    if last < first || last - first > 10_000 {
+        return Vec::new();
+    }
+    (first..=last)
+        .map(|i| {
+            let value = i as f64 * fine;
+            let q = value / label;
+            let step_size = if (q - q.round()).abs() < 1e-6 {
+                label
+            } else {
+                fine
+            };
+            GridMark { value, step_size }
+        })
+        .collect()
 }
 
 /// How overlaid traces reach the screen (the window uses [`PlotMode::Cached`]; the others are
@@ -487,7 +606,7 @@ pub fn heat_map(
                 painter.rect_stroke(
                     rect.shrink(1.0),
                     2.0,
-                    Stroke::new(1.0, ACCENT),
+                    Stroke::new(1.0, accent()),
                     egui::StrokeKind::Inside,
                 );
             }
@@ -516,4 +635,47 @@ pub fn heat_map(
 fn lerp(a: Color32, b: Color32, t: f32) -> Color32 {
     let m = |x: u8, y: u8| (x as f32 + (y as f32 - x as f32) * t).round() as u8;
     Color32::from_rgb(m(a.r(), b.r()), m(a.g(), b.g()), m(a.b(), b.b()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn labelled(lo: f64, hi: f64, px: f64, label_px: f64) -> Vec<f64> {
+        let base = (hi - lo) / px * GRID_MIN_PX;
+        let marks = nice_grid(
+            egui_plot::GridInput {
+                bounds: (lo, hi),
+                base_step_size: base,
+            },
+            label_px,
+        );
+        let px_per_unit = px / (hi - lo);
+        marks
+            .into_iter()
+            .filter(|m| m.step_size * px_per_unit >= label_px)
+            .map(|m| m.value)
+            .collect()
+    }
+
+    /// A 130 px dB axis over ±40 dB gets a label every 20 dB (the toolkit's decade ladder gave
+    /// only "0"); a 400 px axis over 0–0.9 m gets one every 0.2 m. Common practice: tick labels
+    /// on 1-2-5 steps.
+    #[test]
+    fn short_axes_get_labels_on_a_1_2_5_ladder() {
+        assert_eq!(labelled(-45.0, 45.0, 130.0, Y_LABEL_PX), vec![-40.0, -20.0, 0.0, 20.0, 40.0]);
+        let x = labelled(-0.05, 0.95, 400.0, X_LABEL_PX);
+        assert_eq!(x.len(), 5, "{x:?}");
+        assert!((x[1] - 0.2).abs() < 1e-12);
+        let m = GridMark {
+            value: 0.30000000000000004,
+            step_size: 0.1,
+        };
+        assert_eq!(tick_label(m, &(0.0..=1.0)), "0.3");
+        let m = GridMark {
+            value: 1500.0,
+            step_size: 500.0,
+        };
+        assert_eq!(tick_label(m, &(0.0..=1.0)), "1500");
+    }
 }

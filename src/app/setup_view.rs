@@ -3,7 +3,7 @@
 
 use eframe::egui::{self, DragValue, RichText};
 
-use super::plots::{BAD, WARN};
+use super::plots::{bad, warn};
 use super::{Command, SetupEdit, ViewCtx};
 use crate::setup::{AcCoupling, Estimator, Layout, Setup, Slope, TriggerLevel};
 
@@ -46,10 +46,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     egui::ScrollArea::vertical().show(ui, |ui| {
         ui.heading("Test setup");
         if doc.read_only {
-            ui.label(RichText::new("The bundled demo is read-only: changes re-run the analysis but are saved only with Save as.").color(WARN));
+            ui.label(RichText::new("The bundled demo is read-only: changes re-run the analysis but are saved only with Save as.").color(warn()));
         }
         if let Some(e) = &doc.analysis_error {
-            ui.label(RichText::new(format!("Analysis failed: {e}")).color(BAD));
+            ui.label(RichText::new(format!("Analysis failed: {e}")).color(bad()));
         }
         ui.columns(2, |cols| {
             let ui = &mut cols[0];
@@ -278,7 +278,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         app.push(Command::Reanalyse);
     }
     if let Some(e) = invalid {
-        ui.label(RichText::new(format!("Setup not valid: {e}")).color(BAD));
+        ui.label(RichText::new(format!("Setup not valid: {e}")).color(bad()));
     }
 }
 

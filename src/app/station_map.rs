@@ -2,7 +2,7 @@
 
 use eframe::egui::{self, Align2, Color32, FontId, Rect, RichText, Sense, Stroke, pos2, vec2};
 
-use super::plots::{ACCENT, BAD, GOOD, IDLE, WARN};
+use super::plots::{accent, bad, good, idle, warn};
 use super::{Command, Document, View, ViewCtx};
 
 /// A station's state at a glance.
@@ -24,11 +24,11 @@ impl StationState {
     /// Cell colour.
     pub fn color(self) -> Color32 {
         match self {
-            StationState::NotMeasured => IDLE,
-            StationState::Analysing => ACCENT.gamma_multiply(0.45),
-            StationState::Good => GOOD,
-            StationState::Partly => WARN,
-            StationState::Problem => BAD,
+            StationState::NotMeasured => idle(),
+            StationState::Analysing => accent().gamma_multiply(0.45),
+            StationState::Good => good(),
+            StationState::Partly => warn(),
+            StationState::Problem => bad(),
         }
     }
 
@@ -183,7 +183,7 @@ pub fn strip(ui: &mut egui::Ui, app: &mut ViewCtx, height: f32) {
             painter.rect_stroke(
                 c.expand(3.0),
                 5.0,
-                Stroke::new(3.0, ACCENT),
+                Stroke::new(3.0, accent()),
                 egui::StrokeKind::Outside,
             );
         }
@@ -256,7 +256,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     let mut switch_layout = false;
     if let Some(a) = &doc.analysis {
         for w in a.warnings() {
-            ui.label(RichText::new(&w).color(WARN));
+            ui.label(RichText::new(&w).color(warn()));
             if w.contains("sensor layout")
                 && doc.setup.layout == crate::setup::Layout::Hammer
                 && ui
