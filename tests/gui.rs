@@ -118,6 +118,35 @@ fn setup_edits_reach_the_document_through_commands() {
     assert_eq!(a.stations[0].position_m, moved);
 }
 
+/// The path dialog lists the folder typed, names sessions and WAV sets, and a click on one
+/// fills the path (common practice: a chooser that does not need a desktop portal).
+#[test]
+fn the_path_dialog_browses_folders_and_names_sessions() {
+    let mut h = open_demo();
+    let tmp = tempfile::tempdir().expect("temp");
+    let session = tmp.path().join("rotor-a");
+    std::fs::create_dir_all(&session).expect("dir");
+    std::fs::write(session.join("session.json"), "{}").expect("write");
+    std::fs::create_dir_all(tmp.path().join("plain")).expect("dir");
+    h.state_mut()
+        .push(Command::AskPath(tapgrid::app::PathPurpose::Open));
+    h.run_steps(2);
+    let field = h.get_by_role(egui::accesskit::Role::TextInput);
+    field.focus();
+    h.key_press_modifiers(egui::Modifiers::COMMAND, egui::Key::A);
+    field.type_text(&format!("{}/", tmp.path().display()));
+    h.run_steps(3);
+    h.get_by_label_contains("plain/");
+    h.get_by_label_contains("rotor-a/   — tapgrid session")
+        .click();
+    h.run_steps(2);
+    let text = h
+        .get_by_role(egui::accesskit::Role::TextInput)
+        .value()
+        .unwrap_or_default();
+    assert_eq!(PathBuf::from(text), session);
+}
+
 #[test]
 fn every_view_by_its_label_and_the_help() {
     let mut h = open_demo();

@@ -49,7 +49,11 @@ impl TapgridApp {
                         .display()
                         .to_string(),
                 };
-                self.dialog = Some(PathDialog { purpose, text });
+                self.dialog = Some(PathDialog {
+                    purpose,
+                    text,
+                    listing: None,
+                });
             }
             Command::Show(v) => self.settings.view = v,
             Command::GoStation(s) => {
@@ -302,19 +306,21 @@ impl TapgridApp {
                     );
                     return;
                 }
-                PoleStatus::Frequency | PoleStatus::FrequencyDamping => caution = Some((
-                    format!(
-                        "took the pole at {:.1} Hz, which is not fully stable (its {} changes \
+                PoleStatus::Frequency | PoleStatus::FrequencyDamping => {
+                    caution = Some((
+                        format!(
+                            "took the pole at {:.1} Hz, which is not fully stable (its {} changes \
                          between orders): check its shape and the synthesized FRF",
-                        pole.frequency_hz,
-                        if pole.status == PoleStatus::Frequency {
-                            "damping and shape"
-                        } else {
-                            "shape"
-                        }
-                    ),
-                    false,
-                )),
+                            pole.frequency_hz,
+                            if pole.status == PoleStatus::Frequency {
+                                "damping and shape"
+                            } else {
+                                "shape"
+                            }
+                        ),
+                        false,
+                    ))
+                }
                 PoleStatus::FrequencyDampingShape => {}
             }
             picked.push(p);

@@ -233,7 +233,11 @@ fn meter(ui: &mut egui::Ui, label: &str, level: f32, hold: f32, over: bool) {
         ui.painter().circle_filled(
             lamp.center(),
             9.0,
-            if over { bad() } else { idle().gamma_multiply(0.4) },
+            if over {
+                bad()
+            } else {
+                idle().gamma_multiply(0.4)
+            },
         );
         ui.label(format!("{:5.1} dBFS", 20.0 * level.max(1e-6).log10()));
         if over {
@@ -493,7 +497,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 .y_axis_min_width(56.0)
                 .x_axis_label("frequency (Hz)")
                 .y_axis_label("running FRF (dB re 1 (m/s²)/N)")
-                .show(ui, |p| p.line(Line::new("running FRF", mag).color(accent())));
+                .show(ui, |p| {
+                    p.line(Line::new("running FRF", mag).color(accent()))
+                });
             plots::plot("capture-coh")
                 .height(h_each)
                 .link_axis(link, [true, false])

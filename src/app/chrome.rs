@@ -177,19 +177,77 @@ impl TapgridApp {
         };
         let mut close = false;
         let mut go = None;
+        let ext = match d.purpose {
+            PathPurpose::LoadModel | PathPurpose::WriteModel => Some(".json"),
+            PathPurpose::WriteReport => Some(".html"),
+            _ => None,
+        };
+        // The folder to list: the path typed when it is a folder, else the folder holding it.
+        let typed = PathBuf::from(d.text.trim());
+        let dir = if typed.is_dir() {
+            typed.clone()
+        } else {
+            typed
+                .parent()
+                .filter(|p| p.is_dir())
+                .map(Path::to_path_buf)
+                .unwrap_or_else(|| std::env::current_dir().unwrap_or_default())
+        };
+        if d.listing.as_ref().is_none_or(|l| l.dir != dir) {
+            d.listing = Some(super::command::Listing::read(&dir, ext));
+        }
         egui::Window::new(title)
             .collapsible(false)
             .resizable(false)
+            .min_width(600.0)
             .anchor(egui::Align2::CENTER_CENTER, [0.0, 0.0])
             .show(ctx, |ui| {
+                ui.set_min_width(600.0);
                 ui.label(match d.purpose {
                     PathPurpose::LoadModel | PathPurpose::WriteModel | PathPurpose::WriteReport => {
                         "File:"
                     }
                     _ => "Folder:",
                 });
-                let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(520.0));
+                let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(580.0));
                 let enter = r.lost_focus() && ui.input(|i| i.key_pressed(egui::Key::Enter));
+                if let Some(l) = &d.listing {
+                    use super::command::EntryKind;
+                    ui.horizontal(|ui| {
+                        if ui.button("Up one folder").clicked()
+                            && let Some(p) = l.dir.parent()
+                        {
+                            d.text = p.display().to_string();
+                        }
+                        ui.label(egui::RichText::new(l.dir.display().to_string()).small());
+                    });
+                    if let Some(e) = &l.error {
+                        ui.label(egui::RichText::new(e).color(super::plots::bad()));
+                    }
+                    let mut pick = None;
+                    egui::ScrollArea::vertical()
+                        .max_height(300.0)
+                        .auto_shrink([false, true])
+                        .show(ui, |ui| {
+                            for (name, kind) in &l.entries {
+                                let text = match kind {
+                                    EntryKind::Session => format!("{name}/   — tapgrid session"),
+                                    EntryKind::WavSet => format!("{name}/   — WAV set"),
+                                    EntryKind::Folder => format!("{name}/"),
+                                    EntryKind::File => name.clone(),
+                                };
+                                if ui.selectable_label(false, text).clicked() {
+                                    pick = Some(l.dir.join(name));
+                                }
+                            }
+                            if l.entries.is_empty() && l.error.is_none() {
+                                ui.label(egui::RichText::new("(nothing to choose here)").small());
+                            }
+                        });
+                    if let Some(p) = pick {
+                        d.text = p.display().to_string();
+                    }
+                }
                 ui.horizontal(|ui| {
                     if ui.button("OK").clicked() || enter {
                         go = Some(PathBuf::from(d.text.trim()));

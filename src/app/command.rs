@@ -117,6 +117,74 @@ pub enum PathPurpose {
 pub(super) struct PathDialog {
     pub(super) purpose: PathPurpose,
     pub(super) text: String,
+    /// The folder listed under the path, read when the folder changes.
+    pub(super) listing: Option<Listing>,
+}
+
+/// One folder's entries for the path dialog's browser.
+pub(super) struct Listing {
+    pub(super) dir: PathBuf,
+    pub(super) entries: Vec<(String, EntryKind)>,
+    pub(super) error: Option<String>,
+}
+
+/// What an entry of the browser is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub(super) enum EntryKind {
+    /// A tapgrid session (holds `session.json`).
+    Session,
+    /// A WAV set (holds `stations.csv`).
+    WavSet,
+    /// Another folder.
+    Folder,
+    /// A file of the kind asked for.
+    File,
+}
+
+impl Listing {
+    /// Reads `dir`: folders, sessions and WAV sets first, then files ending in `ext` (if any);
+    /// hidden entries left out.
+    pub(super) fn read(dir: &Path, ext: Option<&str>) -> Self {
+        let mut entries = Vec::new();
+        let error = match std::fs::read_dir(dir) {
+            Err(e) => Some(format!("cannot list {}: {e}", dir.display())),
+            Ok(rd) => {
+                for e in rd.flatten().take(2000) {
+                    let name = e.file_name().to_string_lossy().into_owned();
+                    if name.starts_with('.') {
+                        continue;
+                    }
+                    let path = e.path();
+                    let kind = if path.is_dir() {
+                        if path.join("session.json").is_file() {
+                            EntryKind::Session
+                        } else if path.join("stations.csv").is_file() {
+                            EntryKind::WavSet
+                        } else {
+                            EntryKind::Folder
+                        }
+                    } else if ext.is_some_and(|x| name.to_ascii_lowercase().ends_with(x)) {
+                        EntryKind::File
+                    } else {
+                        continue;
+                    };
+                    entries.push((name, kind));
+                }
+                None
+            }
+        };
+        entries.sort_by(|a, b| {
+            let folder = |k: EntryKind| k == EntryKind::File;
+            folder(a.1)
+                .cmp(&folder(b.1))
+                .then(a.0.to_lowercase().cmp(&b.0.to_lowercase()))
+        });
+        Self {
+            dir: dir.to_path_buf(),
+            entries,
+            error,
+        }
+    }
 }
 
 /// A line in the message bar.

@@ -90,7 +90,11 @@ fn glyph(p: &egui::Painter, c: egui::Pos2, shape: MarkerShape, color: egui::Colo
             p.circle_filled(c, r, color);
         }
         MarkerShape::Square => {
-            p.rect_filled(egui::Rect::from_center_size(c, vec2(2.0 * r, 2.0 * r) * 0.9), 0.0, color);
+            p.rect_filled(
+                egui::Rect::from_center_size(c, vec2(2.0 * r, 2.0 * r) * 0.9),
+                0.0,
+                color,
+            );
         }
         MarkerShape::Diamond => {
             let pts = vec![

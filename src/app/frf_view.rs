@@ -4,7 +4,7 @@
 use eframe::egui::{self, RichText};
 use egui_plot::{Line, Plot, VLine};
 
-use super::plots::{self, accent, FreqAxis, warn};
+use super::plots::{self, FreqAxis, accent, warn};
 use super::{ViewCtx, station_map};
 use crate::setup::Layout;
 
@@ -135,7 +135,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         let cur_i = current.and_then(|s| frfs.stations.iter().position(|&x| x == s));
         let nearest = move |x: f64| {
             let fx = axis.f(x);
-            let k = f.partition_point(|&v| v < fx).min(f.len().saturating_sub(1));
+            let k = f
+                .partition_point(|&v| v < fx)
+                .min(f.len().saturating_sub(1));
             if k > 0 && (f[k - 1] - fx).abs() < (f[k] - fx).abs() {
                 k - 1
             } else {

@@ -252,8 +252,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                         },
                         wpts,
                     )
-                        .color(warn())
-                        .style(LineStyle::dashed_loose()),
+                    .color(warn())
+                    .style(LineStyle::dashed_loose()),
                 );
                 p.vline(VLine::new("trigger", 0.0).color(good()));
             });
@@ -284,7 +284,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 p.line(Line::new("windowed channel A", fpts).color(accent()));
                 if layout == Layout::Hammer {
                     p.hline(
-                        HLine::new(format!("roll-off limit −{rolloff:.0} dB"), -rolloff).color(bad()),
+                        HLine::new(format!("roll-off limit −{rolloff:.0} dB"), -rolloff)
+                            .color(bad()),
                     );
                 }
                 if let Some([lo, hi]) = band {

@@ -89,6 +89,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             return;
         };
         ui.label(RichText::new(MAP_NOTE).color(warn()));
+        if let Some([lo, hi]) = study.bearing_band_n_per_m {
+            ui.label(format!(
+                "Shaded: the bearings' stiffness band in service, {} to {}.",
+                model_edit::with_prefix(lo, "N/m"),
+                model_edit::with_prefix(hi, "N/m")
+            ));
+        }
         let h = (ui.available_height() * 0.55).max(240.0);
         map_plot(ui, &study, &r, h);
         ui.separator();
@@ -179,7 +186,8 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
             }
             if let Some([lo, hi]) = study.bearing_band_n_per_m {
                 p.span(
-                    Span::new("bearing stiffness band", lo.log10()..=hi.log10())
+                    // Named in the caption below the plot: a label inside a narrow band is clipped.
+                    Span::new("", lo.log10()..=hi.log10())
                         .axis(Axis::X)
                         .fill(accent().gamma_multiply(0.2))
                         .border_color(accent()),

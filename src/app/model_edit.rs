@@ -50,25 +50,68 @@ fn mm(ui: &mut egui::Ui, v: &mut f64, max_m: f64) -> bool {
     r.changed()
 }
 
-/// A positive quantity over many decades, shown in engineering notation; drag speed follows
-/// its size.
-fn sci(ui: &mut egui::Ui, v: &mut f64, suffix: &str) -> bool {
+/// A positive quantity over many decades, shown with an SI prefix ("4.00 kN/m"); typed as a
+/// number with or without a prefix ("4000", "4 k", "4e3"). Drag speed follows its size.
+fn sci(ui: &mut egui::Ui, v: &mut f64, unit: &str) -> bool {
     let speed = (v.abs() * 0.01).max(1e-9);
+    let unit = unit.trim().to_string();
+    let unit_p = unit.clone();
     ui.add(
         DragValue::new(v)
             .speed(speed)
             .range(0.0..=1e15)
-            .custom_formatter(|n, _| {
-                if n == 0.0 {
-                    "0".to_string()
-                } else {
-                    format!("{n:.3e}")
-                }
-            })
-            .custom_parser(|s| s.trim().parse::<f64>().ok())
-            .suffix(suffix),
+            .custom_formatter(move |n, _| with_prefix(n, &unit))
+            .custom_parser(move |s| parse_prefixed(s, &unit_p)),
     )
     .changed()
+}
+
+const PREFIXES: [(f64, &str); 7] = [
+    (1e12, "T"),
+    (1e9, "G"),
+    (1e6, "M"),
+    (1e3, "k"),
+    (1.0, ""),
+    (1e-3, "m"),
+    (1e-6, "µ"),
+];
+
+/// `n` with three significant figures and an SI prefix on `unit`.
+pub(super) fn with_prefix(n: f64, unit: &str) -> String {
+    let sep = if unit.is_empty() { "" } else { " " };
+    if n == 0.0 || !n.is_finite() {
+        return format!("0{sep}{unit}");
+    }
+    if unit.is_empty() {
+        // A prefix without a unit reads as one ("12.3m"): plain scientific notation instead.
+        return format!("{n:.3e}");
+    }
+    let (scale, p) = PREFIXES
+        .iter()
+        .copied()
+        .find(|(s, _)| n.abs() >= *s * 0.999_5)
+        .unwrap_or((1e-6, "µ"));
+    let x = n / scale;
+    let digits = if x.abs() >= 99.95 {
+        0
+    } else if x.abs() >= 9.995 {
+        1
+    } else {
+        2
+    };
+    format!("{x:.digits$} {p}{unit}")
+}
+
+/// Reads "4.00 kN/m", "4 k", "4e3" or "4000" (the unit is optional).
+pub(super) fn parse_prefixed(s: &str, unit: &str) -> Option<f64> {
+    let t = s.trim();
+    let t = t.strip_suffix(unit).unwrap_or(t).trim();
+    if let Ok(v) = t.parse::<f64>() {
+        return Some(v);
+    }
+    let (num, p) = t.split_at(t.char_indices().last()?.0);
+    let scale = PREFIXES.iter().find(|(_, q)| *q == p && !q.is_empty())?.0;
+    num.trim().parse::<f64>().ok().map(|v| v * scale)
 }
 
 fn plain(ui: &mut egui::Ui, v: &mut f64, range: std::ops::RangeInclusive<f64>, speed: f64) -> bool {
@@ -343,4 +386,22 @@ pub fn service_editor(ui: &mut egui::Ui, st: &mut Study, orders_text: &mut Strin
         ui.label(RichText::new(e).color(warn()));
     }
     changed
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// SI prefixes (BIPM, The International System of Units, 9th ed., 2019, Table 7).
+    #[test]
+    fn stiffness_reads_with_a_prefix_and_parses_back() {
+        assert_eq!(with_prefix(4000.0, "N/m"), "4.00 kN/m");
+        assert_eq!(with_prefix(2.5e8, "N/m"), "250 MN/m");
+        assert_eq!(with_prefix(0.0, "N·m/rad"), "0 N·m/rad");
+        assert_eq!(with_prefix(0.0123, ""), "1.230e-2");
+        assert_eq!(parse_prefixed("4.00 kN/m", "N/m"), Some(4000.0));
+        assert_eq!(parse_prefixed("250 M", "N/m"), Some(2.5e8));
+        assert_eq!(parse_prefixed("4e3", "N/m"), Some(4000.0));
+        assert_eq!(parse_prefixed("abc", "N/m"), None);
+    }
 }

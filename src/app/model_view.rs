@@ -112,11 +112,21 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             .id_salt("correlation-scroll")
             .show(ui, |ui| {
                 ui.horizontal_top(|ui| {
+                    // The heat map keeps the room its cells need; the table wraps beside it.
+                    let mac_w = mac_panel_width(&r);
+                    let table_w = (ui.available_width() - mac_w - 24.0).max(320.0);
                     ui.vertical(|ui| {
-                        correlation_table(ui, &r, test_sel, model_sel, &mut cmds);
+                        ui.set_max_width(table_w);
+                        let test_hz: Vec<f64> = modal
+                            .as_ref()
+                            .map(|m| m.modes.iter().map(|x| x.frequency_hz).collect())
+                            .unwrap_or_default();
+                        correlation_table(ui, &r, &test_hz, test_sel, model_sel, &mut cmds);
                     });
                     ui.separator();
                     ui.vertical(|ui| {
+                        ui.set_min_width(mac_w);
+                        ui.set_max_width(mac_w);
                         mac_panel(ui, &r, test_sel, model_sel, &mut cmds);
                     });
                 });
@@ -420,8 +430,17 @@ fn measured_plot(
                     .style(LineStyle::dashed_loose()),
                 );
             }
-            p.line(Line::new("measured", pts.clone()).color(accent()).width(3.0));
-            p.points(Points::new("", pts).radius(5.0).color(accent()).filled(true));
+            p.line(
+                Line::new("measured", pts.clone())
+                    .color(accent())
+                    .width(3.0),
+            );
+            p.points(
+                Points::new("", pts)
+                    .radius(5.0)
+                    .color(accent())
+                    .filled(true),
+            );
         });
 }
 
@@ -486,6 +505,7 @@ fn model_plot(
 fn correlation_table(
     ui: &mut egui::Ui,
     r: &StudyResult,
+    test_hz: &[f64],
     test_sel: Option<usize>,
     model_sel: Option<usize>,
     cmds: &mut Vec<Command>,
@@ -534,7 +554,7 @@ fn correlation_table(
                             ui.label(RichText::new(format!("{:.3}", p.mac)).color(mc));
                         }
                         None => {
-                            ui.label("");
+                            ui.label(test_hz.get(k).map_or(String::new(), |f| format!("{f:.2}")));
                             ui.label(RichText::new("none").color(bad()));
                             ui.label("");
                             ui.label("");
@@ -586,6 +606,21 @@ fn correlation_table(
     );
 }
 
+/// The model columns the heat map shows: flexible modes up to two beyond the tested ones.
+fn mac_columns(r: &StudyResult) -> Vec<usize> {
+    let n_test = r.correlation.as_ref().map_or(0, |c| c.mac.len());
+    let flexible: Vec<usize> = (0..r.tested.modes.len())
+        .filter(|&j| !r.tested.modes[j].rigid_body)
+        .collect();
+    let keep = (n_test + 2).min(flexible.len());
+    flexible[..keep].to_vec()
+}
+
+/// Width of the MAC panel: 26 px cells and the row labels, at least its title's width.
+fn mac_panel_width(r: &StudyResult) -> f32 {
+    (34.0 + 26.0 * mac_columns(r).len() as f32 + 8.0).max(230.0)
+}
+
 fn mac_panel(
     ui: &mut egui::Ui,
     r: &StudyResult,
@@ -597,12 +632,7 @@ fn mac_panel(
         return;
     };
     ui.label(RichText::new("MAC, test (rows) × model (columns)").strong());
-    // Flexible model modes up to one beyond the highest paired or tested one.
-    let flexible: Vec<usize> = (0..r.tested.modes.len())
-        .filter(|&j| !r.tested.modes[j].rigid_body)
-        .collect();
-    let keep = (c.mac.len() + 2).min(flexible.len());
-    let cols_idx = &flexible[..keep];
+    let cols_idx = &mac_columns(r);
     let values: Vec<Vec<f64>> = c
         .mac
         .iter()

@@ -26,23 +26,38 @@ fn pick(dark: Color32, light: Color32) -> Color32 {
 
 /// Good (accepted) — a blue-green that stays apart from the warning colours for most colour vision.
 pub fn good() -> Color32 {
-    pick(Color32::from_rgb(38, 166, 154), Color32::from_rgb(0, 110, 98))
+    pick(
+        Color32::from_rgb(38, 166, 154),
+        Color32::from_rgb(0, 110, 98),
+    )
 }
 /// A problem (rejected hit, failed fit).
 pub fn bad() -> Color32 {
-    pick(Color32::from_rgb(236, 104, 66), Color32::from_rgb(180, 50, 14))
+    pick(
+        Color32::from_rgb(236, 104, 66),
+        Color32::from_rgb(180, 50, 14),
+    )
 }
 /// Needs a look (accepted with warnings, overridden, cautions).
 pub fn warn() -> Color32 {
-    pick(Color32::from_rgb(232, 178, 48), Color32::from_rgb(138, 90, 0))
+    pick(
+        Color32::from_rgb(232, 178, 48),
+        Color32::from_rgb(138, 90, 0),
+    )
 }
 /// Not measured.
 pub fn idle() -> Color32 {
-    pick(Color32::from_rgb(128, 128, 128), Color32::from_rgb(105, 105, 110))
+    pick(
+        Color32::from_rgb(128, 128, 128),
+        Color32::from_rgb(105, 105, 110),
+    )
 }
 /// Highlight (current station, selected mode).
 pub fn accent() -> Color32 {
-    pick(Color32::from_rgb(96, 150, 240), Color32::from_rgb(28, 84, 188))
+    pick(
+        Color32::from_rgb(96, 150, 240),
+        Color32::from_rgb(28, 84, 188),
+    )
 }
 
 /// A colour per overlaid trace, spread around the hue circle by the golden angle; deeper on a
@@ -663,7 +678,10 @@ mod tests {
     /// on 1-2-5 steps.
     #[test]
     fn short_axes_get_labels_on_a_1_2_5_ladder() {
-        assert_eq!(labelled(-45.0, 45.0, 130.0, Y_LABEL_PX), vec![-40.0, -20.0, 0.0, 20.0, 40.0]);
+        assert_eq!(
+            labelled(-45.0, 45.0, 130.0, Y_LABEL_PX),
+            vec![-40.0, -20.0, 0.0, 20.0, 40.0]
+        );
         let x = labelled(-0.05, 0.95, 400.0, X_LABEL_PX);
         assert_eq!(x.len(), 5, "{x:?}");
         assert!((x[1] - 0.2).abs() < 1e-12);
