@@ -338,6 +338,17 @@ fn live_capture_from_the_generator_saves_and_shows_a_hit() {
     h.run_steps(2);
     h.state_mut().settings.capture_device = Some("generator".into());
     h.state_mut().ui.capture_folder = session.display().to_string();
+    h.run_steps(2);
+    // A new session asks for the part's name before it starts (common practice: every record
+    // names what was tested).
+    h.get_by_label("Name the part to start");
+    assert!(
+        h.get_by_label("Start capture")
+            .accesskit_node()
+            .is_disabled()
+    );
+    h.state_mut().ui.capture_part = "spare rotor 2".into();
+    h.run_steps(2);
     h.get_by_label("Start capture").click();
     // The generator taps every 1.5 s in real time; wait for the first saved hit.
     let t0 = Instant::now();
@@ -352,6 +363,7 @@ fn live_capture_from_the_generator_saves_and_shows_a_hit() {
     h.get_by_label_contains("KEPT");
     // It was on disk before the screen showed it.
     let s = tapgrid::session::Session::open(&session).expect("session");
+    assert_eq!(s.manifest.part.name, "spare rotor 2");
     assert!(
         s.manifest
             .hits

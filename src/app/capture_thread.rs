@@ -34,6 +34,10 @@ pub enum Report {
     Event(Event),
     /// The device went away; capture resumes when it returns.
     Waiting(String),
+    /// The last station of the plan has its hits: nothing more is armed.
+    PlanDone,
+    /// Undo found no hit to reject.
+    NothingToUndo,
     /// Capture ended; `Err` says why (every hit reported before it is saved).
     Ended(Result<(), String>),
 }
@@ -103,11 +107,13 @@ fn open_source(s: &Start) -> Result<Box<dyn Source>, SourceError> {
     )
 }
 
-/// Next station after `st` in `order` (or `st + 1` when `st` is not in it or is its last).
-pub fn next_station(order: &[u32], st: u32) -> u32 {
+/// Next station after `st` in the plan `order`: `None` after its last station (the plan is
+/// done); `st + 1` when there is no plan or `st` is not in it.
+pub fn next_station(order: &[u32], st: u32) -> Option<u32> {
     match order.iter().position(|&x| x == st) {
-        Some(i) if i + 1 < order.len() => order[i + 1],
-        _ => st + 1,
+        Some(i) if i + 1 < order.len() => Some(order[i + 1]),
+        Some(_) => None,
+        None => Some(st + 1),
     }
 }
 
@@ -166,8 +172,24 @@ fn run(
                 send(Report::Event(engine.arm(st, None)?));
             }
             Ok(Control::Undo) => {
-                if let Some(h) = engine.undo_last()? {
-                    send(Report::Event(Event::Hit(Box::new(h))));
+                let before = engine.station();
+                let undone = engine.undo_last()?;
+                if engine.station() != before
+                    && let Some(st) = engine.station()
+                {
+                    // Back on the station whose hit was undone, to replace it.
+                    done = false;
+                    send(Report::Event(Event::Armed {
+                        station: st,
+                        accepted: engine.accepted(),
+                    }));
+                }
+                match undone {
+                    Some(h) => {
+                        done = false;
+                        send(Report::Event(Event::Hit(Box::new(h))));
+                    }
+                    None => send(Report::NothingToUndo),
                 }
             }
             Ok(Control::Redo) => {
@@ -240,8 +262,13 @@ fn run(
                 accepted: engine.accepted(),
             }));
             if advance {
-                done = false;
-                send(Report::Event(engine.arm(next_station(&s.order, st), None)?));
+                match next_station(&s.order, st) {
+                    Some(next) => {
+                        done = false;
+                        send(Report::Event(engine.arm(next, None)?));
+                    }
+                    None => send(Report::PlanDone),
+                }
             }
         }
     }
@@ -258,9 +285,10 @@ mod tests {
         assert_eq!(parse_order("x"), None);
         assert_eq!(parse_order(""), None);
         let o = parse_order("10-8,1").unwrap_or_default();
-        assert_eq!(next_station(&o, 10), 9);
-        assert_eq!(next_station(&o, 8), 1);
-        assert_eq!(next_station(&o, 1), 2); // past the end: ascending
-        assert_eq!(next_station(&[], 5), 6);
+        assert_eq!(next_station(&o, 10), Some(9));
+        assert_eq!(next_station(&o, 8), Some(1));
+        assert_eq!(next_station(&o, 1), None); // the plan's last station: done
+        assert_eq!(next_station(&o, 5), Some(6)); // not in the plan: ascending
+        assert_eq!(next_station(&[], 5), Some(6));
     }
 }

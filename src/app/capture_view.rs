@@ -111,12 +111,19 @@ impl TapgridApp {
                         false,
                     ));
                     if self.settings.auto_advance {
-                        let order = capture_thread::parse_order(&self.settings.station_order)
-                            .unwrap_or_default();
-                        advance = Some(capture_thread::next_station(&order, station));
+                        advance = capture_thread::next_station(&self.capture_plan(), station);
                     }
                 }
                 Report::Event(Event::Health(hl)) => self.capture.health = hl,
+                Report::PlanDone => {
+                    let msg = "Every station of the plan has its hits: capture is idle. Stop, or \
+                               arm a station to add hits.";
+                    self.capture.message = Some((msg.into(), false));
+                    self.note(msg, false);
+                }
+                Report::NothingToUndo => {
+                    self.capture.message = Some(("Nothing to undo: no hit saved yet".into(), true));
+                }
                 Report::Waiting(m) => {
                     self.capture.message = Some((m.clone(), true));
                     self.note(m, true);
@@ -355,8 +362,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     ));
                     ui.end_row();
                     ui.label("station");
+                    let plan = plan_of(&app.settings.station_order, app.doc);
                     if app.ui.capture_station == 0 {
-                        app.ui.capture_station = app.ui.current_station.unwrap_or(1);
+                        app.ui.capture_station = plan.first().copied().unwrap_or(1);
                     }
                     ui.add(egui::DragValue::new(&mut app.ui.capture_station).range(1..=999));
                     ui.end_row();
@@ -385,17 +393,26 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                         let plan =
                             Control::Plan(app.settings.hits_per_station, app.settings.auto_advance);
                         app.push(Command::CaptureControl(plan));
-                        let order = Control::Order(order.unwrap_or_default());
+                        let order = Control::Order(plan_of(&app.settings.station_order, app.doc));
                         app.push(Command::CaptureControl(order));
                     }
                 });
             ui.horizontal(|ui| {
                 if !running {
+                    // A new session needs the part's name first.
+                    let named = writable || !app.ui.capture_part.trim().is_empty();
                     if ui
-                        .button(RichText::new("Start capture").size(20.0))
+                        .add_enabled(
+                            named,
+                            egui::Button::new(RichText::new("Start capture").size(20.0)),
+                        )
+                        .on_disabled_hover_text("Name the part first")
                         .clicked()
                     {
                         app.push(Command::StartCapture);
+                    }
+                    if !named {
+                        ui.label(RichText::new("Name the part to start").color(warn()));
                     }
                 } else {
                     if ui.button(RichText::new("Stop").size(20.0)).clicked() {
@@ -451,10 +468,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             ui.label(RichText::new("Not capturing. Choose an input and start.").size(24.0));
         }
         if let Some(h) = &app.capture.last_hit {
-            let (word, color) = if h.accepted {
-                ("KEPT", good())
-            } else {
-                ("REJECTED", bad())
+            let (word, color) = match (h.accepted, h.by_person) {
+                (true, false) => ("KEPT", good()),
+                (true, true) => ("KEPT by you", good()),
+                (false, false) => ("REJECTED", bad()),
+                (false, true) => ("REJECTED by you (undo)", bad()),
             };
             ui.label(
                 RichText::new(format!("Station {} hit {}: {word}", h.station, h.index + 1))
@@ -515,7 +533,26 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     });
 }
 
+/// The stations a capture visits in turn: the order typed, else the open test's stations, else
+/// none (then stations follow one another without end).
+pub(super) fn plan_of(order_text: &str, doc: Option<&super::Document>) -> Vec<u32> {
+    if let Some(o) = capture_thread::parse_order(order_text) {
+        return o;
+    }
+    let mut v: Vec<u32> = doc
+        .map(|d| d.data.stations.iter().map(|s| s.station).collect())
+        .unwrap_or_default();
+    v.sort_unstable();
+    v.dedup();
+    v
+}
+
 impl TapgridApp {
+    /// The station plan of the capture (see [`plan_of`]).
+    pub(super) fn capture_plan(&self) -> Vec<u32> {
+        plan_of(&self.settings.station_order, self.doc.as_ref())
+    }
+
     /// Starts a capture: into the open session when it is writable, else into the folder typed.
     pub(super) fn start_capture(&mut self) {
         let writable = self
@@ -528,10 +565,14 @@ impl TapgridApp {
         }
         let (dir, setup, part) = match (&self.doc, writable) {
             (Some(d), true) => (d.path.clone(), d.setup.clone(), d.part.clone()),
+            // A new session is a new part: its name is the one asked for, not the open test's.
             (d, _) => (
                 std::path::PathBuf::from(self.ui.capture_folder.trim()),
                 d.as_ref().map(|d| d.setup.clone()).unwrap_or_default(),
-                d.as_ref().map(|d| d.part.clone()).unwrap_or_default(),
+                crate::session::Part {
+                    name: self.ui.capture_part.trim().to_string(),
+                    notes: String::new(),
+                },
             ),
         };
         self.capture_dir = Some(dir.clone());
@@ -551,8 +592,7 @@ impl TapgridApp {
                 station: self.ui.capture_station.max(1),
                 hits: self.settings.hits_per_station,
                 auto_advance: self.settings.auto_advance,
-                order: capture_thread::parse_order(&self.settings.station_order)
-                    .unwrap_or_default(),
+                order: self.capture_plan(),
                 rate_hz: self.settings.capture_rate_hz,
                 buffer_frames: self.settings.capture_buffer_frames,
             },

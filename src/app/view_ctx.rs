@@ -35,6 +35,8 @@ pub struct UiState {
     pub capture_station: u32,
     /// Folder for a new session when the open test is not a writable session.
     pub capture_folder: String,
+    /// Part name for a new capture session.
+    pub capture_part: String,
     pub(super) plot_scratch: plots::Scratch,
     pub(super) overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
 }
@@ -56,6 +58,7 @@ impl Default for UiState {
             setup_pending: false,
             capture_station: 0,
             capture_folder: String::new(),
+            capture_part: String::new(),
             plot_scratch: plots::Scratch::default(),
             overlays: Default::default(),
         }

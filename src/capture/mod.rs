@@ -66,6 +66,8 @@ pub struct HitEvent {
     pub accepted: bool,
     /// Why not.
     pub reasons: Vec<Reason>,
+    /// The verdict is a person's (undo), not the automatic one.
+    pub by_person: bool,
     /// First sample of its record in the station's recording.
     pub record_start: usize,
     /// Samples in the record.
@@ -133,6 +135,9 @@ pub struct Engine {
     last_levels: Instant,
     health: Health,
     accepted: usize,
+    /// Station of the last hit reported, so undo still reaches it after auto-advance armed the
+    /// next station.
+    last_hit_station: Option<u32>,
 }
 
 impl Engine {
@@ -192,6 +197,7 @@ impl Engine {
             last_levels: Instant::now(),
             health: Health::default(),
             accepted: 0,
+            last_hit_station: None,
         })
     }
 
@@ -316,8 +322,16 @@ impl Engine {
         Ok(ev)
     }
 
-    /// Rejects the station's last hit (a person's override), saved at once.
+    /// Rejects the last hit (a person's override), saved at once. When auto-advance has already
+    /// armed the next station and it holds no hit yet, the station of that last hit is armed
+    /// again so its rejected hit can be replaced.
     pub fn undo_last(&mut self) -> Result<Option<HitEvent>, CaptureError> {
+        if self.reported == 0
+            && let Some(prev) = self.last_hit_station
+            && Some(prev) != self.station
+        {
+            self.arm(prev, None)?;
+        }
         if self.reported == 0 {
             return Ok(None);
         }
@@ -509,6 +523,7 @@ impl Engine {
         }
         if changed.is_none() {
             self.reported += 1;
+            self.last_hit_station = Some(station);
         }
         self.accepted = complete.iter().filter(|h| h.accepted).count();
         let start = hit.record_start.unwrap_or(0);
@@ -519,6 +534,7 @@ impl Engine {
             time_s: hit.time_s,
             accepted: hit.accepted,
             reasons: hit.reasons.clone(),
+            by_person: hit.override_accept.is_some(),
             record_start: start,
             record_samples: end - start,
             checksum: checksum(&self.a[start..end], &self.b[start..end]),
@@ -685,7 +701,17 @@ mod tests {
         // Undo rejects the last hit, saved at once.
         let undone = eng.undo_last().expect("undo").expect("a hit");
         assert!(!undone.accepted);
+        assert!(undone.by_person, "a person's verdict, shown as such");
         let s = Session::open(&session).expect("reopens");
         assert_eq!(s.manifest.hits.iter().filter(|h| h.accepted).count(), 4);
+        // After the next station is armed (as auto-advance does) and before it is tapped, undo
+        // still reaches the last hit: station 3 is armed again with its 4th hit rejected.
+        let undone = eng.undo_last().expect("undo").expect("a hit");
+        assert_eq!((undone.station, undone.index), (3, 4));
+        eng.arm(4, Some(0.5)).expect("arm next");
+        let undone = eng.undo_last().expect("undo").expect("reaches station 3");
+        assert_eq!((undone.station, undone.index), (3, 4));
+        assert_eq!(eng.station(), Some(3));
+        assert!(undone.by_person && !undone.accepted);
     }
 }
