@@ -91,7 +91,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         ui.label(RichText::new(MAP_NOTE).color(warn()));
         if let Some([lo, hi]) = study.bearing_band_n_per_m {
             ui.label(format!(
-                "Shaded: the bearings' stiffness band in service, {} to {}.",
+                "Blue band: the bearings' stiffness in service, {} to {}. Red bands: the running \
+                 speed range × each order. Diamonds on the dashed line: critical speeds at the \
+                 nominal stiffness.",
                 model_edit::with_prefix(lo, "N/m"),
                 model_edit::with_prefix(hi, "N/m")
             ));
@@ -163,9 +165,6 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
         .y_grid_spacer(egui_plot::log_grid_spacer(10))
         .include_x(x_lo)
         .include_x(x_hi)
-        // Top left: over the flat upper curves' start, clear of the running-speed lines and of
-        // the bearing band where the curves bend.
-        .legend(egui_plot::Legend::default().position(egui_plot::Corner::LeftTop))
         .show(ui, |p| {
             if let Some([lo, hi]) = study.running_speed_rpm {
                 for (n, &k) in study.orders.iter().enumerate() {
@@ -173,14 +172,23 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
                     // read as one of the mode lines.
                     let c = bad().gamma_multiply(1.0 / (n as f32 + 1.0));
                     p.span(
-                        Span::new(
-                            format!("{k}× running speed"),
-                            (k as f64 * lo).log10()..=(k as f64 * hi).log10(),
+                        Span::new("", (k as f64 * lo).log10()..=(k as f64 * hi).log10())
+                            .axis(Axis::Y)
+                            .fill(c.gamma_multiply(0.45))
+                            .border_color(c)
+                            .border_width(1.5),
+                    );
+                    // Labelled on the curve itself, at the left edge: a legend hid the plot.
+                    p.text(
+                        egui_plot::Text::new(
+                            "",
+                            egui_plot::PlotPoint::new(x_lo, (k as f64 * hi).log10()),
+                            RichText::new(format!("{k}× running speed"))
+                                .strong()
+                                .color(bad()),
                         )
-                        .axis(Axis::Y)
-                        .fill(c.gamma_multiply(0.45))
-                        .border_color(c)
-                        .border_width(1.5),
+                        .anchor(egui::Align2::LEFT_BOTTOM)
+                        .color(bad()),
                     );
                 }
             }
@@ -200,11 +208,24 @@ fn map_plot(ui: &mut egui::Ui, study: &Study, r: &StudyResult, height: f32) {
                     .filter(|(_, f)| **f > 0.0)
                     .map(|(x, f)| [*x, (f * 60.0).log10()])
                     .collect();
+                let end = pts.last().copied();
+                let c = plots::trace_color(i);
                 p.line(
                     Line::new(format!("mode {}", i + 1), pts)
-                        .color(plots::trace_color(i))
+                        .color(c)
                         .width(2.0),
                 );
+                if let Some([x, y]) = end {
+                    p.text(
+                        egui_plot::Text::new(
+                            "",
+                            egui_plot::PlotPoint::new(x, y),
+                            RichText::new(format!("mode {}", i + 1)).strong().color(c),
+                        )
+                        .anchor(egui::Align2::RIGHT_BOTTOM)
+                        .color(c),
+                    );
+                }
             }
             if let Some(&k) = nominal.first().filter(|k| **k > 0.0) {
                 p.vline(
