@@ -126,9 +126,29 @@ pub fn strip(ui: &mut egui::Ui, app: &mut ViewCtx, height: f32) {
     let (rect, _) = ui.allocate_exact_size(vec2(width, height), Sense::hover());
     let painter = ui.painter_at(rect);
     let visuals = ui.visuals().clone();
+    // With a shaft model the part is drawn as its stepped sections, to the same scale as the
+    // stations; without one, as a plain bar between the end stations.
+    let sections: Vec<(f64, f64, f64)> = doc
+        .study
+        .as_ref()
+        .map(|st| {
+            let mut x = 0.0;
+            st.shaft
+                .sections
+                .iter()
+                .map(|sec| {
+                    let a = x;
+                    x += sec.length_m;
+                    (a, x, sec.outer_diameter_m)
+                })
+                .collect()
+        })
+        .unwrap_or_default();
     let (x_min, x_max) = stations
         .iter()
-        .fold((0.0f64, 0.0f64), |(lo, hi), s| (lo.min(s.1), hi.max(s.1)));
+        .map(|s| s.1)
+        .chain(sections.iter().flat_map(|s| [s.0, s.1]))
+        .fold((0.0f64, 0.0f64), |(lo, hi), x| (lo.min(x), hi.max(x)));
     let length = (x_max - x_min).max(1e-3);
     let margin = 64.0;
     let to_x =
@@ -141,15 +161,36 @@ pub fn strip(ui: &mut egui::Ui, app: &mut ViewCtx, height: f32) {
     let cell = (spacing_px * 0.8).clamp(14.0, (height * 0.42).min(46.0));
     let shaft_y = rect.top() + height * 0.68;
     let shaft_h = (height * 0.10).clamp(6.0, 18.0);
-    // The part, to scale along its length.
-    painter.rect_filled(
-        Rect::from_min_max(
-            pos2(to_x(x_min), shaft_y - shaft_h / 2.0),
-            pos2(to_x(x_max), shaft_y + shaft_h / 2.0),
-        ),
-        3.0,
-        visuals.widgets.inactive.bg_fill,
-    );
+    // The part, to scale along its length (diameters to the strip's own scale).
+    let fill = visuals.widgets.inactive.bg_fill;
+    let outline = egui::Stroke::new(1.0, visuals.widgets.noninteractive.bg_stroke.color);
+    let d_max = sections.iter().map(|s| s.2).fold(0.0f64, f64::max);
+    let h_max = (height * 0.22).clamp(10.0, 30.0);
+    let body_half = if d_max > 0.0 {
+        h_max / 2.0
+    } else {
+        shaft_h / 2.0
+    };
+    if d_max > 0.0 {
+        for &(a, b, d) in &sections {
+            let h = (h_max * (d / d_max) as f32).max(3.0);
+            let r = Rect::from_min_max(
+                pos2(to_x(a), shaft_y - h / 2.0),
+                pos2(to_x(b), shaft_y + h / 2.0),
+            );
+            painter.rect_filled(r, 0.0, fill);
+            painter.rect_stroke(r, 0.0, outline, egui::StrokeKind::Inside);
+        }
+    } else {
+        painter.rect_filled(
+            Rect::from_min_max(
+                pos2(to_x(x_min), shaft_y - shaft_h / 2.0),
+                pos2(to_x(x_max), shaft_y + shaft_h / 2.0),
+            ),
+            3.0,
+            fill,
+        );
+    }
     let text = visuals.text_color();
     let small = FontId::proportional((cell * 0.45).clamp(11.0, 16.0));
     let reference = doc.setup.reference_station;
@@ -196,7 +237,7 @@ pub fn strip(ui: &mut egui::Ui, app: &mut ViewCtx, height: f32) {
         );
         if Some(st) == reference {
             painter.text(
-                pos2(x, shaft_y + shaft_h / 2.0 + 4.0),
+                pos2(x, shaft_y + body_half + 4.0),
                 Align2::CENTER_TOP,
                 "ref",
                 small.clone(),
