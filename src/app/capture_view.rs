@@ -56,7 +56,6 @@ impl TapgridApp {
     pub(crate) fn drain_capture(&mut self, now: f64) {
         let mut reload = false;
         let mut ended = None;
-        let mut advance = None;
         let mut incoming = Vec::new();
         if let Some(h) = &self.capture.handle {
             while let Ok(r) = h.reports.try_recv() {
@@ -85,7 +84,9 @@ impl TapgridApp {
                     }
                 }
                 Report::Event(Event::Armed { station, accepted }) => {
+                    // The thread arms stations itself (auto-advance, undo): the form follows.
                     self.capture.armed = Some(station);
+                    self.ui.capture_station = station;
                     self.ui.current_station = Some(station);
                     self.capture.message = Some((
                         format!("Tap station {station} ({accepted} kept so far)"),
@@ -110,9 +111,6 @@ impl TapgridApp {
                         format!("Station {station} done: {accepted} hits kept"),
                         false,
                     ));
-                    if self.settings.auto_advance {
-                        advance = capture_thread::next_station(&self.capture_plan(), station);
-                    }
                 }
                 Report::Event(Event::Health(hl)) => self.capture.health = hl,
                 Report::PlanDone => {
@@ -130,10 +128,6 @@ impl TapgridApp {
                 }
                 Report::Ended(r) => ended = Some(r),
             }
-        }
-        // The capture thread arms the next station itself; follow it here.
-        if let Some(next) = advance {
-            self.ui.capture_station = next;
         }
         if let Some(r) = ended {
             self.capture.handle = None;
@@ -362,8 +356,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     ));
                     ui.end_row();
                     ui.label("station");
-                    let plan = plan_of(&app.settings.station_order, app.doc);
                     if app.ui.capture_station == 0 {
+                        let plan = plan_of(&app.settings.station_order, app.doc);
                         app.ui.capture_station = plan.first().copied().unwrap_or(1);
                     }
                     ui.add(egui::DragValue::new(&mut app.ui.capture_station).range(1..=999));
@@ -548,11 +542,6 @@ pub(super) fn plan_of(order_text: &str, doc: Option<&super::Document>) -> Vec<u3
 }
 
 impl TapgridApp {
-    /// The station plan of the capture (see [`plan_of`]).
-    pub(super) fn capture_plan(&self) -> Vec<u32> {
-        plan_of(&self.settings.station_order, self.doc.as_ref())
-    }
-
     /// Starts a capture: into the open session when it is writable, else into the folder typed.
     pub(super) fn start_capture(&mut self) {
         let writable = self
@@ -592,7 +581,7 @@ impl TapgridApp {
                 station: self.ui.capture_station.max(1),
                 hits: self.settings.hits_per_station,
                 auto_advance: self.settings.auto_advance,
-                order: self.capture_plan(),
+                order: plan_of(&self.settings.station_order, self.doc.as_ref()),
                 rate_hz: self.settings.capture_rate_hz,
                 buffer_frames: self.settings.capture_buffer_frames,
             },

@@ -182,19 +182,27 @@ impl TapgridApp {
             PathPurpose::WriteReport => Some(".html"),
             _ => None,
         };
-        // The folder to list: the path typed when it is a folder, else the folder holding it.
-        let typed = PathBuf::from(d.text.trim());
-        let dir = if typed.is_dir() {
-            typed.clone()
-        } else {
-            typed
-                .parent()
-                .filter(|p| p.is_dir())
-                .map(Path::to_path_buf)
-                .unwrap_or_else(|| std::env::current_dir().unwrap_or_default())
-        };
-        if d.listing.as_ref().is_none_or(|l| l.dir != dir) {
-            d.listing = Some(super::command::Listing::read(&dir, ext));
+        // The folder to list: the path typed when it is a folder, else the folder holding it
+        // (worked out again only when the text changes).
+        if d.listing.as_ref().is_none_or(|l| l.for_text != d.text) {
+            let typed = PathBuf::from(d.text.trim());
+            let dir = if typed.is_dir() {
+                typed.clone()
+            } else {
+                typed
+                    .parent()
+                    .filter(|p| p.is_dir())
+                    .map(Path::to_path_buf)
+                    .unwrap_or_else(|| std::env::current_dir().unwrap_or_default())
+            };
+            d.listing = match d.listing.take() {
+                // Same folder: keep its entries.
+                Some(mut l) if l.dir == dir => {
+                    l.for_text = d.text.clone();
+                    Some(l)
+                }
+                _ => Some(super::command::Listing::read(&d.text, &dir, ext)),
+            };
         }
         egui::Window::new(title)
             .collapsible(false)

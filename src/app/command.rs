@@ -123,13 +123,15 @@ pub(super) struct PathDialog {
 
 /// One folder's entries for the path dialog's browser.
 pub(super) struct Listing {
+    /// The path text it was read for (the folder is worked out again only when that changes).
+    pub(super) for_text: String,
     pub(super) dir: PathBuf,
     pub(super) entries: Vec<(String, EntryKind)>,
     pub(super) error: Option<String>,
 }
 
 /// What an entry of the browser is.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(super) enum EntryKind {
     /// A tapgrid session (holds `session.json`).
     Session,
@@ -144,7 +146,7 @@ pub(super) enum EntryKind {
 impl Listing {
     /// Reads `dir`: folders, sessions and WAV sets first, then files ending in `ext` (if any);
     /// hidden entries left out.
-    pub(super) fn read(dir: &Path, ext: Option<&str>) -> Self {
+    pub(super) fn read(for_text: &str, dir: &Path, ext: Option<&str>) -> Self {
         let mut entries = Vec::new();
         let error = match std::fs::read_dir(dir) {
             Err(e) => Some(format!("cannot list {}: {e}", dir.display())),
@@ -174,12 +176,13 @@ impl Listing {
             }
         };
         entries.sort_by(|a, b| {
-            let folder = |k: EntryKind| k == EntryKind::File;
-            folder(a.1)
-                .cmp(&folder(b.1))
+            let is_file = |k: EntryKind| k == EntryKind::File;
+            is_file(a.1)
+                .cmp(&is_file(b.1))
                 .then(a.0.to_lowercase().cmp(&b.0.to_lowercase()))
         });
         Self {
+            for_text: for_text.to_string(),
             dir: dir.to_path_buf(),
             entries,
             error,

@@ -11,6 +11,81 @@ use crate::setup::Layout;
 /// A plot of the review: its name, the plot, the plotted value of trace i at line k.
 type Pane<'a> = (&'static str, Plot<'a>, &'a dyn Fn(usize, usize) -> f64);
 
+/// The stations drawn and their colours: the current one in the accent colour, the others by
+/// their order among those shown.
+fn shown_traces(
+    stations: &[u32],
+    current: Option<u32>,
+    all: bool,
+    overlay: &std::collections::BTreeSet<u32>,
+) -> Vec<(usize, egui::Color32)> {
+    let mut n = 0;
+    let mut out = Vec::new();
+    for (i, &s) in stations.iter().enumerate() {
+        if !(all || current == Some(s) || overlay.contains(&s)) {
+            continue;
+        }
+        out.push((
+            i,
+            if current == Some(s) {
+                accent()
+            } else {
+                plots::trace_color(n)
+            },
+        ));
+        n += 1;
+    }
+    out
+}
+
+/// The line nearest frequency `fx` (Hz) in `f`.
+fn nearest_line(f: &[f64], fx: f64) -> usize {
+    let k = f
+        .partition_point(|&v| v < fx)
+        .min(f.len().saturating_sub(1));
+    if k > 0 && (f[k - 1] - fx).abs() < (f[k] - fx).abs() {
+        k - 1
+    } else {
+        k
+    }
+}
+
+/// The hover read-out: the curve under the pointer (else the current station's) and its value
+/// at the nearest line, not the cursor's height.
+fn readout<'a>(
+    stations: &'a [u32],
+    f: &'a [f64],
+    axis: FreqAxis,
+    cur_i: Option<usize>,
+    yunit: &'a str,
+    value: &'a dyn Fn(usize, usize) -> f64,
+) -> impl Fn(&egui_plot::HoverPosition<'_>) -> Option<String> + 'a {
+    move |p| {
+        let (name, x) = match p {
+            egui_plot::HoverPosition::NearDataPoint {
+                plot_name,
+                position,
+                ..
+            } => (*plot_name, position.x),
+            egui_plot::HoverPosition::Elsewhere { position } => ("", position.x),
+        };
+        let i = stations
+            .iter()
+            .position(|s| name == format!("station {s}"))
+            .or(cur_i)?;
+        if f.is_empty() {
+            return None;
+        }
+        let k = nearest_line(f, axis.f(x));
+        Some(format!(
+            "station {}\n{:.1} Hz\n{:.2} {yunit}",
+            stations[i],
+            f[k],
+            value(i, k)
+        ))
+    }
+}
+
 /// Draws the view.
 pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     station_map::strip(ui, app, 96.0);
@@ -33,25 +108,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         log: app.settings.log_frequency,
     };
     // Each shown station's colour, for the key beside its checkbox.
-    let colour_of = |app: &ViewCtx, s: u32| -> Option<egui::Color32> {
-        let current = app.ui.current_station;
-        let mut n = 0;
-        for &x in &frfs.stations {
-            let on = app.settings.overlay_all || current == Some(x) || app.ui.overlay.contains(&x);
-            if !on {
-                continue;
-            }
-            if x == s {
-                return Some(if current == Some(x) {
-                    accent()
-                } else {
-                    plots::trace_color(n)
-                });
-            }
-            n += 1;
-        }
-        None
-    };
+    let key = shown_traces(
+        &frfs.stations,
+        app.ui.current_station,
+        app.settings.overlay_all,
+        &app.ui.overlay,
+    );
     egui::Panel::left("frf-options")
         .default_size(230.0)
         .show(ui, |ui| {
@@ -83,7 +145,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 .show(ui, |ui| {
                     for &s in &frfs.stations {
                         let mut on = app.ui.overlay.contains(&s);
-                        let key = colour_of(app, s);
+                        let key = key
+                            .iter()
+                            .find(|(i, _)| frfs.stations[*i] == s)
+                            .map(|(_, c)| *c);
                         let changed = ui
                             .horizontal(|ui| {
                                 let (r, p) =
@@ -113,13 +178,15 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     }
                 });
         });
+    // Again after the panel, so a checkbox ticked this frame shows at once.
     let current = app.ui.current_station;
-    let shown: Vec<usize> = (0..frfs.stations.len())
-        .filter(|&i| {
-            let s = frfs.stations[i];
-            app.settings.overlay_all || current == Some(s) || app.ui.overlay.contains(&s)
-        })
-        .collect();
+    let shown_colours = shown_traces(
+        &frfs.stations,
+        current,
+        app.settings.overlay_all,
+        &app.ui.overlay,
+    );
+    let shown: Vec<usize> = shown_colours.iter().map(|(i, _)| *i).collect();
     egui::CentralPanel::default().show(ui, |ui| {
         if shown.is_empty() {
             ui.label(
@@ -130,53 +197,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         let h_each = ((ui.available_height() - 10.0 * n_plots) / n_plots).max(110.0);
         let link = egui::Id::unique("frf-x");
         let f = &frfs.freq_hz;
-        // The read-out names the curve and gives its value at the nearest line, not the
-        // cursor's height.
         let cur_i = current.and_then(|s| frfs.stations.iter().position(|&x| x == s));
-        let nearest = move |x: f64| {
-            let fx = axis.f(x);
-            let k = f
-                .partition_point(|&v| v < fx)
-                .min(f.len().saturating_sub(1));
-            if k > 0 && (f[k - 1] - fx).abs() < (f[k] - fx).abs() {
-                k - 1
-            } else {
-                k
-            }
-        };
-        let frfs_ref: &crate::modal::FrfSet = &frfs;
-        let label = |yunit: &'static str, value: &'static str| {
-            let frfs = frfs_ref;
-            let (h, coh) = (&frfs.h, &frfs.coherence);
-            move |p: &egui_plot::HoverPosition<'_>| -> Option<String> {
-                let (name, x) = match p {
-                    egui_plot::HoverPosition::NearDataPoint {
-                        plot_name,
-                        position,
-                        ..
-                    } => (plot_name.to_string(), position.x),
-                    egui_plot::HoverPosition::Elsewhere { position } => (String::new(), position.x),
-                };
-                let i = frfs
-                    .stations
-                    .iter()
-                    .position(|s| name == format!("station {s}"))
-                    .or(cur_i)?;
-                if f.is_empty() {
-                    return None;
-                }
-                let k = nearest(x);
-                let y = match value {
-                    "mag" => plots::db(h[i][k].norm()),
-                    "phase" => h[i][k].arg().to_degrees(),
-                    _ => coh[i][k],
-                };
-                Some(format!(
-                    "station {}\n{:.1} Hz\n{y:.2} {yunit}",
-                    frfs.stations[i], f[k]
-                ))
-            }
-        };
+        let nearest = move |x: f64| nearest_line(f, axis.f(x));
         let usable_edge = current
             .and_then(|s| frfs.stations.iter().position(|&x| x == s))
             .and_then(|i| frfs.usable_hi_hz.get(i).copied())
@@ -198,17 +220,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 }
             }
         };
-        let traces: Vec<(usize, String, egui::Color32)> = shown
+        let traces: Vec<(usize, String, egui::Color32)> = shown_colours
             .iter()
-            .enumerate()
-            .map(|(n, &i)| {
-                let c = if current == Some(frfs.stations[i]) {
-                    accent()
-                } else {
-                    plots::trace_color(n)
-                };
-                (i, format!("station {}", frfs.stations[i]), c)
-            })
+            .map(|&(i, c)| (i, format!("station {}", frfs.stations[i]), c))
             .collect();
         let highlight = frfs.stations.iter().position(|&s| Some(s) == current);
         let base = (
@@ -222,11 +236,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         let mag = |i: usize, k: usize| plots::db(h[i][k].norm());
         let phase = |i: usize, k: usize| h[i][k].arg().to_degrees();
         let coherence = |i: usize, k: usize| coh[i][k];
+        let stations = &frfs.stations;
         let mut panes: Vec<Pane<'_>> = vec![(
             "frf-mag",
             axis.configure(plots::plot("frf-mag"))
                 .y_axis_label(format!("{quantity}\n{unit}"))
-                .label_formatter(label(unit, "mag")),
+                .label_formatter(readout(stations, f, axis, cur_i, unit, &mag)),
             &mag,
         )];
         if app.settings.show_phase {
@@ -236,7 +251,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     .include_y(-180.0)
                     .include_y(180.0)
                     .y_axis_label("phase\ndegrees")
-                    .label_formatter(label("°", "phase")),
+                    .label_formatter(readout(stations, f, axis, cur_i, "°", &phase)),
                 &phase,
             ));
         }
@@ -246,7 +261,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 .include_y(0.0)
                 .include_y(1.05)
                 .y_axis_label("coherence\nγ² (0…1)")
-                .label_formatter(label("", "coherence")),
+                .label_formatter(readout(stations, f, axis, cur_i, "", &coherence)),
             &coherence,
         ));
         for (name, plot, value) in panes {

@@ -79,8 +79,6 @@ pub struct ViewCtx<'a> {
     pub traces: Option<Arc<Vec<Option<HitTraces>>>>,
     /// Counts analyses received: caches keyed on it redraw when new data arrive.
     pub analysis_stamp: u64,
-    /// What the analysis worker is busy with.
-    pub busy: Option<&'static str>,
     commands: &'a mut Vec<Command>,
 }
 
@@ -105,7 +103,6 @@ impl TapgridApp {
             capture: &self.capture,
             traces,
             analysis_stamp: self.analysis_stamp,
-            busy: self.worker.busy(),
             commands: &mut self.commands,
         }
     }

@@ -22,8 +22,8 @@ pub(super) struct Candidate {
 /// that nothing downstream sees one; `bad` lists where they were, so the hits whose records
 /// held them can be rejected. Borrows the input when it is clean.
 pub(super) struct FiniteChannels<'a> {
-    pub(super) a: std::borrow::Cow<'a, [f64]>,
-    pub(super) b: std::borrow::Cow<'a, [f64]>,
+    a: std::borrow::Cow<'a, [f64]>,
+    b: std::borrow::Cow<'a, [f64]>,
     pub(super) bad: Vec<usize>,
 }
 
