@@ -762,3 +762,26 @@ fn no_overload_is_shown_before_a_capture() {
     settle(&mut h);
     assert!(h.query_by_label("OVERLOAD").is_none());
 }
+
+#[test]
+fn the_station_map_shows_the_selected_stations_frf_and_sound_cues_start_off() {
+    // The map's detail: the selected station's hits and a small FRF with its coherence, and
+    // the buttons that lead to the full views.
+    let mut h = open_demo();
+    h.get_by_label("Station map").click();
+    settle(&mut h);
+    h.get_by_label("Station 5").click();
+    settle(&mut h);
+    h.get_by_label("Station 5: all hits accepted");
+    h.get_by_label("hit 3: kept");
+    h.get_by_label("Review its FRF").click();
+    settle(&mut h);
+    assert_eq!(h.state().settings.view, View::Frf);
+    // Sound cues are opt-in: a test run (or a quiet lab) never hears them unless asked.
+    assert!(!Settings::default().sound_cues);
+    h.get_by_label("Live capture").click();
+    settle(&mut h);
+    let cue = h.get_by_label("a short tone for each kept or rejected hit");
+    assert!(!cue.accesskit_node().is_disabled());
+    assert!(!h.state().settings.sound_cues);
+}

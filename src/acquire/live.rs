@@ -300,3 +300,116 @@ impl Source for LiveInput {
         }
     }
 }
+
+/// A short sound telling a person at the part what became of a hit, so they need not look at
+/// the screen between taps.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Cue {
+    /// The hit was kept: two short rising tones.
+    Kept,
+    /// The hit was rejected: one low, longer tone.
+    Rejected,
+    /// The station is done: three rising tones.
+    StationDone,
+}
+
+impl Cue {
+    /// Tones (frequency Hz, duration s) played one after the other.
+    pub fn tones(self) -> &'static [(f64, f64)] {
+        match self {
+            Cue::Kept => &[(880.0, 0.07), (1320.0, 0.07)],
+            Cue::Rejected => &[(330.0, 0.28)],
+            Cue::StationDone => &[(660.0, 0.08), (880.0, 0.08), (1320.0, 0.12)],
+        }
+    }
+
+    /// The cue as mono samples at `rate` Hz, each tone faded in and out over 5 ms so it does not
+    /// click.
+    pub fn samples(self, rate: u32) -> Vec<f32> {
+        let rate = f64::from(rate.max(1));
+        let mut out = Vec::new();
+        for &(f, d) in self.tones() {
+            let n = (d * rate).round() as usize;
+            let ramp = (0.005 * rate).max(1.0);
+            for k in 0..n {
+                let t = k as f64 / rate;
+                let edge = (k as f64 / ramp).min((n - k) as f64 / ramp).min(1.0);
+                out.push((0.3 * edge * (2.0 * std::f64::consts::PI * f * t).sin()) as f32);
+            }
+        }
+        out
+    }
+}
+
+/// Plays `cue` on the default output device, on a thread of its own so capture is never held up;
+/// the handle says whether it could be played.
+pub fn play_cue(cue: Cue) -> std::thread::JoinHandle<Result<(), SourceError>> {
+    std::thread::spawn(move || {
+        let host = cpal::default_host();
+        let device = host
+            .default_output_device()
+            .ok_or_else(|| SourceError::Device("no output device for sound cues".into()))?;
+        let def = device
+            .default_output_config()
+            .map_err(|e| SourceError::Device(describe(&e, "default output")))?;
+        let nch = usize::from(def.channels()).max(1);
+        let config: cpal::StreamConfig = def.config();
+        let samples = cue.samples(config.sample_rate);
+        let seconds = samples.len() as f64 / f64::from(config.sample_rate.max(1));
+        macro_rules! build {
+            ($t:ty) => {{
+                let mut pos = 0usize;
+                let samples = samples.clone();
+                device.build_output_stream::<$t, _, _>(
+                    config,
+                    move |data: &mut [$t], _: &cpal::OutputCallbackInfo| {
+                        for frame in data.chunks_exact_mut(nch) {
+                            let v = samples.get(pos).copied().unwrap_or(0.0);
+                            pos += 1;
+                            for s in frame {
+                                *s = <$t as Sample>::from_sample(v);
+                            }
+                        }
+                    },
+                    |_| {},
+                    None,
+                )
+            }};
+        }
+        let stream = match def.sample_format() {
+            SampleFormat::I16 => build!(i16),
+            SampleFormat::I32 => build!(i32),
+            SampleFormat::U16 => build!(u16),
+            SampleFormat::F32 => build!(f32),
+            SampleFormat::F64 => build!(f64),
+            other => {
+                return Err(SourceError::Device(format!(
+                    "the output device takes {other} samples, which sound cues do not write"
+                )));
+            }
+        }
+        .map_err(|e| SourceError::Device(describe(&e, "default output")))?;
+        stream
+            .play()
+            .map_err(|e| SourceError::Device(describe(&e, "default output")))?;
+        std::thread::sleep(Duration::from_secs_f64(seconds + 0.1));
+        drop(stream);
+        Ok(())
+    })
+}
+
+#[cfg(test)]
+mod cue_tests {
+    use super::Cue;
+
+    #[test]
+    fn cues_have_the_stated_length_and_stay_below_full_scale() {
+        // Length = sum of tone durations × rate; peak 0.3 of full scale (our own choice).
+        let s = Cue::Kept.samples(48_000);
+        assert_eq!(s.len(), 2 * 3360);
+        assert!(s.iter().all(|v| v.abs() <= 0.3 + 1e-6));
+        assert_eq!(Cue::Rejected.samples(44_100).len(), 12_348);
+        // Faded in: the first sample is silent, no click.
+        assert_eq!(s[0], 0.0);
+    }
+}

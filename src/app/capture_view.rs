@@ -9,6 +9,7 @@ use super::capture_thread::{self, Control, Report};
 use super::plots::{self, accent, bad, good, idle, warn};
 use super::{Command, TapgridApp, ViewCtx, station_map};
 use crate::acquire::live::DeviceInfo;
+use crate::acquire::live::{Cue, play_cue};
 use crate::acquire::source::Health;
 use crate::capture::{Event, HitEvent};
 
@@ -32,6 +33,8 @@ pub struct CaptureState {
     pub health: Health,
     /// Last message (text, is an error).
     pub message: Option<(String, bool)>,
+    /// The sound cue playing, if any (its thread says whether it could be played).
+    pub cue: Option<std::thread::JoinHandle<Result<(), crate::acquire::source::SourceError>>>,
 }
 
 impl Default for CaptureState {
@@ -47,11 +50,33 @@ impl Default for CaptureState {
             last_hit: None,
             health: Health::default(),
             message: None,
+            cue: None,
         }
     }
 }
 
 impl TapgridApp {
+    /// Plays a sound cue when the person asked for them. A cue that cannot be played (no output
+    /// device) says so once and turns cues off rather than failing capture.
+    fn cue(&mut self, cue: Cue) {
+        if !self.settings.sound_cues {
+            return;
+        }
+        if let Some(h) = self.capture.cue.take() {
+            if !h.is_finished() {
+                // One cue at a time: a second hit within a cue's length goes unsounded.
+                self.capture.cue = Some(h);
+                return;
+            }
+            if let Ok(Err(e)) = h.join() {
+                self.settings.sound_cues = false;
+                self.capture.message = Some((format!("Sound cues turned off: {e}"), true));
+                return;
+            }
+        }
+        self.capture.cue = Some(play_cue(cue));
+    }
+
     /// Drains the capture thread's reports (called from `logic`).
     pub(crate) fn drain_capture(&mut self, now: f64) {
         let mut reload = false;
@@ -103,10 +128,12 @@ impl TapgridApp {
                         ),
                         false,
                     ));
+                    self.cue(if h.accepted { Cue::Kept } else { Cue::Rejected });
                     self.capture.last_hit = Some(*h);
                     reload = true;
                 }
                 Report::Event(Event::StationDone { station, accepted }) => {
+                    self.cue(Cue::StationDone);
                     self.capture.message = Some((
                         format!("Station {station} done: {accepted} hits kept"),
                         false,
@@ -376,6 +403,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                             .hint_text("e.g. 1-10, 10-1 or 1,3,5-8")
                             .desired_width(160.0),
                     );
+                    ui.end_row();
+                    ui.label("sound");
+                    ui.checkbox(&mut app.settings.sound_cues, "a short tone for each kept or rejected hit")
+                        .on_hover_text("Two rising tones: kept. One low tone: rejected. Three: station done. Played on the default output device.");
                     ui.end_row();
                     let order = capture_thread::parse_order(&app.settings.station_order);
                     if order.is_none() && !app.settings.station_order.trim().is_empty() {

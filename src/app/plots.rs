@@ -209,10 +209,14 @@ impl FreqAxis {
     /// Tick label for a grid mark.
     pub fn tick(self, m: GridMark) -> String {
         let f = self.f(m.value);
-        if f >= 10.0 {
-            format!("{:.0}", f)
+        if self.log {
+            if f >= 10.0 {
+                format!("{f:.0}")
+            } else {
+                format!("{f:.1}")
+            }
         } else {
-            format!("{:.1}", f)
+            tick_label(m, &(0.0..=0.0))
         }
     }
 

@@ -111,6 +111,9 @@ pub struct Settings {
     pub capture_rate_hz: Option<u32>,
     /// Frames per audio callback.
     pub capture_buffer_frames: u32,
+    /// Play a short sound on the default output for each kept or rejected hit (off unless the
+    /// person turns it on).
+    pub sound_cues: bool,
 }
 
 impl Default for Settings {
@@ -131,6 +134,7 @@ impl Default for Settings {
             station_order: String::new(),
             capture_rate_hz: None,
             capture_buffer_frames: 1024,
+            sound_cues: false,
         }
     }
 }

@@ -233,7 +233,12 @@ pub fn strip(ui: &mut egui::Ui, app: &mut ViewCtx, height: f32) {
             Align2::CENTER_CENTER,
             st.to_string(),
             small.clone(),
-            Color32::BLACK,
+            // The light theme's cell colours are dark enough for text; the dark theme's are not.
+            if super::plots::is_dark() {
+                Color32::BLACK
+            } else {
+                Color32::WHITE
+            },
         );
         if Some(st) == reference {
             painter.text(
@@ -335,22 +340,103 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         return;
     };
     let (state, hover) = state_of(doc, st);
-    ui.group(|ui| {
-        ui.label(
-            egui::RichText::new(format!("Station {st}: {}", state.word()))
-                .size(20.0)
-                .color(state.color()),
-        );
-        for line in hover.lines().skip(1) {
-            ui.label(line.trim());
-        }
-        ui.horizontal(|ui| {
-            if ui.button("Check its hits").clicked() {
-                app.push(Command::Show(View::Hits));
-            }
-            if ui.button("Review its FRF").clicked() {
-                app.push(Command::Show(View::Frf));
-            }
+    let mut go = None;
+    ui.horizontal_top(|ui| {
+        ui.group(|ui| {
+            ui.set_width(360.0);
+            ui.vertical(|ui| {
+                ui.label(
+                    egui::RichText::new(format!("Station {st}: {}", state.word()))
+                        .size(20.0)
+                        .color(state.color()),
+                );
+                for line in hover.lines().skip(1) {
+                    ui.label(line.trim());
+                }
+                ui.horizontal(|ui| {
+                    if ui.button("Check its hits").clicked() {
+                        go = Some(View::Hits);
+                    }
+                    if ui.button("Review its FRF").clicked() {
+                        go = Some(View::Frf);
+                    }
+                });
+            });
         });
+        thumbnail(ui, app, doc, st);
+    });
+    if let Some(v) = go {
+        app.push(Command::Show(v));
+    }
+}
+
+/// The selected station's FRF magnitude and coherence, small, with the modes found marked: what
+/// the station gave at a glance without leaving the map.
+fn thumbnail(ui: &mut egui::Ui, app: &mut ViewCtx, doc: &Document, st: u32) {
+    let Some(frfs) = &doc.frfs else {
+        return;
+    };
+    let Some(i) = frfs.stations.iter().position(|&s| s == st) else {
+        ui.label("No FRF at this station (no accepted hit).");
+        return;
+    };
+    let axis = super::plots::FreqAxis {
+        log: app.settings.log_frequency,
+    };
+    let f = &frfs.freq_hz;
+    let columns = (ui.available_width() as usize).max(16);
+    let unit = match frfs.layout {
+        crate::setup::Layout::Hammer => "accelerance\ndB re 1 (m/s²)/N",
+        crate::setup::Layout::Sensor => "transmissibility\ndB re 1",
+    };
+    let mag = app.ui.plot_scratch.reduced(
+        f,
+        |k| super::plots::db(frfs.h[i][k].norm()),
+        axis,
+        None,
+        columns,
+    );
+    let coh = app
+        .ui
+        .plot_scratch
+        .reduced(f, |k| frfs.coherence[i][k], axis, None, columns);
+    let modes: Vec<f64> = doc
+        .modal
+        .as_ref()
+        .map(|m| m.modes.iter().map(|md| md.measured_frequency_hz).collect())
+        .unwrap_or_default();
+    let h = (ui.available_height() - 20.0).clamp(120.0, 320.0);
+    ui.vertical(|ui| {
+        let draw_modes = |p: &mut egui_plot::PlotUi<'_>| {
+            for &fm in &modes {
+                p.vline(
+                    egui_plot::VLine::new("mode", axis.x(fm)).color(warn().gamma_multiply(0.6)),
+                );
+            }
+        };
+        axis.configure(super::plots::plot("map-thumb-mag"))
+            .height(h * 0.68)
+            .y_axis_label(unit)
+            .y_axis_min_width(56.0)
+            .allow_drag(false)
+            .allow_zoom(false)
+            .allow_scroll(false)
+            .show(ui, |p| {
+                p.line(egui_plot::Line::new(format!("station {st}"), mag).color(accent()));
+                draw_modes(p);
+            });
+        axis.configure(super::plots::plot("map-thumb-coh"))
+            .height(h * 0.32)
+            .include_y(0.0)
+            .include_y(1.05)
+            .y_axis_label("coherence\nγ²")
+            .y_axis_min_width(56.0)
+            .allow_drag(false)
+            .allow_zoom(false)
+            .allow_scroll(false)
+            .show(ui, |p| {
+                p.line(egui_plot::Line::new(format!("station {st}"), coh).color(accent()));
+                draw_modes(p);
+            });
     });
 }
