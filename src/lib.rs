@@ -35,6 +35,7 @@ pub mod numeric;
 pub mod pipeline;
 pub mod reduce;
 pub mod report;
+pub mod rotor;
 pub mod session;
 pub mod setup;
 pub mod signal;

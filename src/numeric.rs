@@ -172,6 +172,53 @@ pub fn lowest_modes_sparse(
     None
 }
 
+/// Eigenvectors of the dense symmetric-definite pencil K φ = λ M φ (M positive definite), all of
+/// them, ascending, M-orthonormal: Cholesky M = L Lᵀ, the symmetric eigenproblem of L⁻¹ K L⁻ᵀ,
+/// φ = L⁻ᵀ v. `None` when M is not positive definite or the input is not finite.
+pub fn symmetric_pencil(k: &DMatrix<f64>, m: &DMatrix<f64>) -> Option<(Vec<f64>, DMatrix<f64>)> {
+    if !all_finite(k) || !all_finite(m) || k.nrows() != m.nrows() {
+        return None;
+    }
+    let l = m.clone().cholesky()?.l();
+    let a = l.solve_lower_triangular(k)?;
+    let c = l.solve_lower_triangular(&a.transpose())?;
+    let c = (&c + c.transpose()) * 0.5;
+    let eig = symmetric_eigen(c)?;
+    let n = k.nrows();
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
+    let values = order.iter().map(|&i| eig.eigenvalues[i]).collect();
+    let v = DMatrix::<f64>::from_fn(n, n, |r, c| eig.eigenvectors[(r, order[c])]);
+    let phi = l.transpose().solve_upper_triangular(&v)?;
+    Some((values, phi))
+}
+
+/// The eigenvector of the complex matrix `a` for its (computed) eigenvalue `lambda`, by two
+/// steps of inverse iteration with nalgebra's LU on `a − μI`, μ a hair away from `lambda` so the
+/// factor stays regular. Unit 2-norm; `None` when the solve fails or is not finite.
+pub fn eigenvector_near(
+    a: &DMatrix<Complex64>,
+    lambda: Complex64,
+) -> Option<nalgebra::DVector<Complex64>> {
+    let n = a.nrows();
+    let scale = lambda.norm().max(1e-300);
+    let mu = lambda + Complex64::new(scale * 1e-11, scale * 1e-11);
+    let shifted = a - DMatrix::<Complex64>::identity(n, n) * mu;
+    let lu = shifted.lu();
+    let mut x = nalgebra::DVector::<Complex64>::from_fn(n, |i, _| {
+        Complex64::new(1.0 + 0.1 * (i % 7) as f64, 0.05 * (i % 5) as f64)
+    });
+    for _ in 0..3 {
+        x = lu.solve(&x)?;
+        let norm = x.norm();
+        if !(norm.is_finite() && norm > 0.0) {
+            return None;
+        }
+        x /= Complex64::new(norm, 0.0);
+    }
+    Some(x)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

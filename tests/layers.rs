@@ -14,6 +14,7 @@ const LAYERS: &[&[&str]] = &[
     &["analysis"],
     &["modal"],
     &["model"],
+    &["rotor"],
     &["session"],
     &["capture"],
     &["pipeline"],

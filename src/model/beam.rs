@@ -109,6 +109,8 @@ pub enum BeamTheory {
     Timoshenko,
     /// Classical Euler–Bernoulli (Φ = 0, no rotary inertia).
     EulerBernoulli,
+    /// Rayleigh beam: rotary inertia (and gyroscopic terms at speed) without shear (Φ = 0).
+    Rayleigh,
 }
 
 /// Shear coefficient of a circular tube (Cowper 1966, from memory):
@@ -307,31 +309,7 @@ impl Shaft {
         extra_nodes_m: &[f64],
     ) -> Result<FeModel, String> {
         self.validate()?;
-        let l = self.length_m();
-        let mut breaks = vec![0.0];
-        let mut x = 0.0;
-        for s in &self.sections {
-            x += s.length_m;
-            breaks.push(x);
-        }
-        for &p in extra_nodes_m
-            .iter()
-            .chain(self.supports.iter().map(|s| &s.position_m))
-            .chain(self.discs.iter().map(|d| &d.position_m))
-        {
-            if (0.0..=l).contains(&p) {
-                breaks.push(p);
-            }
-        }
-        breaks.sort_by(f64::total_cmp);
-        breaks.dedup_by(|a, b| (*a - *b).abs() < 1e-9);
-        let mut nodes = vec![0.0];
-        for w in breaks.windows(2) {
-            let k = ((w[1] - w[0]) / max_element_m).ceil().max(1.0) as usize;
-            for j in 1..=k {
-                nodes.push(w[0] + (w[1] - w[0]) * j as f64 / k as f64);
-            }
-        }
+        let nodes = self.mesh(max_element_m, extra_nodes_m);
         let ndof = 2 * nodes.len();
         // Triplets; repeated entries (shared nodes, supports, discs) are summed into the sparse
         // matrices below.
@@ -370,6 +348,37 @@ impl Shaft {
             k: nalgebra_sparse::CscMatrix::from(&kg),
             m: nalgebra_sparse::CscMatrix::from(&mg),
         })
+    }
+
+    /// Node positions: section ends, supports, discs and `extra_nodes_m`, with elements no longer
+    /// than `max_element_m` between them.
+    pub fn mesh(&self, max_element_m: f64, extra_nodes_m: &[f64]) -> Vec<f64> {
+        let l = self.length_m();
+        let mut breaks = vec![0.0];
+        let mut x = 0.0;
+        for s in &self.sections {
+            x += s.length_m;
+            breaks.push(x);
+        }
+        for &p in extra_nodes_m
+            .iter()
+            .chain(self.supports.iter().map(|s| &s.position_m))
+            .chain(self.discs.iter().map(|d| &d.position_m))
+        {
+            if (0.0..=l).contains(&p) {
+                breaks.push(p);
+            }
+        }
+        breaks.sort_by(f64::total_cmp);
+        breaks.dedup_by(|a, b| (*a - *b).abs() < 1e-9);
+        let mut nodes = vec![0.0];
+        for w in breaks.windows(2) {
+            let k = ((w[1] - w[0]) / max_element_m).ceil().max(1.0) as usize;
+            for j in 1..=k {
+                nodes.push(w[0] + (w[1] - w[0]) * j as f64 / k as f64);
+            }
+        }
+        nodes
     }
 
     /// The section holding position `x` m (the last one beyond the end).
@@ -442,13 +451,26 @@ impl FeModel {
     }
 }
 
+/// A planar element matrix on (w1, ψ1, w2, ψ2).
+pub type Planar = [[f64; 4]; 4];
+
 /// Element stiffness and mass (translational + rotary) (Friedman & Kosmatka, Comput. Struct. 47, 1993).
-fn element(
+fn element(s: &Section, mat: Material, le: f64, theory: BeamTheory) -> (Planar, Planar) {
+    let (k, m, _) = element_with_gyro(s, mat, le, theory);
+    (k, m)
+}
+
+/// Planar element stiffness and mass on (w1, ψ1, w2, ψ2), and the spinning element's gyroscopic
+/// matrix on [u1 v1 θx1 θy1 u2 v2 θx2 θy2] (to be multiplied by the spin speed, rad/s): the
+/// polar inertia ρIp = 2ρI per length times the skew arrangement of the rotary-inertia matrix
+/// (Nelson 1980, from memory; derivation and sign in rotor-notes §A1, where M q̈ + ΩG q̇ + K q = f).
+/// Zero for Euler–Bernoulli elements, which carry no rotary inertia.
+pub fn element_with_gyro(
     s: &Section,
     mat: Material,
     le: f64,
     theory: BeamTheory,
-) -> ([[f64; 4]; 4], [[f64; 4]; 4]) {
+) -> (Planar, Planar, [[f64; 8]; 8]) {
     let (d, di) = (s.outer_diameter_m, s.inner_diameter_m);
     let area = std::f64::consts::PI / 4.0 * (d * d - di * di);
     let inertia = std::f64::consts::PI / 64.0 * (d.powi(4) - di.powi(4));
@@ -461,6 +483,7 @@ fn element(
             (12.0 * e * inertia / (kappa * g * area * le * le), true)
         }
         BeamTheory::EulerBernoulli => (0.0, false),
+        BeamTheory::Rayleigh => (0.0, true),
     };
     let l = le;
     let c = e * inertia / ((1.0 + phi) * l.powi(3));
@@ -499,6 +522,7 @@ fn element(
             *v *= mt;
         }
     }
+    let mut gyro = [[0.0; 8]; 8];
     if rotary {
         let mr = rho * inertia / (30.0 * (1.0 + phi).powi(2) * l);
         let a = (3.0 - 15.0 * phi) * l;
@@ -515,8 +539,25 @@ fn element(
                 m[i][j] += mr * r[i][j];
             }
         }
+        let g = 2.0 * mr;
+        let (b1, b2) = (b, cc);
+        let rows = [
+            [0.0, 36.0, -a, 0.0, 0.0, -36.0, -a, 0.0],
+            [-36.0, 0.0, 0.0, -a, 36.0, 0.0, 0.0, -a],
+            [a, 0.0, 0.0, b1, -a, 0.0, 0.0, b2],
+            [0.0, a, -b1, 0.0, 0.0, -a, -b2, 0.0],
+            [0.0, -36.0, a, 0.0, 0.0, 36.0, a, 0.0],
+            [36.0, 0.0, 0.0, a, -36.0, 0.0, 0.0, a],
+            [a, 0.0, 0.0, b2, -a, 0.0, 0.0, b1],
+            [0.0, a, -b2, 0.0, 0.0, -a, -b1, 0.0],
+        ];
+        for i in 0..8 {
+            for j in 0..8 {
+                gyro[i][j] = g * rows[i][j];
+            }
+        }
     }
-    (k, m)
+    (k, m, gyro)
 }
 
 #[cfg(test)]

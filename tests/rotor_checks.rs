@@ -1,0 +1,644 @@
+//! The rotor at speed against closed forms and published values. Every check value below is from
+//! ../shared/rotor-notes.md, which derives each from a stated equation ([der]) or names the
+//! source; the equations themselves are repeated beside each check.
+
+use nalgebra::DMatrix;
+use tapgrid::model::beam::{BeamTheory, Disc, Material, Section, Shaft, Support};
+use tapgrid::rotor::bearing::{
+    BearingLaw, Coefficients, FilmMethod, PlainBearing, short_coefficients, short_sommerfeld,
+};
+use tapgrid::rotor::campbell::{Solver, campbell};
+use tapgrid::rotor::eigen::Whirl;
+use tapgrid::rotor::model::{PlacedBearing, Rotor, RotorModel, Unbalance};
+use tapgrid::rotor::unbalance::{peaks, response};
+
+const RPM: f64 = 30.0 / std::f64::consts::PI; // rad/s → rpm
+
+fn rel(a: f64, b: f64) -> f64 {
+    (a / b - 1.0).abs()
+}
+
+/// The simply supported steel shaft of rotor-notes §A7: D = 50 mm, L = 1 m, E = 210 GPa,
+/// ρ = 7800 kg/m³, ν = 0.3, pinned ends (u = v = 0 by stiff springs), 40 elements.
+fn pinned_shaft(theory: BeamTheory) -> RotorModel {
+    let shaft = Shaft {
+        material: Material {
+            youngs_modulus_pa: 2.1e11,
+            density_kg_m3: 7800.0,
+            poisson_ratio: 0.3,
+        },
+        sections: vec![Section {
+            length_m: 1.0,
+            outer_diameter_m: 0.05,
+            inner_diameter_m: 0.0,
+            material: None,
+        }],
+        discs: vec![],
+        supports: vec![Support::lateral(0.0, 1e13), Support::lateral(1.0, 1e13)],
+    };
+    Rotor {
+        shaft,
+        bearings: vec![],
+        unbalances: vec![],
+    }
+    .assemble(theory, 40, &[])
+    .expect("assembles")
+}
+
+fn split(modes: &[tapgrid::rotor::eigen::DampedMode]) -> (Vec<f64>, Vec<f64>) {
+    let f = modes
+        .iter()
+        .filter(|m| m.whirl == Whirl::Forward)
+        .map(|m| m.frequency_hz)
+        .collect();
+    let b = modes
+        .iter()
+        .filter(|m| m.whirl == Whirl::Backward)
+        .map(|m| m.frequency_hz)
+        .collect();
+    (f, b)
+}
+
+#[test]
+fn spinning_simply_supported_shaft_matches_the_exact_whirl_frequencies() {
+    // rotor-notes §A7 [der]: Rayleigh beam (ρA + ρIk²)ω² ∓ 2ρIk²Ωω − EIk⁴ = 0, k = nπ/L;
+    // Timoshenko (κGAk² − ρAω²)(EIk² + κGA − ρIω² ± 2ρIΩω) − (κGAk)² = 0.
+    for (theory, at_rest, spinning) in [
+        (
+            BeamTheory::Rayleigh,
+            [101.802, 406.272],
+            [(101.035, 102.575), (403.218, 409.349)],
+        ),
+        (
+            BeamTheory::Timoshenko,
+            [101.574, 402.689],
+            [(100.813, 102.339), (399.740, 405.658)],
+        ),
+    ] {
+        let model = pinned_shaft(theory);
+        let mut solver = Solver::new(&model, 8);
+        let rest = solver.modes_at(0.0, 4).expect("solves");
+        for (k, want) in at_rest.iter().enumerate() {
+            // Degenerate pair at rest: both members equal the exact value.
+            for m in &rest[2 * k..2 * k + 2] {
+                assert!(
+                    rel(m.frequency_hz, *want) < 3e-5,
+                    "{theory:?} at rest: {} vs {want}",
+                    m.frequency_hz
+                );
+                assert!(m.log_dec.abs() < 1e-9, "undamped: δ = {}", m.log_dec);
+            }
+        }
+        let spin = solver.modes_at(30_000.0, 4).expect("solves");
+        let (fwd, bwd) = split(&spin);
+        assert_eq!((fwd.len(), bwd.len()), (2, 2), "{theory:?}: two of each");
+        for (k, (b, f)) in spinning.iter().enumerate() {
+            assert!(rel(fwd[k], *f) < 3e-5, "{theory:?} F{k}: {} vs {f}", fwd[k]);
+            assert!(rel(bwd[k], *b) < 3e-5, "{theory:?} B{k}: {} vs {b}", bwd[k]);
+        }
+    }
+}
+
+#[test]
+fn synchronous_critical_speeds_of_the_rayleigh_shaft() {
+    // rotor-notes §A7 [der]: forward √(EIk⁴/(ρA − ρIk²)) = 101.959 Hz, backward
+    // √(EIk⁴/(ρA + 3ρIk²)) = 101.646 Hz (n = 1).
+    let model = pinned_shaft(BeamTheory::Rayleigh);
+    let speeds: Vec<f64> = (0..=20).map(|i| 5000.0 + 100.0 * i as f64).collect();
+    let c = campbell(&model, &speeds, 2).expect("campbell");
+    let ones: Vec<_> = c.critical_speeds.iter().filter(|c| c.order == 1).collect();
+    let fwd = ones
+        .iter()
+        .find(|c| c.whirl == Whirl::Forward)
+        .expect("a forward 1× critical");
+    let bwd = ones
+        .iter()
+        .find(|c| c.whirl == Whirl::Backward)
+        .expect("a backward 1× critical");
+    assert!(
+        rel(fwd.speed_rpm, 101.959 * 60.0) < 3e-5,
+        "{}",
+        fwd.speed_rpm
+    );
+    assert!(
+        rel(bwd.speed_rpm, 101.646 * 60.0) < 3e-5,
+        "{}",
+        bwd.speed_rpm
+    );
+    assert_eq!(
+        c.stability_threshold_rpm, None,
+        "an undamped rotor is not unstable"
+    );
+}
+
+#[test]
+fn overhung_disc_on_a_cantilever_matches_the_frequency_equation() {
+    // rotor-notes §D6 [der]: steel shaft d = 20 mm, L = 0.25 m (EI = 1649.336 N·m²), disc
+    // m = 6.12611 kg, Ip = 0.030631, Id = 0.015634 kg·m²;
+    // (K11 − mω²)(K22 − Idω² + IpΩω) − K12² = 0. Shaft mass is made negligible (density
+    // 10 kg/m³: 8e-4 kg against 6.1 kg), so the tolerance allows 1e-4.
+    let shaft = Shaft {
+        material: Material {
+            youngs_modulus_pa: 2.1e11,
+            density_kg_m3: 10.0,
+            poisson_ratio: 0.3,
+        },
+        sections: vec![Section {
+            length_m: 0.25,
+            outer_diameter_m: 0.02,
+            inner_diameter_m: 0.0,
+            material: None,
+        }],
+        discs: vec![Disc {
+            position_m: 0.25,
+            mass_kg: 6.12611,
+            polar_inertia_kg_m2: 0.030631,
+            transverse_inertia_kg_m2: 0.015634,
+        }],
+        supports: vec![Support {
+            position_m: 0.0,
+            stiffness_n_per_m: 1e13,
+            rotational_stiffness_n_m_per_rad: 1e13,
+        }],
+    };
+    let model = Rotor {
+        shaft,
+        bearings: vec![],
+        unbalances: vec![],
+    }
+    .assemble(BeamTheory::EulerBernoulli, 1, &[])
+    .expect("assembles");
+    let mut solver = Solver::new(&model, 4);
+    for (rpm, want_b, want_f) in [
+        (3000.0, [30.2814, 177.9724], [38.8538, 267.3592]),
+        (6000.0, [26.2486, 150.8989], [42.7951, 330.2708]),
+        (12000.0, [19.7215, 119.6995], [49.1949, 482.0629]),
+    ] {
+        let modes = solver.modes_at(rpm, 4).expect("solves");
+        let (f, b) = split(&modes);
+        for (got, want) in f.iter().zip(want_f).chain(b.iter().zip(want_b)) {
+            assert!(rel(*got, want) < 1e-4, "{rpm} rpm: {got} vs {want}");
+        }
+    }
+    let at_rest = solver.modes_at(0.0, 4).expect("solves");
+    assert!(rel(at_rest[0].frequency_hz, 34.5877) < 1e-4);
+    assert!(rel(at_rest[2].frequency_hz, 216.3251) < 1e-4);
+    // Critical speeds (§D6): forward only at 2270.20 rpm; backward at 1909.81 and 8198.89 rpm.
+    let speeds: Vec<f64> = (0..=60).map(|i| 200.0 * i as f64).collect();
+    let c = campbell(&model, &speeds, 4).expect("campbell");
+    let ones: Vec<_> = c.critical_speeds.iter().filter(|c| c.order == 1).collect();
+    let fwd: Vec<f64> = ones
+        .iter()
+        .filter(|c| c.whirl == Whirl::Forward)
+        .map(|c| c.speed_rpm)
+        .collect();
+    let bwd: Vec<f64> = ones
+        .iter()
+        .filter(|c| c.whirl == Whirl::Backward)
+        .map(|c| c.speed_rpm)
+        .collect();
+    assert_eq!(fwd.len(), 1, "{fwd:?}");
+    assert!(rel(fwd[0], 2270.20) < 1e-4, "{fwd:?}");
+    assert_eq!(bwd.len(), 2, "{bwd:?}");
+    assert!(
+        rel(bwd[0], 1909.81) < 1e-4 && rel(bwd[1], 8198.89) < 1e-4,
+        "{bwd:?}"
+    );
+}
+
+/// A one-node model with 4 DOFs: translations of mass `m` (per plane), rotations made stiff
+/// and light so they stay far above the modes of interest.
+fn point_model(
+    m: f64,
+    k: [[f64; 2]; 2],
+    c: [[f64; 2]; 2],
+    bearings: Vec<BearingLaw>,
+) -> RotorModel {
+    let mut mm = DMatrix::zeros(4, 4);
+    let mut kk = DMatrix::zeros(4, 4);
+    let mut cc = DMatrix::zeros(4, 4);
+    mm[(0, 0)] = m;
+    mm[(1, 1)] = m;
+    mm[(2, 2)] = 1e-3;
+    mm[(3, 3)] = 1e-3;
+    kk[(2, 2)] = 1e12;
+    kk[(3, 3)] = 1e12;
+    for i in 0..2 {
+        for j in 0..2 {
+            kk[(i, j)] = k[i][j];
+            cc[(i, j)] = c[i][j];
+        }
+    }
+    let nb = bearings.len();
+    RotorModel {
+        nodes_m: vec![0.0],
+        m: mm,
+        k: kk,
+        c: cc,
+        g: DMatrix::zeros(4, 4),
+        bearing_nodes: vec![0; nb],
+        bearings,
+    }
+}
+
+#[test]
+fn jeffcott_rotor_unbalance_response_and_amplification_factor() {
+    // rotor-notes §D1 [der]: m = 10 kg, k = 1e6 N/m, ζ = 0.02 (c = 126.491 N·s/m),
+    // U = 100 g·mm; |X| = e r²/√((1−r²)² + (2ζr)²), lag = atan2(2ζr, 1 − r²).
+    let model = point_model(
+        10.0,
+        [[0.0; 2]; 2],
+        [[0.0; 2]; 2],
+        vec![BearingLaw::Constant(Coefficients::isotropic(
+            1e6,
+            126.491_106,
+        ))],
+    );
+    let u = [Unbalance {
+        position_m: 0.0,
+        amount_kg_m: 1e-4,
+        angle_deg: 0.0,
+    }];
+    let wn_rpm = 316.2278 * RPM;
+    for (r, amp_um, lag) in [
+        (0.5, 3.3321, 1.5275),
+        (0.9, 41.8863, 10.7289),
+        (1.0, 250.0, 90.0),
+        (1.1, 56.3945, 168.1664),
+        (2.0, 13.3286, 178.4725),
+        (5.0, 10.4163, 179.5225),
+    ] {
+        let p = response(&model, &u, &[r * wn_rpm], &[0.0]).expect("solves")[0];
+        assert!(
+            rel(p.amplitude_m * 1e6, amp_um) < 1e-4,
+            "r = {r}: {}",
+            p.amplitude_m
+        );
+        assert!(
+            (p.phase_deg - lag).abs() < 1e-3,
+            "r = {r}: lag {}",
+            p.phase_deg
+        );
+        // Isotropic: a circular forward orbit, y lags x by 90°.
+        assert!(p.forward && rel(p.major_m, p.amplitude_m) < 1e-9);
+        assert!(((p.phase_y_deg - p.phase_deg).rem_euclid(360.0) - 90.0).abs() < 1e-6);
+    }
+    // Peak 250.0500 µm at 3020.96 rpm; half-power speeds 2962.26 and 3083.29 rpm; AF = 24.960.
+    let speeds: Vec<f64> = (0..=1200).map(|i| 2800.0 + 0.5 * i as f64).collect();
+    let curve = response(&model, &u, &speeds, &[0.0]).expect("solves");
+    let amps: Vec<f64> = curve.iter().map(|p| p.amplitude_m).collect();
+    let pk = peaks(0.0, &speeds, &amps);
+    assert_eq!(pk.len(), 1);
+    let pk = pk[0];
+    assert!((pk.speed_rpm - 3020.96).abs() < 0.05, "{}", pk.speed_rpm);
+    assert!(
+        rel(pk.amplitude_m * 1e6, 250.05) < 1e-4,
+        "{}",
+        pk.amplitude_m
+    );
+    assert!((pk.n1_rpm.expect("N1") - 2962.26).abs() < 0.05);
+    assert!((pk.n2_rpm.expect("N2") - 3083.29).abs() < 0.05);
+    assert!((pk.amplification_factor.expect("AF") - 24.960).abs() < 0.01);
+    // The damped mode: ζ = 0.02, δ = 2πζ/√(1−ζ²) = 0.12569.
+    let mut s = Solver::new(&model, 2);
+    let m = &s.modes_at(1000.0, 2).expect("solves")[0];
+    assert!((m.damping_ratio - 0.02).abs() < 1e-9 && (m.log_dec - 0.12569).abs() < 1e-5);
+}
+
+#[test]
+fn textbook_unbalance_problem() {
+    // Rao, Mechanical Vibrations (problem statement via rotor-notes §D1; from memory): k = 3.75
+    // MN/m, m = 60 kg, e = 2000 µm, ζ = 0.05, 3600 rpm → r = 1.50796, |X| = 3545.2 µm.
+    let (m, k, zeta) = (60.0, 3.75e6, 0.05);
+    let c = 2.0 * zeta * (k * m).sqrt();
+    let model = point_model(
+        m,
+        [[0.0; 2]; 2],
+        [[0.0; 2]; 2],
+        vec![BearingLaw::Constant(Coefficients::isotropic(k, c))],
+    );
+    let u = [Unbalance {
+        position_m: 0.0,
+        amount_kg_m: m * 2000e-6,
+        angle_deg: 30.0,
+    }];
+    let p = response(&model, &u, &[3600.0], &[0.0]).expect("solves")[0];
+    assert!(rel(p.major_m * 1e6, 3545.2) < 1e-4, "{}", p.major_m);
+}
+
+#[test]
+fn rigid_rotor_on_anisotropic_bearings_whirls_backward_between_its_criticals() {
+    // rotor-notes §D4 [der]: m = 20 kg on two bearings k_x = 1e6, k_y = 2e6 N/m each;
+    // criticals 316.2278 and 447.2136 rad/s; at 380 rad/s x = −3.2523e, y = +2.5971e, backward.
+    let k = [[2e6, 0.0], [0.0, 4e6]];
+    let model = point_model(20.0, k, [[0.0; 2]; 2], vec![]);
+    let e = 1e-5;
+    let u = [Unbalance {
+        position_m: 0.0,
+        amount_kg_m: 20.0 * e,
+        angle_deg: 0.0,
+    }];
+    let at = |w: f64| response(&model, &u, &[w * RPM], &[0.0]).expect("solves")[0];
+    let p = at(380.0);
+    assert!(rel(p.amplitude_m / e, 3.2523) < 1e-4 && rel(p.amplitude_y_m / e, 2.5971) < 1e-4);
+    assert!(!p.forward, "backward between the split criticals");
+    assert!(rel(p.major_m / e, 0.3276 + 2.9247) < 1e-3);
+    assert!(at(200.0).forward && at(600.0).forward);
+    let mut s = Solver::new(&model, 2);
+    let modes = s.modes_at(0.0, 2).expect("solves");
+    assert!(rel(modes[0].frequency_hz * 2.0 * std::f64::consts::PI, 316.2278) < 1e-6);
+    assert!(rel(modes[1].frequency_hz * 2.0 * std::f64::consts::PI, 447.2136) < 1e-6);
+}
+
+#[test]
+fn internal_damping_threshold() {
+    // rotor-notes §D3 [der]: m r̈ + (c_n + c_i) ṙ + (k − iΩc_i) r = 0 (r = u + iv), threshold
+    // Ω_th = ω_n(1 + c_n/c_i) = 3ω_n for ζ_n = 0.02, ζ_i = 0.01: 948.683 rad/s (9059.3 rpm).
+    // The rotating damping's circulatory term enters as a speed-tabulated skew stiffness.
+    let (m, k) = (10.0, 1e6);
+    let wn = (k / m).sqrt();
+    let (cn, ci) = (2.0 * 0.02 * m * wn, 2.0 * 0.01 * m * wn);
+    let speeds: Vec<f64> = (0..=40).map(|i| 300.0 * i as f64).collect();
+    let table = speeds
+        .iter()
+        .map(|&n| {
+            let w = n / RPM;
+            (
+                n,
+                Coefficients {
+                    k_n_per_m: [[0.0, w * ci], [-w * ci, 0.0]],
+                    c_n_s_per_m: [[0.0; 2]; 2],
+                },
+            )
+        })
+        .collect();
+    let model = point_model(
+        m,
+        [[k, 0.0], [0.0, k]],
+        [[cn + ci, 0.0], [0.0, cn + ci]],
+        vec![BearingLaw::Table(table)],
+    );
+    let c = campbell(&model, &speeds, 2).expect("campbell");
+    let th = c.stability_threshold_rpm.expect("a threshold");
+    assert!(rel(th, 948.683 * RPM) < 1e-5, "{th}");
+}
+
+#[test]
+fn damped_flexible_supports_reach_the_best_damping_at_the_closed_form_optimum() {
+    // rotor-notes §D2 [der]: shaft k_s = 1e6 N/m, m = 10 kg, two supports k_b = 1e6 N/m each
+    // with dampers c_b; at c_b = 4286.16 N·s/m ζ = 0.11237; at c_b = 1000, ζ = 0.04207; at 1e5,
+    // 0.00790. Massless support points are given 1e-4 kg (their own mode lies far above).
+    for (cb, zeta) in [(4286.16, 0.11237), (1000.0, 0.04207), (1e5, 0.00790)] {
+        let (m, ks, kb) = (10.0, 1e6, 2e6);
+        let mut mm = DMatrix::zeros(8, 8);
+        let mut kk = DMatrix::zeros(8, 8);
+        let mut cc = DMatrix::zeros(8, 8);
+        // Node 0: the disc; node 1: the support point (translations) — rotations stiff, light.
+        for (node, mass) in [(0, m), (1, 1e-4)] {
+            let b = 4 * node;
+            mm[(b, b)] = mass;
+            mm[(b + 1, b + 1)] = mass;
+            mm[(b + 2, b + 2)] = 1e-3;
+            mm[(b + 3, b + 3)] = 1e-3;
+            kk[(b + 2, b + 2)] = 1e12;
+            kk[(b + 3, b + 3)] = 1e12;
+        }
+        for d in 0..2 {
+            kk[(d, d)] += ks;
+            kk[(4 + d, 4 + d)] += ks + kb;
+            kk[(d, 4 + d)] -= ks;
+            kk[(4 + d, d)] -= ks;
+            cc[(4 + d, 4 + d)] = 2.0 * cb;
+        }
+        let model = RotorModel {
+            nodes_m: vec![0.0, 0.0],
+            m: mm,
+            k: kk,
+            c: cc,
+            g: DMatrix::zeros(8, 8),
+            bearing_nodes: vec![],
+            bearings: vec![],
+        };
+        let mut s = Solver::new(&model, 1);
+        let md = &s.modes_at(0.0, 1).expect("solves")[0];
+        assert!(
+            (md.damping_ratio - zeta).abs() < 2e-4,
+            "c_b {cb}: ζ {}",
+            md.damping_ratio
+        );
+    }
+}
+
+#[test]
+fn short_bearing_coefficients_match_the_table() {
+    // rotor-notes §B2 dimensionless table [der; formulas Friswell et al. 2010, from memory,
+    // confirmed there by numerical linearisation]: ε, S_s, a_uu, a_uv, a_vu, a_vv, b_uu, b_uv, b_vv.
+    let table = [
+        (
+            0.1,
+            3.11011,
+            [2.5308, 9.7577, -10.3811, 1.3284],
+            [19.7905, -2.5325, 20.4872],
+        ),
+        (
+            0.3,
+            0.85507,
+            [2.4126, 2.6246, -4.4825, 1.7949],
+            [6.0612, -2.4270, 8.1530],
+        ),
+        (
+            0.5,
+            0.33316,
+            [2.2099, 0.8577, -3.9766, 2.9233],
+            [3.0539, -2.2450, 6.6148],
+        ),
+        (
+            0.7,
+            0.10356,
+            [1.9695, -0.1734, -4.5347, 5.6594],
+            [1.6240, -2.0267, 7.0987],
+        ),
+        (
+            0.9,
+            0.01041,
+            [1.7294, -1.4213, -7.2637, 19.0955],
+            [0.6869, -1.8059, 10.9978],
+        ),
+    ];
+    for (eps, ss, a, b) in table {
+        assert!(
+            (short_sommerfeld(eps) - ss).abs() < 1e-5 * ss.max(1.0),
+            "ε {eps}"
+        );
+        let (ka, cb) = short_coefficients(eps);
+        let got_a = [ka[0][0], ka[0][1], ka[1][0], ka[1][1]];
+        for (g, w) in got_a.iter().zip(a) {
+            assert!(
+                (g - w).abs() < 1e-4 * w.abs().max(1.0),
+                "ε {eps}: a {g} vs {w}"
+            );
+        }
+        let got_b = [cb[0][0], cb[0][1], cb[1][1]];
+        for (g, w) in got_b.iter().zip(b) {
+            assert!(
+                (g - w).abs() < 1e-4 * w.abs().max(1.0),
+                "ε {eps}: b {g} vs {w}"
+            );
+        }
+        assert_eq!(cb[0][1], cb[1][0], "no fluid inertia: c_uv = c_vu");
+    }
+}
+
+fn d9_bearing() -> PlainBearing {
+    PlainBearing {
+        diameter_m: 0.025,
+        length_m: 0.0125,
+        clearance_m: 50e-6,
+        viscosity_pa_s: 0.03,
+        load_n: 50.0,
+    }
+}
+
+#[test]
+fn dimensional_short_bearing_in_the_load_frame() {
+    // rotor-notes §D9 [der]: μ = 0.03 Pa·s, D = 25 mm, L = 12.5 mm, c = 50 µm, W = 50 N,
+    // 3000 rpm: S_s = 0.4602, ε = 0.4326, φ = 58.58°, in the (u, v) frame
+    // K = [2.285e6, 1.313e6; −3.995e6, 2.440e6] N/m, C = [1.205e4, −7360; −7360, 2.174e4] N·s/m.
+    // Ours has x along the load: kxx = k_vv, kxy = −k_vu, kyx = −k_uv, kyy = k_uu.
+    let r = d9_bearing()
+        .at_speed(3000.0, FilmMethod::Short)
+        .expect("solves");
+    assert!((r.modified_sommerfeld - 0.4602).abs() < 1e-4);
+    assert!((r.eccentricity_ratio - 0.4326).abs() < 1e-4);
+    assert!((r.attitude_angle_deg - 58.58).abs() < 0.01);
+    let k = r.k_n_per_m;
+    let c = r.c_n_s_per_m;
+    for (g, w) in [
+        (k[0][0], 2.440e6),
+        (k[0][1], 3.995e6),
+        (k[1][0], -1.313e6),
+        (k[1][1], 2.285e6),
+        (c[0][0], 2.174e4),
+        (c[0][1], 7360.0),
+        (c[1][0], 7360.0),
+        (c[1][1], 1.205e4),
+    ] {
+        assert!(rel(g, w) < 1e-3, "{g} vs {w}");
+    }
+}
+
+#[test]
+fn rigid_rotor_on_short_bearings_goes_unstable_at_the_published_threshold() {
+    // rotor-notes §D9 [der]: the rotor of 10.194 kg on the two bearings above (5.097 kg each)
+    // goes unstable at 11430.6 rpm with whirl ratio 0.5079 (96.76 Hz).
+    let model = point_model(
+        5.097,
+        [[0.0; 2]; 2],
+        [[0.0; 2]; 2],
+        vec![BearingLaw::Plain(d9_bearing(), FilmMethod::Short)],
+    );
+    let speeds: Vec<f64> = (0..=20).map(|i| 5000.0 + 500.0 * i as f64).collect();
+    let c = campbell(&model, &speeds, 2).expect("campbell");
+    let th = c.stability_threshold_rpm.expect("a threshold");
+    assert!(rel(th, 11430.6) < 2e-4, "{th}");
+    let f = c.threshold_frequency_hz.expect("its frequency");
+    assert!((f - 96.76).abs() < 0.05, "{f}");
+}
+
+#[test]
+fn at_rest_the_rotor_model_reproduces_the_bench_model() {
+    // Our own consistency: with no spin and isotropic supports the two-plane model is the planar
+    // one twice (each frequency appears as a pair) — `tapgrid model`'s frequencies.
+    let shaft = Shaft {
+        material: Material::STEEL,
+        sections: vec![
+            Section {
+                length_m: 0.15,
+                outer_diameter_m: 0.035,
+                inner_diameter_m: 0.0,
+                material: None,
+            },
+            Section {
+                length_m: 0.6,
+                outer_diameter_m: 0.045,
+                inner_diameter_m: 0.01,
+                material: None,
+            },
+            Section {
+                length_m: 0.15,
+                outer_diameter_m: 0.035,
+                inner_diameter_m: 0.0,
+                material: None,
+            },
+        ],
+        discs: vec![Disc {
+            position_m: 0.45,
+            mass_kg: 2.0,
+            polar_inertia_kg_m2: 0.004,
+            transverse_inertia_kg_m2: 0.002,
+        }],
+        supports: vec![Support::lateral(0.2, 4e3), Support::lateral(0.7, 4e3)],
+    };
+    let (_, planar) = shaft
+        .modes(BeamTheory::Timoshenko, 6, 40, &[])
+        .expect("planar");
+    let model = Rotor {
+        shaft,
+        bearings: vec![],
+        unbalances: vec![],
+    }
+    .assemble(BeamTheory::Timoshenko, 40, &[])
+    .expect("assembles");
+    let mut s = Solver::new(&model, 12);
+    let modes = s.modes_at(0.0, 12).expect("solves");
+    for (k, p) in planar.iter().enumerate() {
+        for m in &modes[2 * k..2 * k + 2] {
+            assert!(
+                rel(m.frequency_hz, p.frequency_hz) < 1e-6,
+                "{k}: {} vs {}",
+                m.frequency_hz,
+                p.frequency_hz
+            );
+        }
+    }
+}
+
+#[test]
+fn bearings_at_a_position_enter_the_model() {
+    // A placed bearing with constant coefficients acts like a support of the same stiffness.
+    let shaft = Shaft {
+        material: Material::STEEL,
+        sections: vec![Section {
+            length_m: 0.8,
+            outer_diameter_m: 0.04,
+            inner_diameter_m: 0.0,
+            material: None,
+        }],
+        discs: vec![],
+        supports: vec![],
+    };
+    let with_bearings = Rotor {
+        shaft: shaft.clone(),
+        bearings: [0.1, 0.7]
+            .iter()
+            .map(|&x| PlacedBearing {
+                position_m: x,
+                law: BearingLaw::Constant(Coefficients::isotropic(5e6, 0.0)),
+            })
+            .collect(),
+        unbalances: vec![],
+    }
+    .assemble(BeamTheory::Timoshenko, 40, &[])
+    .expect("assembles");
+    let mut supported = shaft;
+    supported.supports = vec![Support::lateral(0.1, 5e6), Support::lateral(0.7, 5e6)];
+    let (_, planar) = supported
+        .modes(BeamTheory::Timoshenko, 3, 40, &[])
+        .expect("planar");
+    let modes = Solver::new(&with_bearings, 6)
+        .modes_at(0.0, 6)
+        .expect("solves");
+    for (k, p) in planar.iter().enumerate() {
+        assert!(rel(modes[2 * k].frequency_hz, p.frequency_hz) < 1e-6);
+    }
+}
