@@ -309,7 +309,7 @@ fn jeffcott_rotor_unbalance_response_and_amplification_factor() {
 fn textbook_unbalance_problem() {
     // Rao, Mechanical Vibrations (problem statement via rotor-notes §D1; from memory): k = 3.75
     // MN/m, m = 60 kg, e = 2000 µm, ζ = 0.05, 3600 rpm → r = 1.50796, |X| = 3545.2 µm.
-    let (m, k, zeta) = (60.0, 3.75e6, 0.05);
+    let (m, k, zeta): (f64, f64, f64) = (60.0, 3.75e6, 0.05);
     let c = 2.0 * zeta * (k * m).sqrt();
     let model = point_model(
         m,
@@ -355,7 +355,7 @@ fn internal_damping_threshold() {
     // rotor-notes §D3 [der]: m r̈ + (c_n + c_i) ṙ + (k − iΩc_i) r = 0 (r = u + iv), threshold
     // Ω_th = ω_n(1 + c_n/c_i) = 3ω_n for ζ_n = 0.02, ζ_i = 0.01: 948.683 rad/s (9059.3 rpm).
     // The rotating damping's circulatory term enters as a speed-tabulated skew stiffness.
-    let (m, k) = (10.0, 1e6);
+    let (m, k): (f64, f64) = (10.0, 1e6);
     let wn = (k / m).sqrt();
     let (cn, ci) = (2.0 * 0.02 * m * wn, 2.0 * 0.01 * m * wn);
     let speeds: Vec<f64> = (0..=40).map(|i| 300.0 * i as f64).collect();
