@@ -26,3 +26,10 @@ pub const MARGIN_NOTE: &str = "Advisory only. API RP 684 rule (verify against yo
      use the standard that applies to this machine). Bench \
      frequencies are not installed critical speeds. Decisions on running speeds belong to the \
      applicable standard, local codes and a competent, licensed engineer.";
+
+/// What the rotor-at-speed results rest on, shown beside them.
+pub const ROTOR: &str = "Advisory: a linearised rotor model — bearings as eight speed-dependent \
+     coefficients about the static equilibrium, no foundation or pedestal flexibility, no seals, \
+     no material damping unless given. Confirm critical speeds by a run-up or coast-down before \
+     relying on them; decisions on running speeds belong to the applicable standard (e.g. the API \
+     RP 684 rule — verify against your edition), local codes and a competent, licensed engineer.";

@@ -642,3 +642,37 @@ fn bearings_at_a_position_enter_the_model() {
         assert!(rel(modes[2 * k].frequency_hz, p.frequency_hz) < 1e-6);
     }
 }
+
+#[test]
+fn the_reduced_basis_agrees_with_the_whole_space_on_the_example_rotor() {
+    // Our own consistency: the pseudo-modal basis (the default) against the exact change to
+    // modal coordinates, on the README's pump rotor with plain bearings and a disc.
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("sample-sessions/rotors/pump-rotor.json");
+    let file = tapgrid::rotor::file::read_rotor(&path).expect("example rotor");
+    let model = file
+        .rotor
+        .assemble(BeamTheory::Timoshenko, 40, &[])
+        .expect("assembles");
+    for rpm in [1000.0, 3000.0, 9000.0] {
+        let reduced = Solver::new(&model, 8).modes_at(rpm, 8).expect("reduced");
+        let full = Solver::with_basis(&model, usize::MAX)
+            .modes_at(rpm, 8)
+            .expect("full");
+        for (r, f) in reduced.iter().zip(&full) {
+            assert!(
+                rel(r.frequency_hz, f.frequency_hz) < 1e-4,
+                "{rpm}: {} vs {}",
+                r.frequency_hz,
+                f.frequency_hz
+            );
+            assert!(
+                (r.log_dec - f.log_dec).abs() < 2e-3 * f.log_dec.abs().max(0.1),
+                "{rpm}: δ {} vs {}",
+                r.log_dec,
+                f.log_dec
+            );
+            assert_eq!(r.whirl, f.whirl);
+        }
+    }
+}

@@ -678,3 +678,73 @@ pub struct DemoArgs {
     #[arg(long)]
     pub out: Option<PathBuf>,
 }
+
+/// `tapgrid bearing`.
+#[derive(Debug, Args)]
+pub struct BearingArgs {
+    /// The kind of bearing.
+    #[command(subcommand)]
+    pub kind: BearingKind,
+}
+
+/// Bearing kinds.
+#[derive(Debug, Subcommand)]
+pub enum BearingKind {
+    /// A plain (full, cylindrical) journal bearing from its geometry and operating point.
+    Plain(PlainArgs),
+}
+
+/// Film solution for a plain bearing.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum FilmArg {
+    /// Short-bearing closed form (Ocvirk).
+    Short,
+    /// Finite-difference Reynolds equation with cavitation.
+    Finite,
+}
+
+/// `tapgrid bearing plain`.
+#[derive(Debug, Args)]
+pub struct PlainArgs {
+    /// Journal diameter, m.
+    #[arg(long)]
+    pub diameter_m: f64,
+    /// Bearing length, m.
+    #[arg(long)]
+    pub length_m: f64,
+    /// Radial clearance, m.
+    #[arg(long)]
+    pub clearance_m: f64,
+    /// Lubricant dynamic viscosity, Pa·s.
+    #[arg(long)]
+    pub viscosity_pa_s: f64,
+    /// Static load on the bearing, N.
+    #[arg(long)]
+    pub load_n: f64,
+    /// Spin speed, rpm.
+    #[arg(long)]
+    pub speed_rpm: f64,
+    /// Film solution.
+    #[arg(long, value_enum, default_value_t = FilmArg::Short)]
+    pub method: FilmArg,
+}
+
+/// `tapgrid rotor`.
+#[derive(Debug, Args)]
+pub struct RotorArgs {
+    /// The rotor file (shaft JSON plus bearings, unbalances; see README).
+    pub rotor: PathBuf,
+    /// Output folder for campbell.json and unbalance.csv.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Speed sweep LO:HI:COUNT, rpm [default: 0 to 1.25 × the top of the operating range (or
+    /// 10000), 101 speeds].
+    #[arg(long)]
+    pub speeds: Option<String>,
+    /// Whirl modes to track (forward and backward count separately).
+    #[arg(long, default_value_t = 8)]
+    pub modes: usize,
+    /// Elements over the shaft's length (nodes are added at sections, discs and bearings).
+    #[arg(long, default_value_t = 40)]
+    pub elements: usize,
+}

@@ -7,12 +7,14 @@
 mod args;
 mod capture_cmds;
 mod model_cmds;
+mod rotor_cmds;
 mod sim_cmds;
 mod test_cmds;
 
 pub use args::*;
 use capture_cmds::{calibrate, capture, devices};
 use model_cmds::{correlate, margin, model};
+use rotor_cmds::{bearing, rotor};
 use sim_cmds::simulate;
 use test_cmds::{analyze, bench_verdict, import, report, verdict};
 
@@ -72,6 +74,11 @@ pub enum Command {
     Correlate(CorrelateArgs),
     /// Running-speed margin check of measured modes and/or model critical speeds (advisory).
     Margin(MarginArgs),
+    /// A bearing's operating point and eight stiffness and damping coefficients (JSON to stdout).
+    Bearing(BearingArgs),
+    /// The rotor at speed: Campbell diagram, critical speeds, stability threshold, unbalance
+    /// response → campbell.json, unbalance.csv (advisory).
+    Rotor(RotorArgs),
     /// Calibration helpers on a recording: sensitivity, full-scale volts, mass check, loopback.
     Calibrate(CalibrateArgs),
     /// Override a hit's verdict in a session (accept, reject, or back to automatic).
@@ -121,6 +128,8 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Correlate(a) => correlate(a),
         Command::Margin(a) => margin(a),
         Command::Calibrate(a) => calibrate(a),
+        Command::Bearing(a) => bearing(a),
+        Command::Rotor(a) => rotor(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
         Command::BenchVerdict(a) => bench_verdict(&a),

@@ -26,22 +26,30 @@ pub struct Solver<'a> {
 pub const FULL_BASIS_DOFS: usize = 96;
 
 impl<'a> Solver<'a> {
-    /// A solver keeping `keep` basis modes (at least 40; all of them on small models).
+    /// A solver keeping 2·`wanted_modes` + 16 basis modes, at least 32 (all of them on small
+    /// models).
     pub fn new(model: &'a RotorModel, wanted_modes: usize) -> Self {
+        Self::with_basis(model, (2 * wanted_modes + 16).max(32))
+    }
+
+    /// A solver keeping `keep` basis modes (`usize::MAX`: all, exact).
+    pub fn with_basis(model: &'a RotorModel, keep: usize) -> Self {
         Self {
             model,
-            keep: (4 * wanted_modes + 16).max(40),
+            keep,
             cached: None,
         }
     }
 
     fn basis(&mut self, speed_rpm: f64) -> Result<&Basis, String> {
         let n = self.model.dofs();
+        // Each bearing's direct stiffness in x and in y (negative values, which a film does not
+        // have, are left out: the basis must come from a positive semi-definite stiffness).
         let direct: Vec<f64> = self
             .model
             .bearing_coefficients(speed_rpm)?
             .iter()
-            .map(|c| 0.5 * (c.k_n_per_m[0][0] + c.k_n_per_m[1][1]).max(0.0))
+            .flat_map(|c| [c.k_n_per_m[0][0].max(0.0), c.k_n_per_m[1][1].max(0.0)])
             .collect();
         let stale = match &self.cached {
             None => true,
@@ -52,15 +60,25 @@ impl<'a> Solver<'a> {
         };
         if stale {
             // Small models keep every mode: the change to modal coordinates is then exact.
-            let keep = if n <= FULL_BASIS_DOFS { n } else { self.keep };
+            let keep = if n <= FULL_BASIS_DOFS {
+                n
+            } else {
+                self.keep.min(n)
+            };
             let mut k = self.model.k.clone();
-            for (&kb, &node) in direct.iter().zip(&self.model.bearing_nodes) {
+            for (kb, &node) in direct.chunks(2).zip(&self.model.bearing_nodes) {
                 for d in 0..2 {
-                    k[(NODE_DOFS * node + d, NODE_DOFS * node + d)] += kb;
+                    k[(NODE_DOFS * node + d, NODE_DOFS * node + d)] += kb[d];
                 }
             }
             let k = (&k + k.transpose()) * 0.5;
-            let basis = Basis::lowest(&k, &self.model.m, keep)?;
+            let attach: Vec<usize> = self
+                .model
+                .bearing_nodes
+                .iter()
+                .flat_map(|&b| [NODE_DOFS * b, NODE_DOFS * b + 1])
+                .collect();
+            let basis = Basis::lowest(&k, &self.model.m, keep, &attach)?;
             self.cached = Some((direct, basis));
         }
         Ok(&self.cached.as_ref().expect("just filled").1)

@@ -63,16 +63,59 @@ pub struct Basis {
 
 impl Basis {
     /// The lowest `keep` undamped modes of K φ = ω² M φ (all of them when `keep` ≥ n), where `k`
-    /// should be a symmetric stiffness (the caller's choice of bearings' direct terms).
-    pub fn lowest(k: &DMatrix<f64>, m: &DMatrix<f64>, keep: usize) -> Result<Self, String> {
-        let (_, phi) = symmetric_pencil(k, m).ok_or(
-            "the mass matrix is not positive definite or the model is not finite (a section \
-             without mass?)",
-        )?;
-        let keep = keep.clamp(1, phi.ncols());
-        Ok(Self {
-            phi: phi.columns(0, keep).into_owned(),
-        })
+    /// should be a symmetric stiffness (the caller's choice of bearings' direct terms), enriched
+    /// with the static shapes of unit forces at `attach_dofs` (residual flexibility: a stiff or
+    /// heavily damped bearing pins the shaft locally in a way few free modes describe).
+    pub fn lowest(
+        k: &DMatrix<f64>,
+        m: &DMatrix<f64>,
+        keep: usize,
+        attach_dofs: &[usize],
+    ) -> Result<Self, String> {
+        const NOT_DEFINITE: &str = "the mass matrix is not positive definite or the model is not \
+             finite (a section without mass?)";
+        let n = k.nrows();
+        let (values, phi) = symmetric_pencil(k, m).ok_or(NOT_DEFINITE)?;
+        let keep = keep.clamp(1, n);
+        if keep == n || attach_dofs.is_empty() {
+            return Ok(Self {
+                phi: phi.columns(0, keep).into_owned(),
+            });
+        }
+        // Static shapes (K + σM)⁻¹ e_j, with a small shift for a rotor free to move rigidly.
+        let top = values.last().copied().unwrap_or(1.0).abs().max(1.0);
+        let shifted = k + m * (1e-8 * top);
+        let chol = shifted.cholesky().ok_or(NOT_DEFINITE)?;
+        let mut e = DMatrix::<f64>::zeros(n, attach_dofs.len());
+        for (j, &d) in attach_dofs.iter().enumerate() {
+            e[(d.min(n - 1), j)] = 1.0;
+        }
+        let psi = chol.solve(&e);
+        let mut t = DMatrix::<f64>::zeros(n, keep + psi.ncols());
+        t.columns_mut(0, keep).copy_from(&phi.columns(0, keep));
+        t.columns_mut(keep, psi.ncols()).copy_from(&psi);
+        // An orthonormal basis of the span (dropping static shapes the modes already hold), then
+        // the modes of the projected pencil, M-orthonormal again. Columns are brought to unit
+        // length first: a static shape is orders of magnitude shorter than a mode.
+        for mut c in t.column_iter_mut() {
+            let norm = c.norm();
+            if norm > 0.0 {
+                c /= norm;
+            }
+        }
+        let qr = t.qr();
+        let (q, r) = (qr.q(), qr.r());
+        let big = (0..r.nrows()).map(|i| r[(i, i)].abs()).fold(0.0, f64::max);
+        let cols: Vec<usize> = (0..r.nrows())
+            .filter(|&i| r[(i, i)].abs() > 1e-9 * big)
+            .collect();
+        let q = q.select_columns(&cols);
+        let kq = q.tr_mul(&(k * &q));
+        let mq = q.tr_mul(&(m * &q));
+        let kq = (&kq + kq.transpose()) * 0.5;
+        let mq = (&mq + mq.transpose()) * 0.5;
+        let (_, y) = symmetric_pencil(&kq, &mq).ok_or(NOT_DEFINITE)?;
+        Ok(Self { phi: q * y })
     }
 }
 

@@ -31,6 +31,9 @@ pub struct ResponsePoint {
     pub forward: bool,
 }
 
+/// Undamped modes kept in the response basis of a large model (static shapes are added).
+pub const RESPONSE_MODES: usize = 40;
+
 fn lag_deg(s: Complex64) -> f64 {
     (-s.arg().to_degrees()).rem_euclid(360.0)
 }
@@ -46,12 +49,45 @@ pub fn response(
 ) -> Result<Vec<ResponsePoint>, String> {
     let n = model.dofs();
     let probes: Vec<usize> = positions_m.iter().map(|&x| model.node_near(x)).collect();
+    // Large models are solved on the undamped modes enriched with the static shapes of forces at
+    // the bearings and unbalances (exact at those points in the static limit); small ones whole.
+    let mut attach: Vec<usize> = model
+        .bearing_nodes
+        .iter()
+        .copied()
+        .chain(unbalances.iter().map(|u| model.node_near(u.position_m)))
+        .flat_map(|b| [NODE_DOFS * b, NODE_DOFS * b + 1])
+        .collect();
+    attach.sort_unstable();
+    attach.dedup();
+    let basis = if n <= 96 {
+        None
+    } else {
+        let mut k = model.k.clone();
+        let co = model.bearing_coefficients(speeds_rpm.iter().copied().fold(0.0, f64::max))?;
+        for (c, &node) in co.iter().zip(&model.bearing_nodes) {
+            for d in 0..2 {
+                k[(NODE_DOFS * node + d, NODE_DOFS * node + d)] += c.k_n_per_m[d][d].max(0.0);
+            }
+        }
+        let k = (&k + k.transpose()) * 0.5;
+        Some(super::eigen::Basis::lowest(&k, &model.m, RESPONSE_MODES, &attach)?.phi)
+    };
     let mut out = Vec::with_capacity(speeds_rpm.len() * probes.len());
     for &rpm in speeds_rpm {
         let w = rpm * std::f64::consts::PI / 30.0;
         let (k, c) = model.at_speed(rpm)?;
-        let z = DMatrix::<Complex64>::from_fn(n, n, |i, j| {
-            Complex64::new(k[(i, j)] - w * w * model.m[(i, j)], w * c[(i, j)])
+        let (k, c, m) = match &basis {
+            Some(p) => (
+                p.tr_mul(&(&k * p)),
+                p.tr_mul(&(&c * p)),
+                p.tr_mul(&(&model.m * p)),
+            ),
+            None => (k, c, model.m.clone()),
+        };
+        let r = k.nrows();
+        let z = DMatrix::<Complex64>::from_fn(r, r, |i, j| {
+            Complex64::new(k[(i, j)] - w * w * m[(i, j)], w * c[(i, j)])
         });
         let mut f = DVector::<Complex64>::zeros(n);
         for u in unbalances {
@@ -60,15 +96,23 @@ pub fn response(
             f[NODE_DOFS * node] += e;
             f[NODE_DOFS * node + 1] += Complex64::new(0.0, -1.0) * e;
         }
-        let q = if w == 0.0 {
-            DVector::zeros(n)
+        let fr = match &basis {
+            Some(p) => p.map(|v| Complex64::new(v, 0.0)).tr_mul(&f),
+            None => f,
+        };
+        let qr = if w == 0.0 {
+            DVector::zeros(r)
         } else {
-            z.lu().solve(&f).ok_or_else(|| {
+            z.lu().solve(&fr).ok_or_else(|| {
                 format!(
                     "at {rpm:.0} rpm the rotor has no steady response (a free rotor, or \
                      undamped exactly at a critical speed)"
                 )
             })?
+        };
+        let q = match &basis {
+            Some(p) => p.map(|v| Complex64::new(v, 0.0)) * qr,
+            None => qr,
         };
         for (&node, &x) in probes.iter().zip(positions_m) {
             let (u, v) = (q[NODE_DOFS * node], q[NODE_DOFS * node + 1]);
