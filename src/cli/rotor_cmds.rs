@@ -89,6 +89,9 @@ pub(super) fn rotor(a: RotorArgs) -> Result<()> {
     if a.modes == 0 || a.modes > 60 {
         bail!("--modes must be between 1 and 60");
     }
+    if !(1..=400).contains(&a.elements) {
+        bail!("--elements must be between 1 and 400");
+    }
     let model = file
         .rotor
         .assemble(BeamTheory::Timoshenko, a.elements, &[])
