@@ -676,3 +676,136 @@ fn the_reduced_basis_agrees_with_the_whole_space_on_the_example_rotor() {
         }
     }
 }
+
+#[test]
+fn finite_bearing_matches_raimondi_and_boyd_and_the_notes_solution() {
+    use tapgrid::rotor::reynolds::{Grid, finite_sommerfeld};
+    // Raimondi & Boyd (1958), L/D = 1 full bearing, as reprinted in Shigley (from memory, via
+    // rotor-notes §B6.3): (ε, S, φ°). Their film starts at the h_max line; our free cavitation
+    // boundary gives attitude angles up to ≈ 2° larger at these ε (rotor-notes' own free-boundary
+    // solution, 180 × 40: 65.13, 51.98, 36.79, 26.71°).
+    for (eps, s_rb, phi_rb, s_free, phi_free) in [
+        (0.4, 0.264, 63.10, 0.2604, 65.13),
+        (0.6, 0.121, 50.58, 0.1215, 51.98),
+        (0.8, 0.0446, 36.24, 0.0448, 36.79),
+        (0.9, 0.0188, 26.45, 0.0189, 26.71),
+    ] {
+        let (s, phi) = finite_sommerfeld(1.0, eps, Grid::default()).expect("solves");
+        assert!(rel(s, s_rb) < 0.02, "ε {eps}: S {s} vs R&B {s_rb}");
+        assert!(
+            (phi - phi_rb).abs() < 2.5,
+            "ε {eps}: φ {phi} vs R&B {phi_rb}"
+        );
+        assert!(rel(s, s_free) < 0.01, "ε {eps}: S {s} vs {s_free}");
+        assert!(
+            (phi - phi_free).abs() < 0.3,
+            "ε {eps}: φ {phi} vs {phi_free}"
+        );
+    }
+}
+
+#[test]
+fn finite_bearing_coefficients_match_the_notes_finite_difference_solution() {
+    use tapgrid::rotor::reynolds::{Grid, finite_at_eccentricity};
+    // rotor-notes §B6.4 [der; their own 180 × 40 Reynolds-condition solution, not yet compared
+    // with a published table]: L/D, ε, S, φ, (a_uu, a_uv, a_vu, a_vv), (b_uu, b_uv, b_vv) in the
+    // (u, v) frame; ours has x = −v, y = u: kxx = a_vv, kxy = −a_vu, kyx = −a_uv, kyy = a_uu.
+    for (ld, eps, s, phi, a, b) in [
+        (
+            1.0,
+            0.3,
+            0.3870,
+            71.44,
+            [2.098, 2.819, -4.015, 1.346],
+            [6.359, -2.135, 7.750],
+        ),
+        (
+            1.0,
+            0.7,
+            0.0782,
+            44.82,
+            [1.936, 0.082, -3.413, 3.431],
+            [2.091, -2.104, 6.170],
+        ),
+        (
+            0.5,
+            0.5,
+            0.5109,
+            55.34,
+            [2.145, 0.953, -3.652, 2.522],
+            [3.216, -2.223, 6.400],
+        ),
+    ] {
+        let f = finite_at_eccentricity(ld, eps, Grid::default()).expect("solves");
+        assert!(
+            rel(f.sommerfeld, s) < 2e-3,
+            "{ld} {eps}: S {}",
+            f.sommerfeld
+        );
+        assert!(
+            (f.attitude_angle_deg - phi).abs() < 0.1,
+            "φ {}",
+            f.attitude_angle_deg
+        );
+        let ours = [f.a[1][1], f.a[1][0], f.a[0][1], f.a[0][0]];
+        let theirs = [a[0], -a[1], -a[2], a[3]];
+        for (o, t) in ours.iter().zip(theirs) {
+            assert!(
+                (o - t).abs() < 0.01 * t.abs().max(1.0),
+                "{ld} {eps}: a {o} vs {t}"
+            );
+        }
+        let ours = [f.b[1][1], f.b[1][0], f.b[0][0]];
+        let theirs = [b[0], -b[1], b[2]];
+        for (o, t) in ours.iter().zip(theirs) {
+            assert!(
+                (o - t).abs() < 0.01 * t.abs().max(1.0),
+                "{ld} {eps}: b {o} vs {t}"
+            );
+        }
+        assert!(
+            rel(f.b[0][1], f.b[1][0]) < 1e-3,
+            "c_xy = c_yx without fluid inertia"
+        );
+    }
+}
+
+#[test]
+fn a_short_finite_bearing_approaches_the_closed_form() {
+    use tapgrid::rotor::reynolds::{Grid, finite_at_eccentricity};
+    // rotor-notes §B6.2 [der]: at L/D = 0.05, ε = 0.3 the finite-difference solution is within
+    // 0.6 % of the short-bearing Sommerfeld number and about 1 % of its direct stiffness.
+    let f = finite_at_eccentricity(0.05, 0.3, Grid::default()).expect("solves");
+    let ss = f.sommerfeld * std::f64::consts::PI * 0.05 * 0.05;
+    assert!(rel(ss, short_sommerfeld(0.3)) < 0.01, "{ss}");
+    let (a, _) = short_coefficients(0.3);
+    // kxx = a_vv, kyy = a_uu, kxy = −a_vu (frame in tapgrid::rotor::bearing).
+    assert!(rel(f.a[0][0], a[1][1]) < 0.02 && rel(f.a[1][1], a[0][0]) < 0.02);
+    assert!(rel(f.a[0][1], -a[1][0]) < 0.02);
+}
+
+#[test]
+fn a_finite_bearing_in_a_rotor_interpolates_its_table_closely() {
+    // Our own consistency: the tabulated film (25 eccentricities, ln S interpolation) against a
+    // direct solve at the same speed.
+    let b = d9_bearing();
+    let law = BearingLaw::Plain(b, FilmMethod::Finite)
+        .prepared()
+        .expect("table");
+    for rpm in [1500.0, 4000.0, 9000.0] {
+        let direct = b
+            .at_speed(rpm, FilmMethod::Finite)
+            .expect("direct")
+            .coefficients();
+        let table = law.at(rpm).expect("table");
+        for i in 0..2 {
+            for j in 0..2 {
+                let (d, t) = (direct.k_n_per_m[i][j], table.k_n_per_m[i][j]);
+                assert!(
+                    (d - t).abs() < 0.01 * direct.k_n_per_m[0][0].abs(),
+                    "{rpm}: k{i}{j} {t} vs {d}"
+                );
+            }
+        }
+    }
+}

@@ -227,6 +227,9 @@ pub enum BearingLaw {
     Table(Vec<(f64, Coefficients)>),
     /// Computed from a plain bearing's geometry at every speed.
     Plain(PlainBearing, FilmMethod),
+    /// A finite plain bearing's solutions tabulated once against eccentricity and interpolated
+    /// in the Sommerfeld number at each speed ([`BearingLaw::prepared`] makes it).
+    PlainTable(PlainBearing, std::sync::Arc<super::reynolds::FiniteTable>),
 }
 
 impl BearingLaw {
@@ -249,6 +252,20 @@ impl BearingLaw {
                 Ok(t.last().map_or(first.1, |l| l.1))
             }
             BearingLaw::Plain(p, m) => Ok(p.at_speed(speed_rpm.max(1.0), *m)?.coefficients()),
+            BearingLaw::PlainTable(p, t) => Ok(t.result(p, speed_rpm.max(1.0)).coefficients()),
+        }
+    }
+
+    /// The law ready for a speed sweep: a finite plain bearing's film is solved once over its
+    /// eccentricity range (≈ 4 s) instead of at every speed.
+    pub fn prepared(&self) -> Result<Self, String> {
+        match self {
+            BearingLaw::Plain(p, FilmMethod::Finite) => {
+                p.validate()?;
+                let table = super::reynolds::FiniteTable::new(p.length_m / p.diameter_m)?;
+                Ok(BearingLaw::PlainTable(*p, std::sync::Arc::new(table)))
+            }
+            other => Ok(other.clone()),
         }
     }
 }

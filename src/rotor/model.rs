@@ -177,13 +177,44 @@ impl Rotor {
                 .iter()
                 .map(|b| node_of(b.position_m))
                 .collect(),
-            bearings: self.bearings.iter().map(|b| b.law.clone()).collect(),
+            bearings: prepare(&self.bearings)?,
             c: DMatrix::zeros(n, n),
             nodes_m: nodes,
             m,
             k,
             g,
         })
+    }
+}
+
+/// Bearing laws ready for a sweep; bearings of one L/D share one film table.
+fn prepare(bearings: &[PlacedBearing]) -> Result<Vec<BearingLaw>, String> {
+    let mut done: Vec<(PlacedBearing, BearingLaw)> = Vec::new();
+    let mut out = Vec::new();
+    for (i, b) in bearings.iter().enumerate() {
+        let law = match (&b.law, done.iter().find(|(d, _)| same_film(&d.law, &b.law))) {
+            (BearingLaw::Plain(p, _), Some((_, BearingLaw::PlainTable(_, t)))) => {
+                BearingLaw::PlainTable(*p, t.clone())
+            }
+            _ => b
+                .law
+                .prepared()
+                .map_err(|e| format!("bearing {}: {e}", i + 1))?,
+        };
+        done.push((b.clone(), law.clone()));
+        out.push(law);
+    }
+    Ok(out)
+}
+
+/// Two finite plain bearings of the same length over diameter share a dimensionless film.
+fn same_film(a: &BearingLaw, b: &BearingLaw) -> bool {
+    use super::bearing::FilmMethod::Finite;
+    match (a, b) {
+        (BearingLaw::Plain(p, Finite), BearingLaw::Plain(q, Finite)) => {
+            p.length_m / p.diameter_m == q.length_m / q.diameter_m
+        }
+        _ => false,
     }
 }
 
