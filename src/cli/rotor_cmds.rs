@@ -2,10 +2,10 @@
 //! critical speeds, stability threshold and unbalance response.
 
 use super::*;
-use crate::model::beam::BeamTheory;
 use crate::rotor::bearing::{FilmMethod, PlainBearing};
-use crate::rotor::campbell::{Campbell, campbell, speed_grid};
-use crate::rotor::unbalance::{Peak, ResponsePoint, peaks, response};
+use crate::rotor::campbell::Campbell;
+use crate::rotor::run::{AtSpeedOptions, PeakMargin, at_speed};
+use crate::rotor::unbalance::ResponsePoint;
 
 pub(super) fn bearing(a: BearingArgs) -> Result<()> {
     match a.kind {
@@ -54,7 +54,7 @@ fn parse_speeds(s: &str) -> Result<(f64, f64, usize)> {
 struct CampbellFile<'a> {
     #[serde(flatten)]
     campbell: &'a Campbell,
-    unbalance_peaks: Vec<PeakLine>,
+    unbalance_peaks: &'a [PeakMargin],
     model: ModelInfo,
     caution: &'static str,
 }
@@ -63,98 +63,38 @@ struct CampbellFile<'a> {
 struct ModelInfo {
     elements: usize,
     nodes: usize,
-    dofs: usize,
     frame: &'static str,
-}
-
-#[derive(serde::Serialize)]
-struct PeakLine {
-    #[serde(flatten)]
-    peak: Peak,
-    /// Separation margin the rule asks for, %, and the one there is, below or above the range.
-    required_margin_pct: Option<f64>,
-    actual_margin_pct: Option<f64>,
-    clear: Option<bool>,
 }
 
 pub(super) fn rotor(a: RotorArgs) -> Result<()> {
     let file = crate::rotor::file::read_rotor(&a.rotor)?;
-    let (lo, hi, n) = match &a.speeds {
-        Some(s) => parse_speeds(s)?,
-        None => {
-            let top = file.operating_range_rpm.map_or(10_000.0, |r| 1.25 * r[1]);
-            (0.0, top, 101)
-        }
-    };
+    let mut o = AtSpeedOptions::for_range(file.operating_range_rpm);
+    if let Some(s) = &a.speeds {
+        let (lo, hi, n) = parse_speeds(s)?;
+        o.speeds_rpm = [lo, hi];
+        o.count = n;
+    }
     if a.modes == 0 || a.modes > 60 {
         bail!("--modes must be between 1 and 60");
     }
     if !(1..=400).contains(&a.elements) {
         bail!("--elements must be between 1 and 400");
     }
-    let model = file
-        .rotor
-        .assemble(BeamTheory::Timoshenko, a.elements, &[])
-        .map_err(|e| anyhow!("{}: {e}", a.rotor.display()))?;
-    let speeds = speed_grid(lo, hi, n);
-    let c =
-        campbell(&model, &speeds, a.modes).map_err(|e| anyhow!("{}: {e}", a.rotor.display()))?;
+    o.modes = a.modes;
+    o.elements = a.elements;
+    let r = at_speed(&file, &o).map_err(|e| anyhow!("{}: {e}", a.rotor.display()))?;
     std::fs::create_dir_all(&a.out)
         .with_context(|| format!("{}: cannot create the output folder", a.out.display()))?;
-    let mut peak_lines = Vec::new();
-    if !file.rotor.unbalances.is_empty() {
-        // Stations: every bearing and every unbalance, and the discs.
-        let mut positions: Vec<f64> = file
-            .rotor
-            .bearings
-            .iter()
-            .map(|b| b.position_m)
-            .chain(file.rotor.unbalances.iter().map(|u| u.position_m))
-            .chain(file.rotor.shaft.discs.iter().map(|d| d.position_m))
-            .collect();
-        positions.sort_by(f64::total_cmp);
-        positions.dedup_by(|x, y| (*x - *y).abs() < 1e-9);
-        // The response on a finer grid than the eigen sweep: peaks of lightly damped modes are
-        // narrow (half-power width ≈ 2ζN).
-        let fine = speed_grid(lo.max(hi * 1e-3), hi, (4 * n).max(801));
-        let pts = response(&model, &file.rotor.unbalances, &fine, &positions)
-            .map_err(|e| anyhow!("{}: {e}", a.rotor.display()))?;
-        write_unbalance_csv(&a.out.join("unbalance.csv"), &pts)?;
-        let rule = crate::model::margin::MarginRule::default();
-        for &x in &positions {
-            let curve: Vec<&ResponsePoint> = pts.iter().filter(|p| p.position_m == x).collect();
-            let sp: Vec<f64> = curve.iter().map(|p| p.speed_rpm).collect();
-            let am: Vec<f64> = curve.iter().map(|p| p.amplitude_m).collect();
-            for pk in peaks(x, &sp, &am) {
-                let (req, act, clear) = match (file.operating_range_rpm, pk.amplification_factor) {
-                    (Some([rlo, rhi]), Some(af)) => {
-                        let (req, act) = if pk.speed_rpm < rlo {
-                            (rule.below_pct(af), 100.0 * (rlo - pk.speed_rpm) / rlo)
-                        } else if pk.speed_rpm > rhi {
-                            (rule.above_pct(af), 100.0 * (pk.speed_rpm - rhi) / rhi)
-                        } else {
-                            (rule.below_pct(af).max(rule.above_pct(af)), 0.0)
-                        };
-                        (Some(req), Some(act), Some(act >= req))
-                    }
-                    _ => (None, None, None),
-                };
-                peak_lines.push(PeakLine {
-                    peak: pk,
-                    required_margin_pct: req,
-                    actual_margin_pct: act,
-                    clear,
-                });
-            }
-        }
+    if !r.response.is_empty() {
+        write_unbalance_csv(&a.out.join("unbalance.csv"), &r.response)?;
     }
+    let c = &r.campbell;
     let out = CampbellFile {
-        campbell: &c,
-        unbalance_peaks: peak_lines,
+        campbell: c,
+        unbalance_peaks: &r.peaks,
         model: ModelInfo {
-            elements: model.nodes_m.len() - 1,
-            nodes: model.nodes_m.len(),
-            dofs: model.dofs(),
+            elements: r.nodes_m.len() - 1,
+            nodes: r.nodes_m.len(),
             frame: "x along the bearings' static load, y 90° ahead in the spin direction, spin about +z",
         },
         caution: crate::cautions::ROTOR,
@@ -162,12 +102,12 @@ pub(super) fn rotor(a: RotorArgs) -> Result<()> {
     let path = a.out.join("campbell.json");
     crate::atomic::write_derived(&path, serde_json::to_string_pretty(&out)?.as_bytes())
         .with_context(|| format!("{}: cannot write", path.display()))?;
-    // A summary a person reads.
+    let [lo, hi] = o.speeds_rpm;
     println!(
         "{}: {} speeds {lo:.0}–{hi:.0} rpm, {} modes tracked",
         a.rotor.display(),
-        speeds.len(),
-        a.modes
+        r.speeds_rpm.len(),
+        o.modes
     );
     for cs in &c.critical_speeds {
         println!(
@@ -186,6 +126,24 @@ pub(super) fn rotor(a: RotorArgs) -> Result<()> {
             c.threshold_frequency_hz.unwrap_or(f64::NAN)
         ),
         None => println!("no instability found up to {hi:.0} rpm"),
+    }
+    for p in &r.peaks {
+        println!(
+            "response peak at {:.3} m: {:.1} rpm, {:.3e} m, AF {}{}",
+            p.peak.position_m,
+            p.peak.speed_rpm,
+            p.peak.amplitude_m,
+            p.peak
+                .amplification_factor
+                .map_or("—".to_string(), |af| format!("{af:.1}")),
+            match (p.clear, p.actual_margin_pct, p.required_margin_pct) {
+                (Some(ok), Some(act), Some(req)) => format!(
+                    ", margin {act:.1} % ({} {req:.1} %)",
+                    if ok { "clear of" } else { "BELOW" }
+                ),
+                _ => String::new(),
+            }
+        );
     }
     println!("wrote {}", path.display());
     println!("{}", crate::cautions::ROTOR);

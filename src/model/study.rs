@@ -58,6 +58,12 @@ pub struct Study {
     /// Smallest MAC that pairs a test mode with a model mode.
     #[serde(default = "default_min_mac")]
     pub min_mac: f64,
+    /// The rotor in service for the at-speed analysis, in the rotor file's keys (`bearings` with
+    /// eight coefficients or a plain bearing's geometry, `unbalances`, `operating_range_rpm`;
+    /// README "The rotor at speed"). `None`: the bearings in service above, as undamped
+    /// isotropic springs.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rotor: Option<serde_json::Value>,
 }
 
 impl Study {
@@ -72,6 +78,7 @@ impl Study {
             rule: MarginRule::default(),
             stiffness_range_n_per_m: None,
             min_mac: default_min_mac(),
+            rotor: None,
         }
     }
 

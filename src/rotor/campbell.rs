@@ -141,6 +141,9 @@ pub struct Campbell {
     pub stability_threshold_rpm: Option<f64>,
     /// Frequency of the mode that goes unstable there, Hz.
     pub threshold_frequency_hz: Option<f64>,
+    /// Each tracked branch's mode at each speed (shapes for whirl orbits).
+    #[serde(skip)]
+    pub modes: Vec<Vec<DampedMode>>,
 }
 
 /// Speeds `lo..=hi` in `count` equal steps.
@@ -264,6 +267,7 @@ pub fn campbell(model: &RotorModel, speeds_rpm: &[f64], count: usize) -> Result<
         critical_speeds,
         stability_threshold_rpm,
         threshold_frequency_hz,
+        modes: branches,
     })
 }
 

@@ -257,3 +257,59 @@ fn unbalance(v: &Value) -> Result<Unbalance, String> {
         },
     })
 }
+
+/// The keys of a rotor file that describe the service, not the shaft.
+pub fn service_part(file_text_value: &Value) -> Value {
+    let mut m = Map::new();
+    if let Value::Object(o) = file_text_value {
+        for k in ["bearings", "unbalances", "operating_range_rpm"] {
+            if let Some(v) = o.get(k) {
+                m.insert(k.to_string(), v.clone());
+            }
+        }
+    }
+    Value::Object(m)
+}
+
+/// The rotor in service of a model study: the tested shaft without its bench suspension, with
+/// the study's service rotor (bearings, unbalances, range), or else its bearings in service as
+/// undamped isotropic springs and its running speed. `None` when the study gives no bearings.
+pub fn from_study(study: &crate::model::study::Study) -> Result<Option<RotorFile>, String> {
+    let mut shaft = study.shaft.clone();
+    shaft.supports.clear();
+    let rotor_of = |service: &Value| -> Result<RotorFile, String> {
+        let Value::Object(o) = service_part(service) else {
+            unreachable!("service_part returns an object")
+        };
+        let mut top = match serde_json::to_value(&shaft) {
+            Ok(Value::Object(m)) => m,
+            _ => return Err("the shaft model could not be written as JSON".into()),
+        };
+        top.extend(o);
+        parse_rotor(Path::new("service rotor"), &Value::Object(top).to_string())
+            .map_err(|e| e.problem)
+    };
+    if let Some(v) = &study.rotor {
+        return rotor_of(v).map(Some);
+    }
+    if study.bearings.is_empty() {
+        return Ok(None);
+    }
+    let rotor = Rotor {
+        bearings: study
+            .bearings
+            .iter()
+            .map(|b| PlacedBearing {
+                position_m: b.position_m,
+                law: BearingLaw::Constant(Coefficients::isotropic(b.stiffness_n_per_m, 0.0)),
+            })
+            .collect(),
+        shaft,
+        unbalances: Vec::new(),
+    };
+    rotor.validate()?;
+    Ok(Some(RotorFile {
+        rotor,
+        operating_range_rpm: study.running_speed_rpm,
+    }))
+}

@@ -9,4 +9,5 @@ pub mod eigen;
 pub mod file;
 pub mod model;
 pub mod reynolds;
+pub mod run;
 pub mod unbalance;
