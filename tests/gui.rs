@@ -785,3 +785,52 @@ fn the_station_map_shows_the_selected_stations_frf_and_sound_cues_start_off() {
     assert!(!cue.accesskit_node().is_disabled());
     assert!(!h.state().settings.sound_cues);
 }
+
+#[test]
+fn the_rotor_view_reads_a_rotor_file_and_shows_its_critical_speeds_and_threshold() {
+    // The tested shaft on the example rotor file's plain bearings with its unbalance: the view
+    // solves on its own thread and lists the critical speeds, the stability threshold and the
+    // response peaks (figures as `tapgrid rotor` gives them for the same rotor).
+    let mut h = open_demo();
+    h.get_by_label("Rotor at speed").click();
+    settle(&mut h);
+    assert_eq!(h.state().settings.view, View::Rotor);
+    h.get_by_label_contains("undamped isotropic");
+    let file =
+        PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("sample-sessions/rotors/pump-rotor.json");
+    h.state_mut().push(Command::LoadRotor(file));
+    // Widen the sweep past the first critical speed.
+    h.state_mut().ui.rotor.options = Some(tapgrid::rotor::run::AtSpeedOptions {
+        speeds_rpm: [500.0, 14_000.0],
+        count: 41,
+        modes: 4,
+        elements: 40,
+    });
+    settle(&mut h);
+    let study = h
+        .state()
+        .doc
+        .as_ref()
+        .and_then(|d| d.study.as_ref())
+        .expect("study");
+    assert!(
+        study.rotor.is_some(),
+        "the service rotor is kept in the study"
+    );
+    h.get_by_label_contains("Unstable from");
+    h.get_by_label("Critical speeds");
+    h.get_by_label("Unbalance response peaks");
+    h.get_by_label("Bearing coefficients").click();
+    h.step();
+    assert!(h.state().ui.rotor.show_bearings);
+    // Back to the springs.
+    h.get_by_label("Use the springs").click();
+    settle(&mut h);
+    assert!(
+        h.state()
+            .doc
+            .as_ref()
+            .and_then(|d| d.study.as_ref())
+            .is_some_and(|s| s.rotor.is_none())
+    );
+}

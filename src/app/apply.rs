@@ -209,6 +209,19 @@ impl TapgridApp {
             }
             Command::ListDevices => self.worker.send(Job::ListDevices),
             Command::LoadModel(p) => self.load_model(&p),
+            Command::LoadRotor(p) => {
+                if self.doc.is_some() {
+                    self.io.send(Job::ReadRotor(p));
+                }
+            }
+            Command::ClearRotor => {
+                if let Some(st) = self.doc.as_mut().and_then(|d| d.study.as_mut()) {
+                    st.rotor = None;
+                }
+                if let Some(d) = &mut self.doc {
+                    d.dirty = true;
+                }
+            }
             Command::WriteModel(p) => self.write_model(&p),
             Command::WriteReport(p) => self.write_report(&p),
             Command::NewModel => {

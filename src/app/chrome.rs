@@ -144,7 +144,7 @@ impl TapgridApp {
                 self.commands.push(c);
             }
         }
-        // Keys 1–9 open the tabs in the order they are drawn.
+        // Keys 1–9 and 0 open the tabs in the order they are drawn.
         let keys = [
             Key::Num1,
             Key::Num2,
@@ -155,6 +155,7 @@ impl TapgridApp {
             Key::Num7,
             Key::Num8,
             Key::Num9,
+            Key::Num0,
         ];
         for (k, v) in keys.into_iter().zip(View::ALL) {
             if pressed(k) {
@@ -174,11 +175,14 @@ impl TapgridApp {
             PathPurpose::LoadModel => "Read a shaft model (JSON file)",
             PathPurpose::WriteModel => "Write the shaft model (JSON file)",
             PathPurpose::WriteReport => "Write the test report (HTML file)",
+            PathPurpose::LoadRotor => "Read a rotor file (JSON: bearings, unbalances)",
         };
         let mut close = false;
         let mut go = None;
         let ext = match d.purpose {
-            PathPurpose::LoadModel | PathPurpose::WriteModel => Some(".json"),
+            PathPurpose::LoadModel | PathPurpose::WriteModel | PathPurpose::LoadRotor => {
+                Some(".json")
+            }
             PathPurpose::WriteReport => Some(".html"),
             _ => None,
         };
@@ -212,9 +216,10 @@ impl TapgridApp {
             .show(ctx, |ui| {
                 ui.set_min_width(600.0);
                 ui.label(match d.purpose {
-                    PathPurpose::LoadModel | PathPurpose::WriteModel | PathPurpose::WriteReport => {
-                        "File:"
-                    }
+                    PathPurpose::LoadModel
+                    | PathPurpose::WriteModel
+                    | PathPurpose::WriteReport
+                    | PathPurpose::LoadRotor => "File:",
                     _ => "Folder:",
                 });
                 let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(580.0));
@@ -275,6 +280,7 @@ impl TapgridApp {
                     PathPurpose::LoadModel => Command::LoadModel(p),
                     PathPurpose::WriteModel => Command::WriteModel(p),
                     PathPurpose::WriteReport => Command::WriteReport(p),
+                    PathPurpose::LoadRotor => Command::LoadRotor(p),
                 });
             }
         } else if close {

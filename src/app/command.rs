@@ -79,6 +79,10 @@ pub enum Command {
     WriteReport(PathBuf),
     /// A first model: a uniform steel shaft over the stations, free-free.
     NewModel,
+    /// Read a rotor file's bearings, unbalances and range as the service rotor.
+    LoadRotor(PathBuf),
+    /// Back to the bearings in service as plain springs.
+    ClearRotor,
 }
 
 /// Where a report goes by default: beside a session or WAV set (a session's own folder holds only
@@ -112,6 +116,8 @@ pub enum PathPurpose {
     WriteModel,
     /// Write the test report.
     WriteReport,
+    /// Read a rotor file (bearings, unbalances).
+    LoadRotor,
 }
 
 pub(super) struct PathDialog {

@@ -14,7 +14,7 @@ pub const SHORTCUTS: [(&str, &str); 12] = [
     ("A", "accept the hit shown"),
     ("R", "reject the hit shown"),
     ("Space", "play / pause the mode animation"),
-    ("1 to 9", "switch view"),
+    ("1 to 9, 0", "switch view (in tab order)"),
     ("Ctrl+S", "save the session"),
     ("Ctrl+O", "open a folder"),
     ("F1", "this help"),

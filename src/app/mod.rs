@@ -15,6 +15,7 @@ mod model_edit;
 mod model_view;
 mod modes_view;
 pub mod plots;
+mod rotor_view;
 mod setup_view;
 mod station_map;
 pub mod worker;
@@ -76,6 +77,8 @@ pub struct TapgridApp {
     /// Live capture state.
     pub capture: capture_view::CaptureState,
     capture_dir: Option<PathBuf>,
+    /// The rotor-at-speed solve.
+    pub(crate) rotor: rotor_view::RotorState,
     pub(crate) ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
@@ -107,6 +110,7 @@ impl TapgridApp {
             last_time: None,
             capture: Default::default(),
             capture_dir: None,
+            rotor: Default::default(),
             ctx_slot,
         };
         if let Some(p) = path {
@@ -146,9 +150,9 @@ impl TapgridApp {
         self.ui.plot_scratch.mode = mode;
     }
 
-    /// True when nothing is queued: no command waiting and the worker idle.
+    /// True when nothing is queued: no command waiting, the workers and the rotor solve idle.
     pub fn idle(&self) -> bool {
-        self.commands.is_empty() && self.busy().is_none()
+        self.commands.is_empty() && self.busy().is_none() && !self.rotor_busy()
     }
 
     /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
@@ -186,6 +190,7 @@ impl TapgridApp {
         if self.settings.view == View::Hits {
             self.request_traces();
         }
+        self.poll_rotor(ctx);
         self.apply_pending(ctx);
     }
 
@@ -233,6 +238,7 @@ impl TapgridApp {
                 View::Capture => capture_view::show(ui, &mut cx),
                 View::Model => model_view::show(ui, &mut cx),
                 View::Margins => margin_view::show(ui, &mut cx),
+                View::Rotor => rotor_view::show(ui, &mut cx),
             }
         });
         if !self.settings.cautions_read {

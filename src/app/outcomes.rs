@@ -203,6 +203,32 @@ impl TapgridApp {
                     self.request_study();
                 }
             }
+            Outcome::RotorRead {
+                path,
+                service,
+                shaft,
+            } => {
+                if let Some(d) = &mut self.doc {
+                    // The tested shaft stays: the file brings the service (bearings, unbalances,
+                    // range); its shaft is used only when the test has no model yet.
+                    let had_model = d.study.is_some();
+                    let st = d.study.get_or_insert_with(|| Study::new(*shaft));
+                    st.rotor = Some(service);
+                    d.dirty = true;
+                    self.note(
+                        if had_model {
+                            format!(
+                                "read the bearings and unbalances of {} (on the tested shaft model)",
+                                path.display()
+                            )
+                        } else {
+                            format!("read the rotor {}", path.display())
+                        },
+                        false,
+                    );
+                    self.request_study();
+                }
+            }
             Outcome::Wrote(message) => self.note(message, false),
             Outcome::Saved(s) => {
                 let dir = s.dir.clone();

@@ -24,11 +24,13 @@ pub enum View {
     Model,
     /// Support-stiffness map and running-speed margins.
     Margins,
+    /// The rotor spinning on its bearings: Campbell diagram, stability, unbalance response.
+    Rotor,
 }
 
 impl View {
     /// All views in tab order.
-    pub const ALL: [View; 9] = [
+    pub const ALL: [View; 10] = [
         View::Capture,
         View::Setup,
         View::Stations,
@@ -38,6 +40,7 @@ impl View {
         View::Modes,
         View::Model,
         View::Margins,
+        View::Rotor,
     ];
 
     /// Tab label.
@@ -52,6 +55,7 @@ impl View {
             View::Capture => "Live capture",
             View::Model => "Shaft model",
             View::Margins => "Speed margins",
+            View::Rotor => "Rotor at speed",
         }
     }
 
@@ -67,13 +71,14 @@ impl View {
             "modes" => View::Modes,
             "model" => View::Model,
             "margins" => View::Margins,
+            "rotor" => View::Rotor,
             _ => return None,
         })
     }
 
     /// Views that animate mode shapes.
     pub fn animates(self) -> bool {
-        matches!(self, View::Modes | View::Model)
+        matches!(self, View::Modes | View::Model | View::Rotor)
     }
 }
 

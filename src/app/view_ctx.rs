@@ -37,6 +37,8 @@ pub struct UiState {
     pub capture_folder: String,
     /// Part name for a new capture session.
     pub capture_part: String,
+    /// The rotor view's choices.
+    pub rotor: super::rotor_view::RotorEdit,
     pub(super) plot_scratch: plots::Scratch,
     pub(super) overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
 }
@@ -59,6 +61,7 @@ impl Default for UiState {
             capture_station: 0,
             capture_folder: String::new(),
             capture_part: String::new(),
+            rotor: Default::default(),
             plot_scratch: plots::Scratch::default(),
             overlays: Default::default(),
         }
@@ -79,6 +82,10 @@ pub struct ViewCtx<'a> {
     pub traces: Option<Arc<Vec<Option<HitTraces>>>>,
     /// Counts analyses received: caches keyed on it redraw when new data arrive.
     pub analysis_stamp: u64,
+    /// The rotor-at-speed solve's last result.
+    pub rotor: &'a super::rotor_view::RotorState,
+    /// A rotor solve is running.
+    pub rotor_running: bool,
     commands: &'a mut Vec<Command>,
 }
 
@@ -96,6 +103,7 @@ impl TapgridApp {
             Some((s, t)) if *s == st => Some(t.clone()),
             _ => None,
         });
+        let rotor_running = self.rotor_busy();
         ViewCtx {
             doc: self.doc.as_ref(),
             settings: &mut self.settings,
@@ -103,6 +111,8 @@ impl TapgridApp {
             capture: &self.capture,
             traces,
             analysis_stamp: self.analysis_stamp,
+            rotor_running,
+            rotor: &self.rotor,
             commands: &mut self.commands,
         }
     }

@@ -82,6 +82,8 @@ pub enum Job {
     Reopen(PathBuf),
     /// Read a shaft model JSON file.
     ReadShaft(PathBuf),
+    /// Read a rotor file (shaft, bearings, unbalances).
+    ReadRotor(PathBuf),
     /// Write bytes to a file atomically; `what` names it in the message.
     WriteFile {
         /// Where.
@@ -175,6 +177,15 @@ pub enum Outcome {
         /// The file.
         path: PathBuf,
         /// The shaft.
+        shaft: Box<crate::model::beam::Shaft>,
+    },
+    /// A rotor file read and checked: its service part and its shaft.
+    RotorRead {
+        /// The file.
+        path: PathBuf,
+        /// Bearings, unbalances and range in the rotor file's keys.
+        service: serde_json::Value,
+        /// The file's shaft (used when the test has no shaft model).
         shaft: Box<crate::model::beam::Shaft>,
     },
     /// A file was written: the message to show.
@@ -306,6 +317,7 @@ fn describe(job: &Job) -> &'static str {
         Job::SaveAs { .. } | Job::CreateSession { .. } | Job::SaveSession { .. } => "Saving",
         Job::Reopen(_) => "Reading the session",
         Job::ReadShaft(_) => "Reading the shaft model",
+        Job::ReadRotor(_) => "Reading the rotor file",
         Job::WriteFile { .. } => "Writing",
         Job::WriteReport(_) => "Writing the report",
         Job::ListDevices => "Listing audio inputs",
@@ -457,6 +469,28 @@ fn run_job(
                 message: e.to_string(),
             },
         },
+        Job::ReadRotor(path) => {
+            let read = crate::rotor::file::read_rotor(&path).and_then(|f| {
+                let text = std::fs::read_to_string(&path).map_err(|e| {
+                    crate::acquire::InputError::new(&path, format!("cannot read: {e}"))
+                })?;
+                let value: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
+                    crate::acquire::InputError::new(&path, format!("is not valid JSON: {e}"))
+                })?;
+                Ok((f, crate::rotor::file::service_part(&value)))
+            });
+            match read {
+                Ok((f, service)) => Outcome::RotorRead {
+                    path,
+                    service,
+                    shaft: Box::new(f.rotor.shaft),
+                },
+                Err(e) => Outcome::Failed {
+                    what: "Reading the rotor file",
+                    message: e.to_string(),
+                },
+            }
+        }
         Job::WriteFile { path, bytes, what } => match crate::atomic::write_bytes(&path, &bytes) {
             Ok(()) => Outcome::Wrote(format!("wrote the {what} to {}", path.display())),
             Err(e) => Outcome::Failed {

@@ -47,7 +47,7 @@ use crate::units::Sensitivity;
 pub struct Cli {
     /// A session or WAV set folder to open in the window.
     pub open: Option<PathBuf>,
-    /// View to show first: capture, setup, stations, hits, frf, poles, modes, model, margins.
+    /// View to show first: capture, setup, stations, hits, frf, poles, modes, model, margins, rotor.
     #[arg(long)]
     pub view: Option<String>,
     /// What to do (none: open the window).
@@ -111,7 +111,7 @@ pub fn run(cli: Cli) -> Result<()> {
             Some(name) => Some(crate::app::View::from_name(name).ok_or_else(|| {
                 anyhow!(
                     "--view {name:?}: use capture, setup, stations, hits, frf, poles, modes, \
-                     model or margins"
+                     model, margins or rotor"
                 )
             })?),
             None => None,
