@@ -184,3 +184,29 @@ fn bad_rotor_files_exit_2_naming_the_file_and_the_fault() {
         .code(2)
         .stderr(predicate::str::contains("positive speed"));
 }
+
+#[test]
+fn the_report_gains_the_rotor_at_speed_from_a_rotor_file() {
+    // `tapgrid report --model ROTOR.json`: the service part of the rotor file is solved at speed
+    // and reported with its caution; the critical speeds are those `tapgrid rotor` finds.
+    let dir = tempfile::tempdir().unwrap();
+    let root = env!("CARGO_MANIFEST_DIR");
+    let out = dir.path().join("report.html");
+    tapgrid()
+        .args([
+            "report",
+            &format!("{root}/sample-sessions/pump-shaft"),
+            "--model",
+        ])
+        .arg(format!("{root}/sample-sessions/rotors/pump-rotor.json"))
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .success();
+    let html = std::fs::read_to_string(&out).unwrap();
+    let at = html.find("<h2>Rotor at speed</h2>").expect("rotor section");
+    let section = &html[at..];
+    assert!(section.contains("linearised rotor model"));
+    assert!(section.contains("<td>7036</td><td>1×</td><td class=\"l\">forward</td>"));
+    assert!(section.contains("Response to the unbalance"));
+}

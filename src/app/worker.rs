@@ -505,6 +505,20 @@ fn run_job(
 fn write_report(r: &ReportJob) -> Outcome {
     let empty = ModalResult::default();
     let written = crate::report::document::utc_now();
+    let rotor = match r
+        .study
+        .as_ref()
+        .and_then(|(s, _)| crate::report::document::rotor_for_report(s))
+    {
+        Some(Ok(at)) => Some(at),
+        Some(Err(e)) => {
+            return Outcome::Failed {
+                what: "Writing the report",
+                message: format!("the rotor at speed cannot be solved: {e}"),
+            };
+        }
+        None => None,
+    };
     let input = crate::report::document::ReportInput {
         part: &r.part.name,
         notes: &r.part.notes,
@@ -513,6 +527,7 @@ fn write_report(r: &ReportJob) -> Outcome {
         modes: r.modes.as_deref().unwrap_or(&empty),
         study: r.study.as_ref().map(|(s, res)| (s, res.as_ref())),
         written_utc: &written,
+        rotor: rotor.as_ref(),
     };
     match crate::report::document::write_html(&r.path, &input) {
         Ok(()) => Outcome::Wrote(format!("wrote the report to {}", r.path.display())),

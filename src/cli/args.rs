@@ -737,7 +737,7 @@ pub struct RotorArgs {
     /// Output folder for campbell.json and unbalance.csv.
     #[arg(long)]
     pub out: PathBuf,
-    /// Speed sweep LO:HI:COUNT, rpm [default: 0 to 1.25 × the top of the operating range (or
+    /// Speed sweep LO:HI:COUNT, rpm [default: 0 to 2.5 × the top of the operating range (or
     /// 10000), 101 speeds].
     #[arg(long)]
     pub speeds: Option<String>,

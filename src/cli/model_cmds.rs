@@ -23,9 +23,22 @@ pub(super) fn read_study(path: &Path) -> Result<crate::model::study::Study> {
             path.display()
         );
     }
-    Ok(crate::model::study::Study::new(
-        crate::model::run::read_shaft(path)?,
-    ))
+    let mut study = crate::model::study::Study::new(crate::model::run::read_shaft(path)?);
+    // A rotor file (the shaft with bearings, unbalances): its service part comes along, checked.
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| crate::acquire::InputError::new(path, format!("cannot read: {e}")))?;
+    if let Ok(value) = serde_json::from_str::<serde_json::Value>(&text)
+        && ["bearings", "unbalances", "operating_range_rpm"]
+            .iter()
+            .any(|k| value.get(k).is_some())
+    {
+        let file = crate::rotor::file::parse_rotor(path, &text)?;
+        study.rotor = Some(crate::rotor::file::service_part(&value));
+        if study.running_speed_rpm.is_none() {
+            study.running_speed_rpm = file.operating_range_rpm;
+        }
+    }
+    Ok(study)
 }
 
 pub(super) fn model(a: ModelArgs) -> Result<()> {

@@ -131,6 +131,14 @@ pub(super) fn report(a: ReportArgs) -> Result<()> {
     };
     let written = report::document::utc_now();
     let part = a.part.unwrap_or(part);
+    let rotor = match study.as_ref().and_then(report::document::rotor_for_report) {
+        Some(Ok(r)) => Some(r),
+        Some(Err(e)) => {
+            eprintln!("tapgrid: warning: the rotor at speed was left out of the report: {e}");
+            None
+        }
+        None => None,
+    };
     let input = report::document::ReportInput {
         part: &part,
         notes: &notes,
@@ -139,6 +147,7 @@ pub(super) fn report(a: ReportArgs) -> Result<()> {
         modes: &modes,
         study: study.as_ref().zip(result.as_ref()),
         written_utc: &written,
+        rotor: rotor.as_ref(),
     };
     report::document::write_html(&a.out, &input)?;
     print!("{}", report::summary(&analysis));

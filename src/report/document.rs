@@ -35,6 +35,22 @@ pub struct ReportInput<'a> {
     pub study: Option<(&'a Study, &'a StudyResult)>,
     /// When the report was written, as text (UTC).
     pub written_utc: &'a str,
+    /// The rotor at speed, when the study gives a service rotor.
+    pub rotor: Option<&'a crate::rotor::run::AtSpeed>,
+}
+
+/// The rotor at speed for a report: solved when the study holds a service rotor (bearings with
+/// eight coefficients or film geometry); `None` otherwise (plain springs are the margins
+/// section's business). An error is reported in the section rather than failing the report.
+pub fn rotor_for_report(study: &Study) -> Option<Result<crate::rotor::run::AtSpeed, String>> {
+    study.rotor.as_ref()?;
+    let file = match crate::rotor::file::from_study(study) {
+        Ok(Some(f)) => f,
+        Ok(None) => return None,
+        Err(e) => return Some(Err(e)),
+    };
+    let o = crate::rotor::run::AtSpeedOptions::for_range(file.operating_range_rpm);
+    Some(crate::rotor::run::at_speed(&file, &o))
 }
 
 const STYLE: &str = "body{font:14px/1.45 sans-serif;color:#222;max-width:980px;margin:24px auto;\
@@ -85,6 +101,9 @@ pub fn html(r: &ReportInput) -> String {
     if let Some((study, result)) = r.study {
         model_section(&mut s, r.modes, study, result);
         margin_section(&mut s, study, result);
+        if let Some(at) = r.rotor {
+            rotor_section(&mut s, at);
+        }
     } else {
         s.push_str(
             "<h2>Shaft model and running-speed margins</h2><p>No shaft model was given, so \
@@ -717,4 +736,205 @@ fn map_plot(
          stiffness; shaded: the critical speeds each order of the running speed would excite.</p>",
     );
     s.push_str(&plot(&frame, &series));
+}
+
+/// The rotor at speed: Campbell diagram, log decrement, unbalance response, critical speeds,
+/// threshold and response peaks, with the caution.
+fn rotor_section(s: &mut String, r: &crate::rotor::run::AtSpeed) {
+    use crate::rotor::eigen::Whirl;
+    const COLOURS: [&str; 6] = [
+        "#1f5fa8", "#2a8a3a", "#7a3fa0", "#a06a00", "#00808a", "#8a1f4f",
+    ];
+    let c = &r.campbell;
+    s.push_str("<h2>Rotor at speed</h2>");
+    let _ = write!(
+        s,
+        "<div class=\"caution\">{}</div>",
+        escape(crate::cautions::ROTOR)
+    );
+    let top = r.speeds_rpm.last().copied().unwrap_or(1.0);
+    let _ = write!(
+        s,
+        "<p>The tested shaft model spinning on the bearings in service, {} to {} rpm in {} \
+         steps, {} whirl modes tracked. {}</p>",
+        r.speeds_rpm.first().copied().unwrap_or(0.0),
+        top,
+        r.speeds_rpm.len(),
+        c.modes.len(),
+        match c.stability_threshold_rpm {
+            Some(t) => format!(
+                "<span class=\"bad\">A mode goes unstable (log decrement below zero) from {t:.0} \
+                 rpm, whirling at {:.1} Hz.</span>",
+                c.threshold_frequency_hz.unwrap_or(f64::NAN)
+            ),
+            None => format!("<span class=\"ok\">No mode goes unstable up to {top:.0} rpm.</span>"),
+        }
+    );
+    let band: Vec<([f64; 2], String)> = r
+        .operating_range_rpm
+        .map(|b| vec![(b, "running range".to_string())])
+        .unwrap_or_default();
+    let marks: Vec<(f64, String)> = c
+        .stability_threshold_rpm
+        .map(|t| vec![(t, "threshold".to_string())])
+        .unwrap_or_default();
+    let branch = |b: usize, f: &dyn Fn(&crate::rotor::eigen::DampedMode) -> f64| {
+        let modes = &c.modes[b];
+        let whirl = modes.last().map_or(Whirl::Forward, |m| m.whirl);
+        let mut line = Series::line(
+            r.speeds_rpm
+                .iter()
+                .zip(modes)
+                .map(|(s, m)| [*s, f(m)])
+                .collect(),
+            COLOURS[(b / 2) % COLOURS.len()],
+            1.5,
+        );
+        line.dashed = whirl == Whirl::Backward;
+        line
+    };
+    let f_max = c
+        .points
+        .iter()
+        .map(|p| p.frequency_hz)
+        .fold(0.0f64, f64::max);
+    let mut series: Vec<Series> = (0..c.modes.len())
+        .map(|b| branch(b, &|m| m.frequency_hz))
+        .collect();
+    for k in [1.0, 2.0] {
+        let end = (top * k / 60.0).min(f_max * 1.05);
+        series.push(Series::line(
+            vec![[0.0, 0.0], [end * 60.0 / k, end]],
+            "#777777",
+            1.0,
+        ));
+    }
+    let mut crit = Series::line(
+        c.critical_speeds
+            .iter()
+            .map(|cs| [cs.speed_rpm, cs.frequency_hz])
+            .collect(),
+        "#b35900",
+        0.0,
+    );
+    crit.markers = true;
+    series.push(crit);
+    let frame = |y: &str| Frame {
+        width: 940.0,
+        height: 320.0,
+        x_label: "speed (rpm)".into(),
+        y_label: y.into(),
+        x_bands: band.clone(),
+        x_marks: marks.clone(),
+        ..Frame::default()
+    };
+    s.push_str(
+        "<p>Campbell diagram: whirl frequencies against speed (solid forward, dashed backward), \
+         the 1× and 2× lines (grey) and the critical speeds (dots).</p>",
+    );
+    s.push_str(&plot(
+        &Frame {
+            y_range: Some([0.0, f_max * 1.08]),
+            ..frame("whirl frequency (Hz)")
+        },
+        &series,
+    ));
+    let decs: Vec<Series> = (0..c.modes.len())
+        .map(|b| branch(b, &|m| m.log_dec.clamp(-2.0, 2.0)))
+        .collect();
+    s.push_str("<p>Logarithmic decrement of each mode against speed; below zero it grows.</p>");
+    s.push_str(&plot(
+        &Frame {
+            zero_line: true,
+            ..frame("log decrement")
+        },
+        &decs,
+    ));
+    if c.critical_speeds.is_empty() {
+        s.push_str("<p>No critical speed (1× or 2×) in the range.</p>");
+    } else {
+        s.push_str(
+            "<table><tr><th>critical speed (rpm)</th><th>order</th><th class=\"l\">whirl</th>\
+             <th>mode</th><th>frequency (Hz)</th><th>damping ratio</th><th>log dec</th></tr>",
+        );
+        for cs in &c.critical_speeds {
+            let _ = write!(
+                s,
+                "<tr><td>{:.0}</td><td>{}×</td><td class=\"l\">{}</td><td>{}</td><td>{:.2}</td>\
+                 <td>{:.4}</td><td>{:.3}</td></tr>",
+                cs.speed_rpm,
+                cs.order,
+                cs.whirl.word(),
+                cs.mode,
+                cs.frequency_hz,
+                cs.damping_ratio,
+                cs.log_dec
+            );
+        }
+        s.push_str("</table>");
+    }
+    if r.response.is_empty() {
+        s.push_str("<p>No unbalance was given, so there is no response.</p>");
+        return;
+    }
+    let resp: Vec<Series> = r
+        .positions_m
+        .iter()
+        .enumerate()
+        .map(|(k, &x)| {
+            Series::line(
+                r.response
+                    .iter()
+                    .filter(|q| q.position_m == x)
+                    .map(|q| [q.speed_rpm, q.amplitude_m * 1e6])
+                    .collect(),
+                COLOURS[k % COLOURS.len()],
+                1.5,
+            )
+        })
+        .collect();
+    let _ = write!(
+        s,
+        "<p>Response to the unbalance along x (zero to peak; API amplitudes are peak to peak) at \
+         {}.</p>",
+        r.positions_m
+            .iter()
+            .enumerate()
+            .map(|(k, x)| format!("{x:.3} m ({})", COLOURS[k % COLOURS.len()]))
+            .collect::<Vec<_>>()
+            .join(", ")
+    );
+    s.push_str(&plot(&frame("amplitude (µm)"), &resp));
+    s.push_str(
+        "<table><tr><th>at (m)</th><th>peak (rpm)</th><th>amplitude (µm)</th><th>N1 (rpm)</th>\
+         <th>N2 (rpm)</th><th>AF</th><th>margin (%)</th><th>rule asks (%)</th>\
+         <th class=\"l\">verdict</th></tr>",
+    );
+    let opt = |v: Option<f64>, d: usize| v.map_or("—".to_string(), |x| format!("{x:.d$}"));
+    for p in &r.peaks {
+        let _ = write!(
+            s,
+            "<tr><td>{:.3}</td><td>{:.0}</td><td>{:.2}</td><td>{}</td><td>{}</td><td>{}</td>\
+             <td>{}</td><td>{}</td><td class=\"l {}\">{}</td></tr>",
+            p.peak.position_m,
+            p.peak.speed_rpm,
+            p.peak.amplitude_m * 1e6,
+            opt(p.peak.n1_rpm, 0),
+            opt(p.peak.n2_rpm, 0),
+            opt(p.peak.amplification_factor, 1),
+            opt(p.actual_margin_pct, 1),
+            opt(p.required_margin_pct, 1),
+            match p.clear {
+                Some(true) => "ok",
+                Some(false) => "bad",
+                None => "",
+            },
+            match p.clear {
+                Some(true) => "clear",
+                Some(false) => "TOO CLOSE",
+                None => "no range given",
+            }
+        );
+    }
+    s.push_str("</table>");
 }

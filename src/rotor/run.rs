@@ -25,11 +25,12 @@ pub struct AtSpeedOptions {
 }
 
 impl AtSpeedOptions {
-    /// 0 to 1.25 × the top of the operating range (else 10 000 rpm), 101 speeds, 8 modes,
+    /// 0 to 2.5 × the top of the operating range (else 10 000 rpm): wide enough to show the first
+    /// critical speeds above the range as well as those within its margins; 101 speeds, 8 modes,
     /// 40 elements.
     pub fn for_range(range: Option<[f64; 2]>) -> Self {
         Self {
-            speeds_rpm: [0.0, range.map_or(10_000.0, |r| 1.25 * r[1])],
+            speeds_rpm: [0.0, range.map_or(10_000.0, |r| 2.5 * r[1])],
             count: 101,
             modes: 8,
             elements: 40,
