@@ -496,6 +496,7 @@ fn d9_bearing() -> PlainBearing {
         clearance_m: 50e-6,
         viscosity_pa_s: 0.03,
         load_n: 50.0,
+        two_lobe: None,
     }
 }
 
@@ -679,7 +680,7 @@ fn the_reduced_basis_agrees_with_the_whole_space_on_the_example_rotor() {
 
 #[test]
 fn finite_bearing_matches_raimondi_and_boyd_and_the_notes_solution() {
-    use tapgrid::rotor::reynolds::{Grid, finite_sommerfeld};
+    use tapgrid::rotor::reynolds::{Bore, Grid, finite_sommerfeld};
     // Raimondi & Boyd (1958), L/D = 1 full bearing, as reprinted in Shigley (from memory, via
     // rotor-notes §B6.3): (ε, S, φ°). Their film starts at the h_max line; our free cavitation
     // boundary gives attitude angles up to ≈ 2° larger at these ε (rotor-notes' own free-boundary
@@ -690,7 +691,7 @@ fn finite_bearing_matches_raimondi_and_boyd_and_the_notes_solution() {
         (0.8, 0.0446, 36.24, 0.0448, 36.79),
         (0.9, 0.0188, 26.45, 0.0189, 26.71),
     ] {
-        let (s, phi) = finite_sommerfeld(1.0, eps, Grid::default()).expect("solves");
+        let (s, phi) = finite_sommerfeld(Bore::plain(1.0), eps, Grid::default()).expect("solves");
         assert!(rel(s, s_rb) < 0.02, "ε {eps}: S {s} vs R&B {s_rb}");
         assert!(
             (phi - phi_rb).abs() < 2.5,
@@ -706,7 +707,7 @@ fn finite_bearing_matches_raimondi_and_boyd_and_the_notes_solution() {
 
 #[test]
 fn finite_bearing_coefficients_match_the_notes_finite_difference_solution() {
-    use tapgrid::rotor::reynolds::{Grid, finite_at_eccentricity};
+    use tapgrid::rotor::reynolds::{Bore, Grid, finite_at_eccentricity};
     // rotor-notes §B6.4 [der; their own 180 × 40 Reynolds-condition solution, not yet compared
     // with a published table]: L/D, ε, S, φ, (a_uu, a_uv, a_vu, a_vv), (b_uu, b_uv, b_vv) in the
     // (u, v) frame; ours has x = −v, y = u: kxx = a_vv, kxy = −a_vu, kyx = −a_uv, kyy = a_uu.
@@ -736,7 +737,7 @@ fn finite_bearing_coefficients_match_the_notes_finite_difference_solution() {
             [3.216, -2.223, 6.400],
         ),
     ] {
-        let f = finite_at_eccentricity(ld, eps, Grid::default()).expect("solves");
+        let f = finite_at_eccentricity(Bore::plain(ld), eps, Grid::default()).expect("solves");
         assert!(
             rel(f.sommerfeld, s) < 2e-3,
             "{ld} {eps}: S {}",
@@ -772,10 +773,10 @@ fn finite_bearing_coefficients_match_the_notes_finite_difference_solution() {
 
 #[test]
 fn a_short_finite_bearing_approaches_the_closed_form() {
-    use tapgrid::rotor::reynolds::{Grid, finite_at_eccentricity};
+    use tapgrid::rotor::reynolds::{Bore, Grid, finite_at_eccentricity};
     // rotor-notes §B6.2 [der]: at L/D = 0.05, ε = 0.3 the finite-difference solution is within
     // 0.6 % of the short-bearing Sommerfeld number and about 1 % of its direct stiffness.
-    let f = finite_at_eccentricity(0.05, 0.3, Grid::default()).expect("solves");
+    let f = finite_at_eccentricity(Bore::plain(0.05), 0.3, Grid::default()).expect("solves");
     let ss = f.sommerfeld * std::f64::consts::PI * 0.05 * 0.05;
     assert!(rel(ss, short_sommerfeld(0.3)) < 0.01, "{ss}");
     let (a, _) = short_coefficients(0.3);
@@ -808,4 +809,50 @@ fn a_finite_bearing_in_a_rotor_interpolates_its_table_closely() {
             }
         }
     }
+}
+
+/// Lund's rigid-rotor threshold from dimensionless coefficients (rotor-notes §B3): K_eq, the
+/// whirl ratio γ and m c ω_th²/W = K_eq/γ². The combinations are the same in any right-handed
+/// frame, ours included.
+fn lund_threshold(a: [[f64; 2]; 2], b: [[f64; 2]; 2]) -> (f64, f64) {
+    let keq = (a[0][0] * b[1][1] + a[1][1] * b[0][0] - a[0][1] * b[1][0] - a[1][0] * b[0][1])
+        / (b[0][0] + b[1][1]);
+    let g2 = ((keq - a[0][0]) * (keq - a[1][1]) - a[0][1] * a[1][0])
+        / (b[0][0] * b[1][1] - b[0][1] * b[1][0]);
+    (g2.sqrt(), keq / g2)
+}
+
+#[test]
+fn two_lobe_bearing_matches_the_notes_solution_and_is_more_stable_than_a_plain_one() {
+    use tapgrid::rotor::reynolds::{Bore, Grid, finite_at_eccentricity};
+    // rotor-notes §B6.5 [der, unverified there]: two-lobe bore, m = 0.5, L/D = 0.5, 20° grooves,
+    // c_l basis: ε = 0.2: S = 0.6871, φ = 85.18°, γ = 0.443, m c ω²/W = 16.1; ε = 0.4: S =
+    // 0.1677, φ = 73.35°, γ = 0.098, 219. No published table was seen. Our solution is
+    // grid-converged (S changes by 0.1 % from 180 to 720 nodes around) and sensitive to where the
+    // groove edge falls (S = 0.655 with 10° grooves, 0.704 with 20°, 0.723 with 24°, measured):
+    // the notes' figures sit within 3 % of ours, as from a groove a node or two narrower.
+    let bore = Bore {
+        l_over_d: 0.5,
+        preload: 0.5,
+        groove_rad: 20f64.to_radians(),
+    };
+    for (eps, s, phi, gamma, thr) in [
+        (0.2, 0.6871, 85.18, 0.443, 16.1),
+        (0.4, 0.1677, 73.35, 0.098, 219.0),
+    ] {
+        let f = finite_at_eccentricity(bore, eps, Grid::default()).expect("solves");
+        let (g, t) = lund_threshold(f.a, f.b);
+        assert!(rel(f.sommerfeld, s) < 0.03, "ε {eps}: S {}", f.sommerfeld);
+        assert!(
+            (f.attitude_angle_deg - phi).abs() < 1.2,
+            "φ {}",
+            f.attitude_angle_deg
+        );
+        assert!((g - gamma).abs() < 0.01, "ε {eps}: γ {g}");
+        assert!(rel(t, thr) < 0.08, "ε {eps}: m c ω²/W {t}");
+    }
+    // The plain bearing of the same L/D at ε = 0.5 (rotor-notes §B6.4: γ = 0.5004, 6.577).
+    let plain = finite_at_eccentricity(Bore::plain(0.5), 0.5, Grid::default()).expect("solves");
+    let (g, t) = lund_threshold(plain.a, plain.b);
+    assert!((g - 0.5004).abs() < 0.01 && rel(t, 6.577) < 0.02, "{g} {t}");
 }

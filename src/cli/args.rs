@@ -692,6 +692,23 @@ pub struct BearingArgs {
 pub enum BearingKind {
     /// A plain (full, cylindrical) journal bearing from its geometry and operating point.
     Plain(PlainArgs),
+    /// A two-lobe (elliptical) journal bearing: finite-difference film; --clearance-m is the
+    /// lobes' machined clearance.
+    TwoLobe(TwoLobeArgs),
+}
+
+/// `tapgrid bearing two-lobe`.
+#[derive(Debug, Args)]
+pub struct TwoLobeArgs {
+    /// Geometry and operating point (as for `plain`; the method is always finite).
+    #[command(flatten)]
+    pub bearing: PlainArgs,
+    /// Preload m = 1 − (set clearance)/(lobe clearance).
+    #[arg(long)]
+    pub preload: f64,
+    /// Arc of each of the two axial grooves at the split, degrees.
+    #[arg(long, default_value_t = 20.0)]
+    pub groove_deg: f64,
 }
 
 /// Film solution for a plain bearing.

@@ -2,32 +2,48 @@
 //! critical speeds, stability threshold and unbalance response.
 
 use super::*;
-use crate::rotor::bearing::{FilmMethod, PlainBearing};
+use crate::rotor::bearing::{FilmMethod, PlainBearing, TwoLobe};
 use crate::rotor::campbell::Campbell;
 use crate::rotor::run::{AtSpeedOptions, PeakMargin, at_speed};
 use crate::rotor::unbalance::ResponsePoint;
 
 pub(super) fn bearing(a: BearingArgs) -> Result<()> {
-    match a.kind {
-        BearingKind::Plain(p) => {
-            let b = PlainBearing {
-                diameter_m: p.diameter_m,
-                length_m: p.length_m,
-                clearance_m: p.clearance_m,
-                viscosity_pa_s: p.viscosity_pa_s,
-                load_n: p.load_n,
-            };
-            let method = match p.method {
+    let geometry = |p: &PlainArgs, two_lobe| PlainBearing {
+        diameter_m: p.diameter_m,
+        length_m: p.length_m,
+        clearance_m: p.clearance_m,
+        viscosity_pa_s: p.viscosity_pa_s,
+        load_n: p.load_n,
+        two_lobe,
+    };
+    let (what, b, speed, method) = match &a.kind {
+        BearingKind::Plain(p) => (
+            "plain bearing",
+            geometry(p, None),
+            p.speed_rpm,
+            match p.method {
                 FilmArg::Short => FilmMethod::Short,
                 FilmArg::Finite => FilmMethod::Finite,
-            };
-            let r = b
-                .at_speed(p.speed_rpm, method)
-                .map_err(|e| anyhow!("plain bearing: {e}"))?;
-            println!("{}", serde_json::to_string_pretty(&r)?);
-            Ok(())
-        }
-    }
+            },
+        ),
+        BearingKind::TwoLobe(t) => (
+            "two-lobe bearing",
+            geometry(
+                &t.bearing,
+                Some(TwoLobe {
+                    preload: t.preload,
+                    groove_arc_deg: t.groove_deg,
+                }),
+            ),
+            t.bearing.speed_rpm,
+            FilmMethod::Finite,
+        ),
+    };
+    let r = b
+        .at_speed(speed, method)
+        .map_err(|e| anyhow!("{what}: {e}"))?;
+    println!("{}", serde_json::to_string_pretty(&r)?);
+    Ok(())
 }
 
 /// Parses `LO:HI:COUNT` (rpm, rpm, points).

@@ -62,6 +62,20 @@ pub struct PlainBearing {
     pub viscosity_pa_s: f64,
     /// Static load W on the bearing, N.
     pub load_n: f64,
+    /// A two-lobe (elliptical) bore instead of a cylindrical one; `clearance_m` is then the
+    /// lobes' machined clearance c_l.
+    #[serde(skip)]
+    pub two_lobe: Option<TwoLobe>,
+}
+
+/// A two-lobe bore: two arcs whose centres sit ±m·c_l from the bearing centre along the load
+/// line, split horizontally by two axial grooves (rotor-notes §B5).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, serde::Deserialize)]
+pub struct TwoLobe {
+    /// Preload m = 1 − c_b/c_l (c_b the set clearance at top and bottom), 0 ≤ m < 0.9.
+    pub preload: f64,
+    /// Arc of each groove, degrees.
+    pub groove_arc_deg: f64,
 }
 
 /// Which solution of the film a plain bearing's coefficients come from.
@@ -118,6 +132,14 @@ impl PlainBearing {
         check("radial clearance", self.clearance_m, 0.0, 0.1, "m")?;
         check("viscosity", self.viscosity_pa_s, 0.0, 100.0, "Pa·s")?;
         check("load", self.load_n, 0.0, 1e9, "N")?;
+        if let Some(t) = &self.two_lobe {
+            if !(t.preload.is_finite() && (0.0..0.9).contains(&t.preload)) {
+                return Err(format!("preload {} must be ≥ 0 and below 0.9", t.preload));
+            }
+            if !(t.groove_arc_deg.is_finite() && (0.0..=60.0).contains(&t.groove_arc_deg)) {
+                return Err(format!("groove arc {}° must be 0 to 60°", t.groove_arc_deg));
+            }
+        }
         if self.clearance_m >= 0.05 * self.diameter_m {
             return Err(format!(
                 "radial clearance {} m is not small against the diameter {} m (a film bearing's \
@@ -137,8 +159,20 @@ impl PlainBearing {
             ));
         }
         match method {
+            FilmMethod::Short if self.two_lobe.is_some() => Err(
+                "a two-lobe bore has no short-bearing closed form: use the finite method".into(),
+            ),
             FilmMethod::Short => Ok(self.short(speed_rpm)),
             FilmMethod::Finite => super::reynolds::plain_finite(self, speed_rpm),
+        }
+    }
+
+    /// The dimensionless bore.
+    pub fn bore(&self) -> super::reynolds::Bore {
+        super::reynolds::Bore {
+            l_over_d: self.length_m / self.diameter_m,
+            preload: self.two_lobe.map_or(0.0, |t| t.preload),
+            groove_rad: self.two_lobe.map_or(0.0, |t| t.groove_arc_deg.to_radians()),
         }
     }
 
@@ -262,7 +296,7 @@ impl BearingLaw {
         match self {
             BearingLaw::Plain(p, FilmMethod::Finite) => {
                 p.validate()?;
-                let table = super::reynolds::FiniteTable::new(p.length_m / p.diameter_m)?;
+                let table = super::reynolds::FiniteTable::new(p.bore())?;
                 Ok(BearingLaw::PlainTable(*p, std::sync::Arc::new(table)))
             }
             other => Ok(other.clone()),

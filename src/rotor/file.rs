@@ -133,7 +133,37 @@ fn bearing(v: &Value) -> Result<PlacedBearing, String> {
             .ok_or("has no \"position_m\" (its place along the shaft, m)")?,
         "position_m",
     )?;
-    let law = if let Some(p) = o.get("plain") {
+    let law = if let Some(t) = o.get("two_lobe") {
+        for k in o.keys() {
+            if !["position_m", "two_lobe"].contains(&k.as_str()) {
+                return Err(format!(
+                    "unknown key {k:?} beside \"two_lobe\" (position_m, two_lobe)"
+                ));
+            }
+        }
+        let mut g = object(t).map_err(|m| format!("\"two_lobe\" {m}"))?.clone();
+        let preload = number(
+            &g.remove("preload")
+                .ok_or("\"two_lobe\" needs \"preload\" (1 − set clearance / lobe clearance)")?,
+            "preload",
+        )?;
+        let groove = match g.remove("groove_arc_deg") {
+            None => 20.0,
+            Some(v) => number(&v, "groove_arc_deg")?,
+        };
+        let mut plain: PlainBearing = serde_json::from_value(Value::Object(g)).map_err(|e| {
+            format!(
+                "\"two_lobe\" needs diameter_m, length_m, clearance_m (the lobes'), \
+                 viscosity_pa_s, load_n and preload: {e}"
+            )
+        })?;
+        plain.two_lobe = Some(super::bearing::TwoLobe {
+            preload,
+            groove_arc_deg: groove,
+        });
+        plain.validate()?;
+        BearingLaw::Plain(plain, FilmMethod::Finite)
+    } else if let Some(p) = o.get("plain") {
         for k in o.keys() {
             if !["position_m", "plain", "method"].contains(&k.as_str()) {
                 return Err(format!(

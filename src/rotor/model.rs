@@ -207,13 +207,11 @@ fn prepare(bearings: &[PlacedBearing]) -> Result<Vec<BearingLaw>, String> {
     Ok(out)
 }
 
-/// Two finite plain bearings of the same length over diameter share a dimensionless film.
+/// Two finite film bearings of the same bore (L/D, lobes) share a dimensionless film.
 fn same_film(a: &BearingLaw, b: &BearingLaw) -> bool {
     use super::bearing::FilmMethod::Finite;
     match (a, b) {
-        (BearingLaw::Plain(p, Finite), BearingLaw::Plain(q, Finite)) => {
-            p.length_m / p.diameter_m == q.length_m / q.diameter_m
-        }
+        (BearingLaw::Plain(p, Finite), BearingLaw::Plain(q, Finite)) => p.bore() == q.bore(),
         _ => false,
     }
 }

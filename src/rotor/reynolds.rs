@@ -37,12 +37,50 @@ impl Default for Grid {
     }
 }
 
+/// The bore of a film bearing, dimensionless.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Bore {
+    /// Length over diameter.
+    pub l_over_d: f64,
+    /// Two-lobe preload m = 1 − c_b/c_l (0: a plain cylindrical bore).
+    pub preload: f64,
+    /// Width of each of the two axial grooves at the horizontal split, radians (0: none).
+    pub groove_rad: f64,
+}
+
+impl Bore {
+    /// A plain cylindrical bore, no grooves.
+    pub fn plain(l_over_d: f64) -> Self {
+        Self {
+            l_over_d,
+            preload: 0.0,
+            groove_rad: 0.0,
+        }
+    }
+
+    /// Dimensionless film thickness at angle θ (from the load line, +x) for journal position
+    /// (X, Y): H = 1 − X cos θ − Y sin θ − m|cos θ| (two lobes, their centres moved ±m along
+    /// the load line; rotor-notes §B5 in this frame).
+    fn h(&self, pos: [f64; 2], t: f64) -> f64 {
+        1.0 - pos[0] * t.cos() - pos[1] * t.sin() - self.preload * t.cos().abs()
+    }
+
+    /// In an axial groove (ambient pressure).
+    fn in_groove(&self, t: f64) -> bool {
+        if self.groove_rad <= 0.0 {
+            return false;
+        }
+        // Grooves centred at ±90° from the load line (the horizontal split).
+        let d = (t.rem_euclid(std::f64::consts::PI) - std::f64::consts::FRAC_PI_2).abs();
+        d <= 0.5 * self.groove_rad + 1e-9
+    }
+}
+
 /// A film solver for one bearing shape (L/D) and grid, keeping the last active set as the start
 /// of the next solve (neighbouring positions cavitate alike).
 struct Film {
     grid: Grid,
-    /// Half length over radius, L/(2R) = L/D.
-    half_z: f64,
+    bore: Bore,
     active: Vec<bool>,
 }
 
@@ -50,10 +88,10 @@ struct Film {
 type Force = [f64; 2];
 
 impl Film {
-    fn new(l_over_d: f64, grid: Grid) -> Self {
+    fn new(bore: Bore, grid: Grid) -> Self {
         Self {
             grid,
-            half_z: l_over_d,
+            bore,
             active: Vec::new(),
         }
     }
@@ -62,12 +100,18 @@ impl Film {
     fn force(&mut self, pos: [f64; 2], vel: [f64; 2]) -> Result<Force, String> {
         let (nt, nz) = (self.grid.around, self.grid.across);
         let dt = 2.0 * std::f64::consts::PI / nt as f64;
-        let dz = self.half_z / nz as f64;
+        // Half length over radius, L/(2R) = L/D.
+        let dz = self.bore.l_over_d / nz as f64;
+        let bore = self.bore;
         // Number the rings from the thickest film, where the film cavitates: the free region then
         // rarely wraps round the numbering, and the factor stays banded.
+        // The nodes sit at fixed angles k·Δθ from the load line (a lobed or grooved bore is
+        // fixed in space, and a grid that moved with the journal would make the force jump);
+        // their numbering starts at the node nearest the thickest film.
         let t_max = pos[1].atan2(pos[0]) + std::f64::consts::PI;
-        let theta = |i: f64| t_max + i * dt;
-        let h = |t: f64| 1.0 - pos[0] * t.cos() - pos[1] * t.sin();
+        let first = (t_max / dt).round();
+        let theta = |i: f64| (first + i) * dt;
+        let h = |t: f64| bore.h(pos, t);
         let hdot = |t: f64| -vel[0] * t.cos() - vel[1] * t.sin();
         let n = nt * nz;
         let idx = |i: usize, j: usize| i * nz + j;
@@ -103,8 +147,14 @@ impl Film {
                 rhs[r] = w * src;
             }
         }
+        let groove: Vec<bool> = (0..nt).map(|i| bore.in_groove(theta(i as f64))).collect();
         if self.active.len() != n {
             self.active = (0..n).map(|r| rhs[r] <= 0.0).collect();
+        }
+        for (r, a) in self.active.iter_mut().enumerate() {
+            if groove[r / nz] {
+                *a = true;
+            }
         }
         let mut p = vec![0.0; n];
         for _ in 0..60 {
@@ -141,6 +191,9 @@ impl Film {
             }
             let mut changed = false;
             for r in 0..n {
+                if groove[r / nz] {
+                    continue;
+                }
                 let now = if self.active[r] {
                     lambda[r] - rhs[r] > 0.0
                 } else {
@@ -252,9 +305,10 @@ fn balance(film: &mut Film, eps: f64) -> Result<(f64, Force), String> {
 
 /// Sommerfeld number and attitude angle (degrees) of a plain bearing of `l_over_d` at
 /// eccentricity ratio `eps`.
-pub fn finite_sommerfeld(l_over_d: f64, eps: f64, grid: Grid) -> Result<(f64, f64), String> {
+pub fn finite_sommerfeld(bore: Bore, eps: f64, grid: Grid) -> Result<(f64, f64), String> {
     check_eps(eps)?;
-    let mut film = Film::new(l_over_d, grid);
+    let l_over_d = bore.l_over_d;
+    let mut film = Film::new(bore, grid);
     let (angle, f0) = balance(&mut film, eps)?;
     Ok((
         2.0 * l_over_d / (std::f64::consts::PI * f0[0]),
@@ -273,13 +327,10 @@ fn check_eps(eps: f64) -> Result<(), String> {
 }
 
 /// The dimensionless solution of a plain bearing of `l_over_d` at eccentricity ratio `eps`.
-pub fn finite_at_eccentricity(
-    l_over_d: f64,
-    eps: f64,
-    grid: Grid,
-) -> Result<FiniteSolution, String> {
+pub fn finite_at_eccentricity(bore: Bore, eps: f64, grid: Grid) -> Result<FiniteSolution, String> {
     check_eps(eps)?;
-    let mut film = Film::new(l_over_d, grid);
+    let l_over_d = bore.l_over_d;
+    let mut film = Film::new(bore, grid);
     let (angle, f0) = balance(&mut film, eps)?;
     let pos = [eps * angle.cos(), eps * angle.sin()];
     let w = f0[0];
@@ -313,14 +364,15 @@ pub fn finite_at_eccentricity(
 /// eccentricity whose Sommerfeld number matches the load (secant on log S, from the
 /// short-bearing estimate), then the coefficients there.
 pub fn plain_finite(b: &PlainBearing, speed_rpm: f64) -> Result<PlainResult, String> {
-    let l_over_d = b.length_m / b.diameter_m;
+    let bore = b.bore();
+    let l_over_d = bore.l_over_d;
     let n_rev_s = speed_rpm / 60.0;
     let r = b.diameter_m / 2.0;
     let target =
         b.viscosity_pa_s * n_rev_s * b.length_m * b.diameter_m * (r / b.clearance_m).powi(2)
             / b.load_n;
     let grid = Grid::default();
-    let s_of = |eps: f64| finite_sommerfeld(l_over_d, eps, grid).map(|x| x.0);
+    let s_of = |eps: f64| finite_sommerfeld(bore, eps, grid).map(|x| x.0);
     // Short-bearing start, then secant in (ε, ln S); S falls as ε grows.
     let ss = target * std::f64::consts::PI * l_over_d * l_over_d;
     let mut e0 = short_eccentricity(ss).clamp(0.02, 0.95);
@@ -353,7 +405,7 @@ pub fn plain_finite(b: &PlainBearing, speed_rpm: f64) -> Result<PlainResult, Str
              {s1:.4} reached at ε = {e1:.3}): load too heavy for the film (ε ≥ 0.96) or too light"
         ));
     }
-    let s1 = finite_at_eccentricity(l_over_d, e1, grid)?;
+    let s1 = finite_at_eccentricity(bore, e1, grid)?;
     Ok(dimensional(b, speed_rpm, &s1))
 }
 
@@ -368,15 +420,15 @@ const TABLE_ECCENTRICITIES: [f64; 25] = [
 /// sweep: the coefficients at any speed by linear interpolation in ln S (held beyond the ends).
 #[derive(Debug, Clone, PartialEq)]
 pub struct FiniteTable {
-    /// L/D.
-    pub l_over_d: f64,
+    /// The bore.
+    pub bore: Bore,
     /// Rows by rising ε (falling S).
     pub rows: Vec<FiniteSolution>,
 }
 
 impl FiniteTable {
     /// Solves the film at each of its eccentricity ratios.
-    pub fn new(l_over_d: f64) -> Result<Self, String> {
+    pub fn new(bore: Bore) -> Result<Self, String> {
         // Rows are independent: spread them over the machine's cores.
         let threads = std::thread::available_parallelism()
             .map_or(1, |n| n.get())
@@ -397,7 +449,7 @@ impl FiniteTable {
                 .map(|c| {
                     sc.spawn(move || {
                         c.iter()
-                            .map(|&e| finite_at_eccentricity(l_over_d, e, Grid::default()))
+                            .map(|&e| finite_at_eccentricity(bore, e, Grid::default()))
                             .collect::<Result<Vec<_>, _>>()
                     })
                 })
@@ -412,7 +464,7 @@ impl FiniteTable {
             Ok::<_, String>(all)
         })?;
         rows.sort_by(|a, b| a.eccentricity_ratio.total_cmp(&b.eccentricity_ratio));
-        Ok(Self { l_over_d, rows })
+        Ok(Self { bore, rows })
     }
 
     /// The operating point at Sommerfeld number `s`: cubic (four-point Lagrange) interpolation
@@ -496,7 +548,7 @@ mod tests {
 
     #[test]
     fn the_free_film_carries_the_load_along_x() {
-        let s = finite_at_eccentricity(1.0, 0.5, Grid::default()).expect("solves");
+        let s = finite_at_eccentricity(Bore::plain(1.0), 0.5, Grid::default()).expect("solves");
         assert!(s.attitude_angle_deg > 0.0 && s.attitude_angle_deg < 90.0);
     }
 }
