@@ -433,37 +433,17 @@ fn damped_flexible_supports_reach_the_best_damping_at_the_closed_form_optimum() 
 fn short_bearing_coefficients_match_the_table() {
     // rotor-notes §B2 dimensionless table [der; formulas Friswell et al. 2010, from memory,
     // confirmed there by numerical linearisation]: ε, S_s, a_uu, a_uv, a_vu, a_vv, b_uu, b_uv, b_vv.
+    #[rustfmt::skip]
     let table = [
-        (
-            0.1,
-            3.11011,
-            [2.5308, 9.7577, -10.3811, 1.3284],
-            [19.7905, -2.5325, 20.4872],
-        ),
-        (
-            0.3,
-            0.85507,
-            [2.4126, 2.6246, -4.4825, 1.7949],
-            [6.0612, -2.4270, 8.1530],
-        ),
-        (
-            0.5,
-            0.33316,
-            [2.2099, 0.8577, -3.9766, 2.9233],
-            [3.0539, -2.2450, 6.6148],
-        ),
-        (
-            0.7,
-            0.10356,
-            [1.9695, -0.1734, -4.5347, 5.6594],
-            [1.6240, -2.0267, 7.0987],
-        ),
-        (
-            0.9,
-            0.01041,
-            [1.7294, -1.4213, -7.2637, 19.0955],
-            [0.6869, -1.8059, 10.9978],
-        ),
+        (0.1, 3.11011, [2.5308, 9.7577, -10.3811, 1.3284], [19.7905, -2.5325, 20.4872]),
+        (0.2, 1.44888, [2.4849, 4.5203, -5.7631, 1.4978], [9.5869, -2.4916, 10.9798]),
+        (0.3, 0.85507, [2.4126, 2.6246, -4.4825, 1.7949], [6.0612, -2.4270, 8.1530]),
+        (0.4, 0.53552, [2.3189, 1.5715, -4.0478, 2.2493], [4.2164, -2.3430, 7.0221]),
+        (0.5, 0.33316, [2.2099, 0.8577, -3.9766, 2.9233], [3.0539, -2.2450, 6.6148]),
+        (0.6, 0.19644, [2.0917, 0.3071, -4.1377, 3.9512], [2.2389, -2.1380, 6.6507]),
+        (0.7, 0.10356, [1.9695, -0.1734, -4.5347, 5.6594], [1.6240, -2.0267, 7.0987]),
+        (0.8, 0.04362, [1.8477, -0.6739, -5.3264, 9.0423], [1.1281, -1.9151, 8.1768]),
+        (0.9, 0.01041, [1.7294, -1.4213, -7.2637, 19.0955], [0.6869, -1.8059, 10.9978]),
     ];
     for (eps, ss, a, b) in table {
         assert!(
@@ -711,32 +691,16 @@ fn finite_bearing_coefficients_match_the_notes_finite_difference_solution() {
     // rotor-notes §B6.4 [der; their own 180 × 40 Reynolds-condition solution, not yet compared
     // with a published table]: L/D, ε, S, φ, (a_uu, a_uv, a_vu, a_vv), (b_uu, b_uv, b_vv) in the
     // (u, v) frame; ours has x = −v, y = u: kxx = a_vv, kxy = −a_vu, kyx = −a_uv, kyy = a_uu.
-    for (ld, eps, s, phi, a, b) in [
-        (
-            1.0,
-            0.3,
-            0.3870,
-            71.44,
-            [2.098, 2.819, -4.015, 1.346],
-            [6.359, -2.135, 7.750],
-        ),
-        (
-            1.0,
-            0.7,
-            0.0782,
-            44.82,
-            [1.936, 0.082, -3.413, 3.431],
-            [2.091, -2.104, 6.170],
-        ),
-        (
-            0.5,
-            0.5,
-            0.5109,
-            55.34,
-            [2.145, 0.953, -3.652, 2.522],
-            [3.216, -2.223, 6.400],
-        ),
-    ] {
+    #[rustfmt::skip]
+    let cases = [
+        (1.0, 0.3, 0.3870, 71.44, [2.098, 2.819, -4.015, 1.346], [6.359, -2.135, 7.750]),
+        (1.0, 0.5, 0.1792, 58.69, [2.018, 1.117, -3.209, 1.950], [3.467, -2.110, 5.966]),
+        (1.0, 0.7, 0.0782, 44.82, [1.936, 0.082, -3.413, 3.431], [2.091, -2.104, 6.170]),
+        (0.5, 0.3, 1.2231, 69.23, [2.301, 2.664, -4.296, 1.641], [6.119, -2.319, 8.010]),
+        (0.5, 0.5, 0.5109, 55.34, [2.145, 0.953, -3.652, 2.522], [3.216, -2.223, 6.400]),
+        (0.5, 0.7, 0.1855, 40.92, [1.952, -0.052, -3.978, 4.569], [1.821, -2.102, 6.787]),
+    ];
+    for (ld, eps, s, phi, a, b) in cases {
         let f = finite_at_eccentricity(Bore::plain(ld), eps, Grid::default()).expect("solves");
         assert!(
             rel(f.sommerfeld, s) < 2e-3,
@@ -764,9 +728,13 @@ fn finite_bearing_coefficients_match_the_notes_finite_difference_solution() {
                 "{ld} {eps}: b {o} vs {t}"
             );
         }
+        // c_xy = c_yx without fluid inertia (rotor-notes §A3) for a frozen cavitation boundary;
+        // differences of the full force let the boundary move, which costs a little symmetry.
         assert!(
-            rel(f.b[0][1], f.b[1][0]) < 1e-3,
-            "c_xy = c_yx without fluid inertia"
+            rel(f.b[0][1], f.b[1][0]) < 5e-3,
+            "{ld} {eps}: c_xy {} c_yx {}",
+            f.b[0][1],
+            f.b[1][0]
         );
     }
 }
@@ -855,4 +823,168 @@ fn two_lobe_bearing_matches_the_notes_solution_and_is_more_stable_than_a_plain_o
     let plain = finite_at_eccentricity(Bore::plain(0.5), 0.5, Grid::default()).expect("solves");
     let (g, t) = lund_threshold(plain.a, plain.b);
     assert!((g - 0.5004).abs() < 0.01 && rel(t, 6.577) < 0.02, "{g} {t}");
+}
+
+/// A rigid rotor as one node: mass `m` on translations, transverse inertia `it` and polar `ip`
+/// on the rotations, bearings of `k` each at ±`a` (2k in translation, 2ka² in tilt).
+fn rigid_rotor(m: f64, it: f64, ip: f64, k: f64, a: f64) -> RotorModel {
+    let mut model = point_model(m, [[2.0 * k, 0.0], [0.0, 2.0 * k]], [[0.0; 2]; 2], vec![]);
+    for d in 2..4 {
+        model.m[(d, d)] = it;
+        model.k[(d, d)] = 2.0 * k * a * a;
+    }
+    model.g[(2, 3)] = ip;
+    model.g[(3, 2)] = -ip;
+    model
+}
+
+#[test]
+fn rigid_rotor_conical_modes_split_with_speed() {
+    // rotor-notes §D5 [der]: I_t ω² − I_p Ω ω − 2ka² = 0; bearings k = 1e6 N/m at ±0.15 m,
+    // m = 20 kg (cylindrical √(2k/m) = 316.2278 rad/s). I_p = 0.3, I_t = 0.2: conical 474.342
+    // rad/s at rest; 979.669 F / 229.669 B at Ω = 500 rad/s; 1637.412 / 137.412 at 1000 rad/s;
+    // no forward critical, backward critical 300.000 rad/s. I_t = 0.6: forward critical 387.298,
+    // backward 223.607 rad/s.
+    let w = |hz: f64| hz * 2.0 * std::f64::consts::PI;
+    let model = rigid_rotor(20.0, 0.2, 0.3, 1e6, 0.15);
+    let mut s = Solver::new(&model, 4);
+    let rest = s.modes_at(0.0, 4).expect("solves");
+    assert!(rel(w(rest[0].frequency_hz), 316.2278) < 1e-6);
+    assert!(rel(w(rest[2].frequency_hz), 474.342) < 1e-6);
+    for (omega, fwd, bwd) in [(500.0, 979.669, 229.669), (1000.0, 1637.412, 137.412)] {
+        let modes = s.modes_at(omega * RPM, 4).expect("solves");
+        let conical: Vec<_> = modes
+            .iter()
+            .filter(|m| rel(w(m.frequency_hz), 316.2278) > 1e-3)
+            .collect();
+        let f = conical
+            .iter()
+            .find(|m| m.whirl == Whirl::Forward)
+            .expect("F");
+        let b = conical
+            .iter()
+            .find(|m| m.whirl == Whirl::Backward)
+            .expect("B");
+        assert!(
+            rel(w(f.frequency_hz), fwd) < 5e-6,
+            "{omega}: F {}",
+            w(f.frequency_hz)
+        );
+        assert!(
+            rel(w(b.frequency_hz), bwd) < 5e-6,
+            "{omega}: B {}",
+            w(b.frequency_hz)
+        );
+    }
+    let speeds: Vec<f64> = (0..=60).map(|i| 25.0 * i as f64 * RPM).collect();
+    let conical_crit = |model: &RotorModel| {
+        campbell(model, &speeds, 4)
+            .expect("campbell")
+            .critical_speeds
+            .into_iter()
+            .filter(|c| c.order == 1 && rel(c.speed_rpm / RPM, 316.2278) > 1e-3)
+            .map(|c| (c.whirl, c.speed_rpm / RPM))
+            .collect::<Vec<_>>()
+    };
+    let disc = conical_crit(&model);
+    assert_eq!(disc.len(), 1, "{disc:?}");
+    assert_eq!(disc[0].0, Whirl::Backward);
+    assert!(rel(disc[0].1, 300.0) < 5e-6, "{disc:?}");
+    let long = conical_crit(&rigid_rotor(20.0, 0.6, 0.3, 1e6, 0.15));
+    let f = long
+        .iter()
+        .find(|c| c.0 == Whirl::Forward)
+        .expect("forward");
+    let b = long
+        .iter()
+        .find(|c| c.0 == Whirl::Backward)
+        .expect("backward");
+    assert!(
+        rel(f.1, 387.298) < 5e-6 && rel(b.1, 223.607) < 5e-6,
+        "{long:?}"
+    );
+}
+
+#[test]
+fn rigid_rotor_on_short_bearings_thresholds_by_eccentricity() {
+    // rotor-notes §D7 [der]: (ε: K_eq, γ, m c ω_th²/W) from Lund's argument on the short-bearing
+    // coefficients; our closed-form coefficients through the same formulas.
+    for (eps, keq, gamma, thr) in [
+        (0.1, 1.9008, 0.50294, 7.5146),
+        (0.3, 1.8319, 0.51942, 6.7901),
+        (0.5, 1.7111, 0.51464, 6.4604),
+        (0.6, 1.6388, 0.47396, 7.2953),
+        (0.7, 1.5626, 0.34457, 13.161),
+    ] {
+        let (a, b) = short_coefficients(eps);
+        let k = (a[0][0] * b[1][1] + a[1][1] * b[0][0] - a[0][1] * b[1][0] - a[1][0] * b[0][1])
+            / (b[0][0] + b[1][1]);
+        let (g, t) = lund_threshold(a, b);
+        assert!(
+            (k - keq).abs() < 1e-4 && (g - gamma).abs() < 1e-4,
+            "ε {eps}: {k} {g}"
+        );
+        assert!(rel(t, thr) < 1e-4, "ε {eps}: {t}");
+    }
+}
+
+#[test]
+fn flexible_jeffcott_rotor_on_short_bearings_threshold_falls_with_flexibility() {
+    // rotor-notes §D8 [der]: ε = 0.3, m c ω_th²/W = 6.79012, 5.73881, 4.21578, 2.39769 for shaft
+    // stiffness κ = kc/W = ∞, 10, 3, 1 (the notes' eigenvalue solution agrees with the closed
+    // form to 5 digits). Here by our solver: W = 1 N, c = 1 m, m = 1 kg on a shaft spring k = κ
+    // to a journal of 1e-4 kg on a bearing held at ε = 0.3: K = a, C = b/ω (a table fine enough
+    // in speed that its interpolation is exact to 1e-6).
+    let (a, b) = short_coefficients(0.3);
+    // (u, v) → (x, y) = (−v, u).
+    let to_xy = |m: [[f64; 2]; 2]| [[m[1][1], -m[1][0]], [-m[0][1], m[0][0]]];
+    let (a, b) = (to_xy(a), to_xy(b));
+    for (kappa, want) in [(10.0, 5.73881), (3.0, 4.21578), (1.0, 2.39769)] {
+        let w_th: f64 = (want as f64).sqrt();
+        let speeds: Vec<f64> = (0..=400)
+            .map(|i| (0.8 + 0.4 * i as f64 / 400.0) * w_th * RPM)
+            .collect();
+        let table = speeds
+            .iter()
+            .map(|&n| {
+                let w = n / RPM;
+                (
+                    n,
+                    Coefficients {
+                        k_n_per_m: a,
+                        c_n_s_per_m: [[b[0][0] / w, b[0][1] / w], [b[1][0] / w, b[1][1] / w]],
+                    },
+                )
+            })
+            .collect();
+        let mut mm = DMatrix::zeros(8, 8);
+        let mut kk = DMatrix::zeros(8, 8);
+        for (node, mass) in [(0, 1.0), (1, 1e-4)] {
+            let base = 4 * node;
+            mm[(base, base)] = mass;
+            mm[(base + 1, base + 1)] = mass;
+            mm[(base + 2, base + 2)] = 1e-4;
+            mm[(base + 3, base + 3)] = 1e-4;
+            kk[(base + 2, base + 2)] = 1e3;
+            kk[(base + 3, base + 3)] = 1e3;
+        }
+        for d in 0..2 {
+            kk[(d, d)] += kappa;
+            kk[(4 + d, 4 + d)] += kappa;
+            kk[(d, 4 + d)] -= kappa;
+            kk[(4 + d, d)] -= kappa;
+        }
+        let model = RotorModel {
+            nodes_m: vec![0.0, 0.0],
+            m: mm,
+            k: kk,
+            c: DMatrix::zeros(8, 8),
+            g: DMatrix::zeros(8, 8),
+            bearing_nodes: vec![1],
+            bearings: vec![BearingLaw::Table(table)],
+        };
+        let c = campbell(&model, &speeds, 2).expect("campbell");
+        let th = c.stability_threshold_rpm.expect("a threshold") / RPM;
+        assert!(rel(th * th, want) < 2e-4, "κ {kappa}: {}", th * th);
+    }
 }

@@ -89,7 +89,9 @@ impl<'a> Solver<'a> {
         let (k, c) = self.model.at_speed(speed_rpm)?;
         let m = self.model.m.clone();
         let basis = self.basis(speed_rpm)?.clone();
-        damped_modes(&m, &c, &k, &basis, count, MIN_MODE_HZ)
+        let span = self.model.nodes_m.last().copied().unwrap_or(0.0)
+            - self.model.nodes_m.first().copied().unwrap_or(0.0);
+        damped_modes(&m, &c, &k, &basis, count, MIN_MODE_HZ, Some(span))
     }
 }
 

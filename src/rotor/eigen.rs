@@ -46,7 +46,7 @@ pub struct DampedMode {
     /// Logarithmic decrement δ = −2πσ/ω_d (negative: unstable).
     pub log_dec: f64,
     /// Whirl direction by the summed node orbits (forward and backward radii |u ± iv|/2 with
-    /// time factor e^{iω_d t}, rotor-notes §0).
+    /// time factor e^{iω_d t}, rotor-notes §0), slopes included.
     pub whirl: Whirl,
     /// Share of the orbit radii that whirl forward, 0…1 (0.5: a straight-line orbit).
     pub forward_share: f64,
@@ -128,6 +128,7 @@ pub fn damped_modes(
     basis: &Basis,
     count: usize,
     min_hz: f64,
+    node_span_m: Option<f64>,
 ) -> Result<Vec<DampedMode>, String> {
     let phi = &basis.phi;
     let r = phi.ncols();
@@ -169,6 +170,8 @@ pub fn damped_modes(
     let ac = a.map(|v| Complex64::new(v, 0.0));
     let phic = phi.map(|v| Complex64::new(v, 0.0));
     let nodes = m.nrows() / NODE_DOFS;
+    // Length that turns a slope into a displacement for the whirl sums (1 m for a point model).
+    let span = node_span_m.filter(|l| *l > 0.0).unwrap_or(1.0);
     let mut out = Vec::with_capacity(wanted.len());
     for lambda in wanted {
         let z = eigenvector_near(&ac, lambda)
@@ -183,6 +186,11 @@ pub fn damped_modes(
             let i = Complex64::new(0.0, 1.0);
             fwd += (u + i * v).norm() / 2.0;
             bwd += (u - i * v).norm() / 2.0;
+            // The slope (u′, v′) = (θy, −θx) whirls too; a tilting mode with its centre at rest
+            // (a rigid rotor's conical mode) is classified by it, as a motion `span` long.
+            let (sx, sy) = (q[NODE_DOFS * nd + 3], -q[NODE_DOFS * nd + 2]);
+            fwd += span * (sx + i * sy).norm() / 2.0;
+            bwd += span * (sx - i * sy).norm() / 2.0;
             for w in [u, v] {
                 if w.norm() > big.norm() {
                     big = w;
