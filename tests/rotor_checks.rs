@@ -940,7 +940,7 @@ fn flexible_jeffcott_rotor_on_short_bearings_threshold_falls_with_flexibility() 
     let to_xy = |m: [[f64; 2]; 2]| [[m[1][1], -m[1][0]], [-m[0][1], m[0][0]]];
     let (a, b) = (to_xy(a), to_xy(b));
     for (kappa, want) in [(10.0, 5.73881), (3.0, 4.21578), (1.0, 2.39769)] {
-        let w_th: f64 = (want as f64).sqrt();
+        let w_th = f64::sqrt(want);
         let speeds: Vec<f64> = (0..=400)
             .map(|i| (0.8 + 0.4 * i as f64 / 400.0) * w_th * RPM)
             .collect();
