@@ -28,6 +28,7 @@ pub mod capture;
 pub mod cautions;
 pub mod cli;
 pub mod clock;
+pub mod coast;
 pub mod estimate;
 pub mod modal;
 pub mod model;

@@ -14,7 +14,7 @@ const LAYERS: &[&[&str]] = &[
     &["analysis"],
     &["modal"],
     &["model"],
-    &["rotor"],
+    &["rotor", "coast"],
     &["session"],
     &["capture"],
     &["pipeline"],

@@ -604,6 +604,10 @@ pub struct SimulateArgs {
     /// A scenario JSON file (see `sim::Scenario`); flags below override it.
     #[arg(long)]
     pub scenario: Option<PathBuf>,
+    /// Simulate a run-up or coast-down instead (tach on channel 0, accelerometer on 1): a run
+    /// scenario JSON file (`sim::run::RunScenario`), or `default` → DIR/run.wav, DIR/truth.json.
+    #[arg(long, value_name = "FILE|default")]
+    pub run: Option<String>,
     /// Layout.
     #[arg(long, value_enum)]
     pub layout: Option<LayoutArg>,
@@ -764,4 +768,50 @@ pub struct RotorArgs {
     /// Elements over the shaft's length (nodes are added at sections, discs and bearings).
     #[arg(long, default_value_t = 40)]
     pub elements: usize,
+}
+
+/// Quantity of the tracked amplitudes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum QuantityArg {
+    /// As recorded (an accelerometer: m/s²).
+    Acceleration,
+    /// Integrated once (m/s).
+    Velocity,
+    /// Integrated twice (m).
+    Displacement,
+}
+
+/// `tapgrid coastdown`.
+#[derive(Debug, Args)]
+pub struct CoastdownArgs {
+    /// The run recording (WAV, two or more channels).
+    pub wav: PathBuf,
+    /// Output folder for tracking.csv and result.json.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Channel of the tach (0-based).
+    #[arg(long, default_value_t = 0)]
+    pub tach_channel: usize,
+    /// Channel of the vibration sensor (0-based).
+    #[arg(long, default_value_t = 1)]
+    pub channel: usize,
+    /// Vibration sensor sensitivity, mV per m/s² (default: samples taken as m/s² at full
+    /// scale 1).
+    #[arg(long)]
+    pub sensitivity: Option<f64>,
+    /// Volts at digital full scale.
+    #[arg(long, default_value_t = 1.0)]
+    pub full_scale_volts: f64,
+    /// Tach pulses per revolution.
+    #[arg(long, default_value_t = 1)]
+    pub pulses_per_rev: usize,
+    /// Orders to track, e.g. 1,2.
+    #[arg(long, default_value = "1,2")]
+    pub orders: String,
+    /// Quantity of the amplitudes.
+    #[arg(long, value_enum, default_value_t = QuantityArg::Acceleration)]
+    pub quantity: QuantityArg,
+    /// First-order AC-coupling corner of the vibration input to undo, Hz.
+    #[arg(long, default_value_t = 0.0)]
+    pub ac_corner: f64,
 }

@@ -6,6 +6,7 @@
 
 mod args;
 mod capture_cmds;
+mod coast_cmds;
 mod model_cmds;
 mod rotor_cmds;
 mod sim_cmds;
@@ -13,6 +14,7 @@ mod test_cmds;
 
 pub use args::*;
 use capture_cmds::{calibrate, capture, devices};
+use coast_cmds::coastdown;
 use model_cmds::{correlate, margin, model};
 use rotor_cmds::{bearing, rotor};
 use sim_cmds::simulate;
@@ -79,6 +81,9 @@ pub enum Command {
     /// The rotor at speed: Campbell diagram, critical speeds, stability threshold, unbalance
     /// response → campbell.json, unbalance.csv (advisory).
     Rotor(RotorArgs),
+    /// Track a run-up or coast-down (tach + accelerometer on two channels): 1×/2× against
+    /// speed, critical speeds, AF, subsynchronous whirl → tracking.csv, result.json (advisory).
+    Coastdown(CoastdownArgs),
     /// Calibration helpers on a recording: sensitivity, full-scale volts, mass check, loopback.
     Calibrate(CalibrateArgs),
     /// Override a hit's verdict in a session (accept, reject, or back to automatic).
@@ -130,6 +135,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Calibrate(a) => calibrate(a),
         Command::Bearing(a) => bearing(a),
         Command::Rotor(a) => rotor(a),
+        Command::Coastdown(a) => coastdown(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
         Command::BenchVerdict(a) => bench_verdict(&a),

@@ -3,6 +3,23 @@
 use super::*;
 
 pub(super) fn simulate(a: SimulateArgs) -> Result<()> {
+    if let Some(run) = &a.run {
+        let sc = if run == "default" {
+            crate::sim::run::RunScenario::default()
+        } else {
+            let text =
+                std::fs::read_to_string(run).with_context(|| format!("{run}: cannot read"))?;
+            serde_json::from_str(&text)
+                .with_context(|| format!("{run}: not a valid run scenario"))?
+        };
+        let truth = sc.write(&a.out)?;
+        println!(
+            "wrote {} (critical speeds {:?} rpm)",
+            a.out.join("run.wav").display(),
+            truth.critical_speeds_rpm
+        );
+        return Ok(());
+    }
     let mut sc = match &a.scenario {
         Some(p) => {
             let text = std::fs::read_to_string(p)

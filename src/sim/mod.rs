@@ -7,6 +7,7 @@
 //! high-pass), mains hum coherent on both channels, noise, clipping at full scale and quantisation.
 
 pub mod demo;
+pub mod run;
 
 use std::path::Path;
 

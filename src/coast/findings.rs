@@ -1,0 +1,341 @@
+//! What a tracked run says: critical speeds with their amplification factor (half-power and
+//! phase-slope methods, rotor-notes §C6), and subsynchronous components (§C7).
+
+use serde::Serialize;
+
+use super::track::{OrderPoint, OrderSpectrum, unwrapped_lags};
+use crate::Complex64;
+
+/// A critical speed read from one order's Bode data.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct CriticalSpeed {
+    /// Speed of the amplitude peak (parabolic refinement), rpm.
+    pub speed_rpm: f64,
+    /// N_c/(N2 − N1) by the half-power points (API RP 684 rule; verify against your edition).
+    pub amplification_factor: f64,
+    /// Change of the phase lag through the resonance (from 3 half-power widths below to 3
+    /// above, or the ends of the data), degrees.
+    pub phase_change_deg: f64,
+    /// The order whose amplitude peaks.
+    pub order: u32,
+    /// Lower and upper half-power speeds, rpm.
+    pub n1_rpm: f64,
+    /// Upper half-power speed, rpm.
+    pub n2_rpm: f64,
+    /// Peak amplitude (0-peak, SI units of the quantity, slow roll removed).
+    pub peak_amplitude: f64,
+    /// N_90/(N_135 − N_45) from the phase lag relative to below the resonance (`None` when the
+    /// lag does not pass all three).
+    pub amplification_factor_phase: Option<f64>,
+    /// Sweep rate against the mode's bandwidth, Ω̇/(ζω_n)² (≲ 0.1 for a fair AF).
+    pub sweep_parameter: f64,
+}
+
+/// A subsynchronous component.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Subsynchronous {
+    /// Order (fraction of running speed).
+    pub order: f64,
+    /// Lowest speed where it was found, rpm.
+    pub from_rpm: f64,
+    /// Highest speed where it was found, rpm.
+    pub to_rpm: f64,
+    /// Largest amplitude (0-peak, recorded units).
+    pub peak_amplitude: f64,
+}
+
+/// One order's Bode data: speeds (ascending), vectors averaged over neighbouring revolutions
+/// (vector mean over a window spanning at most 0.3 % of speed), their standard errors, and the
+/// time of each point.
+pub struct Bode {
+    /// Speeds, rpm, ascending.
+    pub speeds: Vec<f64>,
+    /// Mean vectors.
+    pub vectors: Vec<Complex64>,
+    /// Standard error of each mean vector (same units).
+    pub errors: Vec<f64>,
+    /// Times, s.
+    pub times: Vec<f64>,
+}
+
+/// The Bode data of one order's points.
+pub fn bode(points: &[OrderPoint]) -> Bode {
+    let mut p: Vec<OrderPoint> = points.to_vec();
+    p.sort_by(|a, b| a.speed_rpm.total_cmp(&b.speed_rpm));
+    let n = p.len();
+    let mut speeds = Vec::with_capacity(n);
+    let mut vecs = Vec::with_capacity(n);
+    let mut times = Vec::with_capacity(n);
+    let mut errors = Vec::with_capacity(n);
+    for i in 0..n {
+        let s = p[i].speed_rpm;
+        let (mut lo, mut hi) = (i, i);
+        while lo > 0 && i - lo < 30 && (s - p[lo - 1].speed_rpm).abs() < 0.0015 * s {
+            lo -= 1;
+        }
+        while hi + 1 < n && hi - i < 30 && (p[hi + 1].speed_rpm - s).abs() < 0.0015 * s {
+            hi += 1;
+        }
+        let m = (hi - lo + 1) as f64;
+        speeds.push(p[lo..=hi].iter().map(|q| q.speed_rpm).sum::<f64>() / m);
+        let mean = p[lo..=hi].iter().map(|q| q.vector).sum::<Complex64>() / m;
+        // Scatter of the revolutions about the mean; with one or two revolutions in the window,
+        // the scatter of a wider neighbourhood stands in.
+        let (a, b) = (i.saturating_sub(4), (i + 4).min(n - 1));
+        let (a, b) = if hi - lo >= 2 { (lo, hi) } else { (a, b) };
+        let local = p[a..=b].iter().map(|q| q.vector).sum::<Complex64>() / (b - a + 1) as f64;
+        let var = p[a..=b]
+            .iter()
+            .map(|q| (q.vector - local).norm_sqr())
+            .sum::<f64>()
+            / (b - a).max(1) as f64;
+        errors.push((var / m).sqrt());
+        vecs.push(mean);
+        times.push(p[i].time_s);
+    }
+    Bode {
+        speeds,
+        vectors: vecs,
+        errors,
+        times,
+    }
+}
+
+/// Slow roll: the mean vector over the lowest 5 % of the speed range, when that is under a
+/// fifth of the top speed (below there the unbalance response is small against runout).
+pub fn slow_roll(speeds: &[f64], vecs: &[Complex64]) -> Option<Complex64> {
+    let (lo, hi) = (*speeds.first()?, *speeds.last()?);
+    if !(lo < 0.2 * hi) {
+        return None;
+    }
+    let edge = lo + 0.05 * (hi - lo);
+    let sel: Vec<Complex64> = speeds
+        .iter()
+        .zip(vecs)
+        .filter(|(s, _)| **s <= edge)
+        .map(|(_, v)| *v)
+        .collect();
+    (!sel.is_empty()).then(|| sel.iter().sum::<Complex64>() / sel.len() as f64)
+}
+
+fn interp(xs: &[f64], ys: &[f64], x: f64) -> f64 {
+    let k = xs.partition_point(|v| *v < x).clamp(1, xs.len() - 1);
+    let (x0, x1, y0, y1) = (xs[k - 1], xs[k], ys[k - 1], ys[k]);
+    if x1 == x0 {
+        y0
+    } else {
+        y0 + (x - x0) * (y1 - y0) / (x1 - x0)
+    }
+}
+
+/// Critical speeds of one order: amplitude peaks standing well above the order's typical level,
+/// falling to half power on both sides, with the lag turning by at least 100° through them.
+pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
+    let Bode {
+        speeds,
+        vectors: mut vecs,
+        errors,
+        times,
+    } = bode(points);
+    if speeds.len() < 9 {
+        return Vec::new();
+    }
+    if let Some(sr) = slow_roll(&speeds, &vecs) {
+        vecs.iter_mut().for_each(|v| *v -= sr);
+    }
+    let amp: Vec<f64> = vecs.iter().map(|v| v.norm()).collect();
+    let lags = unwrapped_lags(&vecs);
+    let mut sorted = amp.clone();
+    sorted.sort_by(f64::total_cmp);
+    let typical = sorted[sorted.len() / 2];
+    let n = amp.len();
+    let mut out: Vec<CriticalSpeed> = Vec::new();
+    // Candidates: local maxima over ±1 % of speed, largest first.
+    let mut cands: Vec<usize> = (1..n - 1)
+        .filter(|&i| {
+            let s = speeds[i];
+            (0..n)
+                .filter(|&j| (speeds[j] - s).abs() <= 0.01 * s)
+                .all(|j| amp[j] <= amp[i])
+        })
+        .collect();
+    cands.sort_by(|a, b| amp[*b].total_cmp(&amp[*a]));
+    for i in cands {
+        let a = amp[i];
+        // A resonance stands well above the order's typical level and far above the scatter of
+        // the revolutions it is averaged from (noise alone makes peaks too).
+        if a < 4.0 * typical || a < 10.0 * errors[i] {
+            continue;
+        }
+        let half = a / std::f64::consts::SQRT_2;
+        let cross = |range: &mut dyn Iterator<Item = usize>| -> Option<f64> {
+            let mut prev = i;
+            for j in range {
+                if amp[j] > a {
+                    return None;
+                }
+                if amp[j] <= half {
+                    let (a0, a1) = (amp[prev], amp[j]);
+                    let (s0, s1) = (speeds[prev], speeds[j]);
+                    return Some(if a1 == a0 {
+                        s1
+                    } else {
+                        s0 + (half - a0) * (s1 - s0) / (a1 - a0)
+                    });
+                }
+                prev = j;
+            }
+            None
+        };
+        let (Some(n1), Some(n2)) = (cross(&mut (0..i).rev()), cross(&mut (i + 1..n))) else {
+            continue;
+        };
+        if !(n2 > n1) {
+            continue;
+        }
+        // Parabolic refinement of the peak.
+        let (x0, x1, x2) = (speeds[i - 1], speeds[i], speeds[i + 1]);
+        let (y0, y1, y2) = (amp[i - 1], a, amp[i + 1]);
+        let den = (x0 - x1) * (x0 - x2) * (x1 - x2);
+        let nc = if den != 0.0 {
+            let pa = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den;
+            let pb = (x2 * x2 * (y0 - y1) + x1 * x1 * (y2 - y0) + x0 * x0 * (y1 - y2)) / den;
+            if pa < 0.0 {
+                (-pb / (2.0 * pa)).clamp(x0, x2)
+            } else {
+                x1
+            }
+        } else {
+            x1
+        };
+        let width = n2 - n1;
+        let below = (nc - 3.0 * width).max(speeds[0]);
+        let above = (nc + 3.0 * width).min(speeds[n - 1]);
+        let lag_lo = interp(&speeds, &lags, below);
+        let change = interp(&speeds, &lags, above) - lag_lo;
+        // One mode turns the lag by up to 180° (a little more with its neighbours); a random
+        // walk of a noisy phase turns it anywhere.
+        if !(100.0..=270.0).contains(&change.abs()) {
+            continue;
+        }
+        if out.iter().any(|c| (c.speed_rpm - nc).abs() < 2.0 * width) {
+            continue;
+        }
+        // Phase slope: speeds where the lag has turned 45°, 90° and 135° from below.
+        let sgn = change.signum();
+        let turn = |deg: f64| -> Option<f64> {
+            let target = lag_lo + sgn * deg;
+            let k0 = speeds.partition_point(|s| *s < below);
+            let k1 = speeds.partition_point(|s| *s <= above);
+            (k0.max(1)..k1)
+                .find(|&k| (lags[k - 1] - target) * (lags[k] - target) <= 0.0)
+                .map(|k| {
+                    let (l0, l1) = (lags[k - 1], lags[k]);
+                    if l1 == l0 {
+                        speeds[k]
+                    } else {
+                        speeds[k - 1] + (target - l0) * (speeds[k] - speeds[k - 1]) / (l1 - l0)
+                    }
+                })
+        };
+        let af_phase = match (turn(45.0), turn(90.0), turn(135.0)) {
+            (Some(a45), Some(a90), Some(a135)) if a135 > a45 => Some(a90 / (a135 - a45)),
+            _ => None,
+        };
+        // Sweep rate near the peak: dΩ/dt from the time of the neighbouring points.
+        let (ja, jb) = (i.saturating_sub(5), (i + 5).min(n - 1));
+        let dt = (times[jb] - times[ja]).abs();
+        let domega = (speeds[jb] - speeds[ja]).abs() * std::f64::consts::PI / 30.0;
+        let af = nc / width;
+        let zeta = 0.5 / af;
+        let wn = nc * std::f64::consts::PI / 30.0;
+        let sweep = if dt > 0.0 {
+            domega / dt / (zeta * wn).powi(2)
+        } else {
+            0.0
+        };
+        out.push(CriticalSpeed {
+            speed_rpm: nc,
+            amplification_factor: af,
+            phase_change_deg: change.abs(),
+            order,
+            n1_rpm: n1,
+            n2_rpm: n2,
+            peak_amplitude: a,
+            amplification_factor_phase: af_phase,
+            sweep_parameter: sweep,
+        });
+    }
+    out.sort_by(|a, b| a.speed_rpm.total_cmp(&b.speed_rpm));
+    out
+}
+
+/// Subsynchronous components: in each block's order spectrum the largest line between 0.2× and
+/// 0.9× that stands 5× above the band's median and above 10 % of the 1× line, in two or more
+/// consecutive blocks (rotor-notes §C7).
+pub fn subsynchronous(spectra: &[OrderSpectrum]) -> Vec<Subsynchronous> {
+    let mut flags: Vec<Option<(f64, f64, f64)>> = Vec::with_capacity(spectra.len());
+    for s in spectra {
+        let band: Vec<usize> = (0..s.orders.len())
+            .filter(|&j| (0.2..=0.9).contains(&s.orders[j]))
+            .collect();
+        if band.len() < 5 {
+            flags.push(None);
+            continue;
+        }
+        let mut vals: Vec<f64> = band.iter().map(|&j| s.amplitude[j]).collect();
+        vals.sort_by(f64::total_cmp);
+        let median = vals[vals.len() / 2];
+        let &jmax = band
+            .iter()
+            .max_by(|a, b| s.amplitude[**a].total_cmp(&s.amplitude[**b]))
+            .expect("band has lines");
+        let one = s
+            .orders
+            .iter()
+            .position(|o| (o - 1.0).abs() < 1e-9)
+            .map_or(0.0, |j| s.amplitude[j]);
+        let peak = s.amplitude[jmax];
+        if peak > 5.0 * median && peak > 0.1 * one && jmax > 0 && jmax + 1 < s.amplitude.len() {
+            // Parabola through the log amplitudes (Hann main lobe ≈ Gaussian).
+            let (a, b, c) = (
+                s.amplitude[jmax - 1].max(1e-300).ln(),
+                peak.max(1e-300).ln(),
+                s.amplitude[jmax + 1].max(1e-300).ln(),
+            );
+            let d = a - 2.0 * b + c;
+            let shift = if d < 0.0 { 0.5 * (a - c) / d } else { 0.0 };
+            let step = s.orders[1] - s.orders[0];
+            flags.push(Some((s.orders[jmax] + shift * step, s.speed_rpm, peak)));
+        } else {
+            flags.push(None);
+        }
+    }
+    let mut out: Vec<Subsynchronous> = Vec::new();
+    let mut run: Vec<(f64, f64, f64)> = Vec::new();
+    let close = |run: &mut Vec<(f64, f64, f64)>, out: &mut Vec<Subsynchronous>| {
+        if run.len() >= 2 {
+            let mut orders: Vec<f64> = run.iter().map(|r| r.0).collect();
+            orders.sort_by(f64::total_cmp);
+            out.push(Subsynchronous {
+                order: orders[orders.len() / 2],
+                from_rpm: run.iter().map(|r| r.1).fold(f64::INFINITY, f64::min),
+                to_rpm: run.iter().map(|r| r.1).fold(0.0, f64::max),
+                peak_amplitude: run.iter().map(|r| r.2).fold(0.0, f64::max),
+            });
+        }
+        run.clear();
+    };
+    for f in flags {
+        match f {
+            Some(x) if run.last().is_none_or(|l| (l.0 - x.0).abs() < 0.05) => run.push(x),
+            Some(x) => {
+                close(&mut run, &mut out);
+                run.push(x);
+            }
+            None => close(&mut run, &mut out),
+        }
+    }
+    close(&mut run, &mut out);
+    out
+}
