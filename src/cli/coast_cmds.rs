@@ -82,8 +82,8 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
     }
     for s in &r.subsynchronous {
         println!(
-            "subsynchronous {:.3}× from {:.0} to {:.0} rpm, up to {:.3e} {}",
-            s.order, s.from_rpm, s.to_rpm, s.peak_amplitude, "(recorded units)"
+            "subsynchronous {:.3}× from {:.0} to {:.0} rpm, up to {:.3e} (recorded units)",
+            s.order, s.from_rpm, s.to_rpm, s.peak_amplitude
         );
     }
     for w in &r.warnings {

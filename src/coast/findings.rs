@@ -105,7 +105,7 @@ pub fn bode(points: &[OrderPoint]) -> Bode {
 /// fifth of the top speed (below there the unbalance response is small against runout).
 pub fn slow_roll(speeds: &[f64], vecs: &[Complex64]) -> Option<Complex64> {
     let (lo, hi) = (*speeds.first()?, *speeds.last()?);
-    if !(lo < 0.2 * hi) {
+    if lo >= 0.2 * hi || lo.is_nan() {
         return None;
     }
     let edge = lo + 0.05 * (hi - lo);
@@ -190,7 +190,7 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
         let (Some(n1), Some(n2)) = (cross(&mut (0..i).rev()), cross(&mut (i + 1..n))) else {
             continue;
         };
-        if !(n2 > n1) {
+        if n2 <= n1 {
             continue;
         }
         // Parabolic refinement of the peak.

@@ -29,7 +29,7 @@ fn quantile(sorted: &[f64], q: f64) -> f64 {
 /// `Err` with a sentence when the channel holds no pulse train.
 pub fn revolutions(x: &[f64], fs: f64, per_rev: usize) -> Result<Revolutions, String> {
     let per_rev = per_rev.max(1);
-    if x.len() < 16 || !(fs > 0.0) {
+    if x.len() < 16 || fs.is_nan() || fs <= 0.0 {
         return Err("the recording is too short to hold tach pulses".into());
     }
     let mut sorted: Vec<f64> = x.iter().copied().filter(|v| v.is_finite()).collect();

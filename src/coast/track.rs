@@ -56,7 +56,7 @@ pub fn track(
     for w in starts_s.windows(2) {
         let (t0, t1) = (w[0], w[1]);
         let period = t1 - t0;
-        if !(period > 0.0) {
+        if period.is_nan() || period <= 0.0 {
             continue;
         }
         let i0 = (t0 * fs).ceil().max(0.0) as usize;
