@@ -82,7 +82,7 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
     }
     for s in &r.subsynchronous {
         println!(
-            "subsynchronous {:.3}× from {:.0} to {:.0} rpm, up to {:.3e} (recorded units)",
+            "subsynchronous {:.3}× from {:.0} to {:.0} rpm, up to {:.3e} m/s² (as recorded)",
             s.order, s.from_rpm, s.to_rpm, s.peak_amplitude
         );
     }

@@ -40,7 +40,8 @@ pub struct Subsynchronous {
     pub from_rpm: f64,
     /// Highest speed where it was found, rpm.
     pub to_rpm: f64,
-    /// Largest amplitude (0-peak, recorded units).
+    /// Largest amplitude (0-peak, the recorded quantity in SI units: m/s² for an
+    /// accelerometer).
     pub peak_amplitude: f64,
 }
 

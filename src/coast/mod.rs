@@ -184,7 +184,7 @@ pub fn analyse_run(path: &Path, o: &RunOptions) -> Result<RunResult, InputError>
                 .into(),
         );
     }
-    let spectra = track::order_spectra(&two.b, fs, &revs.start_s, REVS_PER_BLOCK);
+    let spectra = track::order_spectra(&x, fs, &revs.start_s, REVS_PER_BLOCK);
     let subsynchronous = findings::subsynchronous(&spectra);
     Ok(RunResult {
         speed_range_rpm: [lo, hi],
