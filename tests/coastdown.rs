@@ -226,6 +226,22 @@ fn tach_edges_through_droop_inversion_and_growing_pulses() {
     assert_eq!((r.start_s.len(), r.inserted), (40, 1));
     let r = tach::revolutions(&pulses(40, 600.0, 6, 0.7), fs, 2).unwrap();
     assert_eq!(r.start_s.len(), 20);
+    // An optical tach on a half-painted shaft: a 50 % duty square wave.
+    let sq = pulses(50, 960.0, 480, 0.8);
+    let r = tach::revolutions(&sq, fs, 1).unwrap();
+    assert_eq!(r.start_s.len(), 50);
+    // Pulses at random times are not a tach: refused rather than tracked.
+    let mut state: u64 = 99;
+    let mut rnd = vec![0.0; 96_000];
+    for _ in 0..60 {
+        state = state
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        let i = (state >> 33) as usize % 95_000;
+        rnd[i..i + 8].iter_mut().for_each(|v| *v = 0.5);
+    }
+    let e = tach::revolutions(&rnd, fs, 1).unwrap_err();
+    assert!(e.contains("irregular"), "{e}");
     // Silence is not a tach.
     let quiet: Vec<f64> = (0..48_000)
         .map(|i| 1e-5 * ((i * 7919) % 13) as f64)

@@ -141,8 +141,17 @@ pub fn analyse_run(path: &Path, o: &RunOptions) -> Result<RunResult, InputError>
         .windows(2)
         .map(|w| 60.0 / (w[1] - w[0]))
         .collect();
-    let lo = speeds.iter().copied().fold(f64::INFINITY, f64::min);
-    let hi = speeds.iter().copied().fold(0.0, f64::max);
+    // The range from a running median of five revolutions: one jittery edge makes one short
+    // and one long revolution, not a new top speed.
+    let smooth: Vec<f64> = (0..speeds.len())
+        .map(|i| {
+            let mut w: Vec<f64> = speeds[i.saturating_sub(2)..(i + 3).min(speeds.len())].to_vec();
+            w.sort_by(f64::total_cmp);
+            w[w.len() / 2]
+        })
+        .collect();
+    let lo = smooth.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = smooth.iter().copied().fold(0.0, f64::max);
     // Direction by the trend: mean speed of the last quarter against the first.
     let q = (speeds.len() / 4).max(1);
     let first: f64 = speeds[..q].iter().sum::<f64>() / q as f64;

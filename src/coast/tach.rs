@@ -44,9 +44,11 @@ pub fn revolutions(x: &[f64], fs: f64, per_rev: usize) -> Result<Revolutions, St
     let bottom = median - sorted[k];
     let inverted = bottom > top;
     let sign = if inverted { -1.0 } else { 1.0 };
-    let mut dev: Vec<f64> = x.iter().map(|v| (v - median).abs()).collect();
+    // Noise from sample-to-sample differences: a pulse train's levels (wide pulses, a high duty
+    // cycle) would count as noise in the spread about the median, its edges are few.
+    let mut dev: Vec<f64> = x.windows(2).map(|w| (w[1] - w[0]).abs()).collect();
     dev.sort_by(f64::total_cmp);
-    let noise = 1.4826 * quantile(&dev, 0.5);
+    let noise = 1.4826 * quantile(&dev, 0.5) / std::f64::consts::SQRT_2;
     let height = top.max(bottom);
     if !(height > 1e-6 && height > 8.0 * noise) {
         return Err(format!(
@@ -133,6 +135,13 @@ pub fn revolutions(x: &[f64], fs: f64, per_rev: usize) -> Result<Revolutions, St
             inserted += n as usize - 1;
         }
         clean.push(t);
+    }
+    let pulses = clean.len();
+    if 10 * (inserted + dropped) > pulses {
+        return Err(format!(
+            "the tach pulses are irregular: {inserted} missing and {dropped} extra among {pulses}; \
+             check --pulses-per-rev, the channel and the pickup"
+        ));
     }
     if inserted > 0 {
         warnings.push(format!(
