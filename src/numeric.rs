@@ -22,6 +22,61 @@ pub fn median(mut v: Vec<f64>) -> Option<f64> {
     Some(*v.select_nth_unstable_by(m, f64::total_cmp).1)
 }
 
+/// Index of the value in `xs` nearest `x` (0 for an empty slice).
+pub fn nearest_index(xs: &[f64], x: f64) -> usize {
+    xs.iter()
+        .enumerate()
+        .min_by(|a, b| (a.1 - x).abs().total_cmp(&(b.1 - x).abs()))
+        .map_or(0, |(i, _)| i)
+}
+
+/// The half-power points of a peak at index `peak` of the curve `ys(xs)`: where it first falls
+/// to peak/√2 on each side (linear interpolation), `None` on a side where it rises above the
+/// peak first or never falls that far.
+pub fn half_power_points(xs: &[f64], ys: &[f64], peak: usize) -> (Option<f64>, Option<f64>) {
+    let n = xs.len().min(ys.len());
+    let top = ys[peak];
+    let half = top / std::f64::consts::SQRT_2;
+    let cross = |range: &mut dyn Iterator<Item = usize>| -> Option<f64> {
+        let mut prev = peak;
+        for j in range {
+            if ys[j] > top {
+                return None;
+            }
+            if ys[j] <= half {
+                let (y0, y1, x0, x1) = (ys[prev], ys[j], xs[prev], xs[j]);
+                return Some(if y1 == y0 {
+                    x1
+                } else {
+                    x0 + (half - y0) * (x1 - x0) / (y1 - y0)
+                });
+            }
+            prev = j;
+        }
+        None
+    };
+    (cross(&mut (0..peak).rev()), cross(&mut (peak + 1..n)))
+}
+
+/// Vertex (x, y) of the parabola through three points, when it opens downward (a maximum);
+/// x is kept within the points.
+pub fn parabolic_peak(x: [f64; 3], y: [f64; 3]) -> Option<(f64, f64)> {
+    let den = (x[0] - x[1]) * (x[0] - x[2]) * (x[1] - x[2]);
+    if den == 0.0 {
+        return None;
+    }
+    let pa = (x[2] * (y[1] - y[0]) + x[1] * (y[0] - y[2]) + x[0] * (y[2] - y[1])) / den;
+    let pb =
+        (x[2] * x[2] * (y[0] - y[1]) + x[1] * x[1] * (y[2] - y[0]) + x[0] * x[0] * (y[1] - y[2]))
+            / den;
+    if pa >= 0.0 {
+        return None;
+    }
+    let xv = (-pb / (2.0 * pa)).clamp(x[0].min(x[2]), x[0].max(x[2]));
+    let pc = y[1] - pa * x[1] * x[1] - pb * x[1];
+    Some((xv, pa * xv * xv + pb * xv + pc))
+}
+
 /// Whether every entry is finite.
 pub fn all_finite(m: &DMatrix<f64>) -> bool {
     m.iter().all(|v| v.is_finite())
@@ -250,6 +305,21 @@ mod tests {
         // M-orthonormal.
         let g = vecs.tr_mul(&(&m * &vecs));
         assert!((g - DMatrix::<f64>::identity(6, 6)).abs().max() < 1e-9);
+    }
+
+    #[test]
+    fn peak_helpers_on_exact_curves() {
+        // y = 5 − (x − 2.3)² has its vertex at (2.3, 5) (any three points of it).
+        let f = |x: f64| 5.0 - (x - 2.3) * (x - 2.3);
+        let (x, y) = parabolic_peak([2.0, 2.5, 3.0], [f(2.0), f(2.5), f(3.0)]).expect("a maximum");
+        assert!((x - 2.3).abs() < 1e-12 && (y - 5.0).abs() < 1e-12);
+        // A triangle 0, 1, 0 over 0, 1, 2 falls to 1/√2 at 1 ∓ (1 − 1/√2).
+        let (a, b) = half_power_points(&[0.0, 1.0, 2.0], &[0.0, 1.0, 0.0], 1);
+        let d = 1.0 - std::f64::consts::FRAC_1_SQRT_2;
+        assert!(
+            (a.expect("left") - d).abs() < 1e-12 && (b.expect("right") - 2.0 + d).abs() < 1e-12
+        );
+        assert_eq!(nearest_index(&[0.0, 0.4, 0.9], 0.7), 2);
     }
 
     #[test]

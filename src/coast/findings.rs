@@ -163,47 +163,17 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
         if a < 1.5 * typical || a < 10.0 * errors[i] {
             continue;
         }
-        let half = a / std::f64::consts::SQRT_2;
-        let cross = |range: &mut dyn Iterator<Item = usize>| -> Option<f64> {
-            let mut prev = i;
-            for j in range {
-                if amp[j] > a {
-                    return None;
-                }
-                if amp[j] <= half {
-                    let (a0, a1) = (amp[prev], amp[j]);
-                    let (s0, s1) = (speeds[prev], speeds[j]);
-                    return Some(if a1 == a0 {
-                        s1
-                    } else {
-                        s0 + (half - a0) * (s1 - s0) / (a1 - a0)
-                    });
-                }
-                prev = j;
-            }
-            None
-        };
-        let (Some(n1), Some(n2)) = (cross(&mut (0..i).rev()), cross(&mut (i + 1..n))) else {
+        let (Some(n1), Some(n2)) = crate::numeric::half_power_points(&speeds, &amp, i) else {
             continue;
         };
         if n2 <= n1 {
             continue;
         }
-        // Parabolic refinement of the peak.
-        let (x0, x1, x2) = (speeds[i - 1], speeds[i], speeds[i + 1]);
-        let (y0, y1, y2) = (amp[i - 1], a, amp[i + 1]);
-        let den = (x0 - x1) * (x0 - x2) * (x1 - x2);
-        let nc = if den != 0.0 {
-            let pa = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den;
-            let pb = (x2 * x2 * (y0 - y1) + x1 * x1 * (y2 - y0) + x0 * x0 * (y1 - y2)) / den;
-            if pa < 0.0 {
-                (-pb / (2.0 * pa)).clamp(x0, x2)
-            } else {
-                x1
-            }
-        } else {
-            x1
-        };
+        let nc = crate::numeric::parabolic_peak(
+            [speeds[i - 1], speeds[i], speeds[i + 1]],
+            [amp[i - 1], a, amp[i + 1]],
+        )
+        .map_or(speeds[i], |p| p.0);
         let width = n2 - n1;
         // The lag's turn: from 2.5 half-power widths below to 2.5 above (r = 1 ± 5ζ, where one
         // mode has turned 157° of its 180°), but not past an antiresonance (the amplitude's

@@ -326,13 +326,7 @@ impl Shaft {
                 }
             }
         }
-        let node_of = |p: f64| {
-            nodes
-                .iter()
-                .enumerate()
-                .min_by(|a, b| (a.1 - p).abs().total_cmp(&(b.1 - p).abs()))
-                .map_or(0, |(i, _)| i)
-        };
+        let node_of = |p: f64| crate::numeric::nearest_index(&nodes, p);
         for s in &self.supports {
             let n = node_of(s.position_m);
             kg.push(2 * n, 2 * n, s.stiffness_n_per_m);

@@ -147,13 +147,7 @@ impl Rotor {
                 }
             }
         }
-        let node_of = |p: f64| {
-            nodes
-                .iter()
-                .enumerate()
-                .min_by(|a, b| (a.1 - p).abs().total_cmp(&(b.1 - p).abs()))
-                .map_or(0, |(i, _)| i)
-        };
+        let node_of = |p: f64| crate::numeric::nearest_index(&nodes, p);
         for s in &shaft.supports {
             let b = NODE_DOFS * node_of(s.position_m);
             for d in 0..2 {
@@ -224,11 +218,7 @@ impl RotorModel {
 
     /// Index of the node nearest `x` m.
     pub fn node_near(&self, x: f64) -> usize {
-        self.nodes_m
-            .iter()
-            .enumerate()
-            .min_by(|a, b| (a.1 - x).abs().total_cmp(&(b.1 - x).abs()))
-            .map_or(0, |(i, _)| i)
+        crate::numeric::nearest_index(&self.nodes_m, x)
     }
 
     /// Each bearing's coefficients at `speed_rpm`.

@@ -165,39 +165,15 @@ pub fn peaks(position_m: f64, speeds: &[f64], amplitude: &[f64]) -> Vec<Peak> {
         if !(a > amplitude[i - 1] && a >= amplitude[i + 1]) {
             continue;
         }
-        let half = a / std::f64::consts::SQRT_2;
-        let cross = |range: &mut dyn Iterator<Item = usize>| -> Option<f64> {
-            let mut prev = i;
-            for j in range {
-                if amplitude[j] > a {
-                    return None;
-                }
-                if amplitude[j] <= half {
-                    let (x0, y0, x1, y1) = (speeds[prev], amplitude[prev], speeds[j], amplitude[j]);
-                    return Some(x0 + (half - y0) * (x1 - x0) / (y1 - y0));
-                }
-                prev = j;
-            }
-            None
-        };
-        let n1 = cross(&mut (0..i).rev());
-        let n2 = cross(&mut (i + 1..n));
+        let (n1, n2) = crate::numeric::half_power_points(&speeds[..n], &amplitude[..n], i);
         if n1.is_none() && n2.is_none() {
             continue;
         }
-        // Parabola through the three samples around the top.
-        let (x0, x1, x2) = (speeds[i - 1], speeds[i], speeds[i + 1]);
-        let (y0, y1, y2) = (amplitude[i - 1], a, amplitude[i + 1]);
-        let den = (x0 - x1) * (x0 - x2) * (x1 - x2);
-        let pa = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den;
-        let pb = (x2 * x2 * (y0 - y1) + x1 * x1 * (y2 - y0) + x0 * x0 * (y1 - y2)) / den;
-        let (speed, top) = if pa < 0.0 && den != 0.0 {
-            let xv = (-pb / (2.0 * pa)).clamp(x0, x2);
-            let pc = y1 - pa * x1 * x1 - pb * x1;
-            (xv, pa * xv * xv + pb * xv + pc)
-        } else {
-            (x1, a)
-        };
+        let (speed, top) = crate::numeric::parabolic_peak(
+            [speeds[i - 1], speeds[i], speeds[i + 1]],
+            [amplitude[i - 1], a, amplitude[i + 1]],
+        )
+        .unwrap_or((speeds[i], a));
         let af = match (n1, n2) {
             (Some(a1), Some(a2)) if a2 > a1 => Some(speed / (a2 - a1)),
             _ => None,
