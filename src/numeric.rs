@@ -316,9 +316,8 @@ mod tests {
         // A triangle 0, 1, 0 over 0, 1, 2 falls to 1/√2 at 1 ∓ (1 − 1/√2).
         let (a, b) = half_power_points(&[0.0, 1.0, 2.0], &[0.0, 1.0, 0.0], 1);
         let d = 1.0 - std::f64::consts::FRAC_1_SQRT_2;
-        assert!(
-            (a.expect("left") - d).abs() < 1e-12 && (b.expect("right") - 2.0 + d).abs() < 1e-12
-        );
+        assert!((a.expect("left") - (1.0 - d)).abs() < 1e-12);
+        assert!((b.expect("right") - (1.0 + d)).abs() < 1e-12);
         assert_eq!(nearest_index(&[0.0, 0.4, 0.9], 0.7), 2);
     }
 
