@@ -834,3 +834,24 @@ fn the_rotor_view_reads_a_rotor_file_and_shows_its_critical_speeds_and_threshold
             .is_some_and(|s| s.rotor.is_none())
     );
 }
+
+#[test]
+fn the_run_view_tracks_a_recording_and_names_its_critical_speed() {
+    // A simulated coast-down through the Jeffcott rotor of rotor-notes §D1 (50.33 Hz): the
+    // view tracks it on its own thread and lists the critical speed near 3020 rpm.
+    let dir = tempfile::tempdir().expect("temp");
+    let sc = tapgrid::sim::run::RunScenario {
+        duration_s: 40.0,
+        sample_rate_hz: 16_000,
+        ..Default::default()
+    };
+    sc.write(dir.path()).expect("simulated run");
+    let mut h = open_demo();
+    h.state_mut()
+        .push(Command::LoadRun(dir.path().join("run.wav")));
+    settle(&mut h);
+    assert_eq!(h.state().settings.view, View::Run);
+    h.get_by_label("Critical speeds");
+    h.get_by_label_contains("rpm (1×): AF");
+    h.get_by_label_contains("revolutions,");
+}

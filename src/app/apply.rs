@@ -214,6 +214,10 @@ impl TapgridApp {
                     self.io.send(Job::ReadRotor(p));
                 }
             }
+            Command::LoadRun(p) => {
+                self.ui.run.path = Some(p);
+                self.settings.view = View::Run;
+            }
             Command::ClearRotor => {
                 if let Some(st) = self.doc.as_mut().and_then(|d| d.study.as_mut()) {
                     st.rotor = None;

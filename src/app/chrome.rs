@@ -176,6 +176,7 @@ impl TapgridApp {
             PathPurpose::WriteModel => "Write the shaft model (JSON file)",
             PathPurpose::WriteReport => "Write the test report (HTML file)",
             PathPurpose::LoadRotor => "Read a rotor file (JSON: bearings, unbalances)",
+            PathPurpose::LoadRun => "Read a run recording (WAV: tach and accelerometer)",
         };
         let mut close = false;
         let mut go = None;
@@ -184,6 +185,7 @@ impl TapgridApp {
                 Some(".json")
             }
             PathPurpose::WriteReport => Some(".html"),
+            PathPurpose::LoadRun => Some(".wav"),
             _ => None,
         };
         // The folder to list: the path typed when it is a folder, else the folder holding it
@@ -219,7 +221,8 @@ impl TapgridApp {
                     PathPurpose::LoadModel
                     | PathPurpose::WriteModel
                     | PathPurpose::WriteReport
-                    | PathPurpose::LoadRotor => "File:",
+                    | PathPurpose::LoadRotor
+                    | PathPurpose::LoadRun => "File:",
                     _ => "Folder:",
                 });
                 let r = ui.add(egui::TextEdit::singleline(&mut d.text).desired_width(580.0));
@@ -281,6 +284,7 @@ impl TapgridApp {
                     PathPurpose::WriteModel => Command::WriteModel(p),
                     PathPurpose::WriteReport => Command::WriteReport(p),
                     PathPurpose::LoadRotor => Command::LoadRotor(p),
+                    PathPurpose::LoadRun => Command::LoadRun(p),
                 });
             }
         } else if close {

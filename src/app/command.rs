@@ -83,6 +83,8 @@ pub enum Command {
     LoadRotor(PathBuf),
     /// Back to the bearings in service as plain springs.
     ClearRotor,
+    /// Track a run-up or coast-down recording.
+    LoadRun(PathBuf),
 }
 
 /// Where a report goes by default: beside a session or WAV set (a session's own folder holds only
@@ -118,6 +120,8 @@ pub enum PathPurpose {
     WriteReport,
     /// Read a rotor file (bearings, unbalances).
     LoadRotor,
+    /// Read a run recording (WAV).
+    LoadRun,
 }
 
 pub(super) struct PathDialog {

@@ -16,6 +16,7 @@ mod model_view;
 mod modes_view;
 pub mod plots;
 mod rotor_view;
+mod run_view;
 mod setup_view;
 mod station_map;
 pub mod worker;
@@ -79,6 +80,8 @@ pub struct TapgridApp {
     capture_dir: Option<PathBuf>,
     /// The rotor-at-speed solve.
     pub(crate) rotor: rotor_view::RotorState,
+    /// The run tracking.
+    pub(crate) run: run_view::RunState,
     pub(crate) ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
@@ -111,6 +114,7 @@ impl TapgridApp {
             capture: Default::default(),
             capture_dir: None,
             rotor: Default::default(),
+            run: Default::default(),
             ctx_slot,
         };
         if let Some(p) = path {
@@ -152,7 +156,7 @@ impl TapgridApp {
 
     /// True when nothing is queued: no command waiting, the workers and the rotor solve idle.
     pub fn idle(&self) -> bool {
-        self.commands.is_empty() && self.busy().is_none() && !self.rotor_busy()
+        self.commands.is_empty() && self.busy().is_none() && !self.rotor_busy() && !self.run_busy()
     }
 
     /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
@@ -191,6 +195,7 @@ impl TapgridApp {
             self.request_traces();
         }
         self.poll_rotor(ctx);
+        self.poll_run(ctx);
         self.apply_pending(ctx);
     }
 
@@ -239,6 +244,7 @@ impl TapgridApp {
                 View::Model => model_view::show(ui, &mut cx),
                 View::Margins => margin_view::show(ui, &mut cx),
                 View::Rotor => rotor_view::show(ui, &mut cx),
+                View::Run => run_view::show(ui, &mut cx),
             }
         });
         if !self.settings.cautions_read {
@@ -352,7 +358,7 @@ pub fn style(ctx: &egui::Context, dark: bool) {
 
 /// Opens the window: on `path`, else on the demo session (made by the simulator if this
 /// installation has none), showing `view` first (else the one shown last).
-pub fn run(path: Option<PathBuf>, view: Option<View>) -> anyhow::Result<()> {
+pub fn run(path: Option<PathBuf>, view: Option<View>, run: Option<PathBuf>) -> anyhow::Result<()> {
     let path = match path {
         Some(p) => p,
         None => crate::sim::demo::demo_session(&crate::sim::demo::default_root())?,
@@ -368,7 +374,13 @@ pub fn run(path: Option<PathBuf>, view: Option<View>) -> anyhow::Result<()> {
     eframe::run_native(
         "tapgrid",
         options,
-        Box::new(move |cc| Ok(Box::new(TapgridApp::from_creation(cc, Some(path), view)))),
+        Box::new(move |cc| {
+            let mut app = TapgridApp::from_creation(cc, Some(path), view);
+            if let Some(r) = run {
+                app.push(Command::LoadRun(r));
+            }
+            Ok(Box::new(app))
+        }),
     )
     .map_err(|e| {
         anyhow::anyhow!(

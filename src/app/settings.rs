@@ -26,11 +26,13 @@ pub enum View {
     Margins,
     /// The rotor spinning on its bearings: Campbell diagram, stability, unbalance response.
     Rotor,
+    /// A run-up or coast-down recording tracked against speed.
+    Run,
 }
 
 impl View {
     /// All views in tab order.
-    pub const ALL: [View; 10] = [
+    pub const ALL: [View; 11] = [
         View::Capture,
         View::Setup,
         View::Stations,
@@ -41,6 +43,7 @@ impl View {
         View::Model,
         View::Margins,
         View::Rotor,
+        View::Run,
     ];
 
     /// Tab label.
@@ -56,6 +59,7 @@ impl View {
             View::Model => "Shaft model",
             View::Margins => "Speed margins",
             View::Rotor => "Rotor at speed",
+            View::Run => "Run tracking",
         }
     }
 
@@ -72,6 +76,7 @@ impl View {
             "model" => View::Model,
             "margins" => View::Margins,
             "rotor" => View::Rotor,
+            "run" => View::Run,
             _ => return None,
         })
     }

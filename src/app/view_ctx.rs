@@ -39,6 +39,8 @@ pub struct UiState {
     pub capture_part: String,
     /// The rotor view's choices.
     pub rotor: super::rotor_view::RotorEdit,
+    /// The run view's choices.
+    pub run: super::run_view::RunEdit,
     pub(super) plot_scratch: plots::Scratch,
     pub(super) overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
 }
@@ -62,6 +64,7 @@ impl Default for UiState {
             capture_folder: String::new(),
             capture_part: String::new(),
             rotor: Default::default(),
+            run: Default::default(),
             plot_scratch: plots::Scratch::default(),
             overlays: Default::default(),
         }
@@ -86,6 +89,8 @@ pub struct ViewCtx<'a> {
     pub rotor: &'a super::rotor_view::RotorState,
     /// A rotor solve is running.
     pub rotor_running: bool,
+    /// The run tracking's last result.
+    pub run: &'a super::run_view::RunState,
     commands: &'a mut Vec<Command>,
 }
 
@@ -113,6 +118,7 @@ impl TapgridApp {
             analysis_stamp: self.analysis_stamp,
             rotor_running,
             rotor: &self.rotor,
+            run: &self.run,
             commands: &mut self.commands,
         }
     }

@@ -49,9 +49,13 @@ use crate::units::Sensitivity;
 pub struct Cli {
     /// A session or WAV set folder to open in the window.
     pub open: Option<PathBuf>,
-    /// View to show first: capture, setup, stations, hits, frf, poles, modes, model, margins, rotor.
+    /// View to show first: capture, setup, stations, hits, frf, poles, modes, model, margins, rotor,
+    /// run.
     #[arg(long)]
     pub view: Option<String>,
+    /// A run-up or coast-down recording to track in the window (opens the run view).
+    #[arg(long)]
+    pub run: Option<PathBuf>,
     /// What to do (none: open the window).
     #[command(subcommand)]
     pub command: Option<Command>,
@@ -116,12 +120,12 @@ pub fn run(cli: Cli) -> Result<()> {
             Some(name) => Some(crate::app::View::from_name(name).ok_or_else(|| {
                 anyhow!(
                     "--view {name:?}: use capture, setup, stations, hits, frf, poles, modes, \
-                     model, margins or rotor"
+                     model, margins, rotor or run"
                 )
             })?),
             None => None,
         };
-        return crate::app::run(cli.open, view);
+        return crate::app::run(cli.open, view, cli.run);
     };
     match command {
         Command::Analyze(a) => analyze(&a.input, &a.out, &a.setup, &a.modal),

@@ -1,0 +1,440 @@
+//! A run-up or coast-down recording tracked against speed: each order's amplitude and phase lag
+//! (linked speed axes), the polar plot of the 1× vector, the order waterfall, the critical
+//! speeds and subsynchronous components found — and the rotor model's predicted critical speeds
+//! beside them when the study gives a service rotor. Tracked on a thread of its own.
+
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::thread::JoinHandle;
+
+use eframe::egui::{self, RichText};
+use egui_plot::{Line, MarkerShape, Points, VLine};
+
+use super::plots::{self, accent, bad, good, warn};
+use super::{Command, PathPurpose, TapgridApp, View, ViewCtx};
+use crate::coast::track::Quantity;
+use crate::coast::{RunOptions, RunResult, analyse_run};
+
+/// The last tracking and the one running.
+#[derive(Default)]
+pub struct RunState {
+    running: Option<(String, JoinHandle<Result<RunResult, String>>)>,
+    /// What the last result is for, and the result.
+    pub result: Option<(String, Result<Arc<RunResult>, String>)>,
+}
+
+/// The view's choices.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RunEdit {
+    /// The recording.
+    pub path: Option<PathBuf>,
+    /// Sensor sensitivity, mV per m/s² (0: samples taken as m/s²).
+    pub sensitivity_mv: f64,
+    /// Tach pulses per revolution.
+    pub pulses_per_rev: usize,
+    /// AC-coupling corner to undo, Hz.
+    pub ac_corner_hz: f64,
+    /// Amplitudes as velocity (else acceleration).
+    pub velocity: bool,
+}
+
+impl Default for RunEdit {
+    fn default() -> Self {
+        Self {
+            path: None,
+            sensitivity_mv: 0.0,
+            pulses_per_rev: 1,
+            ac_corner_hz: 0.0,
+            velocity: false,
+        }
+    }
+}
+
+impl RunEdit {
+    fn options(&self) -> RunOptions {
+        RunOptions {
+            sensitivity_mv_per_unit: (self.sensitivity_mv > 0.0).then_some(self.sensitivity_mv),
+            pulses_per_rev: self.pulses_per_rev.max(1),
+            ac_corner_hz: self.ac_corner_hz,
+            quantity: if self.velocity {
+                Quantity::Velocity
+            } else {
+                Quantity::Acceleration
+            },
+            ..RunOptions::default()
+        }
+    }
+}
+
+impl TapgridApp {
+    /// Starts tracking when the view is shown and the recording or options changed; takes a
+    /// finished result (called from `logic`).
+    pub(crate) fn poll_run(&mut self, ctx: &egui::Context) {
+        if let Some((key, h)) = self.run.running.take() {
+            if h.is_finished() {
+                let r = h
+                    .join()
+                    .unwrap_or_else(|_| Err("the tracking failed unexpectedly".into()));
+                self.run.result = Some((key, r.map(Arc::new)));
+                ctx.request_repaint();
+            } else {
+                self.run.running = Some((key, h));
+                ctx.request_repaint_after(std::time::Duration::from_millis(100));
+            }
+        }
+        if self.settings.view != View::Run || self.run.running.is_some() {
+            return;
+        }
+        let Some(path) = self.ui.run.path.clone() else {
+            return;
+        };
+        let options = self.ui.run.options();
+        let key = format!("{}|{options:?}", path.display());
+        if self.run.result.as_ref().map(|r| &r.0) == Some(&key) {
+            return;
+        }
+        let spawned = std::thread::Builder::new()
+            .name("tapgrid-run".into())
+            .spawn(move || analyse_run(&path, &options).map_err(|e| e.to_string()));
+        match spawned {
+            Ok(h) => self.run.running = Some((key, h)),
+            Err(e) => self.run.result = Some((key, Err(format!("cannot start: {e}")))),
+        }
+    }
+
+    /// Whether a tracking is running.
+    pub fn run_busy(&self) -> bool {
+        self.run.running.is_some()
+    }
+}
+
+/// Draws the view.
+pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
+    let mut cmds = Vec::new();
+    let result = app.run.result.as_ref().map(|r| r.1.clone());
+    let predicted: Vec<f64> = app
+        .rotor
+        .result
+        .as_ref()
+        .and_then(|r| r.1.as_ref().ok())
+        .map(|r| {
+            r.campbell
+                .critical_speeds
+                .iter()
+                .filter(|c| c.order == 1 && c.whirl == crate::rotor::eigen::Whirl::Forward)
+                .map(|c| c.speed_rpm)
+                .collect()
+        })
+        .unwrap_or_default();
+    egui::Panel::left("run-side")
+        .default_size(330.0)
+        .show(ui, |ui| {
+            egui::ScrollArea::vertical().show(ui, |ui| {
+                ui.heading("Run-up / coast-down");
+                ui.label(
+                    "A recording with the tach on input 0 and an accelerometer on input 1, \
+                     tracked order by order against speed.",
+                );
+                if ui.button("Read a run recording…").clicked() {
+                    cmds.push(Command::AskPath(PathPurpose::LoadRun));
+                }
+                if let Some(p) = &app.ui.run.path {
+                    ui.label(RichText::new(p.display().to_string()).small());
+                }
+                ui.separator();
+                let e = &mut app.ui.run;
+                egui::Grid::new("run-opts").num_columns(2).show(ui, |ui| {
+                    ui.label("sensitivity");
+                    ui.add(
+                        egui::DragValue::new(&mut e.sensitivity_mv)
+                            .range(0.0..=10_000.0)
+                            .suffix(" mV/(m/s²)"),
+                    )
+                    .on_hover_text("0: the samples are taken as m/s² at full scale 1");
+                    ui.end_row();
+                    ui.label("tach pulses / rev");
+                    ui.add(egui::DragValue::new(&mut e.pulses_per_rev).range(1..=360));
+                    ui.end_row();
+                    ui.label("AC coupling to undo");
+                    ui.add(
+                        egui::DragValue::new(&mut e.ac_corner_hz)
+                            .range(0.0..=50.0)
+                            .suffix(" Hz"),
+                    );
+                    ui.end_row();
+                    ui.label("amplitude as");
+                    ui.horizontal(|ui| {
+                        ui.radio_value(&mut e.velocity, false, "acceleration");
+                        ui.radio_value(&mut e.velocity, true, "velocity");
+                    });
+                    ui.end_row();
+                });
+                ui.separator();
+                match &result {
+                    None if app.ui.run.path.is_some() => {
+                        ui.label("Tracking…");
+                    }
+                    None => {}
+                    Some(Err(e)) => {
+                        ui.label(RichText::new(e).color(bad()));
+                    }
+                    Some(Ok(r)) => summary(ui, r, &predicted),
+                }
+                ui.separator();
+                ui.label(
+                    RichText::new(
+                        "Recording a run means a machine turning: guards on, stay clear of \
+                         rotating parts, follow the site's procedure. Results are advisory.",
+                    )
+                    .color(warn())
+                    .small(),
+                );
+            });
+        });
+    let Some(Ok(r)) = result else {
+        for c in cmds {
+            app.push(c);
+        }
+        return;
+    };
+    egui::CentralPanel::default().show(ui, |ui| {
+        let w = ui.available_width();
+        let h = ((ui.available_height() - 60.0) / 2.0).max(160.0);
+        let link = egui::Id::unique("run-speed");
+        ui.horizontal(|ui| {
+            ui.vertical(|ui| {
+                ui.set_width(w * 0.62);
+                bode(ui, &r, &predicted, h, link);
+            });
+            ui.vertical(|ui| {
+                ui.set_width(w * 0.36);
+                polar(ui, &r, h);
+            });
+        });
+        waterfall(ui, &r, h);
+    });
+    for c in cmds {
+        app.push(c);
+    }
+}
+
+fn summary(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64]) {
+    ui.label(format!(
+        "{} revolutions, {:.0}–{:.0} rpm, {}",
+        r.revolutions,
+        r.speed_range_rpm[0],
+        r.speed_range_rpm[1],
+        match r.direction {
+            crate::coast::Direction::CoastDown => "coast-down",
+            crate::coast::Direction::RunUp => "run-up",
+        }
+    ));
+    ui.label(RichText::new("Critical speeds").strong());
+    if r.critical_speeds.is_empty() {
+        ui.label("none found");
+    }
+    for c in &r.critical_speeds {
+        ui.label(format!(
+            "{:.0} rpm ({}×): AF {:.1}{}, lag turns {:.0}°",
+            c.speed_rpm,
+            c.order,
+            c.amplification_factor,
+            c.amplification_factor_phase
+                .map_or(String::new(), |p| format!(" ({p:.1} by phase)")),
+            c.phase_change_deg
+        ));
+        if let Some(m) = predicted.iter().min_by(|a, b| {
+            (*a - c.speed_rpm)
+                .abs()
+                .total_cmp(&(*b - c.speed_rpm).abs())
+        }) {
+            ui.label(
+                RichText::new(format!(
+                    "   model: {m:.0} rpm ({:+.1} %)",
+                    100.0 * (m - c.speed_rpm) / c.speed_rpm
+                ))
+                .color(accent()),
+            );
+        }
+    }
+    if !r.subsynchronous.is_empty() {
+        ui.label(RichText::new("Subsynchronous").strong());
+        for s in &r.subsynchronous {
+            ui.label(
+                RichText::new(format!(
+                    "{:.3}× from {:.0} to {:.0} rpm",
+                    s.order, s.from_rpm, s.to_rpm
+                ))
+                .color(warn()),
+            );
+        }
+    }
+    for w in &r.warnings {
+        ui.label(RichText::new(w).color(warn()).small());
+    }
+    let _ = good();
+}
+
+fn bode(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64], h: f32, link: egui::Id) {
+    let unit = r.amplitude_unit;
+    let marks = |p: &mut egui_plot::PlotUi<'_>| {
+        for c in &r.critical_speeds {
+            p.vline(
+                VLine::new(format!("critical {:.0} rpm", c.speed_rpm), c.speed_rpm).color(bad()),
+            );
+        }
+        for m in predicted {
+            p.vline(
+                VLine::new(format!("model {m:.0} rpm"), *m)
+                    .color(accent())
+                    .style(egui_plot::LineStyle::dashed_loose()),
+            );
+        }
+    };
+    plots::plot("run-amp")
+        .height(h * 0.55)
+        .link_axis(link, [true, false])
+        .link_cursor(link, [true, false])
+        .y_axis_label(format!("amplitude\n{unit}, 0-pk"))
+        .show(ui, |p| {
+            for (k, (order, pts)) in r.tracks.iter().enumerate() {
+                let mut xy: Vec<[f64; 2]> =
+                    pts.iter().map(|q| [q.speed_rpm, q.vector.norm()]).collect();
+                xy.sort_by(|a, b| a[0].total_cmp(&b[0]));
+                p.line(Line::new(format!("{order}×"), xy).color(plots::trace_color(k)));
+            }
+            marks(p);
+        });
+    plots::plot("run-phase")
+        .height(h * 0.45)
+        .link_axis(link, [true, false])
+        .link_cursor(link, [true, false])
+        .x_axis_label("speed (rpm)")
+        .y_axis_label("phase lag\ndegrees")
+        .show(ui, |p| {
+            for (k, (order, pts)) in r.tracks.iter().enumerate() {
+                // The averaged Bode data where the vector stands clear of its scatter (elsewhere
+                // the phase of noise says nothing), each confident stretch unwrapped on its own.
+                let b = crate::coast::findings::bode(pts);
+                let mut segment: Vec<[f64; 2]> = Vec::new();
+                let mut prev: Option<f64> = None;
+                let colour = plots::trace_color(k);
+                let mut n = 0;
+                let mut flush = |seg: &mut Vec<[f64; 2]>, p: &mut egui_plot::PlotUi<'_>| {
+                    if seg.len() > 1 {
+                        p.line(
+                            Line::new(format!("{order}× ({n})"), std::mem::take(seg)).color(colour),
+                        );
+                        n += 1;
+                    }
+                    seg.clear();
+                };
+                for ((s, v), e) in b.speeds.iter().zip(&b.vectors).zip(&b.errors) {
+                    if v.norm() < 5.0 * e || v.norm() == 0.0 {
+                        flush(&mut segment, p);
+                        prev = None;
+                        continue;
+                    }
+                    let mut l = crate::coast::track::lag_deg(*v);
+                    if let Some(q) = prev {
+                        l += 360.0 * ((q - l) / 360.0).round();
+                    }
+                    prev = Some(l);
+                    segment.push([*s, l]);
+                }
+                flush(&mut segment, p);
+            }
+            marks(p);
+        });
+    ui.label(
+        RichText::new(
+            "Red: critical speeds found; blue dashed: the rotor model's (Rotor at speed). \
+             Colours by order (first 1×).",
+        )
+        .small(),
+    );
+}
+
+fn polar(ui: &mut egui::Ui, r: &RunResult, h: f32) {
+    let Some((_, pts)) = r.tracks.iter().find(|t| t.0 == 1) else {
+        return;
+    };
+    ui.label(RichText::new("1× vector (polar)").strong());
+    let xy: Vec<[f64; 2]> = pts.iter().map(|q| [q.vector.re, q.vector.im]).collect();
+    plots::plot("run-polar")
+        .height(h)
+        .data_aspect(1.0)
+        .x_axis_label("in phase with the tach")
+        .y_axis_label("quadrature")
+        .show(ui, |p| {
+            p.line(Line::new("1×", xy).color(plots::trace_color(0)));
+            for c in &r.critical_speeds {
+                if let Some(q) = pts.iter().min_by(|a, b| {
+                    (a.speed_rpm - c.speed_rpm)
+                        .abs()
+                        .total_cmp(&(b.speed_rpm - c.speed_rpm).abs())
+                }) {
+                    p.points(
+                        Points::new(
+                            format!("{:.0} rpm", c.speed_rpm),
+                            vec![[q.vector.re, q.vector.im]],
+                        )
+                        .shape(MarkerShape::Diamond)
+                        .radius(6.0)
+                        .color(bad()),
+                    );
+                }
+            }
+        });
+}
+
+fn waterfall(ui: &mut egui::Ui, r: &RunResult, h: f32) {
+    ui.label(
+        RichText::new("Order waterfall: amplitude by order and speed (darker: smaller)").strong(),
+    );
+    let mut all: Vec<f64> = r
+        .spectra
+        .iter()
+        .flat_map(|s| s.amplitude.iter().copied())
+        .filter(|v| *v > 0.0)
+        .collect();
+    if all.is_empty() {
+        return;
+    }
+    all.sort_by(f64::total_cmp);
+    // Eight classes over the top 5 % of the lines, spaced logarithmically in amplitude: each
+    // class one series of its own shade (the rest is the noise floor, left out).
+    let lo = all[(0.95 * (all.len() - 1) as f64) as usize].max(1e-30);
+    let hi = all[all.len() - 1].max(lo * 1.0001);
+    let edges: Vec<f64> = (0..8)
+        .map(|k| lo * (hi / lo).powf(k as f64 / 8.0))
+        .collect();
+    let mut classes: Vec<Vec<[f64; 2]>> = vec![Vec::new(); 8];
+    for s in &r.spectra {
+        for (o, a) in s.orders.iter().zip(&s.amplitude) {
+            if *o > 4.0 {
+                break;
+            }
+            if let Some(k) = edges.iter().rposition(|e| a >= e) {
+                classes[k].push([*o, s.speed_rpm]);
+            }
+        }
+    }
+    plots::plot("run-waterfall")
+        .height(h - 30.0)
+        .x_axis_label("order (× running speed)")
+        .y_axis_label("speed (rpm)")
+        .show(ui, |p| {
+            for (k, pts) in classes.into_iter().enumerate() {
+                let c = accent().gamma_multiply(0.25 + 0.75 * k as f32 / 7.0);
+                p.points(
+                    Points::new(format!("class {k}"), pts)
+                        .radius(1.5 + 0.3 * k as f32)
+                        .color(c),
+                );
+            }
+            for s in &r.subsynchronous {
+                p.vline(VLine::new(format!("{:.3}×", s.order), s.order).color(warn()));
+            }
+        });
+}
