@@ -22,6 +22,7 @@ mod station_map;
 pub mod worker;
 
 mod apply;
+mod background;
 mod chrome;
 mod command;
 mod document;

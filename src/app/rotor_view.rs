@@ -3,9 +3,6 @@
 //! the stability threshold; unbalance response or bearing coefficients against speed; whirl
 //! orbits along the shaft for a chosen speed and mode. Solved on a thread of its own.
 
-use std::sync::Arc;
-use std::thread::JoinHandle;
-
 use eframe::egui::{self, Align2, RichText};
 use egui_plot::{Axis, Line, LineStyle, MarkerShape, PlotPoint, Points, Span, Text, VLine};
 
@@ -15,13 +12,7 @@ use crate::rotor::eigen::Whirl;
 use crate::rotor::run::{AtSpeed, AtSpeedOptions, at_speed};
 
 /// The last solve and the one running.
-#[derive(Default)]
-pub struct RotorState {
-    /// What the running solve is for, and its thread.
-    running: Option<(String, JoinHandle<Result<AtSpeed, String>>)>,
-    /// What the last result is for, and the result.
-    pub result: Option<(String, Result<Arc<AtSpeed>, String>)>,
-}
+pub type RotorState = super::background::Background<AtSpeed>;
 
 /// What the window asks of the rotor, editable in the view.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -54,18 +45,7 @@ impl TapgridApp {
     /// Starts a solve when the rotor view is shown and the study or the options changed; takes a
     /// finished solve's result (called from `logic`).
     pub(crate) fn poll_rotor(&mut self, ctx: &egui::Context) {
-        if let Some((key, h)) = self.rotor.running.take() {
-            if h.is_finished() {
-                let r = h
-                    .join()
-                    .unwrap_or_else(|_| Err("the rotor solve failed unexpectedly".into()));
-                self.rotor.result = Some((key, r.map(Arc::new)));
-                ctx.request_repaint();
-            } else {
-                self.rotor.running = Some((key, h));
-                ctx.request_repaint_after(std::time::Duration::from_millis(100));
-            }
-        }
+        self.rotor.collect(ctx);
         if self.settings.view != View::Rotor {
             return;
         }
@@ -76,10 +56,7 @@ impl TapgridApp {
             Ok(Some(f)) => f,
             Ok(None) => return,
             Err(e) => {
-                let key = format!("bad: {e}");
-                if self.rotor.result.as_ref().map(|r| &r.0) != Some(&key) {
-                    self.rotor.result = Some((key, Err(e)));
-                }
+                self.rotor.set_error(format!("bad: {e}"), e);
                 return;
             }
         };
@@ -93,24 +70,13 @@ impl TapgridApp {
             serde_json::to_string(&study).unwrap_or_default(),
             options
         );
-        let current = self.rotor.result.as_ref().map(|r| &r.0) == Some(&key);
-        let pending = self.rotor.running.as_ref().map(|r| &r.0) == Some(&key);
-        if current || pending || self.rotor.running.is_some() {
-            return;
-        }
-        let spawned = std::thread::Builder::new()
-            .name("tapgrid-rotor".into())
-            .spawn(move || at_speed(&file, &options));
-        match spawned {
-            Ok(h) => self.rotor.running = Some((key, h)),
-            Err(e) => self.rotor.result = Some((key, Err(format!("cannot start the solve: {e}")))),
-        }
-        ctx.request_repaint_after(std::time::Duration::from_millis(100));
+        self.rotor
+            .start_for(key, "tapgrid-rotor", move || at_speed(&file, &options));
     }
 
     /// Whether a rotor solve is running.
     pub fn rotor_busy(&self) -> bool {
-        self.rotor.running.is_some()
+        self.rotor.busy()
     }
 }
 

@@ -4,8 +4,6 @@
 //! beside them when the study gives a service rotor. Tracked on a thread of its own.
 
 use std::path::PathBuf;
-use std::sync::Arc;
-use std::thread::JoinHandle;
 
 use eframe::egui::{self, RichText};
 use egui_plot::{Line, MarkerShape, Points, VLine};
@@ -16,12 +14,7 @@ use crate::coast::track::Quantity;
 use crate::coast::{RunOptions, RunResult, analyse_run};
 
 /// The last tracking and the one running.
-#[derive(Default)]
-pub struct RunState {
-    running: Option<(String, JoinHandle<Result<RunResult, String>>)>,
-    /// What the last result is for, and the result.
-    pub result: Option<(String, Result<Arc<RunResult>, String>)>,
-}
+pub type RunState = super::background::Background<RunResult>;
 
 /// The view's choices.
 #[derive(Debug, Clone, PartialEq)]
@@ -70,19 +63,8 @@ impl TapgridApp {
     /// Starts tracking when the view is shown and the recording or options changed; takes a
     /// finished result (called from `logic`).
     pub(crate) fn poll_run(&mut self, ctx: &egui::Context) {
-        if let Some((key, h)) = self.run.running.take() {
-            if h.is_finished() {
-                let r = h
-                    .join()
-                    .unwrap_or_else(|_| Err("the tracking failed unexpectedly".into()));
-                self.run.result = Some((key, r.map(Arc::new)));
-                ctx.request_repaint();
-            } else {
-                self.run.running = Some((key, h));
-                ctx.request_repaint_after(std::time::Duration::from_millis(100));
-            }
-        }
-        if self.settings.view != View::Run || self.run.running.is_some() {
+        self.run.collect(ctx);
+        if self.settings.view != View::Run {
             return;
         }
         let Some(path) = self.ui.run.path.clone() else {
@@ -90,21 +72,14 @@ impl TapgridApp {
         };
         let options = self.ui.run.options();
         let key = format!("{}|{options:?}", path.display());
-        if self.run.result.as_ref().map(|r| &r.0) == Some(&key) {
-            return;
-        }
-        let spawned = std::thread::Builder::new()
-            .name("tapgrid-run".into())
-            .spawn(move || analyse_run(&path, &options).map_err(|e| e.to_string()));
-        match spawned {
-            Ok(h) => self.run.running = Some((key, h)),
-            Err(e) => self.run.result = Some((key, Err(format!("cannot start: {e}")))),
-        }
+        self.run.start_for(key, "tapgrid-run", move || {
+            analyse_run(&path, &options).map_err(|e| e.to_string())
+        });
     }
 
     /// Whether a tracking is running.
     pub fn run_busy(&self) -> bool {
-        self.run.running.is_some()
+        self.run.busy()
     }
 }
 
@@ -224,10 +199,7 @@ fn summary(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64]) {
         r.revolutions,
         r.speed_range_rpm[0],
         r.speed_range_rpm[1],
-        match r.direction {
-            crate::coast::Direction::CoastDown => "coast-down",
-            crate::coast::Direction::RunUp => "run-up",
-        }
+        r.direction.word()
     ));
     ui.label(RichText::new("Critical speeds").strong());
     if r.critical_speeds.is_empty() {

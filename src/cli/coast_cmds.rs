@@ -64,10 +64,7 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
         r.revolutions,
         r.speed_range_rpm[0],
         r.speed_range_rpm[1],
-        match r.direction {
-            crate::coast::Direction::CoastDown => "coast-down",
-            crate::coast::Direction::RunUp => "run-up",
-        }
+        r.direction.word()
     );
     for c in &r.critical_speeds {
         println!(

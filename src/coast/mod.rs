@@ -62,6 +62,16 @@ pub enum Direction {
     RunUp,
 }
 
+impl Direction {
+    /// "coast-down" or "run-up".
+    pub fn word(self) -> &'static str {
+        match self {
+            Direction::CoastDown => "coast-down",
+            Direction::RunUp => "run-up",
+        }
+    }
+}
+
 /// What a run gave.
 #[derive(Debug, Clone, Serialize)]
 pub struct RunResult {
