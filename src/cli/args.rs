@@ -814,4 +814,8 @@ pub struct CoastdownArgs {
     /// First-order AC-coupling corner of the vibration input to undo, Hz.
     #[arg(long, default_value_t = 0.0)]
     pub ac_corner: f64,
+    /// A rotor file (or a session with a service rotor): its predicted critical speeds over the
+    /// run's range are compared with the measured ones in result.json.
+    #[arg(long)]
+    pub model: Option<PathBuf>,
 }

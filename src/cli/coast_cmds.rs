@@ -38,6 +38,10 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
         ac_corner_hz: a.ac_corner,
     };
     let r = analyse_run(&a.wav, &o)?;
+    let model = match &a.model {
+        Some(p) => Some(model_comparison(p, &r)?),
+        None => None,
+    };
     std::fs::create_dir_all(&a.out)
         .with_context(|| format!("{}: cannot create the output folder", a.out.display()))?;
     let mut csv = String::from("speed_rpm,order,amplitude,phase_deg\n");
@@ -56,8 +60,13 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
     crate::atomic::write_derived(&tracking, csv.as_bytes())
         .with_context(|| format!("{}: cannot write", tracking.display()))?;
     let result = a.out.join("result.json");
-    crate::atomic::write_derived(&result, serde_json::to_string_pretty(&r)?.as_bytes())
+    let mut json = serde_json::to_value(&r)?;
+    if let (Some(m), Some(obj)) = (&model, json.as_object_mut()) {
+        obj.insert("model".into(), serde_json::to_value(m)?);
+    }
+    crate::atomic::write_derived(&result, serde_json::to_string_pretty(&json)?.as_bytes())
         .with_context(|| format!("{}: cannot write", result.display()))?;
+
     println!(
         "{}: {} revolutions, {:.0}–{:.0} rpm, {}",
         a.wav.display(),
@@ -86,10 +95,85 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
     for w in &r.warnings {
         println!("warning: {w}");
     }
+    if let Some(m) = &model {
+        for c in &m.comparison {
+            println!(
+                "model: {:.0} rpm predicted against {:.0} rpm measured ({:+.1} %)",
+                c.predicted_rpm, c.measured_rpm, c.difference_pct
+            );
+        }
+    }
     println!("wrote {} and {}", tracking.display(), result.display());
     println!(
         "Advisory. Recording a run means a machine turning: guards on, stay clear of rotating \
          parts and follow the site's procedure."
     );
     Ok(())
+}
+
+/// The rotor model's view of a run.
+#[derive(serde::Serialize)]
+struct ModelComparison {
+    /// Forward 1× critical speeds the model predicts within the run's range, rpm.
+    critical_speeds_rpm: Vec<f64>,
+    /// Each measured 1× critical speed against the nearest predicted one.
+    comparison: Vec<Compared>,
+}
+
+#[derive(serde::Serialize)]
+struct Compared {
+    measured_rpm: f64,
+    predicted_rpm: f64,
+    difference_pct: f64,
+}
+
+fn model_comparison(path: &Path, r: &crate::coast::RunResult) -> Result<ModelComparison> {
+    let study = super::model_cmds::read_study(path)?;
+    let file = crate::rotor::file::from_study(&study)
+        .map_err(|e| anyhow!("{}: {e}", path.display()))?
+        .ok_or_else(|| {
+            anyhow!(
+                "{}: the model has no bearings in service, so it predicts no critical speeds",
+                path.display()
+            )
+        })?;
+    let [lo, hi] = r.speed_range_rpm;
+    let o = crate::rotor::run::AtSpeedOptions {
+        speeds_rpm: [lo, hi],
+        count: 101,
+        modes: 8,
+        elements: 40,
+    };
+    let at =
+        crate::rotor::run::at_speed(&file, &o).map_err(|e| anyhow!("{}: {e}", path.display()))?;
+    let predicted: Vec<f64> = at
+        .campbell
+        .critical_speeds
+        .iter()
+        .filter(|c| c.order == 1 && c.whirl == crate::rotor::eigen::Whirl::Forward)
+        .map(|c| c.speed_rpm)
+        .collect();
+    let comparison = r
+        .critical_speeds
+        .iter()
+        .filter(|c| c.order == 1)
+        .filter_map(|c| {
+            predicted
+                .iter()
+                .min_by(|a, b| {
+                    (*a - c.speed_rpm)
+                        .abs()
+                        .total_cmp(&(*b - c.speed_rpm).abs())
+                })
+                .map(|&p| Compared {
+                    measured_rpm: c.speed_rpm,
+                    predicted_rpm: p,
+                    difference_pct: 100.0 * (p - c.speed_rpm) / c.speed_rpm,
+                })
+        })
+        .collect();
+    Ok(ModelComparison {
+        critical_speeds_rpm: predicted,
+        comparison,
+    })
 }
