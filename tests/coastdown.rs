@@ -292,6 +292,32 @@ fn bad_run_recordings_exit_2_naming_the_file() {
 }
 
 #[test]
+fn swapped_inputs_are_pointed_out() {
+    // Common practice: the tach on the vibration input reads as a pulse train (2× as large as
+    // 1×); the run is still tracked, with a warning naming the channel.
+    let dir = tempfile::tempdir().unwrap();
+    let sc = RunScenario {
+        duration_s: 30.0,
+        sample_rate_hz: 16_000,
+        ..RunScenario::default()
+    };
+    sc.write(dir.path()).unwrap();
+    let swapped = RunOptions {
+        tach_channel: 1,
+        channel: 0,
+        ..RunOptions::default()
+    };
+    let r = analyse_run(&dir.path().join("run.wav"), &swapped).unwrap();
+    assert!(
+        r.warnings.iter().any(|w| w.contains("swapped")),
+        "{:?}",
+        r.warnings
+    );
+    let right = analyse_run(&dir.path().join("run.wav"), &RunOptions::default()).unwrap();
+    assert!(!right.warnings.iter().any(|w| w.contains("swapped")));
+}
+
+#[test]
 fn coastdown_writes_the_contract_files() {
     let dir = tempfile::tempdir().unwrap();
     let sc = RunScenario {

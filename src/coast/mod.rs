@@ -196,6 +196,30 @@ pub fn analyse_run(path: &Path, o: &RunOptions) -> Result<RunResult, InputError>
             ));
         }
     }
+    // A pulse train on the vibration channel (the inputs swapped, or the tach cabled to both):
+    // its harmonics are as large as its 1× all through the run, which vibration rarely is.
+    if let (Some(k1), Some(k2)) = (
+        o.orders.iter().position(|&n| n == 1),
+        o.orders.iter().position(|&n| n == 2),
+    ) {
+        let mut ratios: Vec<f64> = tracks[k1]
+            .iter()
+            .zip(&tracks[k2])
+            .filter(|(a, _)| a.vector.norm() > 0.0)
+            .map(|(a, b)| b.vector.norm() / a.vector.norm())
+            .collect();
+        if !ratios.is_empty() {
+            ratios.sort_by(f64::total_cmp);
+            if ratios[ratios.len() / 2] > 0.6 {
+                warnings.push(format!(
+                    "channel {} looks like a pulse train (its 2× is {:.0} % of its 1× through the \
+                     run): are the tach and the vibration inputs swapped?",
+                    o.channel,
+                    100.0 * ratios[ratios.len() / 2]
+                ));
+            }
+        }
+    }
     if hi > 0.0 && lo > 0.2 * hi {
         warnings.push(
             "the run does not reach slow roll (below a fifth of its top speed): amplitudes \
