@@ -33,3 +33,7 @@ pub const ROTOR: &str = "Advisory: a linearised rotor model — bearings as eigh
      no material damping unless given. Confirm critical speeds by a run-up or coast-down before \
      relying on them; decisions on running speeds belong to the applicable standard (e.g. the API \
      RP 684 rule — verify against your edition), local codes and a competent, licensed engineer.";
+
+/// What recording and reading a run-up or coast-down asks of the person.
+pub const RUN: &str = "Advisory. Recording a run means a machine turning: guards on, stay clear of \
+     rotating parts and follow the site's procedure.";

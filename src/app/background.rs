@@ -46,6 +46,11 @@ impl<T: Send + 'static> Background<T> {
         self.running.is_some()
     }
 
+    /// Whether `key` would start a job: none running and the last result is for another key.
+    pub fn wants(&self, key: &str) -> bool {
+        self.running.is_none() && self.result.as_ref().map(|r| r.0.as_str()) != Some(key)
+    }
+
     /// Starts `job` for `key` unless a job is running or the last result is for `key`.
     pub fn start_for(
         &mut self,
@@ -53,19 +58,12 @@ impl<T: Send + 'static> Background<T> {
         name: &str,
         job: impl FnOnce() -> Result<T, String> + Send + 'static,
     ) {
-        if self.running.is_some() || self.result.as_ref().map(|r| &r.0) == Some(&key) {
+        if !self.wants(&key) {
             return;
         }
         match std::thread::Builder::new().name(name.into()).spawn(job) {
             Ok(h) => self.running = Some((key, h)),
             Err(e) => self.result = Some((key, Err(format!("cannot start: {e}")))),
-        }
-    }
-
-    /// Records a result without running anything (an input that cannot be computed).
-    pub fn set_error(&mut self, key: String, e: String) {
-        if self.result.as_ref().map(|r| &r.0) != Some(&key) {
-            self.result = Some((key, Err(e)));
         }
     }
 }

@@ -49,29 +49,30 @@ impl TapgridApp {
         if self.settings.view != View::Rotor {
             return;
         }
-        let Some(study) = self.doc.as_ref().and_then(|d| d.study.clone()) else {
+        let Some(study) = self.doc.as_ref().and_then(|d| d.study.as_ref()) else {
             return;
         };
-        let file = match crate::rotor::file::from_study(&study) {
-            Ok(Some(f)) => f,
-            Ok(None) => return,
-            Err(e) => {
-                self.rotor.set_error(format!("bad: {e}"), e);
-                return;
-            }
-        };
-        let options = self
-            .ui
-            .rotor
-            .options
-            .unwrap_or_else(|| AtSpeedOptions::for_range(file.operating_range_rpm));
+        // Nothing to solve without bearings; the rotor itself is built on the thread, so a
+        // frame costs only the key.
+        if study.rotor.is_none() && study.bearings.is_empty() {
+            return;
+        }
+        let chosen = self.ui.rotor.options;
         let key = format!(
-            "{}|{:?}",
-            serde_json::to_string(&study).unwrap_or_default(),
-            options
+            "{}|{chosen:?}",
+            serde_json::to_string(study).unwrap_or_default()
         );
-        self.rotor
-            .start_for(key, "tapgrid-rotor", move || at_speed(&file, &options));
+        if !self.rotor.wants(&key) {
+            return;
+        }
+        let study = study.clone();
+        self.rotor.start_for(key, "tapgrid-rotor", move || {
+            let file = crate::rotor::file::from_study(&study)?
+                .ok_or("the study gives no bearings in service")?;
+            let options =
+                chosen.unwrap_or_else(|| AtSpeedOptions::for_range(file.operating_range_rpm));
+            at_speed(&file, &options)
+        });
     }
 
     /// Whether a rotor solve is running.
@@ -316,6 +317,21 @@ fn summary(ui: &mut egui::Ui, r: &AtSpeed) {
     }
 }
 
+/// A text on a plot at (x, y), anchored and coloured (curve labels instead of a legend).
+fn label(
+    p: &mut egui_plot::PlotUi<'_>,
+    at: [f64; 2],
+    text: RichText,
+    anchor: Align2,
+    colour: egui::Color32,
+) {
+    p.text(
+        Text::new("", PlotPoint::new(at[0], at[1]), text)
+            .anchor(anchor)
+            .color(colour),
+    );
+}
+
 fn running_band(p: &mut egui_plot::PlotUi<'_>, r: &AtSpeed) {
     if let Some([lo, hi]) = r.operating_range_rpm {
         p.span(
@@ -351,14 +367,12 @@ fn campbell_plot(ui: &mut egui::Ui, r: &AtSpeed, h: f32) {
                         .color(idle())
                         .width(1.5),
                 );
-                p.text(
-                    Text::new(
-                        "",
-                        PlotPoint::new(end_speed, end),
-                        RichText::new(order).strong(),
-                    )
-                    .anchor(Align2::RIGHT_BOTTOM)
-                    .color(idle()),
+                label(
+                    p,
+                    [end_speed, end],
+                    RichText::new(order).strong(),
+                    Align2::RIGHT_BOTTOM,
+                    idle(),
                 );
             }
             for (b, modes) in c.modes.iter().enumerate() {
@@ -377,26 +391,14 @@ fn campbell_plot(ui: &mut egui::Ui, r: &AtSpeed, h: f32) {
                 let colour = plots::trace_color(b / 2);
                 let name = format!("mode {} ({})", b + 1, whirl.word());
                 if let Some(last) = pts.last().copied() {
-                    p.text(
-                        Text::new(
-                            "",
-                            PlotPoint::new(last[0], last[1]),
-                            RichText::new(format!(
-                                "{}{}",
-                                b + 1,
-                                if whirl == Whirl::Forward { "F" } else { "B" }
-                            ))
-                            .strong(),
-                        )
+                    let (tag, anchor) = match whirl {
                         // A forward and backward pair ends close together: one label above its
                         // line end, the other below.
-                        .anchor(if whirl == Whirl::Forward {
-                            Align2::LEFT_BOTTOM
-                        } else {
-                            Align2::LEFT_TOP
-                        })
-                        .color(colour),
-                    );
+                        Whirl::Forward => ("F", Align2::LEFT_BOTTOM),
+                        Whirl::Backward => ("B", Align2::LEFT_TOP),
+                    };
+                    let text = RichText::new(format!("{}{tag}", b + 1)).strong();
+                    label(p, last, text, anchor, colour);
                 }
                 p.line(
                     Line::new(name, pts)
@@ -503,14 +505,12 @@ fn response_plot(ui: &mut egui::Ui, r: &AtSpeed, h: f32) {
                     .collect();
                 let colour = plots::trace_color(k);
                 if let Some(top) = pts.iter().copied().max_by(|a, b| a[1].total_cmp(&b[1])) {
-                    p.text(
-                        Text::new(
-                            "",
-                            PlotPoint::new(top[0], top[1]),
-                            RichText::new(format!("at {x:.3} m")).strong(),
-                        )
-                        .anchor(Align2::RIGHT_BOTTOM)
-                        .color(colour),
+                    label(
+                        p,
+                        [top[0], top[1]],
+                        RichText::new(format!("at {x:.3} m")).strong(),
+                        Align2::RIGHT_BOTTOM,
+                        colour,
                     );
                 }
                 p.line(
@@ -521,14 +521,12 @@ fn response_plot(ui: &mut egui::Ui, r: &AtSpeed, h: f32) {
             }
             for pk in &r.peaks {
                 if let Some(af) = pk.peak.amplification_factor {
-                    p.text(
-                        Text::new(
-                            "",
-                            PlotPoint::new(pk.peak.speed_rpm, pk.peak.amplitude_m * 1e6),
-                            RichText::new(format!("AF {af:.1}")),
-                        )
-                        .anchor(Align2::RIGHT_BOTTOM)
-                        .color(warn()),
+                    label(
+                        p,
+                        [pk.peak.speed_rpm, pk.peak.amplitude_m * 1e6],
+                        RichText::new(format!("AF {af:.1}")),
+                        Align2::RIGHT_BOTTOM,
+                        warn(),
                     );
                 }
             }
@@ -565,14 +563,12 @@ fn bearing_plot(ui: &mut egui::Ui, r: &AtSpeed, which: &mut usize, h: f32) {
                     .collect();
                 let colour = plots::trace_color(k);
                 if let Some(last) = pts.last().copied() {
-                    p.text(
-                        Text::new(
-                            "",
-                            PlotPoint::new(last[0], last[1]),
-                            RichText::new(name).strong(),
-                        )
-                        .anchor(Align2::LEFT_CENTER)
-                        .color(colour),
+                    label(
+                        p,
+                        [last[0], last[1]],
+                        RichText::new(name).strong(),
+                        Align2::LEFT_CENTER,
+                        colour,
                     );
                 }
                 p.line(Line::new(name, pts).color(colour).width(2.0));

@@ -156,14 +156,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     Some(Ok(r)) => summary(ui, r, &predicted),
                 }
                 ui.separator();
-                ui.label(
-                    RichText::new(
-                        "Recording a run means a machine turning: guards on, stay clear of \
-                         rotating parts, follow the site's procedure. Results are advisory.",
-                    )
-                    .color(warn())
-                    .small(),
-                );
+                ui.label(RichText::new(crate::cautions::RUN).color(warn()).small());
             });
         });
     let Some(Ok(r)) = result else {

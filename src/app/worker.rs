@@ -469,28 +469,17 @@ fn run_job(
                 message: e.to_string(),
             },
         },
-        Job::ReadRotor(path) => {
-            let read = crate::rotor::file::read_rotor(&path).and_then(|f| {
-                let text = std::fs::read_to_string(&path).map_err(|e| {
-                    crate::acquire::InputError::new(&path, format!("cannot read: {e}"))
-                })?;
-                let value: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
-                    crate::acquire::InputError::new(&path, format!("is not valid JSON: {e}"))
-                })?;
-                Ok((f, crate::rotor::file::service_part(&value)))
-            });
-            match read {
-                Ok((f, service)) => Outcome::RotorRead {
-                    path,
-                    service,
-                    shaft: Box::new(f.rotor.shaft),
-                },
-                Err(e) => Outcome::Failed {
-                    what: "Reading the rotor file",
-                    message: e.to_string(),
-                },
-            }
-        }
+        Job::ReadRotor(path) => match crate::rotor::file::read_rotor(&path) {
+            Ok(f) => Outcome::RotorRead {
+                path,
+                service: f.service,
+                shaft: Box::new(f.rotor.shaft),
+            },
+            Err(e) => Outcome::Failed {
+                what: "Reading the rotor file",
+                message: e.to_string(),
+            },
+        },
         Job::WriteFile { path, bytes, what } => match crate::atomic::write_bytes(&path, &bytes) {
             Ok(()) => Outcome::Wrote(format!("wrote the {what} to {}", path.display())),
             Err(e) => Outcome::Failed {

@@ -104,10 +104,7 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
         }
     }
     println!("wrote {} and {}", tracking.display(), result.display());
-    println!(
-        "Advisory. Recording a run means a machine turning: guards on, stay clear of rotating \
-         parts and follow the site's procedure."
-    );
+    println!("{}", crate::cautions::RUN);
     Ok(())
 }
 

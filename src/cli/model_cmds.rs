@@ -23,20 +23,19 @@ pub(super) fn read_study(path: &Path) -> Result<crate::model::study::Study> {
             path.display()
         );
     }
-    let mut study = crate::model::study::Study::new(crate::model::run::read_shaft(path)?);
-    // A rotor file (the shaft with bearings, unbalances): its service part comes along, checked.
+    // One read: a shaft model, or a rotor file whose service part (bearings, unbalances,
+    // range) comes along, checked.
     let text = std::fs::read_to_string(path)
         .map_err(|e| crate::acquire::InputError::new(path, format!("cannot read: {e}")))?;
+    let mut study = crate::model::study::Study::new(crate::model::run::parse_shaft(path, &text)?);
     if let Ok(value) = serde_json::from_str::<serde_json::Value>(&text)
         && ["bearings", "unbalances", "operating_range_rpm"]
             .iter()
             .any(|k| value.get(k).is_some())
     {
         let file = crate::rotor::file::parse_rotor(path, &text)?;
-        study.rotor = Some(crate::rotor::file::service_part(&value));
-        if study.running_speed_rpm.is_none() {
-            study.running_speed_rpm = file.operating_range_rpm;
-        }
+        study.rotor = Some(file.service);
+        study.running_speed_rpm = study.running_speed_rpm.or(file.operating_range_rpm);
     }
     Ok(study)
 }

@@ -86,12 +86,13 @@ impl<'a> Solver<'a> {
 
     /// The lowest `count` whirl modes at `speed_rpm`.
     pub fn modes_at(&mut self, speed_rpm: f64, count: usize) -> Result<Vec<DampedMode>, String> {
-        let (k, c) = self.model.at_speed(speed_rpm)?;
-        let m = self.model.m.clone();
-        let basis = self.basis(speed_rpm)?.clone();
-        let span = self.model.nodes_m.last().copied().unwrap_or(0.0)
-            - self.model.nodes_m.first().copied().unwrap_or(0.0);
-        damped_modes(&m, &c, &k, &basis, count, MIN_MODE_HZ, Some(span))
+        // The model is borrowed for 'a, not from `self`: no copy of its matrices or the basis.
+        let model = self.model;
+        let (k, c) = model.at_speed(speed_rpm)?;
+        let basis = self.basis(speed_rpm)?;
+        let span = model.nodes_m.last().copied().unwrap_or(0.0)
+            - model.nodes_m.first().copied().unwrap_or(0.0);
+        damped_modes(&model.m, &c, &k, basis, count, MIN_MODE_HZ, Some(span))
     }
 }
 

@@ -19,6 +19,9 @@ pub struct RotorFile {
     pub rotor: Rotor,
     /// Operating speed range, rpm, if the file gives one.
     pub operating_range_rpm: Option<[f64; 2]>,
+    /// The file's service part (bearings, unbalances, range) in its own keys, as a study keeps
+    /// it; `Null` for a rotor built from a study's plain springs.
+    pub service: Value,
 }
 
 const SHAFT_KEYS: [&str; 4] = ["material", "sections", "discs", "supports"];
@@ -105,6 +108,7 @@ pub fn parse_rotor(path: &Path, text: &str) -> Result<RotorFile, InputError> {
     Ok(RotorFile {
         rotor,
         operating_range_rpm,
+        service: service_part(&Value::Object(top)),
     })
 }
 
@@ -341,5 +345,6 @@ pub fn from_study(study: &crate::model::study::Study) -> Result<Option<RotorFile
     Ok(Some(RotorFile {
         rotor,
         operating_range_rpm: study.running_speed_rpm,
+        service: Value::Null,
     }))
 }

@@ -73,6 +73,8 @@ pub fn response(
         let k = (&k + k.transpose()) * 0.5;
         Some(super::eigen::Basis::lowest(&k, &model.m, RESPONSE_MODES, &attach)?.phi)
     };
+    // The basis as complex numbers, once for every speed.
+    let basis_c = basis.as_ref().map(|p| p.map(|v| Complex64::new(v, 0.0)));
     let mut out = Vec::with_capacity(speeds_rpm.len() * probes.len());
     for &rpm in speeds_rpm {
         let w = rpm * std::f64::consts::PI / 30.0;
@@ -96,8 +98,8 @@ pub fn response(
             f[NODE_DOFS * node] += e;
             f[NODE_DOFS * node + 1] += Complex64::new(0.0, -1.0) * e;
         }
-        let fr = match &basis {
-            Some(p) => p.map(|v| Complex64::new(v, 0.0)).tr_mul(&f),
+        let fr = match &basis_c {
+            Some(p) => p.tr_mul(&f),
             None => f,
         };
         let qr = if w == 0.0 {
@@ -110,8 +112,8 @@ pub fn response(
                 )
             })?
         };
-        let q = match &basis {
-            Some(p) => p.map(|v| Complex64::new(v, 0.0)) * qr,
+        let q = match &basis_c {
+            Some(p) => p * qr,
             None => qr,
         };
         for (&node, &x) in probes.iter().zip(positions_m) {
