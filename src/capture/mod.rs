@@ -10,6 +10,7 @@
 //! at a complete file: at most the hit in flight is lost.
 
 pub mod generator;
+pub mod run;
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -591,6 +592,26 @@ pub fn open_source(
             },
         )?)
     })
+}
+
+/// Opens a source for recording a run: a live device by id (channel 0 of what it gives is
+/// `channels[0]`, the tach), or the synthetic coast-down [`generator::RunGenerator`] (paced,
+/// 48 kHz unless a rate is given).
+pub fn open_run_source(
+    device: &str,
+    channels: [usize; 2],
+    rate_hz: Option<u32>,
+    buffer_frames: Option<u32>,
+) -> Result<Box<dyn Source>, SourceError> {
+    if device == GENERATOR_ID {
+        Ok(Box::new(generator::RunGenerator::new(
+            rate_hz.unwrap_or(48_000),
+            1024,
+            true,
+        )))
+    } else {
+        open_source(device, channels, rate_hz, buffer_frames)
+    }
 }
 
 /// What a headless capture is to do.

@@ -781,6 +781,52 @@ pub enum QuantityArg {
     Displacement,
 }
 
+/// `tapgrid record-run`.
+#[derive(Debug, Args)]
+pub struct RecordRunArgs {
+    /// Input device id as `tapgrid devices` lists it, or `generator` for a synthetic 64 s
+    /// coast-down paced at the sample rate.
+    #[arg(long)]
+    pub device: String,
+    /// A session folder (the run goes to its runs/ folder and into its manifest), another
+    /// folder (a new run-….wav in it) or a new .wav file.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Device input carrying the tach (0-based); it is channel 0 of the file.
+    #[arg(long, default_value_t = 0)]
+    pub tach_input: usize,
+    /// Device input carrying the vibration sensor; it is channel 1 of the file.
+    #[arg(long, default_value_t = 1)]
+    pub vibration_input: usize,
+    /// Sample rate, Hz (default: the device's).
+    #[arg(long)]
+    pub rate: Option<u32>,
+    /// Frames per audio callback (default: the host's).
+    #[arg(long)]
+    pub buffer: Option<u32>,
+    /// Tach pulses per revolution.
+    #[arg(long, default_value_t = 1)]
+    pub pulses_per_rev: usize,
+    /// Stop by itself once the speed, having been above this, falls below it, rpm.
+    #[arg(long)]
+    pub stop_below: Option<f64>,
+    /// Stop after this many seconds.
+    #[arg(long)]
+    pub seconds: Option<f64>,
+    /// Vibration sensor sensitivity, mV per m/s² (kept with the run in a session).
+    #[arg(long)]
+    pub sensitivity: Option<f64>,
+    /// Volts at digital full scale (kept with the run in a session).
+    #[arg(long, default_value_t = 1.0)]
+    pub full_scale_volts: f64,
+    /// A note kept with the run in a session (machine, sensor place, direction).
+    #[arg(long, default_value = "")]
+    pub note: String,
+    /// Stop with an error when no samples arrive for this many seconds.
+    #[arg(long, default_value_t = 3.0)]
+    pub stall: f64,
+}
+
 /// `tapgrid coastdown`.
 #[derive(Debug, Args)]
 pub struct CoastdownArgs {

@@ -174,3 +174,134 @@ fn model_comparison(path: &Path, r: &crate::coast::RunResult) -> Result<ModelCom
         comparison,
     })
 }
+
+pub(super) fn record_run(a: RecordRunArgs) -> Result<()> {
+    use crate::capture::run::{AutoStop, RunRecordOptions, RunRecorder};
+    use std::sync::Arc;
+    use std::sync::atomic::{AtomicBool, Ordering};
+    if a.tach_input == a.vibration_input {
+        bail!("--tach-input and --vibration-input must differ");
+    }
+    if a.pulses_per_rev == 0 || a.pulses_per_rev > 360 {
+        bail!("--pulses-per-rev must be 1 to 360");
+    }
+    if a.stop_below.is_some_and(|v| !(v.is_finite() && v > 0.0))
+        || a.seconds.is_some_and(|v| !(v.is_finite() && v > 0.0))
+        || !(a.stall.is_finite() && a.stall > 0.0)
+    {
+        bail!("--stop-below, --seconds and --stall must be positive");
+    }
+    if a.sensitivity.is_some_and(|v| !(v.is_finite() && v > 0.0))
+        || !(a.full_scale_volts.is_finite() && a.full_scale_volts > 0.0)
+    {
+        bail!("--sensitivity and --full-scale-volts must be positive");
+    }
+    let session = crate::session::Session::is_session(&a.out).then(|| a.out.clone());
+    let out = if let Some(s) = &session {
+        let runs = s.join("runs");
+        std::fs::create_dir_all(&runs)
+            .with_context(|| format!("{}: cannot create the folder", runs.display()))?;
+        crate::capture::run::new_run_path(&runs)
+    } else if a.out.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav")) {
+        if let Some(parent) = a.out.parent().filter(|p| !p.as_os_str().is_empty()) {
+            std::fs::create_dir_all(parent)
+                .with_context(|| format!("{}: cannot create the folder", parent.display()))?;
+        }
+        a.out.clone()
+    } else {
+        std::fs::create_dir_all(&a.out)
+            .with_context(|| format!("{}: cannot create the folder", a.out.display()))?;
+        crate::capture::run::new_run_path(&a.out)
+    };
+    let folder = out.parent().unwrap_or(Path::new("."));
+    for p in crate::capture::run::recover(folder)? {
+        println!(
+            "recovered an unfinished run into {} (not added to any session)",
+            p.display()
+        );
+    }
+    println!("{}", crate::cautions::RUN);
+    let mut source = crate::capture::open_run_source(
+        &a.device,
+        [a.tach_input, a.vibration_input],
+        a.rate,
+        a.buffer,
+    )?;
+    let rec = RunRecorder::create(
+        &out,
+        source.sample_rate_hz(),
+        RunRecordOptions {
+            segment_s: 2.0,
+            pulses_per_rev: a.pulses_per_rev,
+        },
+    )?;
+    // Enter stops the recording; a closed stdin (a script) does not.
+    let stop = Arc::new(AtomicBool::new(false));
+    {
+        let stop = stop.clone();
+        let _ = std::thread::Builder::new()
+            .name("tapgrid-enter".into())
+            .spawn(move || {
+                let mut line = String::new();
+                if matches!(std::io::stdin().read_line(&mut line), Ok(n) if n > 0) {
+                    stop.store(true, Ordering::Relaxed);
+                }
+            });
+    }
+    println!(
+        "recording {} at {} Hz: tach on input {}, vibration on input {}; press Enter to stop",
+        out.display(),
+        source.sample_rate_hz(),
+        a.tach_input,
+        a.vibration_input
+    );
+    let mut last_print = std::time::Instant::now();
+    let path = crate::capture::run::record(
+        source.as_mut(),
+        rec,
+        AutoStop {
+            below_rpm: a.stop_below,
+            after_s: a.seconds,
+        },
+        std::time::Duration::from_secs_f64(a.stall),
+        || stop.load(Ordering::Relaxed),
+        |p| {
+            if last_print.elapsed().as_secs_f64() >= 1.0 {
+                last_print = std::time::Instant::now();
+                println!(
+                    "{:7.1} s  {}  tach {:.2} FS  vibration {:.2} FS{}",
+                    p.seconds,
+                    p.speed_rpm
+                        .map_or("   no speed".to_string(), |s| format!("{s:7.0} rpm")),
+                    p.peak_fs[0],
+                    p.peak_fs[1],
+                    if p.peak_fs.iter().any(|&v| v >= 0.99) {
+                        "  OVERLOAD"
+                    } else {
+                        ""
+                    }
+                );
+            }
+        },
+    )?;
+    let info = crate::acquire::wav::probe(&path)?;
+    println!(
+        "saved {} ({:.1} s)",
+        path.display(),
+        info.frames as f64 / f64::from(info.sample_rate_hz)
+    );
+    if let Some(s) = &session {
+        let mut entry = crate::capture::run::saved_run(a.pulses_per_rev, &a.note);
+        entry.sensitivity_mv_per_unit = a.sensitivity;
+        entry.full_scale_volts = a.full_scale_volts;
+        crate::capture::run::add_to_session(s, &path, entry)?;
+        println!("added to the session {}", s.display());
+    }
+    println!(
+        "track it: tapgrid coastdown {} --out DIR{}",
+        path.display(),
+        a.sensitivity
+            .map_or(String::new(), |v| format!(" --sensitivity {v}"))
+    );
+    Ok(())
+}

@@ -14,7 +14,7 @@ mod test_cmds;
 
 pub use args::*;
 use capture_cmds::{calibrate, capture, devices};
-use coast_cmds::coastdown;
+use coast_cmds::{coastdown, record_run};
 use model_cmds::{correlate, margin, model};
 use rotor_cmds::{bearing, rotor};
 use sim_cmds::simulate;
@@ -88,6 +88,9 @@ pub enum Command {
     /// Track a run-up or coast-down (tach + accelerometer on two channels): 1×/2× against
     /// speed, critical speeds, AF, subsynchronous whirl → tracking.csv, result.json (advisory).
     Coastdown(CoastdownArgs),
+    /// Record a run-up or coast-down live (tach + accelerometer) into a session or a folder,
+    /// saved in segments as it goes; stops on Enter, on a time or when the machine has come down.
+    RecordRun(RecordRunArgs),
     /// Calibration helpers on a recording: sensitivity, full-scale volts, mass check, loopback.
     Calibrate(CalibrateArgs),
     /// Override a hit's verdict in a session (accept, reject, or back to automatic).
@@ -140,6 +143,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Bearing(a) => bearing(a),
         Command::Rotor(a) => rotor(a),
         Command::Coastdown(a) => coastdown(a),
+        Command::RecordRun(a) => record_run(a),
         Command::Verdict(a) => verdict(a),
         Command::Simulate(a) => simulate(a),
         Command::BenchVerdict(a) => bench_verdict(&a),

@@ -84,6 +84,35 @@ pub struct SavedHit {
     pub override_accept: Option<bool>,
 }
 
+/// A run-up or coast-down recorded with the session (tach and vibration), kept as recorded.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SavedRun {
+    /// Path relative to the session folder (`runs/…`).
+    pub file: String,
+    /// When it was recorded, UTC.
+    pub recorded: String,
+    /// Sample rate, Hz.
+    pub sample_rate_hz: u32,
+    /// Frames.
+    pub frames: usize,
+    /// File size in bytes, checked on open.
+    pub bytes: u64,
+    /// Channel of the tach in the file.
+    pub tach_channel: usize,
+    /// Channel of the vibration sensor in the file.
+    pub channel: usize,
+    /// Tach pulses per revolution.
+    pub pulses_per_rev: usize,
+    /// Vibration sensor sensitivity, mV per m/s² (`None`: full-scale units).
+    #[serde(default)]
+    pub sensitivity_mv_per_unit: Option<f64>,
+    /// Volts at digital full scale.
+    pub full_scale_volts: f64,
+    /// Free note (machine, sensor place, direction).
+    #[serde(default)]
+    pub note: String,
+}
+
 /// The manifest.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Manifest {
@@ -110,6 +139,9 @@ pub struct Manifest {
     /// choice is kept as the frequencies of the chosen poles). Absent: automatic.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub fit: Option<crate::modal::ModalSettings>,
+    /// Runs (coast-downs, run-ups) recorded with the session.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub runs: Vec<SavedRun>,
 }
 
 impl Manifest {
@@ -131,6 +163,7 @@ impl Manifest {
             hits: Vec::new(),
             model: None,
             fit: None,
+            runs: Vec::new(),
         }
     }
 }
@@ -200,6 +233,29 @@ impl Manifest {
                 ));
             }
         }
+        for r in &self.runs {
+            if !(1..=MAX_SAMPLE_RATE_HZ).contains(&r.sample_rate_hz)
+                || r.tach_channel == r.channel
+                || r.tach_channel.max(r.channel) > 65534
+                || !(1..=360).contains(&r.pulses_per_rev)
+                || !(r.full_scale_volts.is_finite() && r.full_scale_volts > 0.0)
+                || r
+                    .sensitivity_mv_per_unit
+                    .is_some_and(|v| !(v.is_finite() && v > 0.0))
+            {
+                return Err(format!(
+                    "runs: {}: rate, channels, pulses per revolution, full scale or sensitivity \
+                     out of range",
+                    r.file
+                ));
+            }
+            if r.file.contains("..") || Path::new(&r.file).is_absolute() {
+                return Err(format!(
+                    "runs: {}: a run's file must lie inside the session folder",
+                    r.file
+                ));
+            }
+        }
         if self.hits.len() > MAX_STATIONS * MAX_HITS_PER_STATION {
             return Err(format!("{} hits: too many", self.hits.len()));
         }
@@ -256,6 +312,22 @@ impl Session {
                     &p,
                     format!(
                         "raw recording is {} bytes but the manifest recorded {}: it was changed after capture",
+                        meta.len(),
+                        r.bytes
+                    ),
+                ));
+            }
+        }
+        for r in &manifest.runs {
+            let p = dir.join(&r.file);
+            let meta = std::fs::metadata(&p).map_err(|e| {
+                InputError::new(&p, format!("run listed in the manifest is missing: {e}"))
+            })?;
+            if meta.len() != r.bytes {
+                return Err(InputError::new(
+                    &p,
+                    format!(
+                        "run recording is {} bytes but the manifest recorded {}: it was changed after recording",
                         meta.len(),
                         r.bytes
                     ),
@@ -350,18 +422,24 @@ impl Session {
                 "already holds a session; choose a new folder",
             ));
         }
-        for r in &self.manifest.recordings {
-            let dst = dir.join(&r.file);
+        let files = self
+            .manifest
+            .recordings
+            .iter()
+            .map(|r| (&r.file, r.bytes))
+            .chain(self.manifest.runs.iter().map(|r| (&r.file, r.bytes)));
+        for (file, bytes) in files {
+            let dst = dir.join(file);
             if let Some(parent) = dst.parent() {
                 std::fs::create_dir_all(parent)
                     .map_err(|e| InputError::new(parent, format!("cannot create folder: {e}")))?;
             }
-            let n = crate::atomic::copy_file(&self.dir.join(&r.file), &dst)
+            let n = crate::atomic::copy_file(&self.dir.join(file), &dst)
                 .map_err(|e| InputError::new(&dst, format!("cannot copy recording: {e}")))?;
-            if n != r.bytes {
+            if n != bytes {
                 return Err(InputError::new(
                     &dst,
-                    format!("copied {n} bytes, the manifest records {}", r.bytes),
+                    format!("copied {n} bytes, the manifest records {bytes}"),
                 ));
             }
         }
