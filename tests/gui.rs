@@ -855,3 +855,50 @@ fn the_run_view_tracks_a_recording_and_names_its_critical_speed() {
     h.get_by_label_contains("rpm (1×): AF");
     h.get_by_label_contains("revolutions,");
 }
+
+/// Recording a run from the window (the synthetic coast-down as the input): the speed is read
+/// live, Stop saves it into the open session's runs/ and its manifest (common practice: a
+/// recording is on disk and listed before anything is shown from it), and the run is tracked.
+#[test]
+fn a_run_recorded_in_the_window_is_saved_into_the_session_and_tracked() {
+    let (_tmp, dir, mut h) = demo_copy();
+    settle(&mut h);
+    h.state_mut().settings.view = View::Run;
+    h.run_steps(2);
+    h.get_by_role_and_label(egui::accesskit::Role::Button, "Record")
+        .click();
+    let t0 = Instant::now();
+    loop {
+        h.step();
+        let speed = h
+            .state()
+            .recording
+            .progress
+            .and_then(|p| p.speed_rpm.map(|s| (s, p.seconds)));
+        if let Some((s, secs)) = speed
+            && secs > 2.5
+        {
+            // The generator starts at 3600 rpm and slows by about 4 % a second.
+            assert!((3000.0..3700.0).contains(&s), "speed {s}");
+            break;
+        }
+        assert!(t0.elapsed() < Duration::from_secs(30), "no speed read");
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    h.get_by_label_contains("Stop and save").click();
+    let t0 = Instant::now();
+    while h.state().recording.active() {
+        h.step();
+        std::thread::sleep(Duration::from_millis(10));
+        assert!(t0.elapsed() < Duration::from_secs(30), "not saved");
+    }
+    settle(&mut h);
+    let path = h.state().ui.run.path.clone().expect("the run is shown");
+    assert!(path.starts_with(dir.join("runs")), "{}", path.display());
+    assert!(path.is_file());
+    let s = tapgrid::session::Session::open(&dir).expect("session");
+    assert_eq!(s.manifest.runs.len(), 1);
+    assert!(dir.join(&s.manifest.runs[0].file) == path);
+    h.get_by_label_contains("revolutions,");
+    h.get_by_label("Runs of this session");
+}

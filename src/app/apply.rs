@@ -218,6 +218,13 @@ impl TapgridApp {
                 self.ui.run.path = Some(p);
                 self.settings.view = View::Run;
             }
+            Command::RecordRun => self.start_run_record(),
+            Command::StopRecordRun => {
+                if let Some(h) = &self.recording.handle {
+                    h.stop.store(true, std::sync::atomic::Ordering::Relaxed);
+                    self.recording.message = Some(("Saving the run…".into(), false));
+                }
+            }
             Command::ClearRotor => {
                 if let Some(st) = self.doc.as_mut().and_then(|d| d.study.as_mut()) {
                     st.rotor = None;

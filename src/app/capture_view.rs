@@ -575,6 +575,13 @@ pub(super) fn plan_of(order_text: &str, doc: Option<&super::Document>) -> Vec<u3
 impl TapgridApp {
     /// Starts a capture: into the open session when it is writable, else into the folder typed.
     pub(super) fn start_capture(&mut self) {
+        if self.recording.active() {
+            self.capture.message = Some((
+                "a run is being recorded from the input: stop it first (Run tracking)".into(),
+                true,
+            ));
+            return;
+        }
         let writable = self
             .doc
             .as_ref()

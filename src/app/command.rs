@@ -85,6 +85,10 @@ pub enum Command {
     ClearRotor,
     /// Track a run-up or coast-down recording.
     LoadRun(PathBuf),
+    /// Start recording a run from the input (the run view's choices).
+    RecordRun,
+    /// Stop recording the run (it is saved, then tracked).
+    StopRecordRun,
 }
 
 /// Where a report goes by default: beside a session or WAV set (a session's own folder holds only

@@ -16,6 +16,7 @@ mod model_view;
 mod modes_view;
 pub mod plots;
 mod rotor_view;
+mod run_record;
 mod run_view;
 mod setup_view;
 mod station_map;
@@ -33,6 +34,7 @@ mod view_ctx;
 pub use command::{Command, Message, PathPurpose};
 use command::{PathDialog, report_default_path};
 pub use document::Document;
+pub use run_view::{RecordingState, RunEdit};
 pub use settings::{Settings, View};
 pub use view_ctx::{SetupEdit, UiState, ViewCtx};
 
@@ -83,6 +85,8 @@ pub struct TapgridApp {
     pub(crate) rotor: rotor_view::RotorState,
     /// The run tracking.
     pub(crate) run: run_view::RunState,
+    /// A run being recorded from the input.
+    pub recording: run_view::RecordingState,
     pub(crate) ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
@@ -116,6 +120,7 @@ impl TapgridApp {
             capture_dir: None,
             rotor: Default::default(),
             run: Default::default(),
+            recording: Default::default(),
             ctx_slot,
         };
         if let Some(p) = path {

@@ -29,6 +29,10 @@ pub struct RunEdit {
     pub ac_corner_hz: f64,
     /// Amplitudes as velocity (else acceleration).
     pub velocity: bool,
+    /// Recording stops by itself once the speed falls below this, rpm (0: only on Stop).
+    pub stop_below_rpm: f64,
+    /// Folder for runs recorded without a writable session open.
+    pub record_folder: String,
 }
 
 impl Default for RunEdit {
@@ -39,7 +43,29 @@ impl Default for RunEdit {
             pulses_per_rev: 1,
             ac_corner_hz: 0.0,
             velocity: false,
+            stop_below_rpm: 0.0,
+            record_folder: String::new(),
         }
+    }
+}
+
+/// A run being recorded from the input, as last reported.
+#[derive(Default)]
+pub struct RecordingState {
+    /// The recording thread, while it runs.
+    pub(crate) handle: Option<super::run_record::RecordHandle>,
+    /// Its last progress.
+    pub progress: Option<crate::capture::run::RunProgress>,
+    /// Speed against recording time, s and rpm, for the live trace.
+    pub speeds: Vec<[f64; 2]>,
+    /// What to tell the person (text, is it an error).
+    pub message: Option<(String, bool)>,
+}
+
+impl RecordingState {
+    /// Whether a run is being recorded.
+    pub fn active(&self) -> bool {
+        self.handle.is_some()
     }
 }
 
@@ -63,6 +89,7 @@ impl TapgridApp {
     /// Starts tracking when the view is shown and the recording or options changed; takes a
     /// finished result (called from `logic`).
     pub(crate) fn poll_run(&mut self, ctx: &egui::Context) {
+        self.drain_recording();
         self.run.collect(ctx);
         if self.settings.view != View::Run {
             return;
@@ -75,6 +102,128 @@ impl TapgridApp {
         self.run.start_for(key, "tapgrid-run", move || {
             analyse_run(&path, &options).map_err(|e| e.to_string())
         });
+    }
+
+    /// Where a new run goes: the open session's `runs/` when it can be written (and no hit
+    /// capture is writing it), else the folder typed in the view.
+    fn run_folder(&mut self) -> (PathBuf, bool) {
+        if let Some(d) = &self.doc
+            && d.session.is_some()
+            && !d.read_only
+        {
+            return (d.path.join("runs"), true);
+        }
+        if self.ui.run.record_folder.trim().is_empty() {
+            self.ui.run.record_folder = crate::sim::demo::default_root()
+                .join("runs")
+                .display()
+                .to_string();
+        }
+        (PathBuf::from(self.ui.run.record_folder.trim()), false)
+    }
+
+    pub(super) fn start_run_record(&mut self) {
+        if self.recording.active() {
+            return;
+        }
+        if self.capture.handle.is_some() {
+            self.recording.message = Some((
+                "live hit capture holds the input: stop it first".into(),
+                true,
+            ));
+            return;
+        }
+        let (folder, _) = self.run_folder();
+        let out = crate::capture::run::new_run_path(&folder);
+        let device = self
+            .settings
+            .capture_device
+            .clone()
+            .unwrap_or_else(|| crate::capture::GENERATOR_ID.into());
+        let inputs = self.doc.as_ref().map_or([0, 1], |d| {
+            [d.setup.channel_a.index, d.setup.channel_b.index]
+        });
+        let e = &self.ui.run;
+        let start = super::run_record::RecordStart {
+            device: device.clone(),
+            out,
+            inputs,
+            rate_hz: self.settings.capture_rate_hz,
+            buffer_frames: self.settings.capture_buffer_frames,
+            pulses_per_rev: e.pulses_per_rev.max(1),
+            auto: crate::capture::run::AutoStop {
+                below_rpm: (e.stop_below_rpm > 0.0).then_some(e.stop_below_rpm),
+                after_s: None,
+            },
+        };
+        let ctx = self.ctx_slot.clone();
+        self.recording.progress = None;
+        self.recording.speeds.clear();
+        self.recording.message = Some((format!("Opening {device}…"), false));
+        self.recording.handle = Some(super::run_record::start(start, move || {
+            if let Some(c) = ctx.get() {
+                c.request_repaint_after(std::time::Duration::from_millis(50));
+            }
+        }));
+    }
+
+    fn drain_recording(&mut self) {
+        use super::run_record::RecordReport;
+        let Some(h) = &self.recording.handle else {
+            return;
+        };
+        let mut done = None;
+        while let Ok(r) = h.reports.try_recv() {
+            match r {
+                RecordReport::Progress(p) => {
+                    if self.recording.progress.is_none() {
+                        self.recording.message = None;
+                    }
+                    self.recording.progress = Some(p);
+                    if let Some(s) = p.speed_rpm {
+                        self.recording.speeds.push([p.seconds, s]);
+                    }
+                }
+                RecordReport::Saved(p) => done = Some(Ok(p)),
+                RecordReport::Failed(e) => done = Some(Err(e)),
+            }
+        }
+        let Some(done) = done else {
+            return;
+        };
+        self.recording.handle = None;
+        match done {
+            Ok(p) => {
+                let mut text = format!("Saved {}", p.display());
+                if let Some(d) = &mut self.doc
+                    && !d.read_only
+                    && p.starts_with(&d.path)
+                    && let Some(s) = &mut d.session
+                {
+                    let entry =
+                        crate::capture::run::saved_run(self.ui.run.pulses_per_rev.max(1), "");
+                    match crate::capture::run::session_entry(&d.path, &p, entry) {
+                        Ok(mut e) => {
+                            e.sensitivity_mv_per_unit = (self.ui.run.sensitivity_mv > 0.0)
+                                .then_some(self.ui.run.sensitivity_mv);
+                            s.manifest.runs.retain(|r| r.file != e.file);
+                            s.manifest.runs.push(e);
+                            text.push_str(" and added to the session");
+                            if let Some(s) = d.session_to_write() {
+                                self.io.send(super::worker::Job::SaveSession {
+                                    session: Box::new(s),
+                                    announce: false,
+                                });
+                            }
+                        }
+                        Err(e) => text = format!("{text}; not added to the session: {e}"),
+                    }
+                }
+                self.recording.message = Some((text, false));
+                self.commands.push(Command::LoadRun(p));
+            }
+            Err(e) => self.recording.message = Some((e, true)),
+        }
     }
 
     /// Whether a tracking is running.
@@ -116,6 +265,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                 if let Some(p) = &app.ui.run.path {
                     ui.label(RichText::new(p.display().to_string()).small());
                 }
+                session_runs(ui, app, &mut cmds);
+                ui.separator();
+                record_panel(ui, app, &mut cmds);
                 ui.separator();
                 let e = &mut app.ui.run;
                 egui::Grid::new("run-opts").num_columns(2).show(ui, |ui| {
@@ -184,6 +336,172 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     for c in cmds {
         app.push(c);
     }
+}
+
+/// The runs a session holds, each one a button that tracks it with its kept settings.
+fn session_runs(ui: &mut egui::Ui, app: &mut ViewCtx, cmds: &mut Vec<Command>) {
+    let Some(d) = app.doc else {
+        return;
+    };
+    let Some(s) = &d.session else {
+        return;
+    };
+    if s.manifest.runs.is_empty() {
+        return;
+    }
+    ui.label(RichText::new("Runs of this session").strong());
+    for r in &s.manifest.runs {
+        let path = d.path.join(&r.file);
+        let shown = app.ui.run.path.as_ref() == Some(&path);
+        let name = std::path::Path::new(&r.file)
+            .file_name()
+            .map_or(r.file.clone(), |n| n.to_string_lossy().into_owned());
+        let label = if r.note.is_empty() {
+            format!("{name} ({})", r.recorded)
+        } else {
+            format!("{name} — {}", r.note)
+        };
+        if ui.selectable_label(shown, label).clicked() {
+            app.ui.run.pulses_per_rev = r.pulses_per_rev;
+            app.ui.run.sensitivity_mv = r.sensitivity_mv_per_unit.unwrap_or(0.0);
+            cmds.push(Command::LoadRun(path));
+        }
+    }
+}
+
+/// Recording a run from the input: device and stop condition, Record / Stop, the speed and
+/// levels as they come.
+fn record_panel(ui: &mut egui::Ui, app: &mut ViewCtx, cmds: &mut Vec<Command>) {
+    let rec = app.recording;
+    let active = rec.active();
+    egui::CollapsingHeader::new(RichText::new("Record a run").strong())
+        .id_salt("run-record")
+        .default_open(true)
+        .show(ui, |ui| {
+            let device = app
+                .settings
+                .capture_device
+                .clone()
+                .unwrap_or_else(|| crate::capture::GENERATOR_ID.into());
+            ui.label(format!(
+                "Input: {} (chosen in Live capture){}",
+                device,
+                if device == crate::capture::GENERATOR_ID {
+                    " — a synthetic 64 s coast-down"
+                } else {
+                    ""
+                }
+            ));
+            let session_folder = app
+                .doc
+                .filter(|d| d.session.is_some() && !d.read_only)
+                .map(|d| d.path.join("runs"));
+            match &session_folder {
+                Some(f) => {
+                    ui.label(format!("Into this session: {}", f.display()));
+                }
+                None => {
+                    ui.label("Into the folder:");
+                    if app.ui.run.record_folder.is_empty() {
+                        app.ui.run.record_folder = crate::sim::demo::default_root()
+                            .join("runs")
+                            .display()
+                            .to_string();
+                    }
+                    ui.add_enabled(
+                        !active,
+                        egui::TextEdit::singleline(&mut app.ui.run.record_folder)
+                            .desired_width(300.0),
+                    );
+                }
+            }
+            ui.horizontal(|ui| {
+                let mut auto = app.ui.run.stop_below_rpm > 0.0;
+                if ui
+                    .add_enabled(!active, egui::Checkbox::new(&mut auto, "stop below"))
+                    .on_hover_text(
+                        "Stops by itself once the speed, having been above this, falls below it \
+                         (or the tach pulses stop): for an unattended coast-down.",
+                    )
+                    .changed()
+                {
+                    app.ui.run.stop_below_rpm = if auto { 150.0 } else { 0.0 };
+                }
+                if auto {
+                    ui.add_enabled(
+                        !active,
+                        egui::DragValue::new(&mut app.ui.run.stop_below_rpm)
+                            .range(1.0..=100_000.0)
+                            .suffix(" rpm"),
+                    );
+                }
+            });
+            ui.horizontal(|ui| {
+                if active {
+                    if ui.button(RichText::new("Stop and save").strong()).clicked() {
+                        cmds.push(Command::StopRecordRun);
+                    }
+                } else if ui
+                    .add_enabled(
+                        app.capture.handle.is_none(),
+                        egui::Button::new(RichText::new("Record").strong()),
+                    )
+                    .on_disabled_hover_text("live hit capture holds the input")
+                    .clicked()
+                {
+                    cmds.push(Command::RecordRun);
+                }
+            });
+            if let Some(p) = &rec.progress {
+                ui.horizontal(|ui| {
+                    ui.label(
+                        RichText::new(
+                            p.speed_rpm
+                                .map_or("— rpm".to_string(), |s| format!("{s:.0} rpm")),
+                        )
+                        .size(26.0)
+                        .strong(),
+                    );
+                    ui.label(format!(
+                        "{:.1} s recorded\n{:.1} s on disk",
+                        p.seconds, p.seconds_saved
+                    ));
+                });
+                for (name, v) in [("tach", p.peak_fs[0]), ("vibration", p.peak_fs[1])] {
+                    let colour = if v >= 0.99 {
+                        bad()
+                    } else if v < 0.01 {
+                        warn()
+                    } else {
+                        good()
+                    };
+                    ui.horizontal(|ui| {
+                        ui.label(format!("{name:>9}"));
+                        ui.add(
+                            egui::ProgressBar::new(v.clamp(0.0, 1.0))
+                                .desired_width(170.0)
+                                .fill(colour)
+                                .text(format!("{:.0} % FS", 100.0 * v)),
+                        );
+                    });
+                }
+                if rec.speeds.len() > 1 {
+                    egui_plot::Plot::new("run-record-speed")
+                        .height(90.0)
+                        .allow_drag(false)
+                        .allow_zoom(false)
+                        .allow_scroll(false)
+                        .x_axis_label("s")
+                        .y_axis_label("rpm")
+                        .show(ui, |pu| {
+                            pu.line(Line::new("speed", rec.speeds.clone()).color(accent()));
+                        });
+                }
+            }
+            if let Some((m, is_err)) = &rec.message {
+                ui.label(RichText::new(m).color(if *is_err { bad() } else { good() }));
+            }
+        });
 }
 
 fn summary(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64]) {

@@ -91,6 +91,8 @@ pub struct ViewCtx<'a> {
     pub rotor_running: bool,
     /// The run tracking's last result.
     pub run: &'a super::run_view::RunState,
+    /// The run being recorded, as last reported.
+    pub recording: &'a super::run_view::RecordingState,
     commands: &'a mut Vec<Command>,
 }
 
@@ -119,6 +121,7 @@ impl TapgridApp {
             rotor_running,
             rotor: &self.rotor,
             run: &self.run,
+            recording: &self.recording,
             commands: &mut self.commands,
         }
     }

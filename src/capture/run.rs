@@ -222,12 +222,9 @@ impl RunRecorder {
 
     fn speed_now(&self) -> Option<f64> {
         let x: Vec<f64> = self.tach.iter().map(|&v| f64::from(v)).collect();
-        let r = crate::coast::tach::revolutions(
-            &x,
-            f64::from(self.rate),
-            self.options.pulses_per_rev,
-        )
-        .ok()?;
+        let r =
+            crate::coast::tach::revolutions(&x, f64::from(self.rate), self.options.pulses_per_rev)
+                .ok()?;
         let s = &r.start_s;
         if s.len() < 3 {
             return None;
@@ -296,7 +293,11 @@ fn join_parts(parts: &Path, out: &Path) -> Result<u64, CaptureError> {
     let spec = first.spec();
     drop(first);
     if spec != float_spec(spec.sample_rate) {
-        return Err(io_err(&names[0], "unexpected segment format", "not 2-channel float32"));
+        return Err(io_err(
+            &names[0],
+            "unexpected segment format",
+            "not 2-channel float32",
+        ));
     }
     let mut frames = 0u64;
     crate::atomic::write_with(out, |file| {
@@ -433,20 +434,13 @@ pub fn record(
     rec.finish()
 }
 
-/// Adds a finished run (inside the session folder) to the session's manifest, under the
-/// session's lock.
-pub fn add_to_session(
+/// Fills `entry` for `file`, a finished run inside the session folder `session_dir`: its
+/// relative path, rate, frames and size.
+pub fn session_entry(
     session_dir: &Path,
     file: &Path,
     mut entry: SavedRun,
-) -> Result<(), CaptureError> {
-    let _lock = crate::session::lock::SessionLock::acquire(
-        session_dir,
-        "adding a run",
-        Duration::from_secs(5),
-    )
-    .map_err(|e| CaptureError::Save(e.to_string()))?;
-    let mut s = Session::open(session_dir).map_err(|e| CaptureError::Save(e.to_string()))?;
+) -> Result<SavedRun, CaptureError> {
     let rel = file.strip_prefix(session_dir).map_err(|_| {
         CaptureError::Setup(format!(
             "{}: a run added to a session must lie inside its folder {}",
@@ -461,6 +455,24 @@ pub fn add_to_session(
     entry.bytes = std::fs::metadata(file)
         .map_err(|e| io_err(file, "cannot read", e))?
         .len();
+    Ok(entry)
+}
+
+/// Adds a finished run (inside the session folder) to the session's manifest, under the
+/// session's lock.
+pub fn add_to_session(
+    session_dir: &Path,
+    file: &Path,
+    entry: SavedRun,
+) -> Result<(), CaptureError> {
+    let _lock = crate::session::lock::SessionLock::acquire(
+        session_dir,
+        "adding a run",
+        Duration::from_secs(5),
+    )
+    .map_err(|e| CaptureError::Save(e.to_string()))?;
+    let mut s = Session::open(session_dir).map_err(|e| CaptureError::Save(e.to_string()))?;
+    let entry = session_entry(session_dir, file, entry)?;
     s.manifest.runs.retain(|r| r.file != entry.file);
     s.manifest.runs.push(entry);
     s.save().map_err(|e| CaptureError::Save(e.to_string()))
@@ -610,12 +622,18 @@ mod tests {
             |p| seen = seen.max(p.top_rpm),
         )
         .expect("records");
-        assert!((seen - RunGenerator::TOP_RPM).abs() < 60.0, "speed read live: {seen}");
+        assert!(
+            (seen - RunGenerator::TOP_RPM).abs() < 60.0,
+            "speed read live: {seen}"
+        );
         let secs = crate::acquire::wav::probe(&path).expect("probe").frames as f64 / 8000.0;
         let stop = RunGenerator::stop_s();
-        assert!(secs > stop - 8.0 && secs < stop + 3.0, "{secs} s against stop at {stop}");
-        let r = crate::coast::analyse_run(&path, &crate::coast::RunOptions::default())
-            .expect("tracks");
+        assert!(
+            secs > stop - 8.0 && secs < stop + 3.0,
+            "{secs} s against stop at {stop}"
+        );
+        let r =
+            crate::coast::analyse_run(&path, &crate::coast::RunOptions::default()).expect("tracks");
         assert_eq!(r.direction, crate::coast::Direction::CoastDown);
         let c: Vec<f64> = r
             .critical_speeds
@@ -624,6 +642,9 @@ mod tests {
             .map(|c| c.speed_rpm)
             .collect();
         assert_eq!(c.len(), 1, "{c:?}");
-        assert!((c[0] / RunGenerator::CRITICAL_RPM - 1.0).abs() < 0.01, "{c:?}");
+        assert!(
+            (c[0] / RunGenerator::CRITICAL_RPM - 1.0).abs() < 0.01,
+            "{c:?}"
+        );
     }
 }

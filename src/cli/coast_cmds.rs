@@ -202,7 +202,11 @@ pub(super) fn record_run(a: RecordRunArgs) -> Result<()> {
         std::fs::create_dir_all(&runs)
             .with_context(|| format!("{}: cannot create the folder", runs.display()))?;
         crate::capture::run::new_run_path(&runs)
-    } else if a.out.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav")) {
+    } else if a
+        .out
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("wav"))
+    {
         if let Some(parent) = a.out.parent().filter(|p| !p.as_os_str().is_empty()) {
             std::fs::create_dir_all(parent)
                 .with_context(|| format!("{}: cannot create the folder", parent.display()))?;

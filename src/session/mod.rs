@@ -239,8 +239,7 @@ impl Manifest {
                 || r.tach_channel.max(r.channel) > 65534
                 || !(1..=360).contains(&r.pulses_per_rev)
                 || !(r.full_scale_volts.is_finite() && r.full_scale_volts > 0.0)
-                || r
-                    .sensitivity_mv_per_unit
+                || r.sensitivity_mv_per_unit
                     .is_some_and(|v| !(v.is_finite() && v > 0.0))
             {
                 return Err(format!(
