@@ -380,4 +380,28 @@ fn coastdown_compares_with_the_rotor_model() {
     let c = &v["model"]["comparison"][0];
     assert!((c["predicted_rpm"].as_f64().unwrap() - 7036.0).abs() < 2.0);
     assert!(c["difference_pct"].as_f64().unwrap().abs() < 1.0);
+    // The model's unbalance response, fitted by one complex factor, has the measured Bode
+    // curve's shape: the residual is small and, through the critical speed, the fitted lag
+    // follows the measured one (the same lag convention on both sides: a mirrored convention
+    // would turn the phase the other way through the resonance).
+    let r = &v["model"]["response"];
+    assert!(r["residual_pct"].as_f64().unwrap() < 15.0, "{r}");
+    let speeds: Vec<f64> = serde_json::from_value(r["speeds_rpm"].clone()).unwrap();
+    let ml: Vec<f64> = serde_json::from_value(r["measured_lag_deg"].clone()).unwrap();
+    let pl: Vec<f64> = serde_json::from_value(r["predicted_lag_deg"].clone()).unwrap();
+    let mut checked = 0;
+    for i in 0..speeds.len() {
+        if (speeds[i] - 7061.0).abs() < 500.0 {
+            let d = (ml[i] - pl[i] + 540.0).rem_euclid(360.0) - 180.0;
+            assert!(
+                d.abs() < 15.0,
+                "at {} rpm: {} against {}",
+                speeds[i],
+                ml[i],
+                pl[i]
+            );
+            checked += 1;
+        }
+    }
+    assert!(checked >= 5, "{checked}");
 }

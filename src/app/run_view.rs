@@ -12,9 +12,18 @@ use super::plots::{self, accent, bad, good, warn};
 use super::{Command, PathPurpose, TapgridApp, View, ViewCtx};
 use crate::coast::track::Quantity;
 use crate::coast::{RunOptions, RunResult, analyse_run};
+use crate::pipeline::run_model::RunModel;
+
+/// A run tracked, and the rotor model's view of it when the study has a service rotor.
+pub struct RunOutcome {
+    /// The tracking.
+    pub run: RunResult,
+    /// Model critical speeds and the fitted unbalance response (`None`: no service rotor).
+    pub model: Option<Result<RunModel, String>>,
+}
 
 /// The last tracking and the one running.
-pub type RunState = super::background::Background<RunResult>;
+pub type RunState = super::background::Background<RunOutcome>;
 
 /// The view's choices.
 #[derive(Debug, Clone, PartialEq)]
@@ -98,9 +107,26 @@ impl TapgridApp {
             return;
         };
         let options = self.ui.run.options();
-        let key = format!("{}|{options:?}", path.display());
+        // The model part of the key: the study's text (a changed bearing or shaft re-solves).
+        let study = self.doc.as_ref().and_then(|d| d.study.clone());
+        let model_key = study.as_ref().map_or(0, |s| {
+            use std::hash::{Hash, Hasher};
+            let mut h = std::collections::hash_map::DefaultHasher::new();
+            serde_json::to_string(s).unwrap_or_default().hash(&mut h);
+            h.finish()
+        });
+        let key = format!("{}|{options:?}|{model_key:x}", path.display());
+        if !self.run.wants(&key) {
+            return;
+        }
         self.run.start_for(key, "tapgrid-run", move || {
-            analyse_run(&path, &options).map_err(|e| e.to_string())
+            let run = analyse_run(&path, &options).map_err(|e| e.to_string())?;
+            let model = study.and_then(|st| match crate::rotor::file::from_study(&st) {
+                Ok(Some(file)) => Some(crate::pipeline::run_model::compare(&file, &run, None)),
+                Ok(None) => None,
+                Err(e) => Some(Err(e)),
+            });
+            Ok(RunOutcome { run, model })
         });
     }
 
@@ -235,20 +261,20 @@ impl TapgridApp {
 /// Draws the view.
 pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     let mut cmds = Vec::new();
-    let result = app.run.result.as_ref().map(|r| r.1.clone());
-    let predicted: Vec<f64> = app
-        .rotor
-        .result
+    let outcome = app.run.result.as_ref().map(|r| r.1.clone());
+    let model: Option<Result<RunModel, String>> = outcome
         .as_ref()
-        .and_then(|r| r.1.as_ref().ok())
-        .map(|r| {
-            r.campbell
-                .critical_speeds
-                .iter()
-                .filter(|c| c.order == 1 && c.whirl == crate::rotor::eigen::Whirl::Forward)
-                .map(|c| c.speed_rpm)
-                .collect()
-        })
+        .and_then(|o| o.as_ref().ok())
+        .and_then(|o| o.model.clone());
+    let result = outcome;
+    let fit = model
+        .as_ref()
+        .and_then(|m| m.as_ref().ok())
+        .and_then(|m| m.response.clone());
+    let predicted: Vec<f64> = model
+        .as_ref()
+        .and_then(|m| m.as_ref().ok())
+        .map(|m| m.critical_speeds_rpm.clone())
         .unwrap_or_default();
     egui::Panel::left("run-side")
         .default_size(330.0)
@@ -305,18 +331,19 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                     Some(Err(e)) => {
                         ui.label(RichText::new(e).color(bad()));
                     }
-                    Some(Ok(r)) => summary(ui, r, &predicted),
+                    Some(Ok(o)) => summary(ui, &o.run, &predicted, model.as_ref()),
                 }
                 ui.separator();
                 ui.label(RichText::new(crate::cautions::RUN).color(warn()).small());
             });
         });
-    let Some(Ok(r)) = result else {
+    let Some(Ok(o)) = result else {
         for c in cmds {
             app.push(c);
         }
         return;
     };
+    let r = &o.run;
     egui::CentralPanel::default().show(ui, |ui| {
         let w = ui.available_width();
         let h = ((ui.available_height() - 60.0) / 2.0).max(160.0);
@@ -324,14 +351,14 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         ui.horizontal(|ui| {
             ui.vertical(|ui| {
                 ui.set_width(w * 0.62);
-                bode(ui, &r, &predicted, h, link);
+                bode(ui, r, &predicted, fit.as_ref(), h, link);
             });
             ui.vertical(|ui| {
                 ui.set_width(w * 0.36);
-                polar(ui, &r, h);
+                polar(ui, r, h);
             });
         });
-        waterfall(ui, &r, h);
+        waterfall(ui, r, h);
     });
     for c in cmds {
         app.push(c);
@@ -504,7 +531,12 @@ fn record_panel(ui: &mut egui::Ui, app: &mut ViewCtx, cmds: &mut Vec<Command>) {
         });
 }
 
-fn summary(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64]) {
+fn summary(
+    ui: &mut egui::Ui,
+    r: &RunResult,
+    predicted: &[f64],
+    model: Option<&Result<RunModel, String>>,
+) {
     ui.label(format!(
         "{} revolutions, {:.0}–{:.0} rpm, {}",
         r.revolutions,
@@ -552,13 +584,38 @@ fn summary(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64]) {
             );
         }
     }
+    match model {
+        Some(Ok(m)) => {
+            if let Some(f) = &m.response {
+                ui.label(RichText::new("Rotor model").strong());
+                ui.label(
+                    RichText::new(format!(
+                        "Unbalance response at {:.3} m fitted to the 1×: {:.1} % residual \
+                         ({:.3}× {}, lag {:+.0}°)",
+                        f.position_m, f.residual_pct, f.scale, f.unbalance, f.angle_deg
+                    ))
+                    .color(accent()),
+                );
+            }
+        }
+        Some(Err(e)) => {
+            ui.label(RichText::new(format!("rotor model: {e}")).color(bad()));
+        }
+        None => {}
+    }
     for w in &r.warnings {
         ui.label(RichText::new(w).color(warn()).small());
     }
-    let _ = good();
 }
 
-fn bode(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64], h: f32, link: egui::Id) {
+fn bode(
+    ui: &mut egui::Ui,
+    r: &RunResult,
+    predicted: &[f64],
+    fit: Option<&crate::pipeline::run_model::ResponseFit>,
+    h: f32,
+    link: egui::Id,
+) {
     let unit = r.amplitude_unit;
     let marks = |p: &mut egui_plot::PlotUi<'_>| {
         for c in &r.critical_speeds {
@@ -586,6 +643,20 @@ fn bode(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64], h: f32, link: egui:
                 xy.sort_by(|a, b| a[0].total_cmp(&b[0]));
                 p.line(Line::new(format!("{order}×"), xy).color(plots::trace_color(k)));
             }
+            if let Some(f) = fit {
+                let xy: Vec<[f64; 2]> = f
+                    .speeds_rpm
+                    .iter()
+                    .zip(&f.predicted_amplitude)
+                    .map(|(s, a)| [*s, *a])
+                    .collect();
+                p.line(
+                    Line::new("model, fitted", xy)
+                        .color(accent())
+                        .style(egui_plot::LineStyle::dashed_dense())
+                        .width(2.0),
+                );
+            }
             marks(p);
         });
     plots::plot("run-phase")
@@ -595,6 +666,8 @@ fn bode(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64], h: f32, link: egui:
         .x_axis_label("speed (rpm)")
         .y_axis_label("phase lag\ndegrees")
         .show(ui, |p| {
+            // The measured 1× lags shown, to draw the model's on the same turn of 360°.
+            let mut reference: Vec<[f64; 2]> = Vec::new();
             for (k, (order, pts)) in r.tracks.iter().enumerate() {
                 // The averaged Bode data where the vector stands clear of its scatter (elsewhere
                 // the phase of noise says nothing), each confident stretch unwrapped on its own.
@@ -624,15 +697,57 @@ fn bode(ui: &mut egui::Ui, r: &RunResult, predicted: &[f64], h: f32, link: egui:
                     }
                     prev = Some(l);
                     segment.push([*s, l]);
+                    if *order == 1 {
+                        reference.push([*s, l]);
+                    }
                 }
                 flush(&mut segment, p);
+            }
+            if let Some(f) = fit {
+                let mut prev: Option<f64> = None;
+                let xy: Vec<[f64; 2]> = f
+                    .speeds_rpm
+                    .iter()
+                    .zip(&f.predicted_lag_deg)
+                    .map(|(s, l)| {
+                        let mut l = *l;
+                        if let Some(q) = prev {
+                            l += 360.0 * ((q - l) / 360.0).round();
+                        }
+                        prev = Some(l);
+                        [*s, l]
+                    })
+                    .collect();
+                // Shift by whole turns to meet the measured lag where the 1× is largest.
+                let peak = f
+                    .measured_amplitude
+                    .iter()
+                    .enumerate()
+                    .max_by(|a, b| a.1.total_cmp(b.1))
+                    .map_or(0, |(i, _)| i);
+                let shift = reference
+                    .iter()
+                    .min_by(|a, b| {
+                        (a[0] - f.speeds_rpm[peak])
+                            .abs()
+                            .total_cmp(&(b[0] - f.speeds_rpm[peak]).abs())
+                    })
+                    .zip(xy.get(peak))
+                    .map_or(0.0, |(m, q)| 360.0 * ((m[1] - q[1]) / 360.0).round());
+                let xy: Vec<[f64; 2]> = xy.iter().map(|q| [q[0], q[1] + shift]).collect();
+                p.line(
+                    Line::new("model, fitted", xy)
+                        .color(accent())
+                        .style(egui_plot::LineStyle::dashed_dense())
+                        .width(2.0),
+                );
             }
             marks(p);
         });
     ui.label(
         RichText::new(
-            "Red: critical speeds found; blue dashed: the rotor model's (Rotor at speed). \
-             Colours by order (first 1×).",
+            "Red: critical speeds found; blue dashed: the rotor model's critical speeds and its \
+             unbalance response fitted to the 1× (one complex factor). Colours by order (first 1×).",
         )
         .small(),
     );

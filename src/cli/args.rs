@@ -861,7 +861,12 @@ pub struct CoastdownArgs {
     #[arg(long, default_value_t = 0.0)]
     pub ac_corner: f64,
     /// A rotor file (or a session with a service rotor): its predicted critical speeds over the
-    /// run's range are compared with the measured ones in result.json.
+    /// run's range are compared with the measured ones, and its unbalance response fitted to
+    /// the measured 1×, in result.json.
     #[arg(long)]
     pub model: Option<PathBuf>,
+    /// Where the vibration sensor sits along the rotor, m, for the model's response (default:
+    /// the first bearing).
+    #[arg(long)]
+    pub sensor_position: Option<f64>,
 }

@@ -39,7 +39,7 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
     };
     let r = analyse_run(&a.wav, &o)?;
     let model = match &a.model {
-        Some(p) => Some(model_comparison(p, &r)?),
+        Some(p) => Some(model_comparison(p, &r, a.sensor_position)?),
         None => None,
     };
     std::fs::create_dir_all(&a.out)
@@ -102,29 +102,24 @@ pub(super) fn coastdown(a: CoastdownArgs) -> Result<()> {
                 c.predicted_rpm, c.measured_rpm, c.difference_pct
             );
         }
+        if let Some(f) = &m.response {
+            println!(
+                "model: unbalance response at {:.3} m fitted to the measured 1×: {:.1} % residual \
+                 ({:.3}× the model's unbalance, {:+.0}°)",
+                f.position_m, f.residual_pct, f.scale, f.angle_deg
+            );
+        }
     }
     println!("wrote {} and {}", tracking.display(), result.display());
     println!("{}", crate::cautions::RUN);
     Ok(())
 }
 
-/// The rotor model's view of a run.
-#[derive(serde::Serialize)]
-struct ModelComparison {
-    /// Forward 1× critical speeds the model predicts within the run's range, rpm.
-    critical_speeds_rpm: Vec<f64>,
-    /// Each measured 1× critical speed against the nearest predicted one.
-    comparison: Vec<Compared>,
-}
-
-#[derive(serde::Serialize)]
-struct Compared {
-    measured_rpm: f64,
-    predicted_rpm: f64,
-    difference_pct: f64,
-}
-
-fn model_comparison(path: &Path, r: &crate::coast::RunResult) -> Result<ModelComparison> {
+fn model_comparison(
+    path: &Path,
+    r: &crate::coast::RunResult,
+    sensor_position_m: Option<f64>,
+) -> Result<crate::pipeline::run_model::RunModel> {
     let study = super::model_cmds::read_study(path)?;
     let file = crate::rotor::file::from_study(&study)
         .map_err(|e| anyhow!("{}: {e}", path.display()))?
@@ -134,45 +129,8 @@ fn model_comparison(path: &Path, r: &crate::coast::RunResult) -> Result<ModelCom
                 path.display()
             )
         })?;
-    let [lo, hi] = r.speed_range_rpm;
-    let o = crate::rotor::run::AtSpeedOptions {
-        speeds_rpm: [lo, hi],
-        count: 101,
-        modes: 8,
-        elements: 40,
-    };
-    let at =
-        crate::rotor::run::at_speed(&file, &o).map_err(|e| anyhow!("{}: {e}", path.display()))?;
-    let predicted: Vec<f64> = at
-        .campbell
-        .critical_speeds
-        .iter()
-        .filter(|c| c.order == 1 && c.whirl == crate::rotor::eigen::Whirl::Forward)
-        .map(|c| c.speed_rpm)
-        .collect();
-    let comparison = r
-        .critical_speeds
-        .iter()
-        .filter(|c| c.order == 1)
-        .filter_map(|c| {
-            predicted
-                .iter()
-                .min_by(|a, b| {
-                    (*a - c.speed_rpm)
-                        .abs()
-                        .total_cmp(&(*b - c.speed_rpm).abs())
-                })
-                .map(|&p| Compared {
-                    measured_rpm: c.speed_rpm,
-                    predicted_rpm: p,
-                    difference_pct: 100.0 * (p - c.speed_rpm) / c.speed_rpm,
-                })
-        })
-        .collect();
-    Ok(ModelComparison {
-        critical_speeds_rpm: predicted,
-        comparison,
-    })
+    crate::pipeline::run_model::compare(&file, r, sensor_position_m)
+        .map_err(|e| anyhow!("{}: {e}", path.display()))
 }
 
 pub(super) fn record_run(a: RecordRunArgs) -> Result<()> {

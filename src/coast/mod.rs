@@ -87,6 +87,9 @@ pub struct RunResult {
     pub warnings: Vec<String>,
     /// Unit of the amplitudes.
     pub amplitude_unit: &'static str,
+    /// Quantity of the amplitudes.
+    #[serde(skip)]
+    pub quantity: Quantity,
     /// Revolutions tracked.
     pub revolutions: usize,
     /// Per order: the order and its points (not written to result.json).
@@ -236,6 +239,7 @@ pub fn analyse_run(path: &Path, o: &RunOptions) -> Result<RunResult, InputError>
         subsynchronous,
         warnings,
         amplitude_unit: o.quantity.unit(),
+        quantity: o.quantity,
         revolutions: speeds.len(),
         tracks: o.orders.iter().copied().zip(tracks).collect(),
         spectra,
