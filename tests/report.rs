@@ -173,3 +173,76 @@ fn bad_input_names_the_file_and_exits_2() {
         .code(2)
         .stderr(predicate::str::contains(junk.display().to_string()));
 }
+
+fn copy_dir(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for e in std::fs::read_dir(from).unwrap().flatten() {
+        let p = e.path();
+        if p.is_dir() {
+            copy_dir(&p, &to.join(e.file_name()));
+        } else if e.file_name() != "session.lock" {
+            std::fs::copy(&p, to.join(e.file_name())).unwrap();
+        }
+    }
+}
+
+/// A session's run is reported with its settings, its critical speed (the simulated Jeffcott
+/// rotor of rotor-notes §D1: 3020.96 rpm peak of the displacement response; the acceleration
+/// measured here peaks a little higher, within 1 %) and the run cautions; a `--run` that cannot
+/// be read is reported as such, the report is still written.
+#[test]
+fn a_sessions_runs_are_reported_with_their_critical_speeds() {
+    let t = tempfile::tempdir().unwrap();
+    let session = t.path().join("s");
+    copy_dir(&demo(), &session);
+    let runs = session.join("runs");
+    std::fs::create_dir_all(&runs).unwrap();
+    // A slow coast-down, so the sweep does not move the peak (rotor-notes §C6).
+    let sc = tapgrid::sim::run::RunScenario {
+        duration_s: 150.0,
+        sample_rate_hz: 8_000,
+        ..Default::default()
+    };
+    sc.write(&runs).unwrap();
+    let mut entry = tapgrid::capture::run::saved_run(1, "coast-down, outboard bearing, vertical");
+    entry.recorded = "2026-12-04 10:00 UTC".into();
+    tapgrid::capture::run::add_to_session(&session, &runs.join("run.wav"), entry).unwrap();
+    let mono = t.path().join("mono.wav");
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: 8000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(&mono, spec).unwrap();
+    for _ in 0..8000 {
+        w.write_sample(0i16).unwrap();
+    }
+    w.finalize().unwrap();
+    let page = t.path().join("r.html");
+    bin()
+        .arg("report")
+        .arg(&session)
+        .arg("--out")
+        .arg(&page)
+        .arg("--run")
+        .arg(&mono)
+        .assert()
+        .success();
+    let html = std::fs::read_to_string(&page).unwrap();
+    let i = html
+        .find("<h2>Run-up and coast-down</h2>")
+        .expect("the section");
+    let sec = &html[i..];
+    assert!(sec.contains("Recording a run means a machine turning"));
+    assert!(sec.contains("coast-down, outboard bearing, vertical"));
+    assert!(sec.contains("recorded 2026-12-04 10:00 UTC"));
+    let row = sec.find("<tr><td>").expect("a critical speed row");
+    let rpm: f64 = sec[row + 8..].split('<').next().unwrap().parse().unwrap();
+    assert!((rpm / 3020.96 - 1.0).abs() < 0.01, "{rpm}");
+    assert!(sec.contains("mono.wav") && sec.contains("could not be tracked"));
+    assert!(
+        sec.contains("channel"),
+        "the mono file's error names its channels"
+    );
+}

@@ -383,6 +383,9 @@ impl TapgridApp {
             analysis,
             modes: d.modal.clone(),
             study: d.study.clone().zip(d.study_result.clone()),
+            runs: d.session.as_ref().map_or_else(Vec::new, |s| {
+                crate::report::runs::session_runs(&d.path, &s.manifest.runs)
+            }),
         };
         self.io.send(Job::WriteReport(Box::new(job)));
     }

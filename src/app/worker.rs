@@ -213,6 +213,8 @@ pub struct ReportJob {
     pub modes: Option<Arc<ModalResult>>,
     /// The model study and its result, when there is one.
     pub study: Option<(Study, Arc<StudyResult>)>,
+    /// The session's runs.
+    pub runs: Vec<crate::report::runs::RunSource>,
 }
 
 /// Handle to the worker thread.
@@ -508,7 +510,9 @@ fn write_report(r: &ReportJob) -> Outcome {
         }
         None => None,
     };
+    let runs = crate::report::runs::track_runs(&r.runs, r.study.as_ref().map(|(s, _)| s));
     let input = crate::report::document::ReportInput {
+        runs: &runs,
         part: &r.part.name,
         notes: &r.part.notes,
         source: &r.source,

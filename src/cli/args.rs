@@ -312,6 +312,13 @@ pub struct ReportArgs {
     /// Part name shown in the title (default: the session's part, else the folder's name).
     #[arg(long)]
     pub part: Option<String>,
+    /// A run-up or coast-down recording (tach on channel 0, vibration on 1) to report beside
+    /// the session's own runs; repeatable.
+    #[arg(long)]
+    pub run: Vec<PathBuf>,
+    /// Vibration sensor sensitivity of the `--run` recordings, mV per m/s².
+    #[arg(long)]
+    pub run_sensitivity: Option<f64>,
     /// Modal stage.
     #[command(flatten)]
     pub modal: ModalArgs,

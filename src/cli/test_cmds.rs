@@ -139,7 +139,35 @@ pub(super) fn report(a: ReportArgs) -> Result<()> {
         }
         None => None,
     };
+    let mut sources = t
+        .session
+        .as_ref()
+        .map(|s| report::runs::session_runs(&s.dir, &s.manifest.runs))
+        .unwrap_or_default();
+    if a.run_sensitivity
+        .is_some_and(|v| !(v.is_finite() && v > 0.0))
+    {
+        bail!("--run-sensitivity must be positive");
+    }
+    for p in &a.run {
+        sources.push(report::runs::RunSource {
+            path: p.clone(),
+            options: crate::coast::RunOptions {
+                sensitivity_mv_per_unit: a.run_sensitivity,
+                ..crate::coast::RunOptions::default()
+            },
+            recorded: String::new(),
+            note: String::new(),
+        });
+    }
+    let runs = report::runs::track_runs(&sources, study.as_ref());
+    for r in &runs {
+        if let Err(e) = &r.result {
+            eprintln!("tapgrid: warning: a run could not be tracked (reported as such): {e}");
+        }
+    }
     let input = report::document::ReportInput {
+        runs: &runs,
         part: &part,
         notes: &notes,
         source: &a.input,

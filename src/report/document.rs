@@ -37,6 +37,8 @@ pub struct ReportInput<'a> {
     pub written_utc: &'a str,
     /// The rotor at speed, when the study gives a service rotor.
     pub rotor: Option<&'a crate::rotor::run::AtSpeed>,
+    /// Run-ups and coast-downs, tracked.
+    pub runs: &'a [super::runs::ReportRun],
 }
 
 /// The rotor at speed for a report: solved when the study holds a service rotor (bearings with
@@ -110,6 +112,7 @@ pub fn html(r: &ReportInput) -> String {
              there is no correlation and no margin check in this report.</p>",
         );
     }
+    super::runs::section(&mut s, r.runs);
     s.push_str("</body></html>\n");
     s
 }
