@@ -299,9 +299,9 @@ fn run(s: &mut String, r: &ReportRun) {
         let _ = write!(
             s,
             "<p class=\"bad\">Subsynchronous component at {:.3}× running speed from {:.0} to \
-             {:.0} rpm, up to {:.3e} {}: a whirl or rub to be explained before the machine runs \
+             {:.0} rpm, up to {:.3e} m/s²: a whirl or rub to be explained before the machine runs \
              there.</p>",
-            sub.order, sub.from_rpm, sub.to_rpm, sub.peak_amplitude, "m/s²"
+            sub.order, sub.from_rpm, sub.to_rpm, sub.peak_amplitude
         );
     }
     match &r.model {
