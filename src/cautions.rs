@@ -37,3 +37,8 @@ pub const ROTOR: &str = "Advisory: a linearised rotor model — bearings as eigh
 /// What recording and reading a run-up or coast-down asks of the person.
 pub const RUN: &str = "Advisory. Recording a run means a machine turning: guards on, stay clear of \
      rotating parts and follow the site's procedure.";
+
+/// What a test plan rests on.
+pub const PLAN: &str = "A plan from a model: the real part's modes differ (geometry, fits, \
+     supports), so confirm the band and the node positions with a first tap at a few points. \
+     Tap only a part that is stopped, isolated and locked out; wear eye protection.";

@@ -458,6 +458,52 @@ pub struct ModelArgs {
     pub stiffness_map: Option<String>,
 }
 
+/// `tapgrid plan`.
+#[derive(Debug, Args)]
+pub struct PlanArgs {
+    /// The shaft model (JSON) or a session holding one; or give --length and --diameter.
+    pub shaft: Option<PathBuf>,
+    /// Band of interest, LO:HI Hz.
+    #[arg(long)]
+    pub band: String,
+    /// Stations you mean to use (default: the plan proposes a count).
+    #[arg(long)]
+    pub stations: Option<usize>,
+    /// Damping ratio expected of the part's modes (a bare steel shaft: 0.0005–0.005).
+    #[arg(long, default_value_t = 0.002)]
+    pub damping: f64,
+    /// A uniform part instead of a model file: length, m.
+    #[arg(long, conflicts_with = "shaft")]
+    pub length: Option<f64>,
+    /// A uniform part: outer diameter, m.
+    #[arg(long, requires = "length")]
+    pub diameter: Option<f64>,
+    /// A uniform part: bore, m (0: solid).
+    #[arg(long, default_value_t = 0.0)]
+    pub bore: f64,
+    /// A uniform part: material.
+    #[arg(long, value_enum, default_value_t = MaterialArg::Steel)]
+    pub material: MaterialArg,
+    /// Sample rate of the recording, Hz.
+    #[arg(long, default_value_t = 51_200.0)]
+    pub rate: f64,
+    /// Keep the reference farther than this fraction of the length from any in-band node.
+    #[arg(long, default_value_t = 0.05)]
+    pub node_fraction: f64,
+    /// Also write DIR/plan.json.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+}
+
+/// Material of a uniform part.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum MaterialArg {
+    /// Structural steel, 210 GPa, 7850 kg/m³.
+    Steel,
+    /// Aluminium alloy, 70 GPa, 2700 kg/m³.
+    Aluminium,
+}
+
 /// `tapgrid correlate`.
 #[derive(Debug, Args)]
 pub struct CorrelateArgs {

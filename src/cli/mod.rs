@@ -76,6 +76,9 @@ pub enum Command {
     Devices,
     /// Natural frequencies and mode shapes of a shaft model (JSON) → modes.json.
     Model(ModelArgs),
+    /// Plan a test before tapping: modes in the band and their nodes, reference placement,
+    /// stations needed, suspension points, hammer tip and record length (text, plan.json).
+    Plan(PlanArgs),
     /// Pair a test's modes with a shaft model's by MAC: frequency differences, MAC matrix.
     Correlate(CorrelateArgs),
     /// Running-speed margin check of measured modes and/or model critical speeds (advisory).
@@ -137,6 +140,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Capture(a) => capture(a),
         Command::Devices => devices(),
         Command::Model(a) => model(a),
+        Command::Plan(a) => model_cmds::plan(a),
         Command::Correlate(a) => correlate(a),
         Command::Margin(a) => margin(a),
         Command::Calibrate(a) => calibrate(a),

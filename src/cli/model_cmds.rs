@@ -349,3 +349,58 @@ pub(super) fn margin(a: MarginArgs) -> Result<()> {
     println!("{}", crate::cautions::MARGIN_NOTE);
     Ok(())
 }
+
+pub(super) fn plan(a: PlanArgs) -> Result<()> {
+    use crate::model::beam::{Material, Section, Shaft};
+    let (lo, hi) = colon_range(&a.band, "band")?;
+    let shaft = match (&a.shaft, a.length, a.diameter) {
+        (Some(p), _, _) => read_study(p)?.shaft,
+        (None, Some(length), Some(diameter)) => {
+            let shaft = Shaft {
+                material: match a.material {
+                    MaterialArg::Steel => Material::STEEL,
+                    MaterialArg::Aluminium => Material::ALUMINIUM,
+                },
+                sections: vec![Section {
+                    length_m: length,
+                    outer_diameter_m: diameter,
+                    inner_diameter_m: a.bore,
+                    material: None,
+                }],
+                discs: Vec::new(),
+                supports: Vec::new(),
+            };
+            shaft
+                .validate()
+                .map_err(|m| anyhow!("--length/--diameter/--bore: {m}"))?;
+            shaft
+        }
+        _ => bail!("give a shaft model (JSON or session), or --length and --diameter"),
+    };
+    let o = crate::model::plan::PlanOptions {
+        band_hz: [lo, hi],
+        stations: a.stations,
+        damping_ratio: a.damping,
+        node_fraction: a.node_fraction,
+        sample_rate_hz: a.rate,
+    };
+    let p = crate::model::plan::plan(&shaft, &o).map_err(|m| {
+        anyhow!(
+            "{}: {m}",
+            a.shaft
+                .as_ref()
+                .map_or("plan".to_string(), |p| p.display().to_string())
+        )
+    })?;
+    print!("{}", crate::model::plan::plan_text(&p));
+    if let Some(dir) = &a.out {
+        std::fs::create_dir_all(dir)
+            .with_context(|| format!("{}: cannot create folder", dir.display()))?;
+        let path = dir.join("plan.json");
+        crate::atomic::write_bytes(&path, serde_json::to_string_pretty(&p)?.as_bytes())
+            .with_context(|| format!("{}: cannot write", path.display()))?;
+        println!("wrote {}", path.display());
+    }
+    println!("{}", crate::cautions::PLAN);
+    Ok(())
+}

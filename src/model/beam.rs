@@ -26,6 +26,14 @@ impl Material {
         density_kg_m3: 7850.0,
         poisson_ratio: 0.3,
     };
+
+    /// Wrought aluminium alloy: E = 70 GPa, ρ = 2700 kg/m³, ν = 0.33 (handbook values, from
+    /// memory; common practice).
+    pub const ALUMINIUM: Material = Material {
+        youngs_modulus_pa: 70e9,
+        density_kg_m3: 2700.0,
+        poisson_ratio: 0.33,
+    };
 }
 
 /// A cylindrical section of the shaft.

@@ -3,5 +3,6 @@
 pub mod beam;
 pub mod correlate;
 pub mod margin;
+pub mod plan;
 pub mod run;
 pub mod study;
