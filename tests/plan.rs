@@ -124,7 +124,7 @@ fn record_length_follows_the_decay_and_resolution_rules() {
     assert!(p.record.samples as f64 >= lines * 48_000.0);
     let mut m = p.record.samples;
     for k in [2, 3, 5] {
-        while m % k == 0 {
+        while m.is_multiple_of(k) {
             m /= k;
         }
     }

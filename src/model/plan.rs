@@ -219,7 +219,7 @@ fn smooth_at_least(at_least: usize) -> usize {
     loop {
         let mut m = n;
         for p in [2, 3, 5] {
-            while m % p == 0 {
+            while m.is_multiple_of(p) {
                 m /= p;
             }
         }
