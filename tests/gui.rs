@@ -902,3 +902,20 @@ fn a_run_recorded_in_the_window_is_saved_into_the_session_and_tracked() {
     h.get_by_label_contains("revolutions,");
     h.get_by_label("Runs of this session");
 }
+
+/// The setup view plans the test from the shaft model: the modes in the band (the demo's shaft
+/// model puts three of them near the simulated part's 291, 717 and 1268 Hz), the station counts
+/// and the cautions; a smaller station count is warned about.
+#[test]
+fn the_setup_view_shows_the_test_plan() {
+    let mut h = open_demo();
+    h.get_by_label("Test setup").click();
+    settle(&mut h);
+    h.get_by_label("Test plan");
+    h.get_by_label_contains("Modes in the band: 291, 717, 1268");
+    h.get_by_label_contains("keep the modes apart");
+    h.get_by_label_contains("locked out");
+    h.state_mut().ui.plan.stations = Some(4);
+    settle(&mut h);
+    h.get_by_label_contains("4 stations cannot tell the in-band modes apart");
+}

@@ -14,6 +14,7 @@ mod margin_view;
 mod model_edit;
 mod model_view;
 mod modes_view;
+mod plan_panel;
 pub mod plots;
 mod rotor_view;
 mod run_record;
@@ -87,6 +88,8 @@ pub struct TapgridApp {
     pub(crate) run: run_view::RunState,
     /// A run being recorded from the input.
     pub recording: run_view::RecordingState,
+    /// The test plan of the setup view.
+    pub(crate) plan: plan_panel::PlanState,
     pub(crate) ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
@@ -121,6 +124,7 @@ impl TapgridApp {
             rotor: Default::default(),
             run: Default::default(),
             recording: Default::default(),
+            plan: Default::default(),
             ctx_slot,
         };
         if let Some(p) = path {
@@ -162,7 +166,11 @@ impl TapgridApp {
 
     /// True when nothing is queued: no command waiting, the workers and the rotor solve idle.
     pub fn idle(&self) -> bool {
-        self.commands.is_empty() && self.busy().is_none() && !self.rotor_busy() && !self.run_busy()
+        self.commands.is_empty()
+            && self.busy().is_none()
+            && !self.rotor_busy()
+            && !self.run_busy()
+            && !self.plan_busy()
     }
 
     /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
@@ -202,6 +210,7 @@ impl TapgridApp {
         }
         self.poll_rotor(ctx);
         self.poll_run(ctx);
+        self.poll_plan(ctx);
         self.apply_pending(ctx);
     }
 

@@ -51,6 +51,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         if let Some(e) = &doc.analysis_error {
             ui.label(RichText::new(format!("Analysis failed: {e}")).color(bad()));
         }
+        super::plan_panel::show(ui, app);
         ui.columns(2, |cols| {
             let ui = &mut cols[0];
             ui.group(|ui| {

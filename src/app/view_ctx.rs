@@ -41,6 +41,8 @@ pub struct UiState {
     pub rotor: super::rotor_view::RotorEdit,
     /// The run view's choices.
     pub run: super::run_view::RunEdit,
+    /// The test plan's choices.
+    pub plan: super::plan_panel::PlanEdit,
     pub(super) plot_scratch: plots::Scratch,
     pub(super) overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
 }
@@ -65,6 +67,7 @@ impl Default for UiState {
             capture_part: String::new(),
             rotor: Default::default(),
             run: Default::default(),
+            plan: Default::default(),
             plot_scratch: plots::Scratch::default(),
             overlays: Default::default(),
         }
@@ -93,6 +96,8 @@ pub struct ViewCtx<'a> {
     pub run: &'a super::run_view::RunState,
     /// The run being recorded, as last reported.
     pub recording: &'a super::run_view::RecordingState,
+    /// The test plan.
+    pub plan: &'a super::plan_panel::PlanState,
     commands: &'a mut Vec<Command>,
 }
 
@@ -122,6 +127,7 @@ impl TapgridApp {
             rotor: &self.rotor,
             run: &self.run,
             recording: &self.recording,
+            plan: &self.plan,
             commands: &mut self.commands,
         }
     }
