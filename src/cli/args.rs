@@ -504,6 +504,29 @@ pub enum MaterialArg {
     Aluminium,
 }
 
+/// `tapgrid check`.
+#[derive(Debug, Args)]
+pub struct CheckArgs {
+    /// A session or WAV set folder (analysed and fitted automatically).
+    pub input: PathBuf,
+    /// A second test of the same part with the reference at another station (reciprocity).
+    #[arg(long)]
+    pub second: Option<PathBuf>,
+    /// Reference station of the second test (default: its own setup's).
+    #[arg(long)]
+    pub second_reference: Option<u32>,
+    /// The shaft model (JSON, or a session holding one) for the mass line (default: the
+    /// input's own model).
+    #[arg(long)]
+    pub model: Option<PathBuf>,
+    /// Also write DIR/checks.json.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Setup for a WAV set (a session uses its own); set --reference for the driving point.
+    #[command(flatten)]
+    pub setup: SetupArgs,
+}
+
 /// `tapgrid correlate`.
 #[derive(Debug, Args)]
 pub struct CorrelateArgs {

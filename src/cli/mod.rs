@@ -81,6 +81,9 @@ pub enum Command {
     Plan(PlanArgs),
     /// Pair a test's modes with a shaft model's by MAC: frequency differences, MAC matrix.
     Correlate(CorrelateArgs),
+    /// Check the data's physics: driving point signs and antiresonances, mass line,
+    /// reciprocity with a second reference, linearity, spatial aliasing, reference near a node.
+    Check(CheckArgs),
     /// Running-speed margin check of measured modes and/or model critical speeds (advisory).
     Margin(MarginArgs),
     /// A bearing's operating point and eight stiffness and damping coefficients (JSON to stdout).
@@ -142,6 +145,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Model(a) => model(a),
         Command::Plan(a) => model_cmds::plan(a),
         Command::Correlate(a) => correlate(a),
+        Command::Check(a) => test_cmds::check(a),
         Command::Margin(a) => margin(a),
         Command::Calibrate(a) => calibrate(a),
         Command::Bearing(a) => bearing(a),

@@ -260,3 +260,52 @@ pub(super) fn bench_verdict(a: &BenchVerdictArgs) -> Result<()> {
     );
     Ok(())
 }
+
+pub(super) fn check(a: CheckArgs) -> Result<()> {
+    let t = open_test(&a.input, &a.setup, &ModalArgs::default())?;
+    let analysis = analysis::run(&t.data, &t.setup)?;
+    let set = crate::modal::FrfSet::from_analysis(&analysis)
+        .ok_or_else(|| anyhow!("{}: no station has an accepted hit", a.input.display()))?;
+    let modes = fit_modes(&a.input, &analysis, t.modal.as_ref())?;
+    let shaft = match &a.model {
+        Some(p) => Some(read_study(p)?.shaft),
+        None => t
+            .session
+            .as_ref()
+            .and_then(|s| s.manifest.model.as_ref().map(|m| m.shaft.clone())),
+    };
+    let second = match &a.second {
+        Some(p) => {
+            let mut args = SetupArgs::default();
+            args.reference = a.second_reference;
+            let t2 = open_test(p, &args, &ModalArgs::default())?;
+            let a2 = analysis::run(&t2.data, &t2.setup)?;
+            Some(
+                crate::modal::FrfSet::from_analysis(&a2)
+                    .ok_or_else(|| anyhow!("{}: no station has an accepted hit", p.display()))?,
+            )
+        }
+        None => None,
+    };
+    let checks = crate::pipeline::checks::physics(
+        &t.data,
+        &analysis,
+        &set,
+        &modes,
+        shaft.as_ref(),
+        second.as_ref(),
+    );
+    print!("{}", crate::pipeline::checks::checks_text(&checks));
+    if let Some(dir) = &a.out {
+        std::fs::create_dir_all(dir)
+            .with_context(|| format!("{}: cannot create folder", dir.display()))?;
+        let path = dir.join("checks.json");
+        crate::atomic::write_derived(
+            &path,
+            serde_json::to_string_pretty(&serde_json::json!({ "checks": checks }))?.as_bytes(),
+        )
+        .with_context(|| format!("{}: cannot write", path.display()))?;
+        println!("wrote {}", path.display());
+    }
+    Ok(())
+}

@@ -2,6 +2,7 @@
 //! command line, the window's worker and the report, so that they cannot disagree on what a
 //! test's setup is, which band it covered or how its margins are checked.
 
+pub mod checks;
 pub mod run_model;
 
 use std::path::Path;
