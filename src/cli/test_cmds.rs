@@ -276,8 +276,10 @@ pub(super) fn check(a: CheckArgs) -> Result<()> {
     };
     let second = match &a.second {
         Some(p) => {
-            let mut args = SetupArgs::default();
-            args.reference = a.second_reference;
+            let args = SetupArgs {
+                reference: a.second_reference,
+                ..Default::default()
+            };
             let t2 = open_test(p, &args, &ModalArgs::default())?;
             let a2 = analysis::run(&t2.data, &t2.setup)?;
             Some(
