@@ -114,9 +114,11 @@ fn the_mass_line_of_a_uniform_shaft_is_4_over_m_at_an_end() {
 fn reciprocity_holds_between_two_references_and_catches_a_sensitivity_slip() {
     let t = tempfile::tempdir().unwrap();
     let sc1 = Scenario::default();
-    let mut sc2 = Scenario::default();
-    sc2.reference_station = 6;
-    sc2.seed = sc1.seed + 17;
+    let sc2 = Scenario {
+        reference_station: 6,
+        seed: sc1.seed + 17,
+        ..Default::default()
+    };
     sc1.write(&t.path().join("a")).unwrap();
     sc2.write(&t.path().join("b")).unwrap();
     let (_, _, a, _) = analyse(&t.path().join("a"), &setup_for(&sc1));
@@ -137,9 +139,11 @@ fn reciprocity_holds_between_two_references_and_catches_a_sensitivity_slip() {
 #[test]
 fn linearity_is_judged_where_a_station_has_two_force_levels() {
     let t = tempfile::tempdir().unwrap();
-    let mut sc = Scenario::default();
-    sc.hits_per_station = 4;
-    sc.weak_hits = vec![(4, 1)];
+    let sc = Scenario {
+        hits_per_station: 4,
+        weak_hits: vec![(4, 1)],
+        ..Default::default()
+    };
     sc.write(t.path()).unwrap();
     let mut setup = setup_for(&sc);
     setup.quality.weak_fraction = 0.01;
