@@ -919,3 +919,15 @@ fn the_setup_view_shows_the_test_plan() {
     settle(&mut h);
     h.get_by_label_contains("4 stations cannot tell the in-band modes apart");
 }
+
+/// The modes view checks the fitted test's physics on its own thread: the demo's reference
+/// station reads as a driving point and its mass line agrees with the shaft model's.
+#[test]
+fn the_modes_view_shows_the_physics_checks() {
+    let mut h = open_demo();
+    h.state_mut().settings.view = View::Modes;
+    settle(&mut h);
+    h.get_by_label("Physics checks");
+    h.get_by_label_contains("reads as a driving point");
+    h.get_by_label_contains("sensitivities and the part's mass agree");
+}

@@ -54,6 +54,9 @@ use crate::setup::Setup;
 use crate::signal::HitTraces;
 use worker::{Job, Outcome, Worker};
 
+/// The physics checks of the fitted test.
+pub type ChecksState = background::Background<Vec<crate::pipeline::checks::Check>>;
+
 /// Key under which [`Settings`] persist in eframe's storage.
 pub const SETTINGS_KEY: &str = "tapgrid-settings";
 
@@ -90,6 +93,8 @@ pub struct TapgridApp {
     pub recording: run_view::RecordingState,
     /// The test plan of the setup view.
     pub(crate) plan: plan_panel::PlanState,
+    /// The physics checks of the modes view.
+    pub(crate) checks: ChecksState,
     pub(crate) ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
@@ -125,6 +130,7 @@ impl TapgridApp {
             run: Default::default(),
             recording: Default::default(),
             plan: Default::default(),
+            checks: Default::default(),
             ctx_slot,
         };
         if let Some(p) = path {
@@ -171,6 +177,7 @@ impl TapgridApp {
             && !self.rotor_busy()
             && !self.run_busy()
             && !self.plan_busy()
+            && !self.checks.busy()
     }
 
     /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
@@ -211,7 +218,44 @@ impl TapgridApp {
         self.poll_rotor(ctx);
         self.poll_run(ctx);
         self.poll_plan(ctx);
+        self.poll_checks(ctx);
         self.apply_pending(ctx);
+    }
+
+    /// Checks the fitted test's physics when the modes view is shown and the fit changed.
+    fn poll_checks(&mut self, ctx: &egui::Context) {
+        self.checks.collect(ctx);
+        if self.settings.view != View::Modes {
+            return;
+        }
+        let Some(d) = &self.doc else { return };
+        let (Some(a), Some(frfs), Some(m)) = (&d.analysis, &d.frfs, &d.modal) else {
+            return;
+        };
+        let shaft = d.study.as_ref().map(|s| s.shaft.clone());
+        let key = format!(
+            "{}|{:p}|{}",
+            self.analysis_stamp,
+            Arc::as_ptr(m),
+            shaft
+                .as_ref()
+                .map(|s| serde_json::to_string(s).unwrap_or_default())
+                .unwrap_or_default()
+        );
+        if !self.checks.wants(&key) {
+            return;
+        }
+        let (data, a, frfs, m) = (d.data.clone(), a.clone(), frfs.clone(), m.clone());
+        self.checks.start_for(key, "tapgrid-checks", move || {
+            Ok(crate::pipeline::checks::physics(
+                &data,
+                &a,
+                &frfs,
+                &m,
+                shaft.as_ref(),
+                None,
+            ))
+        });
     }
 
     fn apply_pending(&mut self, ctx: &egui::Context) {

@@ -65,66 +65,70 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     egui::Panel::left("mode-table")
         .default_size(440.0)
         .show(ui, |ui| {
-            ui.heading("Modes");
-            egui::Grid::new("modes-grid")
-                .striped(true)
-                .num_columns(6)
-                .show(ui, |ui| {
-                    for h in ["#", "f (Hz)", "ζ (%)", "damping from", "MPC", "method"] {
-                        ui.label(RichText::new(h).strong());
-                    }
-                    ui.end_row();
-                    for (k, md) in m.modes.iter().enumerate() {
-                        let r = ui.add(egui::Button::selectable(k == sel, format!("{}", k + 1)));
-                        if r.clicked() {
-                            cmds.push(Command::SelectMode(k));
+            egui::ScrollArea::vertical().show(ui, |ui| {
+                ui.heading("Modes");
+                egui::Grid::new("modes-grid")
+                    .striped(true)
+                    .num_columns(6)
+                    .show(ui, |ui| {
+                        for h in ["#", "f (Hz)", "ζ (%)", "damping from", "MPC", "method"] {
+                            ui.label(RichText::new(h).strong());
                         }
-                        ui.label(format!("{:.2}", md.frequency_hz));
-                        ui.label(
-                            md.damping_ratio
-                                .map_or("—".into(), |z| format!("{:.3}", z * 100.0)),
-                        );
-                        ui.label(damping_word(md.damping_source));
-                        let mpc_color = if md.mpc >= 0.9 { good() } else { warn() };
-                        ui.label(RichText::new(format!("{:.3}", md.mpc)).color(mpc_color));
-                        ui.label(method_word(md.method))
-                            .on_hover_text(md.notes.join("\n"));
                         ui.end_row();
+                        for (k, md) in m.modes.iter().enumerate() {
+                            let r =
+                                ui.add(egui::Button::selectable(k == sel, format!("{}", k + 1)));
+                            if r.clicked() {
+                                cmds.push(Command::SelectMode(k));
+                            }
+                            ui.label(format!("{:.2}", md.frequency_hz));
+                            ui.label(
+                                md.damping_ratio
+                                    .map_or("—".into(), |z| format!("{:.3}", z * 100.0)),
+                            );
+                            ui.label(damping_word(md.damping_source));
+                            let mpc_color = if md.mpc >= 0.9 { good() } else { warn() };
+                            ui.label(RichText::new(format!("{:.3}", md.mpc)).color(mpc_color));
+                            ui.label(method_word(md.method))
+                                .on_hover_text(md.notes.join("\n"));
+                            ui.end_row();
+                        }
+                    });
+                ui.separator();
+                ui.horizontal(|ui| {
+                    let label = if app.ui.playing { "Pause" } else { "Play" };
+                    if ui.button(label).clicked() {
+                        cmds.push(Command::TogglePlay);
                     }
+                    ui.label("(Space)");
                 });
-            ui.separator();
-            ui.horizontal(|ui| {
-                let label = if app.ui.playing { "Pause" } else { "Play" };
-                if ui.button(label).clicked() {
-                    cmds.push(Command::TogglePlay);
+                ui.add(egui::Slider::new(&mut app.settings.amplitude, 0.1..=1.5).text("amplitude"));
+                ui.add(
+                    egui::Slider::new(&mut app.settings.speed_hz, 0.1..=3.0)
+                        .text("cycles per second"),
+                );
+                for w in &m.warnings {
+                    ui.label(RichText::new(w).color(warn()).small());
                 }
-                ui.label("(Space)");
-            });
-            ui.add(egui::Slider::new(&mut app.settings.amplitude, 0.1..=1.5).text("amplitude"));
-            ui.add(
-                egui::Slider::new(&mut app.settings.speed_hz, 0.1..=3.0).text("cycles per second"),
-            );
-            for w in &m.warnings {
-                ui.label(RichText::new(w).color(warn()).small());
-            }
-            ui.separator();
-            ui.label(RichText::new("Auto-MAC").strong());
-            let labels: Vec<String> = (1..=m.auto_mac.len()).map(|k| k.to_string()).collect();
-            if let Some((i, _)) =
-                plots::heat_map(ui, &m.auto_mac, &labels, &labels, (Some(sel), Some(sel)))
-            {
-                cmds.push(Command::SelectMode(i));
-            }
-            ui.label(
-                RichText::new("MAC 0 (dark) … 1 (bright); off-diagonal should be near 0").small(),
-            );
-            // Two modes whose shapes look alike at these stations: too few stations to tell
-            // them apart (spatial aliasing), or one mode found twice.
-            for i in 0..m.auto_mac.len() {
-                for j in i + 1..m.auto_mac.len() {
-                    let v = m.auto_mac[i][j];
-                    if v > 0.9 {
-                        ui.label(
+                ui.separator();
+                ui.label(RichText::new("Auto-MAC").strong());
+                let labels: Vec<String> = (1..=m.auto_mac.len()).map(|k| k.to_string()).collect();
+                if let Some((i, _)) =
+                    plots::heat_map(ui, &m.auto_mac, &labels, &labels, (Some(sel), Some(sel)))
+                {
+                    cmds.push(Command::SelectMode(i));
+                }
+                ui.label(
+                    RichText::new("MAC 0 (dark) … 1 (bright); off-diagonal should be near 0")
+                        .small(),
+                );
+                // Two modes whose shapes look alike at these stations: too few stations to tell
+                // them apart (spatial aliasing), or one mode found twice.
+                for i in 0..m.auto_mac.len() {
+                    for j in i + 1..m.auto_mac.len() {
+                        let v = m.auto_mac[i][j];
+                        if v > 0.9 {
+                            ui.label(
                             RichText::new(format!(
                                 "Modes {} and {} have MAC {v:.2}: the stations cannot tell their \
                                  shapes apart (add stations between, or one mode was found twice)",
@@ -134,9 +138,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
                             .color(warn())
                             .small(),
                         );
+                        }
                     }
                 }
-            }
+                ui.separator();
+                physics_checks(ui, app.checks);
+            });
         });
     let md = &m.modes[sel];
     egui::CentralPanel::default().show(ui, |ui| {
@@ -371,4 +378,39 @@ mod tests {
         assert!((n[0] - 0.5).abs() < 1e-12);
         assert!((n[1] - 2.25).abs() < 1e-12);
     }
+}
+
+/// The data's physics checks (driving point, mass line, linearity, grid), made on a thread of
+/// their own after each fit.
+fn physics_checks(ui: &mut egui::Ui, checks: &super::ChecksState) {
+    egui::CollapsingHeader::new(RichText::new("Physics checks").strong())
+        .id_salt("physics-checks")
+        .default_open(true)
+        .show(ui, |ui| match checks.result.as_ref().map(|r| &r.1) {
+            None => {
+                ui.label("Checking…");
+            }
+            Some(Err(e)) => {
+                ui.label(RichText::new(e).color(super::plots::bad()));
+            }
+            Some(Ok(list)) => {
+                for c in list.iter() {
+                    let (tag, colour) = match c.passed {
+                        Some(true) => ("ok", good()),
+                        Some(false) => ("check", super::plots::bad()),
+                        None => ("—", ui.visuals().weak_text_color()),
+                    };
+                    ui.horizontal_wrapped(|ui| {
+                        ui.label(RichText::new(tag).color(colour).strong());
+                        ui.label(RichText::new(&c.words).small());
+                    });
+                }
+                ui.label(
+                    RichText::new(
+                        "Reciprocity needs a second test: tapgrid check SESSION --second OTHER.",
+                    )
+                    .small(),
+                );
+            }
+        });
 }

@@ -98,6 +98,8 @@ pub struct ViewCtx<'a> {
     pub recording: &'a super::run_view::RecordingState,
     /// The test plan.
     pub plan: &'a super::plan_panel::PlanState,
+    /// The physics checks.
+    pub checks: &'a super::ChecksState,
     commands: &'a mut Vec<Command>,
 }
 
@@ -128,6 +130,7 @@ impl TapgridApp {
             run: &self.run,
             recording: &self.recording,
             plan: &self.plan,
+            checks: &self.checks,
             commands: &mut self.commands,
         }
     }
