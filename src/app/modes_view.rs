@@ -363,23 +363,6 @@ fn shape_plot(
         });
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    /// Nodes are where the straight line between two stations of opposite sign crosses zero
-    /// (linear interpolation, by definition).
-    #[test]
-    fn nodes_by_interpolation() {
-        let x = [0.0, 1.0, 2.0, 3.0];
-        let v = [1.0, -1.0, -1.0, 3.0];
-        let n = nodes(&x, &v);
-        assert_eq!(n.len(), 2);
-        assert!((n[0] - 0.5).abs() < 1e-12);
-        assert!((n[1] - 2.25).abs() < 1e-12);
-    }
-}
-
 /// The data's physics checks (driving point, mass line, linearity, grid), made on a thread of
 /// their own after each fit.
 fn physics_checks(ui: &mut egui::Ui, checks: &super::ChecksState) {
@@ -413,4 +396,21 @@ fn physics_checks(ui: &mut egui::Ui, checks: &super::ChecksState) {
                 );
             }
         });
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Nodes are where the straight line between two stations of opposite sign crosses zero
+    /// (linear interpolation, by definition).
+    #[test]
+    fn nodes_by_interpolation() {
+        let x = [0.0, 1.0, 2.0, 3.0];
+        let v = [1.0, -1.0, -1.0, 3.0];
+        let n = nodes(&x, &v);
+        assert_eq!(n.len(), 2);
+        assert!((n[0] - 0.5).abs() < 1e-12);
+        assert!((n[1] - 2.25).abs() < 1e-12);
+    }
 }
