@@ -504,6 +504,24 @@ pub enum MaterialArg {
     Aluminium,
 }
 
+/// `tapgrid compare`.
+#[derive(Debug, Args)]
+pub struct CompareArgs {
+    /// The first test (session or WAV set): before, or part A.
+    pub first: PathBuf,
+    /// The second test: after, or part B.
+    pub second: PathBuf,
+    /// Smallest MAC that pairs two modes.
+    #[arg(long, default_value_t = 0.6)]
+    pub min_mac: f64,
+    /// Also write DIR/compare.json.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Setup for WAV sets (a session uses its own).
+    #[command(flatten)]
+    pub setup: SetupArgs,
+}
+
 /// `tapgrid check`.
 #[derive(Debug, Args)]
 pub struct CheckArgs {

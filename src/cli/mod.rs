@@ -84,6 +84,9 @@ pub enum Command {
     /// Check the data's physics: driving point signs and antiresonances, mass line,
     /// reciprocity with a second reference, linearity, spatial aliasing, reference near a node.
     Check(CheckArgs),
+    /// Compare two tests (before/after, or two parts): modes paired by MAC with Δf, Δζ; FRFs
+    /// station by station (by position when the grids differ).
+    Compare(CompareArgs),
     /// Running-speed margin check of measured modes and/or model critical speeds (advisory).
     Margin(MarginArgs),
     /// A bearing's operating point and eight stiffness and damping coefficients (JSON to stdout).
@@ -146,6 +149,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Plan(a) => model_cmds::plan(a),
         Command::Correlate(a) => correlate(a),
         Command::Check(a) => test_cmds::check(a),
+        Command::Compare(a) => test_cmds::compare(a),
         Command::Margin(a) => margin(a),
         Command::Calibrate(a) => calibrate(a),
         Command::Bearing(a) => bearing(a),

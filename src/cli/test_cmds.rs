@@ -311,3 +311,37 @@ pub(super) fn check(a: CheckArgs) -> Result<()> {
     }
     Ok(())
 }
+
+pub(super) fn compare(a: CompareArgs) -> Result<()> {
+    if !(a.min_mac.is_finite() && (0.0..=1.0).contains(&a.min_mac)) {
+        bail!("--min-mac must lie between 0 and 1");
+    }
+    let fitted = |p: &Path| -> Result<(crate::modal::FrfSet, ModalResult)> {
+        let t = open_test(p, &a.setup, &ModalArgs::default())?;
+        let an = analysis::run(&t.data, &t.setup)?;
+        let set = crate::modal::FrfSet::from_analysis(&an)
+            .ok_or_else(|| anyhow!("{}: no station has an accepted hit", p.display()))?;
+        let m = fit_modes(p, &an, t.modal.as_ref())?;
+        Ok((set, m))
+    };
+    let (sa, ma) = fitted(&a.first)?;
+    let (sb, mb) = fitted(&a.second)?;
+    let c = crate::pipeline::compare::compare(&sa, &ma, &sb, &mb, a.min_mac);
+    println!(
+        "first: {} ({} modes); second: {} ({} modes)",
+        a.first.display(),
+        ma.modes.len(),
+        a.second.display(),
+        mb.modes.len()
+    );
+    print!("{}", crate::pipeline::compare::compare_text(&c));
+    if let Some(dir) = &a.out {
+        std::fs::create_dir_all(dir)
+            .with_context(|| format!("{}: cannot create folder", dir.display()))?;
+        let path = dir.join("compare.json");
+        crate::atomic::write_derived(&path, serde_json::to_string_pretty(&c)?.as_bytes())
+            .with_context(|| format!("{}: cannot write", path.display()))?;
+        println!("wrote {}", path.display());
+    }
+    Ok(())
+}

@@ -3,6 +3,7 @@
 //! test's setup is, which band it covered or how its margins are checked.
 
 pub mod checks;
+pub mod compare;
 pub mod run_model;
 
 use std::path::Path;
