@@ -219,6 +219,13 @@ impl TapgridApp {
                 self.settings.view = View::Run;
             }
             Command::RecordRun => self.start_run_record(),
+            Command::LoadCompare(p) => {
+                self.ui.compare = super::compare_view::CompareEdit {
+                    path: Some(p),
+                    station: 0,
+                };
+                self.settings.view = View::Compare;
+            }
             Command::StopRecordRun => {
                 if let Some(h) = &self.recording.handle {
                     h.stop.store(true, std::sync::atomic::Ordering::Relaxed);

@@ -62,9 +62,13 @@ impl TapgridApp {
                 if ui
                     .add(egui::Button::selectable(
                         sel,
-                        egui::RichText::new(v.label()).size(17.0),
+                        egui::RichText::new(v.label()).size(16.0),
                     ))
-                    .on_hover_text(format!("key {n}"))
+                    .on_hover_text(if n <= 10 {
+                        format!("key {}", n % 10)
+                    } else {
+                        String::new()
+                    })
                     .clicked()
                 {
                     self.commands.push(Command::Show(v));
@@ -177,6 +181,7 @@ impl TapgridApp {
             PathPurpose::WriteReport => "Write the test report (HTML file)",
             PathPurpose::LoadRotor => "Read a rotor file (JSON: bearings, unbalances)",
             PathPurpose::LoadRun => "Read a run recording (WAV: tach and accelerometer)",
+            PathPurpose::LoadCompare => "Compare with another test (session or WAV set folder)",
         };
         let mut close = false;
         let mut go = None;
@@ -285,6 +290,7 @@ impl TapgridApp {
                     PathPurpose::WriteReport => Command::WriteReport(p),
                     PathPurpose::LoadRotor => Command::LoadRotor(p),
                     PathPurpose::LoadRun => Command::LoadRun(p),
+                    PathPurpose::LoadCompare => Command::LoadCompare(p),
                 });
             }
         } else if close {

@@ -89,6 +89,8 @@ pub enum Command {
     RecordRun,
     /// Stop recording the run (it is saved, then tracked).
     StopRecordRun,
+    /// Compare the open test with the test in this folder.
+    LoadCompare(PathBuf),
 }
 
 /// Where a report goes by default: beside a session or WAV set (a session's own folder holds only
@@ -126,6 +128,8 @@ pub enum PathPurpose {
     LoadRotor,
     /// Read a run recording (WAV).
     LoadRun,
+    /// Another test to compare with.
+    LoadCompare,
 }
 
 pub(super) struct PathDialog {

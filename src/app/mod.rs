@@ -6,6 +6,7 @@
 
 mod capture_thread;
 mod capture_view;
+mod compare_view;
 mod fit_view;
 mod frf_view;
 mod help;
@@ -95,6 +96,8 @@ pub struct TapgridApp {
     pub(crate) plan: plan_panel::PlanState,
     /// The physics checks of the modes view.
     pub(crate) checks: ChecksState,
+    /// The comparison with another test.
+    pub(crate) compare: compare_view::CompareState,
     pub(crate) ctx_slot: Arc<OnceLock<egui::Context>>,
 }
 
@@ -131,6 +134,7 @@ impl TapgridApp {
             recording: Default::default(),
             plan: Default::default(),
             checks: Default::default(),
+            compare: Default::default(),
             ctx_slot,
         };
         if let Some(p) = path {
@@ -178,6 +182,7 @@ impl TapgridApp {
             && !self.run_busy()
             && !self.plan_busy()
             && !self.checks.busy()
+            && !self.compare.busy()
     }
 
     /// Non-drawing work of a frame: worker outcomes, animation clock, pending commands.
@@ -219,6 +224,7 @@ impl TapgridApp {
         self.poll_run(ctx);
         self.poll_plan(ctx);
         self.poll_checks(ctx);
+        self.poll_compare(ctx);
         self.apply_pending(ctx);
     }
 
@@ -304,6 +310,7 @@ impl TapgridApp {
                 View::Margins => margin_view::show(ui, &mut cx),
                 View::Rotor => rotor_view::show(ui, &mut cx),
                 View::Run => run_view::show(ui, &mut cx),
+                View::Compare => compare_view::show(ui, &mut cx),
             }
         });
         if !self.settings.cautions_read {
@@ -417,7 +424,12 @@ pub fn style(ctx: &egui::Context, dark: bool) {
 
 /// Opens the window: on `path`, else on the demo session (made by the simulator if this
 /// installation has none), showing `view` first (else the one shown last).
-pub fn run(path: Option<PathBuf>, view: Option<View>, run: Option<PathBuf>) -> anyhow::Result<()> {
+pub fn run(
+    path: Option<PathBuf>,
+    view: Option<View>,
+    run: Option<PathBuf>,
+    compare: Option<PathBuf>,
+) -> anyhow::Result<()> {
     let path = match path {
         Some(p) => p,
         None => crate::sim::demo::demo_session(&crate::sim::demo::default_root())?,
@@ -437,6 +449,9 @@ pub fn run(path: Option<PathBuf>, view: Option<View>, run: Option<PathBuf>) -> a
             let mut app = TapgridApp::from_creation(cc, Some(path), view);
             if let Some(r) = run {
                 app.push(Command::LoadRun(r));
+            }
+            if let Some(c) = compare {
+                app.push(Command::LoadCompare(c));
             }
             Ok(Box::new(app))
         }),

@@ -28,11 +28,13 @@ pub enum View {
     Rotor,
     /// A run-up or coast-down recording tracked against speed.
     Run,
+    /// The open test against another: modes paired, FRFs overlaid.
+    Compare,
 }
 
 impl View {
     /// All views in tab order.
-    pub const ALL: [View; 11] = [
+    pub const ALL: [View; 12] = [
         View::Capture,
         View::Setup,
         View::Stations,
@@ -44,6 +46,7 @@ impl View {
         View::Margins,
         View::Rotor,
         View::Run,
+        View::Compare,
     ];
 
     /// Tab label.
@@ -60,6 +63,7 @@ impl View {
             View::Margins => "Speed margins",
             View::Rotor => "Rotor at speed",
             View::Run => "Run tracking",
+            View::Compare => "Two tests",
         }
     }
 
@@ -77,6 +81,7 @@ impl View {
             "margins" => View::Margins,
             "rotor" => View::Rotor,
             "run" => View::Run,
+            "compare" => View::Compare,
             _ => return None,
         })
     }

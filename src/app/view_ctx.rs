@@ -43,6 +43,8 @@ pub struct UiState {
     pub run: super::run_view::RunEdit,
     /// The test plan's choices.
     pub plan: super::plan_panel::PlanEdit,
+    /// The other test compared with.
+    pub compare: super::compare_view::CompareEdit,
     pub(super) plot_scratch: plots::Scratch,
     pub(super) overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
 }
@@ -68,6 +70,7 @@ impl Default for UiState {
             rotor: Default::default(),
             run: Default::default(),
             plan: Default::default(),
+            compare: Default::default(),
             plot_scratch: plots::Scratch::default(),
             overlays: Default::default(),
         }
@@ -100,6 +103,8 @@ pub struct ViewCtx<'a> {
     pub plan: &'a super::plan_panel::PlanState,
     /// The physics checks.
     pub checks: &'a super::ChecksState,
+    /// The comparison with another test.
+    pub compare: &'a super::compare_view::CompareState,
     commands: &'a mut Vec<Command>,
 }
 
@@ -131,6 +136,7 @@ impl TapgridApp {
             recording: &self.recording,
             plan: &self.plan,
             checks: &self.checks,
+            compare: &self.compare,
             commands: &mut self.commands,
         }
     }

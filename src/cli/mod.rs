@@ -50,12 +50,15 @@ pub struct Cli {
     /// A session or WAV set folder to open in the window.
     pub open: Option<PathBuf>,
     /// View to show first: capture, setup, stations, hits, frf, poles, modes, model, margins, rotor,
-    /// run.
+    /// run, compare.
     #[arg(long)]
     pub view: Option<String>,
     /// A run-up or coast-down recording to track in the window (opens the run view).
     #[arg(long)]
     pub run: Option<PathBuf>,
+    /// Another test (session or WAV set) to compare the opened one with (opens Two tests).
+    #[arg(long)]
+    pub compare: Option<PathBuf>,
     /// What to do (none: open the window).
     #[command(subcommand)]
     pub command: Option<Command>,
@@ -132,12 +135,20 @@ pub fn run(cli: Cli) -> Result<()> {
             Some(name) => Some(crate::app::View::from_name(name).ok_or_else(|| {
                 anyhow!(
                     "--view {name:?}: use capture, setup, stations, hits, frf, poles, modes, \
-                     model, margins, rotor or run"
+                     model, margins, rotor, run or compare"
                 )
             })?),
             None => None,
         };
-        return crate::app::run(cli.open, view, cli.run);
+        if let Some(p) = &cli.compare
+            && !p.is_dir()
+        {
+            bail!(
+                "{}: is not a folder (expected a session or a WAV set folder)",
+                p.display()
+            );
+        }
+        return crate::app::run(cli.open, view, cli.run, cli.compare);
     };
     match command {
         Command::Analyze(a) => analyze(&a.input, &a.out, &a.setup, &a.modal),
