@@ -951,3 +951,26 @@ fn the_two_tests_view_pairs_the_modes_of_a_repaired_shaft() {
     // The first mode falls by 3.36 % (the simulated truth, within the fit's scatter).
     h.get_by_label_contains("-3.3");
 }
+
+/// Report details typed in Test setup reach the document and are kept in the session file at
+/// once (no analysis follows such an edit).
+#[test]
+fn report_details_typed_in_the_setup_view_are_kept_in_the_session() {
+    let (_tmp, dir, mut h) = demo_copy();
+    settle(&mut h);
+    h.state_mut().settings.view = View::Setup;
+    h.run_steps(2);
+    h.get_by_label("Report details").click();
+    h.run_steps(2);
+    let field = h.get_by_role_and_label(egui::accesskit::Role::TextInput, "tested by");
+    field.focus();
+    field.type_text("A. Tester");
+    h.run_steps(3);
+    settle(&mut h);
+    assert_eq!(
+        h.state().doc.as_ref().expect("doc").report.operator,
+        "A. Tester"
+    );
+    let s = tapgrid::session::Session::open(&dir).expect("session");
+    assert_eq!(s.manifest.report.operator, "A. Tester");
+}

@@ -246,3 +246,89 @@ fn a_sessions_runs_are_reported_with_their_critical_speeds() {
         "the mono file's error names its channels"
     );
 }
+
+/// The test record entered once (`tapgrid report-details`) is kept in the session and printed
+/// by the report with a sign-off block — in HTML and in PDF (common practice: a report names
+/// who tested, where, with which calibrated instruments, and leaves room to sign).
+#[test]
+fn the_test_record_and_sign_off_reach_the_html_and_the_pdf() {
+    let t = tempfile::tempdir().unwrap();
+    let session = t.path().join("s");
+    copy_dir(&demo(), &session);
+    bin()
+        .arg("report-details")
+        .arg(&session)
+        .args(["--operator", "A. Tester", "--reviewer", "B. Reviewer"])
+        .args(["--site", "Repair shop, bay 2", "--date", "2026-12-04"])
+        .args([
+            "--instrument",
+            "hammer|impact hammer|H-1042|2026-03-11|2.25 mV/N",
+        ])
+        .args([
+            "--instrument",
+            "accelerometer|IEPE 100 mV/g|A-5531|2026-05-02",
+        ])
+        .assert()
+        .success();
+    let s = tapgrid::session::Session::open(&session).unwrap();
+    assert_eq!(s.manifest.report.instruments.len(), 2);
+    assert_eq!(s.manifest.report.instruments[1].serial, "A-5531");
+    let html = t.path().join("r.html");
+    let pdf = t.path().join("r.pdf");
+    bin()
+        .arg("report")
+        .arg(&session)
+        .arg("--out")
+        .arg(&html)
+        .arg("--pdf")
+        .arg(&pdf)
+        .assert()
+        .success();
+    let page = std::fs::read_to_string(&html).unwrap();
+    for needle in [
+        "<h2>Test record</h2>",
+        "A. Tester",
+        "Repair shop, bay 2",
+        "H-1042",
+        "2026-05-02",
+        "<h2>Sign-off</h2>",
+        "B. Reviewer",
+    ] {
+        assert!(page.contains(needle), "{needle}");
+    }
+    // The PDF: a complete file (header, cross-reference table, trailer), its pages counted in
+    // the page tree, and the record's text in its (uncompressed) content streams.
+    let bytes = std::fs::read(&pdf).unwrap();
+    assert!(bytes.starts_with(b"%PDF-"));
+    let text = String::from_utf8_lossy(&bytes);
+    assert!(text.contains("xref") && text.contains("trailer") && text.contains("%%EOF"));
+    let pages = text.matches("/Type /Page\n").count() + text.matches("/Type /Page ").count();
+    assert!(pages >= 3, "{pages} pages");
+    for needle in [
+        "(A. Tester)",
+        "(H-1042)",
+        "(Sign-off)",
+        "(Reviewed by)",
+        "(Modes)",
+    ] {
+        assert!(text.contains(needle), "{needle}");
+    }
+    // --out FILE.pdf writes the PDF alone.
+    let only = t.path().join("only.pdf");
+    bin()
+        .arg("report")
+        .arg(&session)
+        .arg("--out")
+        .arg(&only)
+        .assert()
+        .success();
+    assert!(std::fs::read(&only).unwrap().starts_with(b"%PDF-"));
+    // A malformed instrument is refused, naming the option.
+    bin()
+        .arg("report-details")
+        .arg(&session)
+        .args(["--instrument", "|no role"])
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("--instrument"));
+}

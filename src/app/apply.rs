@@ -23,11 +23,18 @@ impl TapgridApp {
                         .join("shaft.json")
                         .display()
                         .to_string(),
-                    PathPurpose::WriteReport => self
-                        .doc
-                        .as_ref()
-                        .map(|d| report_default_path(d).display().to_string())
-                        .unwrap_or_default(),
+                    PathPurpose::WriteReport => {
+                        let pdf = std::mem::take(&mut self.ui.report_pdf);
+                        self.doc
+                            .as_ref()
+                            .map(|d| {
+                                let p = report_default_path(d);
+                                if pdf { p.with_extension("pdf") } else { p }
+                                    .display()
+                                    .to_string()
+                            })
+                            .unwrap_or_default()
+                    }
                     PathPurpose::SaveAs => self
                         .doc
                         .as_ref()
@@ -219,6 +226,23 @@ impl TapgridApp {
                 self.settings.view = View::Run;
             }
             Command::RecordRun => self.start_run_record(),
+            Command::EditReportInfo(info) => {
+                let capturing = self.capture.handle.is_some();
+                if let Some(d) = &mut self.doc {
+                    d.report = *info;
+                    d.dirty = true;
+                    // Kept at once in a writable session (no analysis follows this edit).
+                    if !d.read_only
+                        && !capturing
+                        && let Some(s) = d.session_to_write()
+                    {
+                        self.io.send(Job::SaveSession {
+                            session: Box::new(s),
+                            announce: false,
+                        });
+                    }
+                }
+            }
             Command::LoadCompare(p) => {
                 self.ui.compare = super::compare_view::CompareEdit {
                     path: Some(p),
@@ -390,6 +414,7 @@ impl TapgridApp {
             analysis,
             modes: d.modal.clone(),
             study: d.study.clone().zip(d.study_result.clone()),
+            info: d.report.clone(),
             runs: d.session.as_ref().map_or_else(Vec::new, |s| {
                 crate::report::runs::session_runs(&d.path, &s.manifest.runs)
             }),

@@ -36,6 +36,14 @@ impl TapgridApp {
                     self.commands
                         .push(Command::AskPath(PathPurpose::WriteReport));
                 }
+                if ui
+                    .add_enabled(can_report, egui::Button::new("Write PDF report…"))
+                    .clicked()
+                {
+                    self.commands
+                        .push(Command::AskPath(PathPurpose::WriteReport));
+                    self.ui.report_pdf = true;
+                }
                 ui.separator();
                 ui.label("Recent");
                 for p in self.settings.recent.clone() {
@@ -178,7 +186,9 @@ impl TapgridApp {
             PathPurpose::SaveAs => "Save as a new session folder",
             PathPurpose::LoadModel => "Read a shaft model (JSON file)",
             PathPurpose::WriteModel => "Write the shaft model (JSON file)",
-            PathPurpose::WriteReport => "Write the test report (HTML file)",
+            PathPurpose::WriteReport => {
+                "Write the test report (HTML file, or PDF when it ends in .pdf)"
+            }
             PathPurpose::LoadRotor => "Read a rotor file (JSON: bearings, unbalances)",
             PathPurpose::LoadRun => "Read a run recording (WAV: tach and accelerometer)",
             PathPurpose::LoadCompare => "Compare with another test (session or WAV set folder)",
@@ -189,7 +199,7 @@ impl TapgridApp {
             PathPurpose::LoadModel | PathPurpose::WriteModel | PathPurpose::LoadRotor => {
                 Some(".json")
             }
-            PathPurpose::WriteReport => Some(".html"),
+            PathPurpose::WriteReport => None,
             PathPurpose::LoadRun => Some(".wav"),
             _ => None,
         };

@@ -91,6 +91,8 @@ pub enum Command {
     StopRecordRun,
     /// Compare the open test with the test in this folder.
     LoadCompare(PathBuf),
+    /// The report's test record as edited.
+    EditReportInfo(Box<crate::session::ReportInfo>),
 }
 
 /// Where a report goes by default: beside a session or WAV set (a session's own folder holds only

@@ -47,6 +47,8 @@ pub struct Document {
     pub lock: Option<Arc<crate::session::lock::SessionLock>>,
     /// Changed since the last save.
     pub dirty: bool,
+    /// Who tested, where, with what (the report's record and sign-off).
+    pub report: crate::session::ReportInfo,
 }
 
 impl Document {
@@ -84,7 +86,12 @@ impl Document {
                 None,
             ),
         };
+        let report = session
+            .as_ref()
+            .map(|s| s.manifest.report.clone())
+            .unwrap_or_default();
         Self {
+            report,
             path,
             session,
             data,
@@ -174,6 +181,7 @@ impl Document {
             s.manifest.hits = crate::session::saved_hits(a);
         }
         s.manifest.model = self.study.clone();
+        s.manifest.report = self.report.clone();
         s.manifest.fit =
             (self.modal_settings != ModalSettings::default()).then(|| self.modal_settings.clone());
         Some(s)

@@ -52,6 +52,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
             ui.label(RichText::new(format!("Analysis failed: {e}")).color(bad()));
         }
         super::plan_panel::show(ui, app);
+        report_details(ui, app, doc);
         ui.columns(2, |cols| {
             let ui = &mut cols[0];
             ui.group(|ui| {
@@ -280,6 +281,83 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
     }
     if let Some(e) = invalid {
         ui.label(RichText::new(format!("Setup not valid: {e}")).color(bad()));
+    }
+}
+
+/// The report's test record: who, where, when, with what — kept with the session.
+fn report_details(ui: &mut egui::Ui, app: &mut ViewCtx, doc: &super::Document) {
+    let mut info = doc.report.clone();
+    egui::CollapsingHeader::new(RichText::new("Report details").strong())
+        .id_salt("report-details")
+        .default_open(false)
+        .show(ui, |ui| {
+            egui::Grid::new("report-record")
+                .num_columns(4)
+                .show(ui, |ui| {
+                    let field = |ui: &mut egui::Ui, label: &str, v: &mut String| {
+                        let l = ui.label(label);
+                        ui.add(egui::TextEdit::singleline(v).desired_width(260.0))
+                            .labelled_by(l.id);
+                    };
+                    field(ui, "tested by", &mut info.operator);
+                    field(ui, "reviewed by", &mut info.reviewer);
+                    ui.end_row();
+                    field(ui, "site", &mut info.site);
+                    field(ui, "test date", &mut info.test_date);
+                    ui.end_row();
+                    field(ui, "part held by", &mut info.support);
+                    field(ui, "conditioning", &mut info.conditioning);
+                    ui.end_row();
+                });
+            ui.label("Instruments");
+            let mut remove = None;
+            egui::Grid::new("report-instruments")
+                .num_columns(6)
+                .striped(true)
+                .show(ui, |ui| {
+                    for h in [
+                        "role",
+                        "make and model",
+                        "serial",
+                        "calibrated",
+                        "sensitivity",
+                        "",
+                    ] {
+                        ui.label(RichText::new(h).strong());
+                    }
+                    ui.end_row();
+                    for (k, x) in info.instruments.iter_mut().enumerate() {
+                        for v in [
+                            &mut x.role,
+                            &mut x.model,
+                            &mut x.serial,
+                            &mut x.calibrated,
+                            &mut x.sensitivity,
+                        ] {
+                            ui.add(egui::TextEdit::singleline(v).desired_width(150.0));
+                        }
+                        if ui.button("Remove").clicked() {
+                            remove = Some(k);
+                        }
+                        ui.end_row();
+                    }
+                });
+            if let Some(k) = remove {
+                info.instruments.remove(k);
+            }
+            if ui.button("Add an instrument").clicked() {
+                info.instruments.push(crate::session::Instrument::default());
+            }
+            ui.label(
+                RichText::new(
+                    "Kept with the session; the report (HTML or PDF) prints them with a sign-off \
+                     block.",
+                )
+                .small(),
+            );
+        });
+    if info != doc.report {
+        app.push(Command::EditReportInfo(Box::new(info)));
     }
 }
 

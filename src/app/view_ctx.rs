@@ -45,6 +45,8 @@ pub struct UiState {
     pub plan: super::plan_panel::PlanEdit,
     /// The other test compared with.
     pub compare: super::compare_view::CompareEdit,
+    /// The next report path offered ends in .pdf.
+    pub report_pdf: bool,
     pub(super) plot_scratch: plots::Scratch,
     pub(super) overlays: std::collections::HashMap<&'static str, plots::OverlayCache>,
 }
@@ -71,6 +73,7 @@ impl Default for UiState {
             run: Default::default(),
             plan: Default::default(),
             compare: Default::default(),
+            report_pdf: false,
             plot_scratch: plots::Scratch::default(),
             overlays: Default::default(),
         }

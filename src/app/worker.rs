@@ -215,6 +215,8 @@ pub struct ReportJob {
     pub study: Option<(Study, Arc<StudyResult>)>,
     /// The session's runs.
     pub runs: Vec<crate::report::runs::RunSource>,
+    /// Who tested, where, with what.
+    pub info: crate::session::ReportInfo,
 }
 
 /// Handle to the worker thread.
@@ -512,6 +514,7 @@ fn write_report(r: &ReportJob) -> Outcome {
     };
     let runs = crate::report::runs::track_runs(&r.runs, r.study.as_ref().map(|(s, _)| s));
     let input = crate::report::document::ReportInput {
+        info: Some(&r.info),
         runs: &runs,
         part: &r.part.name,
         notes: &r.part.notes,
@@ -522,7 +525,16 @@ fn write_report(r: &ReportJob) -> Outcome {
         written_utc: &written,
         rotor: rotor.as_ref(),
     };
-    match crate::report::document::write_html(&r.path, &input) {
+    let pdf = r
+        .path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("pdf"));
+    let written = if pdf {
+        crate::report::pdf::write_pdf(&r.path, &input)
+    } else {
+        crate::report::document::write_html(&r.path, &input)
+    };
+    match written {
         Ok(()) => Outcome::Wrote(format!("wrote the report to {}", r.path.display())),
         Err(e) => Outcome::Failed {
             what: "Writing the report",

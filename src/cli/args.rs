@@ -303,9 +303,12 @@ pub struct ModalArgs {
 pub struct ReportArgs {
     /// A WAV set folder or a session folder.
     pub input: PathBuf,
-    /// The HTML file to write.
+    /// The file to write: HTML, or PDF when it ends in .pdf.
     #[arg(long)]
     pub out: PathBuf,
+    /// Also write the report as PDF to this file.
+    #[arg(long)]
+    pub pdf: Option<PathBuf>,
     /// The shaft model (JSON), or a session holding one (default: the input's own model, if any).
     #[arg(long)]
     pub model: Option<PathBuf>,
@@ -502,6 +505,38 @@ pub enum MaterialArg {
     Steel,
     /// Aluminium alloy, 70 GPa, 2700 kg/m³.
     Aluminium,
+}
+
+/// `tapgrid report-details`.
+#[derive(Debug, Args)]
+pub struct ReportDetailsArgs {
+    /// The session.
+    pub session: PathBuf,
+    /// Who did the test.
+    #[arg(long)]
+    pub operator: Option<String>,
+    /// Who reviews it.
+    #[arg(long)]
+    pub reviewer: Option<String>,
+    /// Where.
+    #[arg(long)]
+    pub site: Option<String>,
+    /// When (free text).
+    #[arg(long)]
+    pub date: Option<String>,
+    /// How the part was held.
+    #[arg(long)]
+    pub support: Option<String>,
+    /// Signal conditioning.
+    #[arg(long)]
+    pub conditioning: Option<String>,
+    /// An instrument: ROLE|MODEL|SERIAL|CALIBRATED|SENSITIVITY (fields may be empty);
+    /// repeatable, added to those kept.
+    #[arg(long)]
+    pub instrument: Vec<String>,
+    /// Forget the instruments kept before adding these.
+    #[arg(long)]
+    pub clear_instruments: bool,
 }
 
 /// `tapgrid compare`.

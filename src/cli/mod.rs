@@ -90,6 +90,9 @@ pub enum Command {
     /// Compare two tests (before/after, or two parts): modes paired by MAC with Δf, Δζ; FRFs
     /// station by station (by position when the grids differ).
     Compare(CompareArgs),
+    /// The report's test record kept in a session: operator, reviewer, site, date, support,
+    /// conditioning, instruments with serial numbers and calibration dates.
+    ReportDetails(ReportDetailsArgs),
     /// Running-speed margin check of measured modes and/or model critical speeds (advisory).
     Margin(MarginArgs),
     /// A bearing's operating point and eight stiffness and damping coefficients (JSON to stdout).
@@ -161,6 +164,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Correlate(a) => correlate(a),
         Command::Check(a) => test_cmds::check(a),
         Command::Compare(a) => test_cmds::compare(a),
+        Command::ReportDetails(a) => test_cmds::report_details(a),
         Command::Margin(a) => margin(a),
         Command::Calibrate(a) => calibrate(a),
         Command::Bearing(a) => bearing(a),

@@ -166,7 +166,13 @@ pub(super) fn report(a: ReportArgs) -> Result<()> {
             eprintln!("tapgrid: warning: a run could not be tracked (reported as such): {e}");
         }
     }
+    let info = t
+        .session
+        .as_ref()
+        .map(|s| s.manifest.report.clone())
+        .unwrap_or_default();
     let input = report::document::ReportInput {
+        info: Some(&info),
         runs: &runs,
         part: &part,
         notes: &notes,
@@ -177,7 +183,16 @@ pub(super) fn report(a: ReportArgs) -> Result<()> {
         written_utc: &written,
         rotor: rotor.as_ref(),
     };
-    report::document::write_html(&a.out, &input)?;
+    let is_pdf = |p: &Path| p.extension().is_some_and(|e| e.eq_ignore_ascii_case("pdf"));
+    if is_pdf(&a.out) {
+        report::pdf::write_pdf(&a.out, &input)?;
+    } else {
+        report::document::write_html(&a.out, &input)?;
+    }
+    if let Some(p) = &a.pdf {
+        report::pdf::write_pdf(p, &input)?;
+        println!("wrote {}", p.display());
+    }
     print!("{}", report::summary(&analysis));
     print!("{}", report::modes_summary(&modes));
     println!("wrote {}", a.out.display());
@@ -343,5 +358,63 @@ pub(super) fn compare(a: CompareArgs) -> Result<()> {
             .with_context(|| format!("{}: cannot write", path.display()))?;
         println!("wrote {}", path.display());
     }
+    Ok(())
+}
+
+pub(super) fn report_details(a: ReportDetailsArgs) -> Result<()> {
+    let _lock =
+        crate::session::lock::SessionLock::acquire(&a.session, "report details", LOCK_WAIT)?;
+    let mut s = Session::open(&a.session)?;
+    let r = &mut s.manifest.report;
+    for (field, v) in [
+        (&mut r.operator, &a.operator),
+        (&mut r.reviewer, &a.reviewer),
+        (&mut r.site, &a.site),
+        (&mut r.test_date, &a.date),
+        (&mut r.support, &a.support),
+        (&mut r.conditioning, &a.conditioning),
+    ] {
+        if let Some(v) = v {
+            *field = v.trim().to_string();
+        }
+    }
+    if a.clear_instruments {
+        r.instruments.clear();
+    }
+    for text in &a.instrument {
+        let f: Vec<&str> = text.split('|').map(str::trim).collect();
+        if f.len() > 5 || f.first().is_none_or(|x| x.is_empty()) {
+            bail!(
+                "--instrument {text:?}: give ROLE|MODEL|SERIAL|CALIBRATED|SENSITIVITY (the role \
+                 first; later fields may be left out)"
+            );
+        }
+        let get = |i: usize| f.get(i).map_or(String::new(), |x| x.to_string());
+        r.instruments.push(crate::session::Instrument {
+            role: get(0),
+            model: get(1),
+            serial: get(2),
+            calibrated: get(3),
+            sensitivity: get(4),
+        });
+    }
+    s.manifest
+        .check()
+        .map_err(|m| anyhow!("{}: {m}", a.session.display()))?;
+    s.save()?;
+    let r = &s.manifest.report;
+    println!("tested by: {}", r.operator);
+    println!("reviewed by: {}", r.reviewer);
+    println!("site: {}", r.site);
+    println!("test date: {}", r.test_date);
+    println!("part held by: {}", r.support);
+    println!("conditioning: {}", r.conditioning);
+    for i in &r.instruments {
+        println!(
+            "instrument: {} | {} | {} | {} | {}",
+            i.role, i.model, i.serial, i.calibrated, i.sensitivity
+        );
+    }
+    println!("saved in {}", a.session.display());
     Ok(())
 }

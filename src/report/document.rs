@@ -39,6 +39,8 @@ pub struct ReportInput<'a> {
     pub rotor: Option<&'a crate::rotor::run::AtSpeed>,
     /// Run-ups and coast-downs, tracked.
     pub runs: &'a [super::runs::ReportRun],
+    /// Who tested, where and with what (for the record and the sign-off).
+    pub info: Option<&'a crate::session::ReportInfo>,
 }
 
 /// The rotor at speed for a report: solved when the study holds a service rotor (bearings with
@@ -91,6 +93,7 @@ pub fn html(r: &ReportInput) -> String {
     if !r.notes.trim().is_empty() {
         let _ = write!(s, "<p>{}</p>", escape(r.notes));
     }
+    record_section(&mut s, r);
     s.push_str("<div class=\"caution\"><b>Read first.</b><ul>");
     for c in CAUTIONS {
         let _ = write!(s, "<li>{}</li>", escape(c));
@@ -113,6 +116,7 @@ pub fn html(r: &ReportInput) -> String {
         );
     }
     super::runs::section(&mut s, r.runs);
+    sign_off(&mut s, r);
     s.push_str("</body></html>\n");
     s
 }
@@ -128,6 +132,78 @@ pub fn write_html(path: &Path, r: &ReportInput) -> Result<(), InputError> {
 }
 
 pub use crate::clock::{utc_now, utc_text};
+
+/// The test record: who, where, when, with what.
+fn record_section(s: &mut String, r: &ReportInput) {
+    let empty = crate::session::ReportInfo::default();
+    let i = r.info.unwrap_or(&empty);
+    s.push_str("<h2>Test record</h2><table class=\"meta\">");
+    let or_blank = |v: &str| {
+        if v.trim().is_empty() {
+            "(not entered)".to_string()
+        } else {
+            v.to_string()
+        }
+    };
+    row(s, "tested by", &or_blank(&i.operator));
+    row(s, "site", &or_blank(&i.site));
+    row(
+        s,
+        "test date",
+        &if i.test_date.trim().is_empty() {
+            format!("(not entered; report written {})", r.written_utc)
+        } else {
+            i.test_date.clone()
+        },
+    );
+    row(s, "part held by", &or_blank(&i.support));
+    row(s, "signal conditioning", &or_blank(&i.conditioning));
+    s.push_str("</table>");
+    if i.instruments.is_empty() {
+        s.push_str("<p class=\"note\">No instruments were entered (hammer, tip, accelerometers with serial numbers and calibration dates): enter them with <code>tapgrid report-details</code> or in the window's Test setup.</p>");
+    } else {
+        s.push_str(
+            "<table><tr><th class=\"l\">instrument</th><th class=\"l\">make and model</th>\
+             <th class=\"l\">serial</th><th class=\"l\">calibrated</th>\
+             <th class=\"l\">sensitivity</th></tr>",
+        );
+        for x in &i.instruments {
+            let _ = write!(
+                s,
+                "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td>\
+                 <td class=\"l\">{}</td><td class=\"l\">{}</td></tr>",
+                escape(&x.role),
+                escape(&x.model),
+                escape(&x.serial),
+                escape(&x.calibrated),
+                escape(&x.sensitivity)
+            );
+        }
+        s.push_str("</table>");
+    }
+}
+
+/// Signature lines for the person who tested and the one who reviews.
+fn sign_off(s: &mut String, r: &ReportInput) {
+    let empty = crate::session::ReportInfo::default();
+    let i = r.info.unwrap_or(&empty);
+    s.push_str(
+        "<h2>Sign-off</h2><p>The results above are advisory; decisions on running speeds belong \
+         to the applicable standard, local codes and a competent, licensed engineer.</p>\
+         <table class=\"meta\" style=\"width:100%\"><tr><th class=\"l\"></th>\
+         <th class=\"l\">name</th><th class=\"l\" style=\"width:40%\">signature</th>\
+         <th class=\"l\">date</th></tr>",
+    );
+    for (role, name) in [("tested by", &i.operator), ("reviewed by", &i.reviewer)] {
+        let _ = write!(
+            s,
+            "<tr><th class=\"l\">{role}</th><td class=\"l\">{}</td>\
+             <td class=\"l\" style=\"height:42px\"></td><td class=\"l\"></td></tr>",
+            escape(name)
+        );
+    }
+    s.push_str("</table>");
+}
 
 fn row(s: &mut String, name: &str, value: &str) {
     let _ = write!(

@@ -1,6 +1,7 @@
 //! Files for people and other tools: `frf.csv` and `result.json`.
 
 pub mod document;
+pub mod pdf;
 pub mod runs;
 pub mod svg;
 

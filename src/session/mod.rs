@@ -113,6 +113,50 @@ pub struct SavedRun {
     pub note: String,
 }
 
+/// An instrument of the test as the report lists it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+#[serde(default)]
+pub struct Instrument {
+    /// What it is for: hammer, tip, reference accelerometer, conditioner, interface…
+    pub role: String,
+    /// Make and model as on its label.
+    pub model: String,
+    /// Serial number.
+    pub serial: String,
+    /// Date of its last calibration.
+    pub calibrated: String,
+    /// Sensitivity as calibrated, with its unit.
+    pub sensitivity: String,
+}
+
+/// Who tested, where, with what — entered once and kept with the session, for the report and
+/// its sign-off.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+#[serde(default)]
+pub struct ReportInfo {
+    /// Who did the test.
+    pub operator: String,
+    /// Who reviews it.
+    pub reviewer: String,
+    /// Where.
+    pub site: String,
+    /// When (free text; empty: the report's date).
+    pub test_date: String,
+    /// Signal conditioning (IEPE supply, gains, filters).
+    pub conditioning: String,
+    /// How the part was held (cords, foam, in its bearings).
+    pub support: String,
+    /// The instruments.
+    pub instruments: Vec<Instrument>,
+}
+
+impl ReportInfo {
+    /// Nothing entered.
+    pub fn is_empty(&self) -> bool {
+        *self == Self::default()
+    }
+}
+
 /// The manifest.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Manifest {
@@ -142,6 +186,9 @@ pub struct Manifest {
     /// Runs (coast-downs, run-ups) recorded with the session.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub runs: Vec<SavedRun>,
+    /// Who tested, where and with what, for the report.
+    #[serde(default, skip_serializing_if = "ReportInfo::is_empty")]
+    pub report: ReportInfo,
 }
 
 impl Manifest {
@@ -164,6 +211,7 @@ impl Manifest {
             model: None,
             fit: None,
             runs: Vec::new(),
+            report: ReportInfo::default(),
         }
     }
 }
@@ -254,6 +302,21 @@ impl Manifest {
                     r.file
                 ));
             }
+        }
+        let r = &self.report;
+        if r.instruments.len() > 200
+            || [
+                &r.operator,
+                &r.reviewer,
+                &r.site,
+                &r.test_date,
+                &r.conditioning,
+                &r.support,
+            ]
+            .iter()
+            .any(|t| t.len() > 2000)
+        {
+            return Err("report: too many instruments or too long a text".into());
         }
         if self.hits.len() > MAX_STATIONS * MAX_HITS_PER_STATION {
             return Err(format!("{} hits: too many", self.hits.len()));
