@@ -170,5 +170,34 @@ fn the_command_prints_every_check_and_writes_checks_json() {
     let v: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(t.path().join("checks.json")).unwrap())
             .unwrap();
-    assert_eq!(v["checks"].as_array().unwrap().len(), 7);
+    assert_eq!(v["checks"].as_array().unwrap().len(), 8);
+}
+
+/// Roving-sensor layout: where the roving accelerometer sits at the reference's station the
+/// transmissibility is +1 (the same motion, field notes §4); an inverted roving sensor reads −1
+/// and fails with the word "polarity".
+#[test]
+fn a_roving_sensor_at_the_reference_reads_plus_one_and_an_inverted_one_fails() {
+    let t = tempfile::tempdir().unwrap();
+    let mut sc = Scenario::default();
+    sc.set_layout(Layout::Sensor);
+    sc.write(t.path()).unwrap();
+    let mut setup = sc.rig.matching_setup(Layout::Sensor, [10.0, 3000.0]);
+    setup.reference_station = Some(sc.reference_station);
+    let set = tapgrid::acquire::wavset::WavSet::scan(t.path(), 0.1).unwrap();
+    let data = Dataset::from_wavset(&set);
+    let a = tapgrid::analysis::run(&data, &setup).unwrap();
+    let frfs = FrfSet::from_analysis(&a).unwrap();
+    let c = checks::sensor_polarity(&frfs);
+    assert_eq!(c.passed, Some(true), "{}", c.words);
+    assert!((c.value.unwrap() - 1.0).abs() < 0.05, "{}", c.words);
+    let mut flipped = frfs.clone();
+    for h in &mut flipped.h {
+        for v in h.iter_mut() {
+            *v = -*v;
+        }
+    }
+    let c = checks::sensor_polarity(&flipped);
+    assert_eq!(c.passed, Some(false));
+    assert!(c.words.contains("polarity"), "{}", c.words);
 }

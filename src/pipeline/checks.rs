@@ -136,6 +136,54 @@ pub fn driving_point_sign(set: &FrfSet, modes: &ModalResult) -> Check {
     }
 }
 
+/// Roving sensor: where the roving accelerometer sits at the reference's station the
+/// transmissibility is +1 (the same motion seen twice); −1 means the two accelerometers read
+/// with opposite polarity.
+pub fn sensor_polarity(set: &FrfSet) -> Check {
+    const NAME: &str = "sensor_polarity";
+    if set.layout != Layout::Sensor {
+        return Check::na(NAME, "applies to a roving-sensor test");
+    }
+    let Some(r) = set.reference else {
+        return Check::na(NAME, "no reference station is set");
+    };
+    let mut re: Vec<f64> = good_lines(set, r, 0.9)
+        .into_iter()
+        .map(|k| set.h[r][k].re)
+        .collect();
+    if re.len() < 5 {
+        return Check::na(NAME, "too few coherent lines at the reference station");
+    }
+    re.sort_by(f64::total_cmp);
+    let m = re[re.len() / 2];
+    let st = set.stations[r];
+    // Common practice: the same motion seen by two sensors agrees within their calibrations.
+    let passed = (m - 1.0).abs() < 0.2;
+    Check {
+        name: NAME,
+        passed: Some(passed),
+        value: Some(m),
+        words: if passed {
+            format!(
+                "at station {st} the roving and reference accelerometers agree (transmissibility \
+                 {m:.2}): same polarity, sensitivities consistent"
+            )
+        } else if m < 0.0 {
+            format!(
+                "at station {st} the transmissibility is {m:.2}: the roving and reference \
+                 accelerometers read with opposite polarity (a sensor mounted upside down, a \
+                 cable or a sign in the setup)"
+            )
+        } else {
+            format!(
+                "at station {st} the transmissibility is {m:.2}, not 1: the two sensitivities \
+                 entered do not match the sensors, or the roving sensor was not at the \
+                 reference's place"
+            )
+        },
+    }
+}
+
 /// Driving point: an antiresonance between every two neighbouring modes.
 pub fn alternation(set: &FrfSet, modes: &ModalResult) -> Check {
     const NAME: &str = "resonance_antiresonance_alternation";
@@ -554,6 +602,7 @@ pub fn physics(
         driving_point_sign(set, modes),
         alternation(set, modes),
         mass_line(set, modes, shaft),
+        sensor_polarity(set),
     ];
     out.push(match second {
         Some(b) => reciprocity(set, b),
