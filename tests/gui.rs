@@ -543,11 +543,11 @@ fn the_file_menu_writes_the_report_of_what_the_window_shows() {
     // The click queues the request, the next frame opens the dialog, the one after draws it.
     h.run_steps(4);
     // The dialog asks where, offering a file beside the working folder for the read-only demo.
-    h.get_by_label("Write the test report (HTML file)");
+    h.get_by_label("Write the test report (HTML file, or PDF when it ends in .pdf)");
     h.get_by_label("Cancel").click_accesskit();
     h.run_steps(4);
     assert!(
-        h.query_by_label("Write the test report (HTML file)")
+        h.query_by_label("Write the test report (HTML file, or PDF when it ends in .pdf)")
             .is_none()
     );
     h.state_mut()
@@ -562,6 +562,14 @@ fn the_file_menu_writes_the_report_of_what_the_window_shows() {
     assert!(html.contains("<h2>Running-speed margins</h2>"));
     assert!(html.contains("locked out"));
     h.get_by_label_contains("wrote the report to");
+    // A name ending in .pdf writes the PDF.
+    let pdf = tmp.path().join("demo-report.pdf");
+    h.state_mut()
+        .push(tapgrid::app::Command::WriteReport(pdf.clone()));
+    settle(&mut h);
+    let bytes = std::fs::read(&pdf).expect("the PDF was written");
+    assert!(bytes.starts_with(b"%PDF-"));
+    assert!(String::from_utf8_lossy(&bytes).contains("(Sign-off)"));
 }
 
 #[test]

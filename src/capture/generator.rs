@@ -7,6 +7,27 @@ use std::time::Duration;
 use crate::Complex64;
 use crate::acquire::source::{Health, Source, SourceError};
 
+/// How many frames the next read gives (`Ended` after the last), after waiting, when paced,
+/// until the first of them is due.
+fn next_chunk(
+    produced: u64,
+    total: u64,
+    chunk: usize,
+    rate: u32,
+    paced: Option<std::time::Instant>,
+) -> Result<u64, SourceError> {
+    if produced >= total {
+        return Err(SourceError::Ended);
+    }
+    if let Some(t0) = paced {
+        let due = t0 + Duration::from_secs_f64(produced as f64 / f64::from(rate));
+        if let Some(d) = due.checked_duration_since(std::time::Instant::now()) {
+            std::thread::sleep(d);
+        }
+    }
+    Ok((chunk as u64).min(total - produced))
+}
+
 /// The generator.
 pub struct Generator {
     rate: u32,
@@ -80,16 +101,7 @@ impl Source for Generator {
     }
 
     fn read(&mut self, out: &mut Vec<[f32; 2]>, _wait: Duration) -> Result<(), SourceError> {
-        if self.produced >= self.total {
-            return Err(SourceError::Ended);
-        }
-        if let Some(t0) = self.paced {
-            let due = t0 + Duration::from_secs_f64(self.produced as f64 / self.rate as f64);
-            if let Some(d) = due.checked_duration_since(std::time::Instant::now()) {
-                std::thread::sleep(d);
-            }
-        }
-        let n = (self.chunk as u64).min(self.total - self.produced);
+        let n = next_chunk(self.produced, self.total, self.chunk, self.rate, self.paced)?;
         for i in 0..n {
             let s = self.sample(self.produced + i);
             out.push(s);
@@ -186,16 +198,7 @@ impl Source for RunGenerator {
     }
 
     fn read(&mut self, out: &mut Vec<[f32; 2]>, _wait: Duration) -> Result<(), SourceError> {
-        if self.produced >= self.total {
-            return Err(SourceError::Ended);
-        }
-        if let Some(t0) = self.paced {
-            let due = t0 + Duration::from_secs_f64(self.produced as f64 / f64::from(self.rate));
-            if let Some(d) = due.checked_duration_since(std::time::Instant::now()) {
-                std::thread::sleep(d);
-            }
-        }
-        let n = (self.chunk as u64).min(self.total - self.produced);
+        let n = next_chunk(self.produced, self.total, self.chunk, self.rate, self.paced)?;
         for i in 0..n {
             let s = self.sample(self.produced + i);
             out.push(s);

@@ -66,16 +66,21 @@ padding:3px 7px;text-align:right}th{background:#f0f0f0}td.l,th.l{text-align:left
 svg.plot{font:11px sans-serif;margin:4px 8px 4px 0}.shapes{display:flex;flex-wrap:wrap}\
 .meta td{text-align:left}figure{margin:0 8px 8px 0}figcaption{font-weight:bold}@media print{.caution{break-inside:avoid}svg.plot{break-inside:avoid}}";
 
-/// The report as an HTML document.
-pub fn html(r: &ReportInput) -> String {
-    let a = r.analysis;
-    let title = if r.part.trim().is_empty() {
+/// The report's title: the part's name, else the folder's.
+pub fn title(r: &ReportInput) -> String {
+    if r.part.trim().is_empty() {
         r.source
             .file_name()
             .map_or_else(|| "impact test".to_string(), |n| n.to_string_lossy().into())
     } else {
         r.part.to_string()
-    };
+    }
+}
+
+/// The report as an HTML document.
+pub fn html(r: &ReportInput) -> String {
+    let a = r.analysis;
+    let title = title(r);
     let mut s = String::new();
     let _ = write!(
         s,

@@ -463,13 +463,7 @@ fn pct(v: Option<f64>) -> String {
 pub fn pdf(r: &ReportInput) -> Vec<u8> {
     let mut d = Doc::new();
     let a = r.analysis;
-    let title = if r.part.trim().is_empty() {
-        r.source
-            .file_name()
-            .map_or_else(|| "impact test".to_string(), |n| n.to_string_lossy().into())
-    } else {
-        r.part.to_string()
-    };
+    let title = super::document::title(r);
     d.para(&format!("{title} — impact test report"), 17.0, true);
     d.para(
         &format!(
