@@ -213,6 +213,11 @@ impl RunRecorder {
         Ok(())
     }
 
+    /// Progress so far, peaks included (they keep growing until [`Self::take_progress`]).
+    pub fn progress(&self) -> RunProgress {
+        self.progress
+    }
+
     /// Progress so far; the peaks restart from here.
     pub fn take_progress(&mut self) -> RunProgress {
         let p = self.progress;
@@ -422,13 +427,16 @@ pub fn record(
         }
         last_data = Instant::now();
         rec.push(&buf)?;
-        if last_report.elapsed() >= Duration::from_millis(200) {
+        // The stop condition on the data (the speed is read four times a second of signal),
+        // the person told a few times a second of wall time.
+        let stop_now = auto.reached(&rec.progress());
+        if stop_now || last_report.elapsed() >= Duration::from_millis(200) {
             last_report = Instant::now();
             let p = rec.take_progress();
             on_progress(&p);
-            if auto.reached(&p) {
-                break;
-            }
+        }
+        if stop_now {
+            break;
         }
     }
     rec.finish()
@@ -627,10 +635,15 @@ mod tests {
             "speed read live: {seen}"
         );
         let secs = crate::acquire::wav::probe(&path).expect("probe").frames as f64 / 8000.0;
-        let stop = RunGenerator::stop_s();
+        // It stops once the speed read from the last revolutions (a little behind the true
+        // one) falls below 120 rpm: within a few seconds after the true speed does.
+        let below = (0..10_000)
+            .map(|k| k as f64 * 0.01)
+            .find(|&t| RunGenerator::speed_rpm(t) < 120.0)
+            .expect("the generator slows down");
         assert!(
-            secs > stop - 8.0 && secs < stop + 3.0,
-            "{secs} s against stop at {stop}"
+            secs > below - 0.5 && secs < below + 4.0,
+            "{secs} s against the speed falling below 120 rpm at {below} s"
         );
         let r =
             crate::coast::analyse_run(&path, &crate::coast::RunOptions::default()).expect("tracks");
