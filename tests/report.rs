@@ -297,10 +297,13 @@ fn the_test_record_and_sign_off_reach_the_html_and_the_pdf() {
         assert!(page.contains(needle), "{needle}");
     }
     // The PDF: a complete file (header, cross-reference table, trailer), its pages counted in
-    // the page tree, and the record's text in its (uncompressed) content streams.
+    // the page tree, and the record's text in its content streams (zlib, RFC 1950, inflated
+    // here with miniz_oxide).
     let bytes = std::fs::read(&pdf).unwrap();
     assert!(bytes.starts_with(b"%PDF-"));
-    let text = String::from_utf8_lossy(&bytes);
+    let text = String::from_utf8_lossy(&bytes).into_owned();
+    assert!(text.contains("/FlateDecode"));
+    let contents = inflate_streams(&bytes);
     assert!(text.contains("xref") && text.contains("trailer") && text.contains("%%EOF"));
     let pages = text.matches("/Type /Page\n").count() + text.matches("/Type /Page ").count();
     assert!(pages >= 3, "{pages} pages");
@@ -311,7 +314,7 @@ fn the_test_record_and_sign_off_reach_the_html_and_the_pdf() {
         "(Reviewed by)",
         "(Modes)",
     ] {
-        assert!(text.contains(needle), "{needle}");
+        assert!(contents.contains(needle), "{needle}");
     }
     // --out FILE.pdf writes the PDF alone.
     let only = t.path().join("only.pdf");
@@ -322,7 +325,9 @@ fn the_test_record_and_sign_off_reach_the_html_and_the_pdf() {
         .arg(&only)
         .assert()
         .success();
-    assert!(std::fs::read(&only).unwrap().starts_with(b"%PDF-"));
+    let only = std::fs::read(&only).unwrap();
+    assert!(only.starts_with(b"%PDF-"));
+    assert!(inflate_streams(&only).contains("(Sign-off)"));
     // A malformed instrument is refused, naming the option.
     bin()
         .arg("report-details")
@@ -331,4 +336,25 @@ fn the_test_record_and_sign_off_reach_the_html_and_the_pdf() {
         .assert()
         .failure()
         .stderr(predicate::str::contains("--instrument"));
+}
+
+/// Every deflated stream of a PDF, inflated and joined (as text).
+fn inflate_streams(pdf: &[u8]) -> String {
+    let mut out = String::new();
+    let mut at = 0;
+    while let Some(i) = find(&pdf[at..], b"stream\n") {
+        let start = at + i + b"stream\n".len();
+        let Some(j) = find(&pdf[start..], b"\nendstream") else {
+            break;
+        };
+        if let Ok(data) = miniz_oxide::inflate::decompress_to_vec_zlib(&pdf[start..start + j]) {
+            out.push_str(&String::from_utf8_lossy(&data));
+        }
+        at = start + j + b"\nendstream".len();
+    }
+    out
+}
+
+fn find(hay: &[u8], needle: &[u8]) -> Option<usize> {
+    hay.windows(needle.len()).position(|w| w == needle)
 }
