@@ -405,3 +405,101 @@ fn coastdown_compares_with_the_rotor_model() {
     }
     assert!(checked >= 5, "{checked}");
 }
+
+/// Two modes in one run (40 Hz, ζ 0.05 and 117.3 Hz, ζ 0.036; the simulator's modal sum): each
+/// critical speed is found within 1 % of its mode (the sum of both responses moves each peak
+/// a little), and nothing else is reported. A second, much larger critical speed does not hide
+/// the first (the typical level is judged around each peak, not over the whole run).
+#[test]
+fn two_modes_give_two_critical_speeds() {
+    let root = env!("CARGO_MANIFEST_DIR");
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(format!("{root}/sample-sessions/runs/pump-coastdown.json"))
+        .unwrap();
+    let mut sc: RunScenario = serde_json::from_str(&text).unwrap();
+    sc.sample_rate_hz = 16_000;
+    sc.duration_s = 150.0;
+    sc.end_rpm = 300.0;
+    sc.whirl = None;
+    sc.modes.insert(
+        0,
+        serde_json::from_value(serde_json::json!({
+            "frequency_hz": 40.0, "damping_ratio": 0.05, "eccentricity_m": 2e-5
+        }))
+        .unwrap(),
+    );
+    sc.write(dir.path()).unwrap();
+    let out = dir.path().join("out");
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("coastdown")
+        .arg(dir.path().join("run.wav"))
+        .arg("--out")
+        .arg(&out)
+        .args(["--sensitivity", "5", "--ac-corner", "3"])
+        .assert()
+        .success();
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    let c: Vec<f64> = v["critical_speeds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["speed_rpm"].as_f64().unwrap())
+        .collect();
+    let truth: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("truth.json")).unwrap())
+            .unwrap();
+    let t: Vec<f64> = serde_json::from_value(truth["critical_speeds_rpm"].clone()).unwrap();
+    assert_eq!(c.len(), 2, "{c:?}");
+    for (m, t) in c.iter().zip(&t) {
+        assert!((m / t - 1.0).abs() < 0.01, "{c:?} against {t:?}");
+    }
+}
+
+/// A very lightly damped rotor (ζ = 0.002) coasting down fast (6000 → 200 rpm in 10 s:
+/// Ω̇/(ζω)² ≈ 100, rotor-notes §C6): the response rings on and beats after the peak. No
+/// higher-order "critical speed" may come of the 1×'s leakage or the beats, and the run says in
+/// words why no critical speed is given.
+#[test]
+fn a_fast_sweep_of_a_lightly_damped_rotor_gives_no_spurious_critical() {
+    let root = env!("CARGO_MANIFEST_DIR");
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(format!("{root}/sample-sessions/runs/pump-coastdown.json"))
+        .unwrap();
+    let mut sc: RunScenario = serde_json::from_str(&text).unwrap();
+    sc.sample_rate_hz = 16_000;
+    sc.start_rpm = 6000.0;
+    sc.end_rpm = 200.0;
+    sc.duration_s = 10.0;
+    sc.whirl = None;
+    sc.modes = vec![
+        serde_json::from_value(serde_json::json!({
+            "frequency_hz": 60.0, "damping_ratio": 0.002, "eccentricity_m": 5e-6
+        }))
+        .unwrap(),
+    ];
+    sc.write(dir.path()).unwrap();
+    let out = dir.path().join("out");
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("coastdown")
+        .arg(dir.path().join("run.wav"))
+        .arg("--out")
+        .arg(&out)
+        .args(["--sensitivity", "5", "--ac-corner", "3"])
+        .assert()
+        .success();
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    let cs = v["critical_speeds"].as_array().unwrap();
+    assert!(
+        cs.iter().all(|c| c["order"].as_u64() == Some(1)),
+        "no higher-order critical: {cs:?}"
+    );
+    let warnings = v["warnings"].to_string();
+    assert!(
+        !cs.is_empty() || warnings.contains("sweep"),
+        "nothing found must be explained: {warnings}"
+    );
+}

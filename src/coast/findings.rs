@@ -141,10 +141,18 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
     }
     let amp: Vec<f64> = vecs.iter().map(|v| v.norm()).collect();
     let lags = unwrapped_lags(&vecs);
-    let mut sorted = amp.clone();
-    sorted.sort_by(f64::total_cmp);
-    let typical = sorted[sorted.len() / 2];
     let n = amp.len();
+    // The order's typical level around a speed (half to one and a half times it): a rotor's
+    // first critical stands above its surroundings even where a larger second one, or the
+    // rise of acceleration with speed, dominates the run as a whole.
+    let typical_near = |s: f64| -> f64 {
+        let mut near: Vec<f64> = (0..n)
+            .filter(|&j| speeds[j] >= 0.5 * s && speeds[j] <= 1.5 * s)
+            .map(|j| amp[j])
+            .collect();
+        near.sort_by(f64::total_cmp);
+        near.get(near.len() / 2).copied().unwrap_or(0.0)
+    };
     let mut out: Vec<CriticalSpeed> = Vec::new();
     // Candidates: local maxima over ±1 % of speed, largest first.
     let mut cands: Vec<usize> = (1..n - 1)
@@ -160,7 +168,7 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
         let a = amp[i];
         // A resonance stands well above the order's typical level and far above the scatter of
         // the revolutions it is averaged from (noise alone makes peaks too).
-        if a < 1.5 * typical || a < 10.0 * errors[i] {
+        if a < 1.5 * typical_near(speeds[i]) || a < 10.0 * errors[i] {
             continue;
         }
         let (Some(n1), Some(n2)) = crate::numeric::half_power_points(&speeds, &amp, i) else {
@@ -194,13 +202,26 @@ pub fn criticals(order: u32, points: &[OrderPoint]) -> Vec<CriticalSpeed> {
                     (lo.min(l), hi.max(l))
                 })
         };
-        let (below_min, below_max) = lag_range(k_lo, k_nc);
-        let (above_min, above_max) = lag_range(k_nc, k_hi);
-        let (change, lag_lo) = if above_max - below_min >= below_max - above_min {
-            (above_max - below_min, below_min)
-        } else {
-            (above_min - below_max, below_max)
+        let turn_over = |k_hi: usize| {
+            let (below_min, below_max) = lag_range(k_lo, k_nc);
+            let (above_min, above_max) = lag_range(k_nc, k_hi);
+            if above_max - below_min >= below_max - above_min {
+                (above_max - below_min, below_min)
+            } else {
+                (above_min - below_max, below_max)
+            }
         };
+        let (mut change, lag_lo) = turn_over(k_hi);
+        // Swept fast, a lightly damped rotor rings on at its own frequency after the peak and
+        // the lag keeps turning with the beat; the turn up to the upper half-power point (about
+        // 125° for one mode) is free of it.
+        if change.abs() > 270.0 {
+            let k_n2 = speeds.partition_point(|s| *s <= n2).clamp(k_nc, n - 1);
+            let (c2, _) = turn_over(k_n2);
+            if (100.0..=270.0).contains(&c2.abs()) {
+                change = c2;
+            }
+        }
         let (below, above) = (speeds[k_lo], speeds[k_hi]);
         // The phase-slope AF measures the turn from the lag well below the resonance (its
         // quietest point down to half its speed: slow roll, or the antiresonance before it).

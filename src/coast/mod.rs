@@ -190,6 +190,73 @@ pub fn analyse_run(path: &Path, o: &RunOptions) -> Result<RunResult, InputError>
                 && c.peak_amplitude < 0.1 * l.peak_amplitude
         })
     });
+    // The same leakage where no 1× critical was kept (a fast sweep's ringing): a higher-order
+    // peak no larger than twice the 1× vector's typical change from one revolution to the next
+    // at that speed cannot be told from it.
+    if let Some(k1) = o.orders.iter().position(|&n| n == 1) {
+        let one = &tracks[k1];
+        critical_speeds.retain(|c| {
+            if c.order == 1 {
+                return true;
+            }
+            let mut steps: Vec<f64> = one
+                .windows(2)
+                .filter(|w| (w[0].speed_rpm / c.speed_rpm - 1.0).abs() < 0.005)
+                .map(|w| (w[1].vector - w[0].vector).norm())
+                .collect();
+            if steps.is_empty() {
+                return true;
+            }
+            steps.sort_by(f64::total_cmp);
+            let keep = c.peak_amplitude > 2.0 * steps[steps.len() / 2];
+            if !keep {
+                warnings.push(format!(
+                    "a {}× peak at {:.0} rpm is no larger than the 1× changes from one revolution \
+                     to the next there: leakage of the 1×, not taken as a critical speed",
+                    c.order, c.speed_rpm
+                ));
+            }
+            keep
+        });
+    }
+    // A peak narrower than a resonance can look at this sweep rate is not one: swept through at
+    // Ω̇ a mode's apparent half-power width grows like √Ω̇ (the response cannot build up in
+    // less time), so Ω̇/(ζω)² from the apparent width stays of order one; far above that, the
+    // peak is a beat of ringing left behind, or interference.
+    const MOST_SWEEP: f64 = 3.0;
+    critical_speeds.retain(|c| {
+        let keep = c.sweep_parameter <= MOST_SWEEP;
+        if !keep {
+            warnings.push(format!(
+                "a {}× peak at {:.0} rpm is narrower than a resonance can look at this sweep rate \
+                 (Ω̇/(ζω)² = {:.1} from its width): ringing left behind or interference, not \
+                 taken as a critical speed; run slower to measure it",
+                c.order, c.speed_rpm, c.sweep_parameter
+            ));
+        }
+        keep
+    });
+    // Nothing found, yet the 1× peaks well above its run: say so rather than stay silent.
+    if let Some(k1) = o.orders.iter().position(|&n| n == 1)
+        && !critical_speeds.iter().any(|c| c.order == 1)
+    {
+        let b = findings::bode(&tracks[k1]);
+        let amp: Vec<f64> = b.vectors.iter().map(|v| v.norm()).collect();
+        if let Some(i) = (0..amp.len()).max_by(|&x, &y| amp[x].total_cmp(&amp[y])) {
+            let mut sorted = amp.clone();
+            sorted.sort_by(f64::total_cmp);
+            let median = sorted[sorted.len() / 2];
+            if amp[i] > 3.0 * median {
+                warnings.push(format!(
+                    "the 1× peaks at {:.0} rpm ({:.0}× its median) but does not read as a \
+                     resonance (half-power points, a lag change of 100–270°): a sweep too fast \
+                     for the damping, or a disturbed run — look at the Bode plot",
+                    b.speeds[i],
+                    amp[i] / median.max(f64::MIN_POSITIVE)
+                ));
+            }
+        }
+    }
     for c in &critical_speeds {
         if c.sweep_parameter > 0.1 {
             warnings.push(format!(
