@@ -406,21 +406,43 @@ fn coastdown_compares_with_the_rotor_model() {
     assert!(checked >= 5, "{checked}");
 }
 
+/// The README's invented pump run, read from sample-sessions (16 kHz for speed, no whirl).
+fn pump_run() -> RunScenario {
+    let root = env!("CARGO_MANIFEST_DIR");
+    let text = std::fs::read_to_string(format!("{root}/sample-sessions/runs/pump-coastdown.json"))
+        .unwrap();
+    let mut sc: RunScenario = serde_json::from_str(&text).unwrap();
+    sc.sample_rate_hz = 16_000;
+    sc.whirl = None;
+    sc
+}
+
+/// Writes `sc` into `dir`, runs `tapgrid coastdown` on it and returns result.json.
+fn coastdown_of(sc: &RunScenario, dir: &std::path::Path) -> serde_json::Value {
+    sc.write(dir).unwrap();
+    let out = dir.join("out");
+    Command::cargo_bin("tapgrid")
+        .unwrap()
+        .arg("coastdown")
+        .arg(dir.join("run.wav"))
+        .arg("--out")
+        .arg(&out)
+        .args(["--sensitivity", "5", "--ac-corner", "3"])
+        .assert()
+        .success();
+    serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap()
+}
+
 /// Two modes in one run (40 Hz, ζ 0.05 and 117.3 Hz, ζ 0.036; the simulator's modal sum): each
 /// critical speed is found within 1 % of its mode (the sum of both responses moves each peak
 /// a little), and nothing else is reported. A second, much larger critical speed does not hide
 /// the first (the typical level is judged around each peak, not over the whole run).
 #[test]
 fn two_modes_give_two_critical_speeds() {
-    let root = env!("CARGO_MANIFEST_DIR");
     let dir = tempfile::tempdir().unwrap();
-    let text = std::fs::read_to_string(format!("{root}/sample-sessions/runs/pump-coastdown.json"))
-        .unwrap();
-    let mut sc: RunScenario = serde_json::from_str(&text).unwrap();
-    sc.sample_rate_hz = 16_000;
+    let mut sc = pump_run();
     sc.duration_s = 150.0;
     sc.end_rpm = 300.0;
-    sc.whirl = None;
     sc.modes.insert(
         0,
         serde_json::from_value(serde_json::json!({
@@ -428,19 +450,7 @@ fn two_modes_give_two_critical_speeds() {
         }))
         .unwrap(),
     );
-    sc.write(dir.path()).unwrap();
-    let out = dir.path().join("out");
-    Command::cargo_bin("tapgrid")
-        .unwrap()
-        .arg("coastdown")
-        .arg(dir.path().join("run.wav"))
-        .arg("--out")
-        .arg(&out)
-        .args(["--sensitivity", "5", "--ac-corner", "3"])
-        .assert()
-        .success();
-    let v: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    let v = coastdown_of(&sc, dir.path());
     let c: Vec<f64> = v["critical_speeds"]
         .as_array()
         .unwrap()
@@ -463,35 +473,18 @@ fn two_modes_give_two_critical_speeds() {
 /// words why no critical speed is given.
 #[test]
 fn a_fast_sweep_of_a_lightly_damped_rotor_gives_no_spurious_critical() {
-    let root = env!("CARGO_MANIFEST_DIR");
     let dir = tempfile::tempdir().unwrap();
-    let text = std::fs::read_to_string(format!("{root}/sample-sessions/runs/pump-coastdown.json"))
-        .unwrap();
-    let mut sc: RunScenario = serde_json::from_str(&text).unwrap();
-    sc.sample_rate_hz = 16_000;
+    let mut sc = pump_run();
     sc.start_rpm = 6000.0;
     sc.end_rpm = 200.0;
     sc.duration_s = 10.0;
-    sc.whirl = None;
     sc.modes = vec![
         serde_json::from_value(serde_json::json!({
             "frequency_hz": 60.0, "damping_ratio": 0.002, "eccentricity_m": 5e-6
         }))
         .unwrap(),
     ];
-    sc.write(dir.path()).unwrap();
-    let out = dir.path().join("out");
-    Command::cargo_bin("tapgrid")
-        .unwrap()
-        .arg("coastdown")
-        .arg(dir.path().join("run.wav"))
-        .arg("--out")
-        .arg(&out)
-        .args(["--sensitivity", "5", "--ac-corner", "3"])
-        .assert()
-        .success();
-    let v: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.join("result.json")).unwrap()).unwrap();
+    let v = coastdown_of(&sc, dir.path());
     let cs = v["critical_speeds"].as_array().unwrap();
     assert!(
         cs.iter().all(|c| c["order"].as_u64() == Some(1)),
