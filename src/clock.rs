@@ -1,15 +1,40 @@
 //! Wall-clock time as text, for reports and lock labels (no time-zone database needed: UTC).
 
-/// Now as `YYYY-MM-DD HH:MM UTC`.
-pub fn utc_now() -> String {
-    let secs = std::time::SystemTime::now()
+fn now_s() -> u64 {
+    std::time::SystemTime::now()
         .duration_since(std::time::UNIX_EPOCH)
-        .map_or(0, |d| d.as_secs());
-    utc_text(secs)
+        .map_or(0, |d| d.as_secs())
 }
 
-/// Seconds since 1970 as `YYYY-MM-DD HH:MM UTC` (days to civil date: Hinnant's algorithm).
+/// Now as `YYYY-MM-DD HH:MM UTC`.
+pub fn utc_now() -> String {
+    utc_text(now_s())
+}
+
+/// Now as `YYYYMMDD-HHMMSS` (UTC), for file names.
+pub fn utc_file_stamp() -> String {
+    let (y, mo, d, s) = civil(now_s());
+    format!(
+        "{y:04}{mo:02}{d:02}-{:02}{:02}{:02}",
+        s / 3600,
+        s % 3600 / 60,
+        s % 60
+    )
+}
+
+/// Seconds since 1970 as `YYYY-MM-DD HH:MM UTC`.
 pub fn utc_text(unix_s: u64) -> String {
+    let (year, month, day, rem) = civil(unix_s);
+    format!(
+        "{year:04}-{month:02}-{day:02} {:02}:{:02} UTC",
+        rem / 3600,
+        rem % 3600 / 60
+    )
+}
+
+/// Year, month, day and seconds into the day of a Unix time (days to civil date: Hinnant's
+/// algorithm).
+fn civil(unix_s: u64) -> (i64, i64, i64, u64) {
     let days = (unix_s / 86_400) as i64;
     let rem = unix_s % 86_400;
     let z = days + 719_468;
@@ -21,11 +46,7 @@ pub fn utc_text(unix_s: u64) -> String {
     let day = doy - (153 * mp + 2) / 5 + 1;
     let month = if mp < 10 { mp + 3 } else { mp - 9 };
     let year = yoe + era * 400 + i64::from(month <= 2);
-    format!(
-        "{year:04}-{month:02}-{day:02} {:02}:{:02} UTC",
-        rem / 3600,
-        rem % 3600 / 60
-    )
+    (year, month, day, rem)
 }
 
 #[cfg(test)]

@@ -20,6 +20,8 @@ pub struct RunOutcome {
     pub run: RunResult,
     /// Model critical speeds and the fitted unbalance response (`None`: no service rotor).
     pub model: Option<Result<RunModel, String>>,
+    /// Per order, its confident lag stretches (made once here, not every frame).
+    pub lags: Vec<(u32, Vec<Vec<[f64; 2]>>)>,
 }
 
 /// The last tracking and the one running.
@@ -121,12 +123,14 @@ impl TapgridApp {
         }
         self.run.start_for(key, "tapgrid-run", move || {
             let run = analyse_run(&path, &options).map_err(|e| e.to_string())?;
-            let model = study.and_then(|st| match crate::rotor::file::from_study(&st) {
-                Ok(Some(file)) => Some(crate::pipeline::run_model::compare(&file, &run, None)),
-                Ok(None) => None,
-                Err(e) => Some(Err(e)),
-            });
-            Ok(RunOutcome { run, model })
+            let model =
+                study.and_then(|st| crate::pipeline::run_model::compare_study(&st, &run, None));
+            let lags = run
+                .tracks
+                .iter()
+                .map(|(o, pts)| (*o, crate::coast::findings::confident_lags(pts)))
+                .collect();
+            Ok(RunOutcome { run, model, lags })
         });
     }
 
@@ -351,7 +355,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut ViewCtx) {
         ui.horizontal(|ui| {
             ui.vertical(|ui| {
                 ui.set_width(w * 0.62);
-                bode(ui, r, &predicted, fit.as_ref(), h, link);
+                bode(ui, r, &o.lags, &predicted, fit.as_ref(), h, link);
             });
             ui.vertical(|ui| {
                 ui.set_width(w * 0.36);
@@ -611,6 +615,7 @@ fn summary(
 fn bode(
     ui: &mut egui::Ui,
     r: &RunResult,
+    lags: &[(u32, Vec<Vec<[f64; 2]>>)],
     predicted: &[f64],
     fit: Option<&crate::pipeline::run_model::ResponseFit>,
     h: f32,
@@ -666,57 +671,30 @@ fn bode(
         .x_axis_label("speed (rpm)")
         .y_axis_label("phase lag\ndegrees")
         .show(ui, |p| {
-            // The measured 1× lags shown, to draw the model's on the same turn of 360°.
-            let mut reference: Vec<[f64; 2]> = Vec::new();
-            for (k, (order, pts)) in r.tracks.iter().enumerate() {
-                // The averaged Bode data where the vector stands clear of its scatter (elsewhere
-                // the phase of noise says nothing), each confident stretch unwrapped on its own.
-                let b = crate::coast::findings::bode(pts);
-                let mut segment: Vec<[f64; 2]> = Vec::new();
-                let mut prev: Option<f64> = None;
-                let colour = plots::trace_color(k);
-                let mut n = 0;
-                let mut flush = |seg: &mut Vec<[f64; 2]>, p: &mut egui_plot::PlotUi<'_>| {
-                    if seg.len() > 1 {
-                        p.line(
-                            Line::new(format!("{order}× ({n})"), std::mem::take(seg)).color(colour),
-                        );
-                        n += 1;
-                    }
-                    seg.clear();
-                };
-                for ((s, v), e) in b.speeds.iter().zip(&b.vectors).zip(&b.errors) {
-                    if v.norm() < 5.0 * e || v.norm() == 0.0 {
-                        flush(&mut segment, p);
-                        prev = None;
-                        continue;
-                    }
-                    let mut l = crate::coast::track::lag_deg(*v);
-                    if let Some(q) = prev {
-                        l += 360.0 * ((q - l) / 360.0).round();
-                    }
-                    prev = Some(l);
-                    segment.push([*s, l]);
-                    if *order == 1 {
-                        reference.push([*s, l]);
-                    }
+            // The lag where each order's vector stands clear of its scatter, each confident
+            // stretch unwrapped on its own.
+            for (k, (order, stretches)) in lags.iter().enumerate() {
+                for (n, seg) in stretches.iter().enumerate() {
+                    p.line(
+                        Line::new(format!("{order}× ({n})"), seg.clone())
+                            .color(plots::trace_color(k)),
+                    );
                 }
-                flush(&mut segment, p);
             }
+            // The measured 1× lags shown, to draw the model's on the same turn of 360°.
+            let reference: Vec<[f64; 2]> = lags
+                .iter()
+                .filter(|(o, _)| *o == 1)
+                .flat_map(|(_, s)| s.iter().flatten().copied())
+                .collect();
             if let Some(f) = fit {
-                let mut prev: Option<f64> = None;
                 let xy: Vec<[f64; 2]> = f
                     .speeds_rpm
                     .iter()
-                    .zip(&f.predicted_lag_deg)
-                    .map(|(s, l)| {
-                        let mut l = *l;
-                        if let Some(q) = prev {
-                            l += 360.0 * ((q - l) / 360.0).round();
-                        }
-                        prev = Some(l);
-                        [*s, l]
-                    })
+                    .zip(crate::coast::track::unwrap_deg(
+                        f.predicted_lag_deg.iter().copied(),
+                    ))
+                    .map(|(s, l)| [*s, l])
                     .collect();
                 // Shift by whole turns to meet the measured lag where the 1× is largest.
                 let peak = f

@@ -102,19 +102,7 @@ pub fn parts_dir(out: &Path) -> PathBuf {
 
 /// A new run file name in `dir`: `run-YYYYMMDD-HHMMSS.wav` (UTC), numbered if taken.
 pub fn new_run_path(dir: &Path) -> PathBuf {
-    let t = crate::clock::utc_now();
-    let stamp: String = t
-        .chars()
-        .filter(|c| c.is_ascii_digit())
-        .collect::<String>()
-        .chars()
-        .take(12)
-        .collect();
-    let (date, time) = stamp.split_at(8.min(stamp.len()));
-    let secs = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map_or(0, |d| d.as_secs() % 60);
-    let base = format!("run-{date}-{time}{secs:02}");
+    let base = format!("run-{}", crate::clock::utc_file_stamp());
     let mut p = dir.join(format!("{base}.wav"));
     let mut k = 2;
     while p.exists() || parts_dir(&p).exists() {

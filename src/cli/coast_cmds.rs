@@ -121,15 +121,13 @@ fn model_comparison(
     sensor_position_m: Option<f64>,
 ) -> Result<crate::pipeline::run_model::RunModel> {
     let study = super::model_cmds::read_study(path)?;
-    let file = crate::rotor::file::from_study(&study)
-        .map_err(|e| anyhow!("{}: {e}", path.display()))?
+    crate::pipeline::run_model::compare_study(&study, r, sensor_position_m)
         .ok_or_else(|| {
             anyhow!(
                 "{}: the model has no bearings in service, so it predicts no critical speeds",
                 path.display()
             )
-        })?;
-    crate::pipeline::run_model::compare(&file, r, sensor_position_m)
+        })?
         .map_err(|e| anyhow!("{}: {e}", path.display()))
 }
 

@@ -107,6 +107,31 @@ pub fn bode(points: &[OrderPoint]) -> Bode {
     }
 }
 
+/// The lag of one order where its averaged vector stands five standard errors clear of its
+/// scatter (the phase of noise says nothing): stretches of (speed rpm, lag degrees), each
+/// unwrapped on its own, of two points or more.
+pub fn confident_lags(points: &[OrderPoint]) -> Vec<Vec<[f64; 2]>> {
+    let b = bode(points);
+    let mut out = Vec::new();
+    let mut seg: Vec<(f64, Complex64)> = Vec::new();
+    let mut flush = |seg: &mut Vec<(f64, Complex64)>| {
+        if seg.len() > 1 {
+            let l = unwrapped_lags(&seg.iter().map(|q| q.1).collect::<Vec<_>>());
+            out.push(seg.iter().zip(l).map(|(q, l)| [q.0, l]).collect());
+        }
+        seg.clear();
+    };
+    for ((s, v), e) in b.speeds.iter().zip(&b.vectors).zip(&b.errors) {
+        if v.norm() > 5.0 * e && v.norm() > 0.0 {
+            seg.push((*s, *v));
+        } else {
+            flush(&mut seg);
+        }
+    }
+    flush(&mut seg);
+    out
+}
+
 /// Slow roll: the mean vector over the lowest 5 % of the speed range, when that is under a
 /// fifth of the top speed (below there the unbalance response is small against runout).
 pub fn slow_roll(speeds: &[f64], vecs: &[Complex64]) -> Option<Complex64> {

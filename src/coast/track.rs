@@ -104,9 +104,13 @@ pub fn lag_deg(v: Complex64) -> f64 {
 
 /// Lags of a sequence, unwrapped (no jump over 180° between neighbours).
 pub fn unwrapped_lags(v: &[Complex64]) -> Vec<f64> {
-    let mut out: Vec<f64> = Vec::with_capacity(v.len());
-    for &z in v {
-        let mut l = lag_deg(z);
+    unwrap_deg(v.iter().map(|&z| lag_deg(z)))
+}
+
+/// Angles in degrees, unwrapped: each moved by whole turns to within 180° of the one before.
+pub fn unwrap_deg(angles: impl IntoIterator<Item = f64>) -> Vec<f64> {
+    let mut out: Vec<f64> = Vec::new();
+    for mut l in angles {
         if let Some(&p) = out.last() {
             while l - p > 180.0 {
                 l -= 360.0;

@@ -107,6 +107,19 @@ pub fn compare(
     })
 }
 
+/// [`compare`] for a study: `None` when it gives no bearings in service (nothing to predict).
+pub fn compare_study(
+    study: &crate::model::study::Study,
+    run: &RunResult,
+    sensor_position_m: Option<f64>,
+) -> Option<Result<RunModel, String>> {
+    match crate::rotor::file::from_study(study) {
+        Ok(Some(file)) => Some(compare(&file, run, sensor_position_m)),
+        Ok(None) => None,
+        Err(e) => Some(Err(e)),
+    }
+}
+
 fn response_fit(
     file: &RotorFile,
     run: &RunResult,

@@ -7,7 +7,6 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use super::svg::{Frame, Series, escape, plot};
-use crate::coast::track::unwrapped_lags;
 use crate::coast::{RunOptions, RunResult, analyse_run};
 use crate::model::study::Study;
 use crate::pipeline::run_model::RunModel;
@@ -59,16 +58,12 @@ pub fn session_runs(dir: &Path, runs: &[SavedRun]) -> Vec<RunSource> {
 /// Tracks each run and compares it with the study's service rotor, if any. A run that cannot
 /// be read is reported as such rather than failing the report.
 pub fn track_runs(sources: &[RunSource], study: Option<&Study>) -> Vec<ReportRun> {
-    let file = study.map(crate::rotor::file::from_study);
     sources
         .iter()
         .map(|src| {
             let result = analyse_run(&src.path, &src.options).map_err(|e| e.to_string());
-            let model = match (&result, &file) {
-                (Ok(run), Some(Ok(Some(f)))) => {
-                    Some(crate::pipeline::run_model::compare(f, run, None))
-                }
-                (Ok(_), Some(Err(e))) => Some(Err(e.clone())),
+            let model = match (&result, study) {
+                (Ok(run), Some(st)) => crate::pipeline::run_model::compare_study(st, run, None),
                 _ => None,
             };
             ReportRun {
@@ -188,28 +183,9 @@ fn run(s: &mut String, r: &ReportRun) {
             colour,
             1.3,
         ));
-        // Lag only where the vector stands clear of its scatter (the phase of noise says
-        // nothing), each stretch unwrapped on its own.
-        let mut seg: Vec<(f64, crate::Complex64)> = Vec::new();
-        let mut flush = |seg: &mut Vec<(f64, crate::Complex64)>| {
-            if seg.len() > 1 {
-                let l = unwrapped_lags(&seg.iter().map(|q| q.1).collect::<Vec<_>>());
-                lag.push(Series::line(
-                    seg.iter().zip(l).map(|(q, l)| [q.0, l]).collect(),
-                    colour,
-                    1.3,
-                ));
-            }
-            seg.clear();
-        };
-        for ((s, v), e) in b.speeds.iter().zip(&b.vectors).zip(&b.errors) {
-            if v.norm() > 5.0 * e && v.norm() > 0.0 {
-                seg.push((*s, *v));
-            } else {
-                flush(&mut seg);
-            }
+        for seg in crate::coast::findings::confident_lags(pts) {
+            lag.push(Series::line(seg, colour, 1.3));
         }
-        flush(&mut seg);
     }
     if let Some(f) = fit {
         let mut line = Series::line(
