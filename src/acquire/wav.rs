@@ -132,32 +132,48 @@ fn info_of<R: std::io::Read>(path: &Path, r: &hound::WavReader<R>) -> Result<Wav
     })
 }
 
-/// Takes two channels (at byte offsets `oa`, `ob` in each frame) out of interleaved sample data;
-/// only the first when `ob` is `None` (`cb` is then left empty).
+/// Takes two channels (`a`, `b`, of `channels` interleaved samples of `W` bytes per frame) out
+/// of sample data; only the first when `b` is `None` (`cb` is then left empty). Samples are taken
+/// as fixed-size arrays and each channel is written in one pass, so there is no per-sample bounds
+/// check or capacity test: the decode runs at memory speed.
 #[allow(clippy::too_many_arguments)]
-fn deinterleave<F: Fn(&[u8]) -> f64>(
+fn deinterleave<const W: usize>(
     data: &[u8],
-    stride: usize,
-    oa: usize,
-    ob: Option<usize>,
+    channels: usize,
+    a: usize,
+    b: Option<usize>,
     ca: &mut Vec<f64>,
     cb: &mut Vec<f64>,
     scale: f64,
-    get: F,
+    get: impl Fn([u8; W]) -> f64,
 ) {
-    ca.clear();
-    cb.clear();
-    ca.reserve(data.len() / stride);
-    match ob {
-        Some(ob) => {
-            cb.reserve(data.len() / stride);
-            for f in data.chunks_exact(stride) {
-                ca.push(get(&f[oa..]) * scale);
-                cb.push(get(&f[ob..]) * scale);
-            }
+    let (samples, _) = data.as_chunks::<W>();
+    let one = |out: &mut Vec<f64>, ch: usize| {
+        out.clear();
+        match channels {
+            2 => channel_of::<W, 2>(samples, ch, out, scale, &get),
+            4 => channel_of::<W, 4>(samples, ch, out, scale, &get),
+            _ => out.extend(samples.chunks_exact(channels).map(|f| get(f[ch]) * scale)),
         }
-        None => ca.extend(data.chunks_exact(stride).map(|f| get(&f[oa..]) * scale)),
+    };
+    one(ca, a);
+    match b {
+        Some(b) => one(cb, b),
+        None => cb.clear(),
     }
+}
+
+/// Channel `ch` of frames of `C` samples: a fixed frame size makes the copy a plain strided loop.
+fn channel_of<const W: usize, const C: usize>(
+    samples: &[[u8; W]],
+    ch: usize,
+    out: &mut Vec<f64>,
+    scale: f64,
+    get: &impl Fn([u8; W]) -> f64,
+) {
+    let (frames, _) = samples.as_chunks::<C>();
+    let ch = ch.min(C - 1);
+    out.extend(frames.iter().map(|f| get(f[ch]) * scale));
 }
 
 /// Offset and length of the `data` chunk of a RIFF/WAVE file.
@@ -334,25 +350,31 @@ fn decode_bytes(
         }
         let data = &bytes[off..off + len];
         let frames = len / stride;
-        let (oa, ob) = (a * width, want_b.then_some(b * width));
+        let ch = info.channels;
+        let bb = want_b.then_some(b);
         match info.encoding {
             SampleEncoding::Int16 => {
-                deinterleave(data, stride, oa, ob, ca, cb, 1.0 / 32768.0, |x| {
-                    i16::from_le_bytes([x[0], x[1]]) as f64
+                deinterleave(data, ch, a, bb, ca, cb, 1.0 / 32768.0, |x: [u8; 2]| {
+                    i16::from_le_bytes(x) as f64
                 })
             }
             SampleEncoding::Int24 => {
-                deinterleave(data, stride, oa, ob, ca, cb, 1.0 / 8_388_608.0, |x| {
+                deinterleave(data, ch, a, bb, ca, cb, 1.0 / 8_388_608.0, |x: [u8; 3]| {
                     (i32::from_le_bytes([0, x[0], x[1], x[2]]) >> 8) as f64
                 })
             }
-            SampleEncoding::Int32 => {
-                deinterleave(data, stride, oa, ob, ca, cb, 1.0 / 2_147_483_648.0, |x| {
-                    i32::from_le_bytes([x[0], x[1], x[2], x[3]]) as f64
-                })
-            }
-            SampleEncoding::Float32 => deinterleave(data, stride, oa, ob, ca, cb, 1.0, |x| {
-                f32::from_le_bytes([x[0], x[1], x[2], x[3]]) as f64
+            SampleEncoding::Int32 => deinterleave(
+                data,
+                ch,
+                a,
+                bb,
+                ca,
+                cb,
+                1.0 / 2_147_483_648.0,
+                |x: [u8; 4]| i32::from_le_bytes(x) as f64,
+            ),
+            SampleEncoding::Float32 => deinterleave(data, ch, a, bb, ca, cb, 1.0, |x: [u8; 4]| {
+                f32::from_le_bytes(x) as f64
             }),
         }
         if info.encoding == SampleEncoding::Float32 && non_finite == NonFinite::Refuse {

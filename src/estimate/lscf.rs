@@ -184,29 +184,8 @@ pub fn stabilization_from(
     let np = max_order + 1;
 
     // Per output: R_o (to factor), X_o = L⁻¹S_o, and T_o (summed). Their entries are sums over
-    // lines of powers of z times W², W²H and W²|H|² — for every output at once, one product of
-    // the powers [Re z^d; Im z^d] (2·np × lines) with those columns (lines × 4·outputs).
-    let mut powers = DMatrix::<f64>::zeros(2 * np, nf);
-    for (k, &zk) in z.iter().enumerate() {
-        let mut zp = Complex64::new(1.0, 0.0);
-        for d in 0..np {
-            powers[(d, k)] = zp.re;
-            powers[(np + d, k)] = zp.im;
-            zp *= zk;
-        }
-    }
-    let mut data = DMatrix::<f64>::zeros(nf, 4 * no);
-    for o in 0..no {
-        for k in 0..nf {
-            let w2 = weight[o][k] * weight[o][k];
-            let hk = h[o][k];
-            data[(k, 4 * o)] = w2;
-            data[(k, 4 * o + 1)] = w2 * hk.re;
-            data[(k, 4 * o + 2)] = w2 * hk.im;
-            data[(k, 4 * o + 3)] = w2 * hk.norm_sqr();
-        }
-    }
-    let sums = &powers * &data;
+    // lines of powers of z times W², W²H and W²|H|².
+    let sums = line_sums(&z, h, weight, np);
     let per_output = (0..no).map(|o| {
         let col = |c: usize, row0: usize| -> Vec<f64> {
             (0..np).map(|d| sums[(row0 + d, 4 * o + c)]).collect()
@@ -224,15 +203,11 @@ pub fn stabilization_from(
         factors.push((l, x));
     }
 
+    // The reduced normal matrix of every order, in turn: rank-one updates with row i of every
+    // X_o leave gsum's leading (i+1)-block equal to Σ_o S_oᵀ R_o⁻¹ S_o of order i.
     let mut gsum = DMatrix::<f64>::zeros(np, np);
-    let mut out = Stabilization {
-        poles: Vec::new(),
-        max_order,
-    };
-    let mut prev: Vec<Pole> = Vec::new();
+    let mut reduced: Vec<(usize, DMatrix<f64>)> = Vec::new();
     for i in 0..np {
-        // Rank-one updates with row i of every X_o: after them, gsum's leading (i+1)-block is
-        // Σ_o S_oᵀ R_o⁻¹ S_o of order i.
         for (_, x) in &factors {
             let row = x.row(i);
             gsum.ger(1.0, &row.transpose(), &row.transpose(), 1.0);
@@ -242,76 +217,157 @@ pub fn stabilization_from(
             continue;
         }
         let m = (tsum.view((0, 0), (p + 1, p + 1)) - gsum.view((0, 0), (p + 1, p + 1))) * 2.0;
-        let a11 = m.view((0, 0), (p, p)).into_owned();
-        let a12 = m.view((0, p), (p, 1)).into_owned();
-        let Some(sol) = a11.lu().solve(&(-a12)) else {
+        reduced.push((p, m));
+    }
+    // Each order's poles are independent of the others': solved on all cores, then classified
+    // against the order below in turn.
+    let found = crate::numeric::par_map(&reduced, |(p, m)| {
+        poles_of_order(*p, m, &factors, dt, [f_lo, f_hi])
+    });
+    let mut out = Stabilization {
+        poles: Vec::new(),
+        max_order,
+    };
+    let mut prev: Vec<Pole> = Vec::new();
+    for ((p, _), here) in reduced.iter().zip(found) {
+        // A singular order is skipped: the next is classified against the last one solved.
+        let Some(mut here) = here else {
             continue;
         };
-        let mut alpha = DVector::<f64>::zeros(p + 1);
-        alpha.rows_mut(0, p).copy_from(&sol.column(0));
-        alpha[p] = 1.0;
-        // Frobenius companion of z^p + α_{p−1} z^{p−1} + … + α_0.
-        let mut comp = DMatrix::<f64>::zeros(p, p);
-        for j in 0..p {
-            comp[(0, j)] = -alpha[p - 1 - j];
-        }
-        for j in 1..p {
-            comp[(j, j - 1)] = 1.0;
-        }
-        let Some(roots) = crate::numeric::complex_eigenvalues(comp) else {
-            continue;
-        };
-        // β_o = −R_o⁻¹S_oα = −L⁻ᵀ(X_o α) on the leading blocks.
-        let betas: Vec<DVector<f64>> = factors
-            .iter()
-            .map(|(l, x)| {
-                let y = x.view((0, 0), (p + 1, p + 1)) * &alpha;
-                l.view((0, 0), (p + 1, p + 1))
-                    .tr_solve_lower_triangular(&(-y))
-                    .unwrap_or_else(|| DVector::zeros(p + 1))
-            })
-            .collect();
-        let mut here: Vec<Pole> = Vec::new();
-        for zr in roots.iter() {
-            let zr = Complex64::new(zr.re, zr.im);
-            if zr.im <= 0.0 || zr.norm() >= 1.0 {
-                continue;
-            }
-            let lam = zr.ln() / dt;
-            let f = lam.norm() / TAU;
-            if f < f_lo || f > f_hi {
-                continue;
-            }
-            let shape: Vec<Complex64> = betas
-                .iter()
-                .map(|b| {
-                    let mut acc = Complex64::new(0.0, 0.0);
-                    for r in (0..=p).rev() {
-                        acc = acc * zr + b[r];
-                    }
-                    acc
-                })
-                .collect();
-            here.push(Pole {
-                order: p,
-                lambda: lam,
-                frequency_hz: f,
-                damping_ratio: -lam.re / lam.norm(),
-                status: PoleStatus::New,
-                mpc: mpc(&shape),
-                shape,
-            });
-        }
-        here.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
         for pole in &mut here {
             pole.status = classify(pole, &prev, criteria);
         }
-        if p >= first_order {
+        if *p >= first_order {
             out.poles.extend(here.iter().cloned());
         }
         prev = here;
     }
     Ok(out)
+}
+
+/// Lines per block of the sums over lines: a block's powers and data stay in cache.
+const LINE_BLOCK: usize = 512;
+
+/// The sums over lines behind every output's normal equations: rows d and np + d hold
+/// Σ_k Re z_k^d·c_k and Σ_k Im z_k^d·c_k for the columns c = W², W²·Re H, W²·Im H, W²|H|² of
+/// each output (4 per output). Formed as matrix products block by block, the blocks spread over
+/// the cores.
+fn line_sums(
+    z: &[Complex64],
+    h: &[Vec<Complex64>],
+    weight: &[Vec<f64>],
+    np: usize,
+) -> DMatrix<f64> {
+    let no = h.len();
+    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let per = z.len().div_ceil(workers.max(1)).max(LINE_BLOCK);
+    let ranges: Vec<(usize, usize)> = (0..z.len())
+        .step_by(per)
+        .map(|k0| (k0, (k0 + per).min(z.len())))
+        .collect();
+    let parts = crate::numeric::par_map(&ranges, |&(r0, r1)| {
+        let mut sums = DMatrix::<f64>::zeros(2 * np, 4 * no);
+        let mut powers = DMatrix::<f64>::zeros(2 * np, LINE_BLOCK);
+        let mut data = DMatrix::<f64>::zeros(LINE_BLOCK, 4 * no);
+        for k0 in (r0..r1).step_by(LINE_BLOCK) {
+            let kb = (r1 - k0).min(LINE_BLOCK);
+            for k in 0..kb {
+                let zk = z[k0 + k];
+                let mut zp = Complex64::new(1.0, 0.0);
+                for d in 0..np {
+                    powers[(d, k)] = zp.re;
+                    powers[(np + d, k)] = zp.im;
+                    zp *= zk;
+                }
+            }
+            for o in 0..no {
+                for k in 0..kb {
+                    let w2 = weight[o][k0 + k] * weight[o][k0 + k];
+                    let hk = h[o][k0 + k];
+                    data[(k, 4 * o)] = w2;
+                    data[(k, 4 * o + 1)] = w2 * hk.re;
+                    data[(k, 4 * o + 2)] = w2 * hk.im;
+                    data[(k, 4 * o + 3)] = w2 * hk.norm_sqr();
+                }
+            }
+            sums.gemm(1.0, &powers.columns(0, kb), &data.rows(0, kb), 1.0);
+        }
+        sums
+    });
+    parts
+        .into_iter()
+        .reduce(|a, b| a + b)
+        .unwrap_or_else(|| DMatrix::zeros(2 * np, 4 * no))
+}
+
+/// The poles of model order `p` from its reduced normal matrix `m` ((p+1)², of T − SᵀR⁻¹S),
+/// unclassified: the denominator's roots inside the unit circle, in `band` (Hz), with their
+/// shapes from every output's numerator. `None` when the order's system is singular.
+fn poles_of_order(
+    p: usize,
+    m: &DMatrix<f64>,
+    factors: &[(DMatrix<f64>, DMatrix<f64>)],
+    dt: f64,
+    [f_lo, f_hi]: [f64; 2],
+) -> Option<Vec<Pole>> {
+    let a11 = m.view((0, 0), (p, p)).into_owned();
+    let a12 = m.view((0, p), (p, 1)).into_owned();
+    let sol = a11.lu().solve(&(-a12))?;
+    let mut alpha = DVector::<f64>::zeros(p + 1);
+    alpha.rows_mut(0, p).copy_from(&sol.column(0));
+    alpha[p] = 1.0;
+    // Frobenius companion of z^p + α_{p−1} z^{p−1} + … + α_0.
+    let mut comp = DMatrix::<f64>::zeros(p, p);
+    for j in 0..p {
+        comp[(0, j)] = -alpha[p - 1 - j];
+    }
+    for j in 1..p {
+        comp[(j, j - 1)] = 1.0;
+    }
+    let roots = crate::numeric::complex_eigenvalues(comp)?;
+    // β_o = −R_o⁻¹S_oα = −L⁻ᵀ(X_o α) on the leading blocks.
+    let betas: Vec<DVector<f64>> = factors
+        .iter()
+        .map(|(l, x)| {
+            let y = x.view((0, 0), (p + 1, p + 1)) * &alpha;
+            l.view((0, 0), (p + 1, p + 1))
+                .tr_solve_lower_triangular(&(-y))
+                .unwrap_or_else(|| DVector::zeros(p + 1))
+        })
+        .collect();
+    let mut here: Vec<Pole> = Vec::new();
+    for zr in roots.iter() {
+        let zr = Complex64::new(zr.re, zr.im);
+        if zr.im <= 0.0 || zr.norm() >= 1.0 {
+            continue;
+        }
+        let lam = zr.ln() / dt;
+        let f = lam.norm() / TAU;
+        if f < f_lo || f > f_hi {
+            continue;
+        }
+        let shape: Vec<Complex64> = betas
+            .iter()
+            .map(|b| {
+                let mut acc = Complex64::new(0.0, 0.0);
+                for r in (0..=p).rev() {
+                    acc = acc * zr + b[r];
+                }
+                acc
+            })
+            .collect();
+        here.push(Pole {
+            order: p,
+            lambda: lam,
+            frequency_hz: f,
+            damping_ratio: -lam.re / lam.norm(),
+            status: PoleStatus::New,
+            mpc: mpc(&shape),
+            shape,
+        });
+    }
+    here.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    Some(here)
 }
 
 fn classify(p: &Pole, prev: &[Pole], c: StabilityCriteria) -> PoleStatus {

@@ -61,13 +61,24 @@ pub fn fit_output(
     lambda: &[Complex64],
     exp_tau_s: f64,
 ) -> Option<OutputFit> {
-    let rows = basis_rows(freq_hz, lambda, exp_tau_s);
-    fit_one(&rows, h, weight, lambda.len())
+    fit_outputs(freq_hz, &[h], &[weight], lambda, exp_tau_s)
+        .ok()?
+        .pop()
 }
 
-/// [`fit_output`] for many outputs over the same lines: the basis (the same for every output)
-/// is formed once and the outputs are fitted on parallel threads. `None` names the first output
-/// whose fit is singular (`Err(index)`).
+/// Lines per block of the normal-equation sums: small enough that a block's products stay in
+/// cache, large enough for the matrix products to run at full speed.
+const BLOCK: usize = 256;
+
+/// [`fit_output`] for many outputs over the same lines. `Err` names the first output whose fit
+/// is singular or not finite.
+///
+/// Every output shares the basis and has its own line weights W, so output o's normal matrix is
+/// Σ_k W_ok²·Re(b̄_k b_kᵀ): the products of the basis columns at each line, weighted. Those
+/// products are formed once per line and summed for every output at once as one matrix product
+/// (products × lines)·(lines × outputs), block by block; the right-hand sides and the synthesis
+/// are matrix products too. Each output's system is then scaled to unit diagonal (the modal and
+/// residual terms span many decades) and solved by Cholesky, or by SVD where that fails.
 pub fn fit_outputs(
     freq_hz: &[f64],
     h: &[&[Complex64]],
@@ -75,48 +86,132 @@ pub fn fit_outputs(
     lambda: &[Complex64],
     exp_tau_s: f64,
 ) -> Result<Vec<OutputFit>, usize> {
-    let rows = basis_rows(freq_hz, lambda, exp_tau_s);
     let n = lambda.len();
-    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
-    let idx: Vec<usize> = (0..h.len()).collect();
-    let chunk = h.len().div_ceil(workers).max(1);
-    let fits: Vec<Option<OutputFit>> = if workers < 2 || h.len() < 4 {
-        idx.iter()
-            .map(|&o| fit_one(&rows, h[o], weight[o], n))
-            .collect()
-    } else {
-        std::thread::scope(|scope| {
-            let rows = &rows;
-            let handles: Vec<_> = idx
-                .chunks(chunk)
-                .map(|os| {
-                    scope.spawn(move || {
-                        os.iter()
-                            .map(|&o| fit_one(rows, h[o], weight[o], n))
-                            .collect::<Vec<_>>()
-                    })
-                })
-                .collect();
-            handles
-                .into_iter()
-                .flat_map(|t| t.join().unwrap_or_default())
-                .collect()
-        })
-    };
-    if fits.len() != h.len() {
+    let cols = 2 * n + 2;
+    let (nl, no) = (freq_hz.len(), h.len());
+    if no == 0 {
+        return Ok(Vec::new());
+    }
+    if h.iter().any(|v| v.len() != nl) || weight.iter().any(|v| v.len() != nl) {
         return Err(0);
     }
-    fits.into_iter()
-        .enumerate()
-        .map(|(o, f)| f.ok_or(o))
-        .collect()
-}
-
-fn basis_rows(freq_hz: &[f64], lambda: &[Complex64], exp_tau_s: f64) -> Vec<Vec<Complex64>> {
-    freq_hz
+    let rows: Vec<Vec<Complex64>> = freq_hz
         .iter()
         .map(|&f| basis_row(f, lambda, exp_tau_s))
-        .collect()
+        .collect();
+    let pairs: Vec<(usize, usize)> = (0..cols)
+        .flat_map(|i| (i..cols).map(move |j| (i, j)))
+        .collect();
+    let mut gram = DMatrix::<f64>::zeros(pairs.len(), no);
+    let mut rhs = DMatrix::<f64>::zeros(cols, no);
+    let mut prod = DMatrix::<f64>::zeros(pairs.len(), BLOCK);
+    let mut b_re = DMatrix::<f64>::zeros(cols, BLOCK);
+    let mut b_im = DMatrix::<f64>::zeros(cols, BLOCK);
+    let mut w2 = DMatrix::<f64>::zeros(BLOCK, no);
+    let mut z_re = DMatrix::<f64>::zeros(BLOCK, no);
+    let mut z_im = DMatrix::<f64>::zeros(BLOCK, no);
+    for k0 in (0..nl).step_by(BLOCK) {
+        let kb = (nl - k0).min(BLOCK);
+        for k in 0..kb {
+            let row = &rows[k0 + k];
+            for (p, &(i, j)) in pairs.iter().enumerate() {
+                prod[(p, k)] = row[i].re * row[j].re + row[i].im * row[j].im;
+            }
+            for (c, v) in row.iter().enumerate() {
+                b_re[(c, k)] = v.re;
+                b_im[(c, k)] = v.im;
+            }
+        }
+        for o in 0..no {
+            for k in 0..kb {
+                let w = weight[o][k0 + k];
+                let z = h[o][k0 + k] * (w * w);
+                w2[(k, o)] = w * w;
+                z_re[(k, o)] = z.re;
+                z_im[(k, o)] = z.im;
+            }
+        }
+        gram.gemm(1.0, &prod.columns(0, kb), &w2.rows(0, kb), 1.0);
+        rhs.gemm(1.0, &b_re.columns(0, kb), &z_re.rows(0, kb), 1.0);
+        rhs.gemm(1.0, &b_im.columns(0, kb), &z_im.rows(0, kb), 1.0);
+    }
+    let mut coef = DMatrix::<f64>::zeros(cols, no);
+    for o in 0..no {
+        let mut a = DMatrix::<f64>::zeros(cols, cols);
+        for (p, &(i, j)) in pairs.iter().enumerate() {
+            a[(i, j)] = gram[(p, o)];
+            a[(j, i)] = gram[(p, o)];
+        }
+        let scale: Vec<f64> = (0..cols)
+            .map(|i| {
+                let d = a[(i, i)];
+                if d > 0.0 { 1.0 / d.sqrt() } else { 1.0 }
+            })
+            .collect();
+        for i in 0..cols {
+            for j in 0..cols {
+                a[(i, j)] *= scale[i] * scale[j];
+            }
+        }
+        let b = DVector::from_iterator(cols, (0..cols).map(|i| rhs[(i, o)] * scale[i]));
+        if !crate::numeric::all_finite(&a) || !b.iter().all(|v| v.is_finite()) {
+            return Err(o);
+        }
+        let x = a
+            .clone()
+            .cholesky()
+            .map(|c| c.solve(&b))
+            .or_else(|| crate::numeric::svd_solve(a, &b, 1e-12))
+            .ok_or(o)?;
+        for i in 0..cols {
+            coef[(i, o)] = x[i] * scale[i];
+        }
+    }
+    // The synthesis: real and imaginary parts of the basis times every output's coefficients.
+    let mut syn_re = DMatrix::<f64>::zeros(nl, no);
+    let mut syn_im = DMatrix::<f64>::zeros(nl, no);
+    let mut bt_re = DMatrix::<f64>::zeros(BLOCK, cols);
+    let mut bt_im = DMatrix::<f64>::zeros(BLOCK, cols);
+    for k0 in (0..nl).step_by(BLOCK) {
+        let kb = (nl - k0).min(BLOCK);
+        for c in 0..cols {
+            for k in 0..kb {
+                let v = rows[k0 + k][c];
+                bt_re[(k, c)] = v.re;
+                bt_im[(k, c)] = v.im;
+            }
+        }
+        syn_re
+            .rows_mut(k0, kb)
+            .gemm(1.0, &bt_re.rows(0, kb), &coef, 0.0);
+        syn_im
+            .rows_mut(k0, kb)
+            .gemm(1.0, &bt_im.rows(0, kb), &coef, 0.0);
+    }
+    Ok((0..no)
+        .map(|o| {
+            let synthesized: Vec<Complex64> = (0..nl)
+                .map(|k| Complex64::new(syn_re[(k, o)], syn_im[(k, o)]))
+                .collect();
+            let (mut num, mut den, mut weighted_residual) = (0.0, 0.0, 0.0);
+            for ((a, b), w) in h[o].iter().zip(&synthesized).zip(weight[o]) {
+                let e = (a - b).norm_sqr();
+                num += e;
+                den += a.norm_sqr();
+                weighted_residual += w * w * e;
+            }
+            OutputFit {
+                residues: (0..n)
+                    .map(|r| Complex64::new(coef[(2 * r, o)], coef[(2 * r + 1, o)]))
+                    .collect(),
+                lower: coef[(2 * n, o)],
+                upper: coef[(2 * n + 1, o)],
+                synthesized,
+                fit_error: if den > 0.0 { num / den } else { 0.0 },
+                weighted_residual,
+            }
+        })
+        .collect())
 }
 
 /// The real-valued LSFD basis: each line's row weighted, its real and imaginary parts as two
@@ -144,60 +239,6 @@ fn weighted_basis<'a>(
         }
     }
     crate::numeric::all_finite(&b).then_some((b, scale))
-}
-
-fn fit_one(
-    rows: &[Vec<Complex64>],
-    h: &[Complex64],
-    weight: &[f64],
-    n: usize,
-) -> Option<OutputFit> {
-    let cols = 2 * n + 2;
-    // Solved by its normal equations.
-    let (b, scale) = weighted_basis(rows.iter().map(Vec::as_slice), weight, cols)?;
-    let mut y = DVector::<f64>::zeros(2 * rows.len());
-    for (k, (&w, hk)) in weight.iter().zip(h).enumerate() {
-        y[2 * k] = w * hk.re;
-        y[2 * k + 1] = w * hk.im;
-    }
-    if !y.iter().all(|v| v.is_finite()) {
-        return None;
-    }
-    let ata = b.tr_mul(&b);
-    let atb = b.tr_mul(&y);
-    let x = ata
-        .clone()
-        .cholesky()
-        .map(|c| c.solve(&atb))
-        .or_else(|| crate::numeric::svd_solve(ata, &atb, 1e-12))?;
-    let coef: Vec<f64> = (0..cols).map(|i| x[i] * scale[i]).collect();
-    let residues: Vec<Complex64> = (0..n)
-        .map(|r| Complex64::new(coef[2 * r], coef[2 * r + 1]))
-        .collect();
-    let synthesized: Vec<Complex64> = rows
-        .iter()
-        .map(|b| b.iter().zip(&coef).map(|(v, c)| v * *c).sum())
-        .collect();
-    let num: f64 = h
-        .iter()
-        .zip(&synthesized)
-        .map(|(a, b)| (a - b).norm_sqr())
-        .sum();
-    let den: f64 = h.iter().map(|a| a.norm_sqr()).sum();
-    let weighted_residual: f64 = h
-        .iter()
-        .zip(&synthesized)
-        .zip(weight)
-        .map(|((a, b), w)| w * w * (a - b).norm_sqr())
-        .sum();
-    Some(OutputFit {
-        residues,
-        lower: coef[2 * n],
-        upper: coef[2 * n + 1],
-        synthesized,
-        fit_error: if den > 0.0 { num / den } else { 0.0 },
-        weighted_residual,
-    })
 }
 
 /// The measured data of a narrow band shared by many LSFD residual evaluations (the nonlinear

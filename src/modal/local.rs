@@ -16,7 +16,7 @@ pub(super) fn local_columns(
     w_all: &[Vec<f64>],
     f: f64,
     s: &ModalSettings,
-    physical: &dyn Fn(&Pole) -> bool,
+    physical: &(dyn Fn(&Pole) -> bool + Sync),
 ) -> Vec<(Pole, usize)> {
     let half = (0.15 * f).max(40.0 * set.df_hz);
     let k0 = set.freq_hz.partition_point(|&x| x < f - half);
@@ -98,33 +98,40 @@ pub(super) fn local_poles(
     chosen: &[(usize, usize)],
     w: &[Vec<f64>],
     s: &ModalSettings,
-    physical: &dyn Fn(&Pole) -> bool,
+    physical: &(dyn Fn(&Pole) -> bool + Sync),
 ) -> Vec<(Pole, usize)> {
     let mut out: Vec<(Pole, usize)> = Vec::new();
     if set.layout != Layout::Hammer || set.freq_hz.len() < 64 {
         return out;
     }
     let y = &ind.sum_abs;
-    for k in prominent_peaks(y) {
-        let f = set.freq_hz[k];
+    // Peaks no chosen pole explains that stand out as resonances; their local diagrams are
+    // independent and run on all cores.
+    let peaks: Vec<f64> = prominent_peaks(y)
+        .into_iter()
+        .filter_map(|k| {
+            let f = set.freq_hz[k];
+            let near = |g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
+            if chosen.iter().any(|c| near(stab.poles[c.0].frequency_hz)) {
+                return None;
+            }
+            // A resonance stands at least 6 dB above the lowest point within ±10 % on each side.
+            let span = ((0.1 * f / set.df_hz) as usize).max(4);
+            let left = y[k.saturating_sub(span)..k]
+                .iter()
+                .fold(f64::INFINITY, |m, &v| m.min(v));
+            let right = y[k + 1..(k + span + 1).min(y.len())]
+                .iter()
+                .fold(f64::INFINITY, |m, &v| m.min(v));
+            (left.is_finite() && right.is_finite() && y[k] >= 2.0 * left.max(right)).then_some(f)
+        })
+        .collect();
+    let columns = crate::numeric::par_map(&peaks, |&f| local_columns(set, w, f, s, physical));
+    for (&f, cols) in peaks.iter().zip(columns) {
         let near = |g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
-        if chosen.iter().any(|c| near(stab.poles[c.0].frequency_hz))
-            || out.iter().any(|p| near(p.0.frequency_hz))
-        {
+        if out.iter().any(|p| near(p.0.frequency_hz)) {
             continue;
         }
-        // A resonance stands at least 6 dB above the lowest point within ±10 % on each side.
-        let span = ((0.1 * f / set.df_hz) as usize).max(4);
-        let left = y[k.saturating_sub(span)..k]
-            .iter()
-            .fold(f64::INFINITY, |m, &v| m.min(v));
-        let right = y[k + 1..(k + span + 1).min(y.len())]
-            .iter()
-            .fold(f64::INFINITY, |m, &v| m.min(v));
-        if left.is_infinite() || right.is_infinite() || y[k] < 2.0 * left.max(right) {
-            continue;
-        }
-        let cols = local_columns(set, w, f, s, physical);
         if let Some(best) = cols
             .into_iter()
             .filter(|c| (c.0.frequency_hz / f - 1.0).abs() < 0.01)

@@ -199,9 +199,12 @@ pub(super) fn lscf_modes(
         // A pole the global fit gave to two close modes (a split pair from two bending planes,
         // widened by the exponential window) shows as two columns over a narrow band.
         let mut splits: Vec<(usize, Vec<(Pole, usize)>)> = Vec::new();
-        for (ci, &(pi, _)) in chosen.iter().enumerate() {
+        let columns = crate::numeric::par_map(&chosen, |&(pi, _)| {
+            local_columns(set, &w, poles[pi].frequency_hz, s, &physical_pole)
+        });
+        for (ci, (&(pi, _), cols)) in chosen.iter().zip(columns).enumerate() {
             let f = poles[pi].frequency_hz;
-            let near: Vec<(Pole, usize)> = local_columns(set, &w, f, s, &physical_pole)
+            let near: Vec<(Pole, usize)> = cols
                 .into_iter()
                 .filter(|c| (c.0.frequency_hz / f - 1.0).abs() < 0.015)
                 .filter(|c| {

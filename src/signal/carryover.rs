@@ -90,7 +90,7 @@ pub fn corrections(
     // Bounded work per station: at most 1500 lines and six decays feed the pole estimate (the
     // decays' poles are sharp; a coarser line spacing resolves them once the window is removed).
     let max_len = (1500.0 * fs as f64 / (1.3 * band_hz[1] - 0.8 * band_hz[0]).max(1.0)) as usize;
-    let len = len.min(max_len.max((0.1 * fs as f64) as usize));
+    let len = super::frf::smooth_len_at_most(len.min(max_len.max((0.1 * fs as f64) as usize)));
     let step = segs.len().div_ceil(6);
     let segs: Vec<(usize, usize)> = segs.into_iter().step_by(step).collect();
     let dp = decay_poles(x, &segs, len, dt, band_hz);
@@ -124,8 +124,8 @@ fn noise_floor_rms(x: &[f64], fs: u32) -> f64 {
     let mut r: Vec<f64> = x
         .chunks_exact(block)
         .map(|c| {
-            let m = c.iter().sum::<f64>() / block as f64;
-            (c.iter().map(|v| (v - m) * (v - m)).sum::<f64>() / block as f64).sqrt()
+            let m = crate::numeric::lane_sum(c, |v| v) / block as f64;
+            (crate::numeric::lane_sum(c, |v| (v - m) * (v - m)) / block as f64).sqrt()
         })
         .collect();
     if r.is_empty() {
@@ -190,6 +190,11 @@ fn decay_poles(
     (!poles.is_empty()).then_some(poles)
 }
 
+/// The most poles a ringing model keeps: the slowest-decaying, which are what rings on into the
+/// next record; the bound keeps the fit's cost per record fixed (its normal matrix grows with
+/// the square of the pole count).
+const MAX_POLES: usize = 16;
+
 /// Fits Σ_r (p_r Re e^{λ_r t} + q_r Im e^{λ_r t}) to `x` over the `m` samples before `anchor`
 /// (t = 0 at `anchor`), and returns the model over `[s, s + n)`.
 fn fit_and_extrapolate(
@@ -210,10 +215,8 @@ fn fit_and_extrapolate(
         .copied()
         .filter(|l| -l.re * window_s < 20.0)
         .collect();
-    // What rings on into the next record is the slowest-decaying poles; sixteen of them bound
-    // the fit's cost per record (its normal matrix grows with the square of the pole count).
     poles.sort_by(|a, b| (-a.re).total_cmp(&(-b.re)));
-    poles.truncate(16);
+    poles.truncate(MAX_POLES);
     let poles = poles.as_slice();
     if poles.is_empty() || m < 4 * poles.len() + 8 {
         return None;
@@ -247,18 +250,36 @@ fn fit_and_extrapolate(
     // the exact value every 1024 samples so round-off cannot build up: one complex product per
     // sample and pole instead of an exponential and a sine–cosine pair. The constant term is the
     // baseline, which the chain removes itself.
+    // Each pole's term by recurrence, e^{λ(t+Δt)} = e^{λt}·e^{λΔt}, in LANES interleaved chains
+    // (sample k + j advances by e^{λ·LANES·Δt}) that the compiler runs side by side in vector
+    // registers, restarted from the exact value every 1024 samples so round-off cannot build up:
+    // a few products per sample and pole instead of an exponential and a sine–cosine pair. The
+    // constant term is the baseline, which the chain removes itself.
+    const LANES: usize = 8;
     let mut out = vec![0.0; n];
     for (r, l) in poles.iter().enumerate() {
         let (p, q) = (coef[2 * r], coef[2 * r + 1]);
-        let step = (l * dt).exp();
-        let mut e = Complex64::new(0.0, 0.0);
-        for (k, o) in out.iter_mut().enumerate() {
-            if k % 1024 == 0 {
-                e = (l * ((s + k) as f64 - anchor as f64) * dt).exp();
-            } else {
-                e *= step;
+        let one = (l * dt).exp();
+        let stride = (l * (LANES as f64 * dt)).exp();
+        for (b, block) in out.chunks_mut(1024).enumerate() {
+            let (mut er, mut ei) = ([0.0f64; LANES], [0.0f64; LANES]);
+            let mut e = (l * ((s + 1024 * b) as f64 - anchor as f64) * dt).exp();
+            for j in 0..LANES {
+                (er[j], ei[j]) = (e.re, e.im);
+                e *= one;
             }
-            *o += p * e.re + q * e.im;
+            let (chunks, rest) = block.as_chunks_mut::<LANES>();
+            for c in chunks {
+                for j in 0..LANES {
+                    c[j] += p * er[j] + q * ei[j];
+                    let (a, d) = (er[j], ei[j]);
+                    er[j] = a * stride.re - d * stride.im;
+                    ei[j] = a * stride.im + d * stride.re;
+                }
+            }
+            for (j, o) in rest.iter_mut().enumerate() {
+                *o += p * er[j] + q * ei[j];
+            }
         }
     }
     Some(out)

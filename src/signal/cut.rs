@@ -30,7 +30,7 @@ pub(super) struct FiniteChannels<'a> {
 impl<'a> FiniteChannels<'a> {
     pub(super) fn of(a: &'a [f64], b: &'a [f64]) -> Self {
         use std::borrow::Cow;
-        if a.iter().chain(b).all(|v| v.is_finite()) {
+        if crate::numeric::finite(a) && crate::numeric::finite(b) {
             return Self {
                 a: Cow::Borrowed(a),
                 b: Cow::Borrowed(b),

@@ -7,6 +7,30 @@ use realfft::{RealFftPlanner, RealToComplex};
 use crate::Complex64;
 use crate::setup::Estimator;
 
+/// The largest length ≤ `n` whose only prime factors are 2, 3 and 5 (`n` itself when below 2):
+/// an FFT of such a length is planned and run fast, where a length with a large prime factor
+/// needs Bluestein's algorithm, several times slower to plan and to run.
+pub fn smooth_len_at_most(n: usize) -> usize {
+    if n < 2 {
+        return n;
+    }
+    let mut best = 1;
+    let mut p5 = 1usize;
+    while p5 <= n {
+        let mut p35 = p5;
+        while p35 <= n {
+            let mut m = p35;
+            while m * 2 <= n {
+                m *= 2;
+            }
+            best = best.max(m);
+            p35 *= 3;
+        }
+        p5 *= 5;
+    }
+    best
+}
+
 /// A planned real FFT of one record length with its buffers, reused across hits.
 pub struct SpectrumPlan {
     fft: Arc<dyn RealToComplex<f64>>,
@@ -187,6 +211,31 @@ pub fn accelerance_to_receptance(a: Complex64, f_hz: f64) -> Complex64 {
 
 #[cfg(test)]
 mod tests {
+
+    /// 2·3·5-smooth lengths (common practice for FFT sizes): 1000 = 2³5³ stays, 1009 (prime)
+    /// goes down to 1000, 65537 (prime) to 65536.
+    #[test]
+    fn smooth_lengths_are_the_largest_at_or_below() {
+        assert_eq!(smooth_len_at_most(1000), 1000);
+        assert_eq!(smooth_len_at_most(1009), 1000);
+        assert_eq!(smooth_len_at_most(65537), 65536);
+        assert_eq!(smooth_len_at_most(7), 6);
+        assert_eq!(smooth_len_at_most(1), 1);
+        for n in 2..3000usize {
+            let m = smooth_len_at_most(n);
+            let mut r = m;
+            for p in [2, 3, 5] {
+                while r.is_multiple_of(p) {
+                    r /= p;
+                }
+            }
+            assert!(
+                r == 1 && m <= n && (n < 50 || m * 10 >= n * 9),
+                "{n} -> {m}"
+            );
+        }
+    }
+
     use super::*;
 
     #[test]

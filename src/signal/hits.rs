@@ -30,14 +30,30 @@ pub fn level_of(x: &[f64], level: TriggerLevel) -> f64 {
 /// Sample indices where `x` crosses the level with the given slope, at least `holdoff` apart.
 pub fn find_triggers(x: &[f64], level: f64, slope: Slope, holdoff: usize) -> Vec<usize> {
     let s = slope.sign();
+    let crosses = |i: usize| s * x[i - 1] < level && s * x[i] >= level;
+    // Most of a tap recording is quiet: blocks are first tested for any sample at or beyond the
+    // level (a branch-free maximum the compiler vectorises), and only those are scanned sample by
+    // sample. A crossing at i needs x[i] at the level, so no crossing is skipped.
+    const BLOCK: usize = 256;
     let mut out = Vec::new();
     let mut i = 1;
     while i < x.len() {
-        if s * x[i - 1] < level && s * x[i] >= level {
-            out.push(i);
-            i = i.saturating_add(holdoff.max(1));
-        } else {
-            i += 1;
+        let end = (i + BLOCK).min(x.len());
+        let top = x[i..end]
+            .iter()
+            .fold(f64::NEG_INFINITY, |m, &v| m.max(s * v));
+        // NaN-safe: a NaN level is never reached.
+        if top.partial_cmp(&level).is_none_or(|o| o.is_lt()) {
+            i = end;
+            continue;
+        }
+        while i < end {
+            if crosses(i) {
+                out.push(i);
+                i = i.saturating_add(holdoff.max(1));
+            } else {
+                i += 1;
+            }
         }
     }
     out

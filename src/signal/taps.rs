@@ -26,10 +26,7 @@ pub fn find_strikes(x: &[f64], level: f64, slope: Slope, fs: u32) -> Vec<usize> 
     // Block maxima of |x| (1 ms blocks) make each onset test a handful of comparisons.
     let bmax: Vec<f64> = x
         .chunks(block)
-        .map(|c| {
-            c.iter()
-                .fold(0.0f64, |m, v| if v.abs() > m { v.abs() } else { m })
-        })
+        .map(|c| c.iter().fold(0.0f64, |m, v| m.max(v.abs())))
         .collect();
     let span_max = |from: usize, to: usize| -> f64 {
         // Maximum over whole blocks overlapping [from, to).
