@@ -390,6 +390,63 @@ fn fit_setup_to_test(data: &Dataset, setup: &Setup) -> (Setup, Vec<String>) {
     (out, notes)
 }
 
+/// What one station's pass gave: its sample rate and result, or the error naming its file.
+type StationOutcome = Result<(u32, Result<StationResult, String>), InputError>;
+
+/// Decodes and analyses every station with `setup`. With `stop_on_fast_taps`, the pass stops
+/// (`None`) at the first station with two taps closer than the record allows, or with non-finite
+/// samples (whose taps a survey of the raw recording may count differently): the record must then
+/// be chosen from every tap of the test first.
+fn station_pass(
+    data: &Dataset,
+    setup: &Setup,
+    stop_on_fast_taps: bool,
+) -> Option<Vec<StationOutcome>> {
+    let stop = std::sync::atomic::AtomicBool::new(false);
+    let progress = Progress::new(data.stations.len());
+    let results = per_station(data, |w: &mut Worker, src| -> Option<StationOutcome> {
+        if stop.load(Ordering::Relaxed) {
+            return None;
+        }
+        let info = match w.decoder.decode_with(
+            &src.path,
+            setup.channel_a.index,
+            setup.channel_b.index,
+            NonFinite::Keep,
+        ) {
+            Ok(i) => i,
+            Err(e) => return Some(Err(e)),
+        };
+        let fs = info.sample_rate_hz;
+        let r = analyze_station(
+            &w.decoder.a,
+            &w.decoder.b,
+            fs,
+            setup,
+            &src.overrides,
+            &mut w.plan,
+        );
+        if stop_on_fast_taps {
+            let n0 = setup.record_samples(fs);
+            let fast = r.as_ref().is_ok_and(|res| {
+                res.tap_samples.windows(2).any(|t| {
+                    taps::record_for_spacing(n0, t[1] - t[0], setup.trigger.pretrigger_fraction, fs)
+                        < n0
+                })
+            });
+            let damaged =
+                !crate::numeric::finite(&w.decoder.a) || !crate::numeric::finite(&w.decoder.b);
+            if fast || damaged {
+                stop.store(true, Ordering::Relaxed);
+                return None;
+            }
+        }
+        progress.station_done(src.station);
+        Some(Ok((fs, r)))
+    });
+    results.into_iter().collect()
+}
+
 /// Decodes and analyses every station, using up to `available_parallelism` threads.
 ///
 /// A station whose recording cannot be read is an error naming the file; a station whose
@@ -402,31 +459,30 @@ pub fn run(data: &Dataset, setup: &Setup) -> Result<Analysis, InputError> {
     if data.stations.is_empty() {
         return Err(InputError::new(&data.origin, "holds no station recordings"));
     }
+    // Where the setup leaves the record open, the default is tried first: a station whose taps
+    // come faster than it (or that holds damaged samples) stops that pass, and the record is then
+    // chosen from a survey of every tap of the test (`fit_setup_to_test`). Most tests are tapped
+    // slower than the record, and pay for no survey.
+    let choose_record =
+        setup.trigger.record_length_s.is_none() && setup.trigger.holdoff_s.is_none();
     let t0 = std::time::Instant::now();
-    let (setup, mut notes) = fit_setup_to_test(data, setup);
-    if std::env::var_os("TAPGRID_TIMING").is_some() {
-        eprintln!("timing: survey of taps {:.3} s", t0.elapsed().as_secs_f64());
-    }
+    let first = station_pass(data, setup, choose_record);
+    let (setup, mut notes, results) = match first {
+        Some(results) => (setup.clone(), Vec::new(), results),
+        None => {
+            let (setup, notes) = fit_setup_to_test(data, setup);
+            if std::env::var_os("TAPGRID_TIMING").is_some() {
+                eprintln!(
+                    "timing: taps faster than the default record, surveyed at {:.3} s",
+                    t0.elapsed().as_secs_f64()
+                );
+            }
+            let results =
+                station_pass(data, &setup, false).expect("a pass that cannot stop always finishes");
+            (setup, notes, results)
+        }
+    };
     let setup = &setup;
-    let progress = Progress::new(data.stations.len());
-    let results = per_station(data, |w: &mut Worker, src| {
-        let info = w.decoder.decode_with(
-            &src.path,
-            setup.channel_a.index,
-            setup.channel_b.index,
-            NonFinite::Keep,
-        )?;
-        let r = analyze_station(
-            &w.decoder.a,
-            &w.decoder.b,
-            info.sample_rate_hz,
-            setup,
-            &src.overrides,
-            &mut w.plan,
-        );
-        progress.station_done(src.station);
-        Ok((info.sample_rate_hz, r))
-    });
     let mut stations = Vec::with_capacity(results.len());
     let mut rate = None;
     let mut first_problem: Option<InputError> = None;

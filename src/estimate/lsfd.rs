@@ -102,39 +102,58 @@ pub fn fit_outputs(
     let pairs: Vec<(usize, usize)> = (0..cols)
         .flat_map(|i| (i..cols).map(move |j| (i, j)))
         .collect();
-    let mut gram = DMatrix::<f64>::zeros(pairs.len(), no);
-    let mut rhs = DMatrix::<f64>::zeros(cols, no);
-    let mut prod = DMatrix::<f64>::zeros(pairs.len(), BLOCK);
-    let mut b_re = DMatrix::<f64>::zeros(cols, BLOCK);
-    let mut b_im = DMatrix::<f64>::zeros(cols, BLOCK);
-    let mut w2 = DMatrix::<f64>::zeros(BLOCK, no);
-    let mut z_re = DMatrix::<f64>::zeros(BLOCK, no);
-    let mut z_im = DMatrix::<f64>::zeros(BLOCK, no);
-    for k0 in (0..nl).step_by(BLOCK) {
-        let kb = (nl - k0).min(BLOCK);
-        for k in 0..kb {
-            let row = &rows[k0 + k];
-            for (p, &(i, j)) in pairs.iter().enumerate() {
-                prod[(p, k)] = row[i].re * row[j].re + row[i].im * row[j].im;
-            }
-            for (c, v) in row.iter().enumerate() {
-                b_re[(c, k)] = v.re;
-                b_im[(c, k)] = v.im;
-            }
-        }
-        for o in 0..no {
+    // Contiguous ranges of lines, one per core, each summed block by block.
+    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let per = nl.div_ceil(workers.max(1)).max(BLOCK);
+    let ranges: Vec<(usize, usize)> = (0..nl)
+        .step_by(per)
+        .map(|k0| (k0, (k0 + per).min(nl)))
+        .collect();
+    let sums = crate::numeric::par_map(&ranges, |&(r0, r1)| {
+        let mut gram = DMatrix::<f64>::zeros(pairs.len(), no);
+        let mut rhs = DMatrix::<f64>::zeros(cols, no);
+        let mut prod = DMatrix::<f64>::zeros(pairs.len(), BLOCK);
+        let mut b_re = DMatrix::<f64>::zeros(cols, BLOCK);
+        let mut b_im = DMatrix::<f64>::zeros(cols, BLOCK);
+        let mut w2 = DMatrix::<f64>::zeros(BLOCK, no);
+        let mut z_re = DMatrix::<f64>::zeros(BLOCK, no);
+        let mut z_im = DMatrix::<f64>::zeros(BLOCK, no);
+        for k0 in (r0..r1).step_by(BLOCK) {
+            let kb = (r1 - k0).min(BLOCK);
             for k in 0..kb {
-                let w = weight[o][k0 + k];
-                let z = h[o][k0 + k] * (w * w);
-                w2[(k, o)] = w * w;
-                z_re[(k, o)] = z.re;
-                z_im[(k, o)] = z.im;
+                let row = &rows[k0 + k];
+                for (p, &(i, j)) in pairs.iter().enumerate() {
+                    prod[(p, k)] = row[i].re * row[j].re + row[i].im * row[j].im;
+                }
+                for (c, v) in row.iter().enumerate() {
+                    b_re[(c, k)] = v.re;
+                    b_im[(c, k)] = v.im;
+                }
             }
+            for o in 0..no {
+                for k in 0..kb {
+                    let w = weight[o][k0 + k];
+                    let z = h[o][k0 + k] * (w * w);
+                    w2[(k, o)] = w * w;
+                    z_re[(k, o)] = z.re;
+                    z_im[(k, o)] = z.im;
+                }
+            }
+            gram.gemm(1.0, &prod.columns(0, kb), &w2.rows(0, kb), 1.0);
+            rhs.gemm(1.0, &b_re.columns(0, kb), &z_re.rows(0, kb), 1.0);
+            rhs.gemm(1.0, &b_im.columns(0, kb), &z_im.rows(0, kb), 1.0);
         }
-        gram.gemm(1.0, &prod.columns(0, kb), &w2.rows(0, kb), 1.0);
-        rhs.gemm(1.0, &b_re.columns(0, kb), &z_re.rows(0, kb), 1.0);
-        rhs.gemm(1.0, &b_im.columns(0, kb), &z_im.rows(0, kb), 1.0);
-    }
+        (gram, rhs)
+    });
+    let (gram, rhs) = sums
+        .into_iter()
+        .reduce(|(g1, r1), (g2, r2)| (g1 + g2, r1 + r2))
+        .unwrap_or_else(|| {
+            (
+                DMatrix::<f64>::zeros(pairs.len(), no),
+                DMatrix::<f64>::zeros(cols, no),
+            )
+        });
     let mut coef = DMatrix::<f64>::zeros(cols, no);
     for o in 0..no {
         let mut a = DMatrix::<f64>::zeros(cols, cols);
@@ -167,32 +186,39 @@ pub fn fit_outputs(
             coef[(i, o)] = x[i] * scale[i];
         }
     }
-    // The synthesis: real and imaginary parts of the basis times every output's coefficients.
-    let mut syn_re = DMatrix::<f64>::zeros(nl, no);
-    let mut syn_im = DMatrix::<f64>::zeros(nl, no);
-    let mut bt_re = DMatrix::<f64>::zeros(BLOCK, cols);
-    let mut bt_im = DMatrix::<f64>::zeros(BLOCK, cols);
-    for k0 in (0..nl).step_by(BLOCK) {
-        let kb = (nl - k0).min(BLOCK);
-        for c in 0..cols {
-            for k in 0..kb {
-                let v = rows[k0 + k][c];
-                bt_re[(k, c)] = v.re;
-                bt_im[(k, c)] = v.im;
+    // The synthesis: real and imaginary parts of the basis times every output's coefficients,
+    // each range of lines on its own core.
+    let parts = crate::numeric::par_map(&ranges, |&(r0, r1)| {
+        let mut syn_re = DMatrix::<f64>::zeros(r1 - r0, no);
+        let mut syn_im = DMatrix::<f64>::zeros(r1 - r0, no);
+        let mut bt_re = DMatrix::<f64>::zeros(BLOCK, cols);
+        let mut bt_im = DMatrix::<f64>::zeros(BLOCK, cols);
+        for k0 in (r0..r1).step_by(BLOCK) {
+            let kb = (r1 - k0).min(BLOCK);
+            for c in 0..cols {
+                for k in 0..kb {
+                    let v = rows[k0 + k][c];
+                    bt_re[(k, c)] = v.re;
+                    bt_im[(k, c)] = v.im;
+                }
             }
+            syn_re
+                .rows_mut(k0 - r0, kb)
+                .gemm(1.0, &bt_re.rows(0, kb), &coef, 0.0);
+            syn_im
+                .rows_mut(k0 - r0, kb)
+                .gemm(1.0, &bt_im.rows(0, kb), &coef, 0.0);
         }
-        syn_re
-            .rows_mut(k0, kb)
-            .gemm(1.0, &bt_re.rows(0, kb), &coef, 0.0);
-        syn_im
-            .rows_mut(k0, kb)
-            .gemm(1.0, &bt_im.rows(0, kb), &coef, 0.0);
-    }
+        (syn_re, syn_im)
+    });
+    let line = |k: usize, o: usize| -> Complex64 {
+        let part = k / per;
+        let (re, im) = &parts[part];
+        Complex64::new(re[(k - part * per, o)], im[(k - part * per, o)])
+    };
     Ok((0..no)
         .map(|o| {
-            let synthesized: Vec<Complex64> = (0..nl)
-                .map(|k| Complex64::new(syn_re[(k, o)], syn_im[(k, o)]))
-                .collect();
+            let synthesized: Vec<Complex64> = (0..nl).map(|k| line(k, o)).collect();
             let (mut num, mut den, mut weighted_residual) = (0.0, 0.0, 0.0);
             for ((a, b), w) in h[o].iter().zip(&synthesized).zip(weight[o]) {
                 let e = (a - b).norm_sqr();

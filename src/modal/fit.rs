@@ -26,7 +26,8 @@ pub(super) fn fit_chosen(
             .map(|(h, c)| {
                 let top = h
                     .iter()
-                    .fold(0.0f64, |m, v| m.max(v.norm()))
+                    .fold(0.0f64, |m, v| m.max(v.norm_sqr()))
+                    .sqrt()
                     .max(f64::MIN_POSITIVE);
                 c.iter()
                     .map(|&g| {
@@ -40,25 +41,45 @@ pub(super) fn fit_chosen(
     }
     let hs: Vec<&[Complex64]> = set.h.iter().map(Vec::as_slice).collect();
     let ws: Vec<&[f64]> = w.iter().map(Vec::as_slice).collect();
-    let fits = lsfd::fit_outputs(&set.freq_hz, &hs, &ws, &lambdas, set.exp_tau_s)
-        .map_err(|o| format!("station {}: the residue fit is singular", set.stations[o]))?;
-    for (r, &(pi, size)) in chosen.iter().enumerate() {
-        let pole = &poles[pi];
-        let raw: Vec<Complex64> = local_residues(set, w, &lambdas, r)
-            .unwrap_or_else(|| fits.iter().map(|f| f.residues[r]).collect());
+    let close_to_another = |pi: usize| {
+        chosen.iter().any(|&(o, _)| {
+            o != pi && (poles[o].frequency_hz / poles[pi].frequency_hz - 1.0).abs() < 0.02
+        })
+    };
+    // The fit over the whole band on one thread; each mode's local residues and damping checks,
+    // independent of it and of each other, on the others.
+    let modes: Vec<usize> = (0..chosen.len()).collect();
+    let (fits, local) = std::thread::scope(|scope| {
+        let global =
+            scope.spawn(|| lsfd::fit_outputs(&set.freq_hz, &hs, &ws, &lambdas, set.exp_tau_s));
+        let local = crate::numeric::par_map(&modes, |&r| {
+            let f_meas = lambdas[r].norm() / TAU_F;
+            let z_meas = -lambdas[r].re / lambdas[r].norm();
+            let (fc, _) = correct_damping(f_meas, z_meas, set.exp_tau_s);
+            let checks = if close_to_another(chosen[r].0) {
+                (None, None)
+            } else {
+                local_damping(set, fc)
+            };
+            (local_residues(set, w, &lambdas, r), checks)
+        });
+        let global = match global.join() {
+            Ok(g) => g,
+            Err(p) => std::panic::resume_unwind(p),
+        };
+        (global, local)
+    });
+    let fits =
+        fits.map_err(|o| format!("station {}: the residue fit is singular", set.stations[o]))?;
+    for ((r, &(pi, size)), (raw, (hp, cf))) in chosen.iter().enumerate().zip(local) {
+        let raw: Vec<Complex64> =
+            raw.unwrap_or_else(|| fits.iter().map(|f| f.residues[r]).collect());
         let (f_meas, z_meas) = (
             lambdas[r].norm() / TAU_F,
             -lambdas[r].re / lambdas[r].norm(),
         );
         let (fc, zc) = correct_damping(f_meas, z_meas, set.exp_tau_s);
-        let close = chosen.iter().any(|&(o, _)| {
-            o != pi && (poles[o].frequency_hz / pole.frequency_hz - 1.0).abs() < 0.02
-        });
-        let (hp, cf) = if close {
-            (None, None)
-        } else {
-            local_damping(set, fc)
-        };
+        let close = close_to_another(pi);
         let mut notes = Vec::new();
         if close {
             notes.push("closely spaced pair: resolved by the global fit".to_string());

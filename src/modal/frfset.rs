@@ -86,15 +86,27 @@ impl FrfSet {
             df_hz: first.result.df_hz,
             usable_hi_hz: Vec::new(),
         };
-        for s in with {
+        // Copies of ~10 MB on a large test: spread over the cores.
+        let copies = crate::numeric::par_map(&with, |s| {
+            s.result.frf.as_ref().map(|f| {
+                (
+                    f.h.clone(),
+                    f.coherence.clone(),
+                    f.gaa.clone(),
+                    f.gbb.clone(),
+                )
+            })
+        });
+        for (s, c) in with.iter().zip(copies) {
+            let (h, coherence, gaa, gbb) = c?;
             let f = s.result.frf.as_ref()?;
             set.stations.push(s.station);
             set.positions_m.push(s.position_m);
-            set.h.push(f.h.clone());
-            set.coherence.push(f.coherence.clone());
+            set.h.push(h);
+            set.coherence.push(coherence);
             set.hits.push(f.hits_averaged);
-            set.gaa.push(f.gaa.clone());
-            set.gbb.push(f.gbb.clone());
+            set.gaa.push(gaa);
+            set.gbb.push(gbb);
             set.usable_hi_hz.push(
                 s.result
                     .usable_band_hz
@@ -115,7 +127,10 @@ impl FrfSet {
     pub(super) fn weights(&self, coherence: bool) -> Vec<Vec<f64>> {
         (0..self.h.len())
             .map(|o| {
-                let hmax = self.h[o].iter().fold(0.0f64, |m, c| m.max(c.norm()));
+                let hmax = self.h[o]
+                    .iter()
+                    .fold(0.0f64, |m, c| m.max(c.norm_sqr()))
+                    .sqrt();
                 let n = self.hits[o].max(1) as f64;
                 let edge = self.usable_hi_hz.get(o).copied().unwrap_or(f64::INFINITY);
                 let k_edge = self.freq_hz.partition_point(|&f| f <= edge);
@@ -127,7 +142,7 @@ impl FrfSet {
                     .zip(&self.coherence[o])
                     .enumerate()
                     .map(|(k, (h, &g))| {
-                        let mag = h.norm().max(1e-6 * hmax).max(f64::MIN_POSITIVE);
+                        let mag = h.norm_sqr().sqrt().max(1e-6 * hmax).max(f64::MIN_POSITIVE);
                         let w = if coherence {
                             let g = g.clamp(1e-3, 1.0 - 1e-6);
                             (2.0 * n * g / (1.0 - g)).sqrt() / mag

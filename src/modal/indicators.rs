@@ -24,16 +24,26 @@ pub fn indicators(set: &FrfSet) -> Indicators {
         mif: vec![0.0; nf],
         sum_response_autospectra: vec![0.0; nf],
     };
-    for k in 0..nf {
-        let (mut re_abs, mut sq) = (0.0, 0.0);
-        for o in 0..set.h.len() {
-            let h = set.h[o][k];
-            ind.sum_abs[k] += h.norm();
-            re_abs += h.re.abs() * h.norm();
-            sq += h.norm_sqr();
-            ind.sum_response_autospectra[k] += set.gbb[o][k];
+    // Station by station along the lines (memory order); |H| as √|H|² (hypot's overflow guard
+    // costs several times more and FRF magnitudes are far from overflow).
+    let mut re_abs = vec![0.0; nf];
+    let mut sq = vec![0.0; nf];
+    for (h, gbb) in set.h.iter().zip(&set.gbb) {
+        for k in 0..nf {
+            let (n2, hk) = (h[k].norm_sqr(), h[k]);
+            let n = n2.sqrt();
+            ind.sum_abs[k] += n;
+            re_abs[k] += hk.re.abs() * n;
+            sq[k] += n2;
+            ind.sum_response_autospectra[k] += gbb[k];
         }
-        ind.mif[k] = if sq > 0.0 { 1.0 - re_abs / sq } else { 0.0 };
+    }
+    for k in 0..nf {
+        ind.mif[k] = if sq[k] > 0.0 {
+            1.0 - re_abs[k] / sq[k]
+        } else {
+            0.0
+        };
     }
     ind
 }

@@ -35,46 +35,78 @@ pub fn frf_csv(a: &Analysis) -> String {
 /// Stations are formatted on parallel threads: on a 40-station test the text is ~20 MB, and
 /// writing the pieces as they are spares copying them into one string.
 pub fn frf_csv_blocks(a: &Analysis) -> Vec<String> {
-    let workers = std::thread::available_parallelism()
-        .map_or(1, |n| n.get())
-        .max(1);
-    let chunk = a.stations.len().div_ceil(workers).max(1);
     let mut blocks = vec![format!("{FRF_CSV_HEADER}\n")];
-    std::thread::scope(|scope| {
-        let handles: Vec<_> = a
-            .stations
-            .chunks(chunk)
-            .map(|group| {
-                scope.spawn(move || {
-                    let rows: usize = group
-                        .iter()
-                        .filter_map(|s| s.result.frf.as_ref())
-                        .map(|f| f.freq_hz.len())
-                        .sum();
-                    // A row is at most ~90 characters; reserving once avoids regrowing.
-                    let mut out = String::with_capacity(90 * rows);
-                    for s in group {
-                        station_rows(&mut out, s);
-                    }
-                    out
-                })
-            })
-            .collect();
-        blocks.extend(handles.into_iter().map(|h| h.join().unwrap_or_default()));
-    });
+    let lines = a
+        .stations
+        .iter()
+        .find_map(|s| s.result.frf.as_ref())
+        .map_or(LineTexts::default(), |f| LineTexts::of(&f.freq_hz));
+    // A row is at most ~90 characters.
+    blocks.extend(text_blocks(
+        &a.stations,
+        |s| 90 * s.result.frf.as_ref().map_or(0, |f| f.freq_hz.len()),
+        |out, s| station_rows(out, s, &lines),
+    ));
     blocks
 }
 
-fn station_rows(out: &mut String, s: &crate::analysis::StationAnalysis) {
+/// The frequency column's text, formatted once for every station that shares the lines.
+#[derive(Default)]
+struct LineTexts {
+    freq_hz: Vec<f64>,
+    text: Vec<String>,
+}
+
+impl LineTexts {
+    fn of(freq_hz: &[f64]) -> Self {
+        let mut fb = zmij::Buffer::new();
+        Self {
+            freq_hz: freq_hz.to_vec(),
+            text: freq_hz.iter().map(|&f| fb.format(f).to_string()).collect(),
+        }
+    }
+
+    /// The texts of `freq_hz` when they are these lines.
+    fn for_lines(&self, freq_hz: &[f64]) -> Option<&[String]> {
+        (self.freq_hz == freq_hz).then_some(self.text.as_slice())
+    }
+}
+
+/// `items` formatted by `fill`, one block of consecutive items per core, in order. `chars` bounds
+/// an item's text, so each block is reserved once and never regrows.
+fn text_blocks<T: Sync>(
+    items: &[T],
+    chars: impl Fn(&T) -> usize + Sync,
+    fill: impl Fn(&mut String, &T) + Sync,
+) -> Vec<String> {
+    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let chunk = items.len().div_ceil(workers.max(1)).max(1);
+    let groups: Vec<&[T]> = items.chunks(chunk).collect();
+    crate::numeric::par_map(&groups, |g| {
+        let mut out = String::with_capacity(g.iter().map(&chars).sum());
+        for it in *g {
+            fill(&mut out, it);
+        }
+        out
+    })
+}
+
+fn station_rows(out: &mut String, s: &crate::analysis::StationAnalysis, lines: &LineTexts) {
     // zmij/itoa print the shortest text that reads back to the same f64, several times faster
     // than `{}` formatting on the ~10⁶ numbers of a large test.
     let mut fb = zmij::Buffer::new();
     let mut ib = itoa::Buffer::new();
     let station = ib.format(s.station).to_string();
     if let Some(f) = &s.result.frf {
+        let shared = lines.for_lines(&f.freq_hz);
         for i in 0..f.freq_hz.len() {
             out.push_str(&station);
-            for v in [f.freq_hz[i], f.h[i].re, f.h[i].im, f.coherence[i]] {
+            out.push(',');
+            match shared {
+                Some(t) => out.push_str(&t[i]),
+                None => out.push_str(fb.format(f.freq_hz[i])),
+            }
+            for v in [f.h[i].re, f.h[i].im, f.coherence[i]] {
                 out.push(',');
                 out.push_str(fb.format(v));
             }
@@ -169,32 +201,59 @@ pub fn stabilization_csv(st: &Stabilization) -> String {
 /// `synthesized.csv`: the FRF rebuilt from the fitted modes and residuals, in the layout of
 /// `frf.csv` without the coherence column: `station,frequency_hz,h_re,h_im`.
 pub fn synthesized_csv(m: &ModalResult) -> String {
-    let mut out = String::from("station,frequency_hz,h_re,h_im\n");
-    let mut fb = zmij::Buffer::new();
-    for (i, syn) in m.synthesized.iter().enumerate() {
-        let st = m.stations[i].to_string();
-        for (f, h) in m.indicators.freq_hz.iter().zip(syn) {
-            out.push_str(&st);
-            for v in [*f, h.re, h.im] {
+    synthesized_csv_blocks(m).concat()
+}
+
+/// [`synthesized_csv`] as consecutive pieces (the header first), formatted on every core.
+fn synthesized_csv_blocks(m: &ModalResult) -> Vec<String> {
+    let lines = m.indicators.freq_hz.len();
+    let freq = LineTexts::of(&m.indicators.freq_hz);
+    let stations: Vec<usize> = (0..m.synthesized.len()).collect();
+    let mut blocks = vec!["station,frequency_hz,h_re,h_im\n".to_string()];
+    // A row is at most ~75 characters.
+    blocks.extend(text_blocks(
+        &stations,
+        |_| 75 * lines,
+        |out, &i| {
+            let mut fb = zmij::Buffer::new();
+            let st = m.stations[i].to_string();
+            for (f, h) in freq.text.iter().zip(&m.synthesized[i]) {
+                out.push_str(&st);
                 out.push(',');
-                out.push_str(fb.format(v));
+                out.push_str(f);
+                for v in [h.re, h.im] {
+                    out.push(',');
+                    out.push_str(fb.format(v));
+                }
+                out.push('\n');
             }
-            out.push('\n');
-        }
-    }
-    out
+        },
+    ));
+    blocks
 }
 
 /// `indicators.csv`: `frequency_hz,sum_abs_h,mif,sum_response_autospectra`.
 pub fn indicators_csv(m: &ModalResult) -> String {
     let i = &m.indicators;
-    let mut out = String::from("frequency_hz,sum_abs_h,mif,sum_response_autospectra\n");
+    let mut out = String::with_capacity(100 * i.freq_hz.len() + 64);
+    out.push_str("frequency_hz,sum_abs_h,mif,sum_response_autospectra\n");
+    let mut fb = zmij::Buffer::new();
     for k in 0..i.freq_hz.len() {
-        let _ = writeln!(
-            out,
-            "{},{},{},{}",
-            i.freq_hz[k], i.sum_abs[k], i.mif[k], i.sum_response_autospectra[k]
-        );
+        for (c, v) in [
+            i.freq_hz[k],
+            i.sum_abs[k],
+            i.mif[k],
+            i.sum_response_autospectra[k],
+        ]
+        .into_iter()
+        .enumerate()
+        {
+            if c > 0 {
+                out.push(',');
+            }
+            out.push_str(fb.format(v));
+        }
+        out.push('\n');
     }
     out
 }
@@ -386,19 +445,39 @@ pub fn write_fit_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<()
     std::fs::create_dir_all(dir)
         .map_err(|e| InputError::new(dir, format!("cannot create output folder: {e}")))?;
     let t = std::time::Instant::now();
-    let mut files = vec![("result.json", result_json(a, m))];
-    if let Some(st) = &m.stabilization {
-        files.push(("stabilization.csv", stabilization_csv(st)));
-    }
-    files.push(("indicators.csv", indicators_csv(m)));
-    if !m.synthesized.is_empty() {
-        files.push(("synthesized.csv", synthesized_csv(m)));
-    }
-    for (name, text) in files {
+    let write = |name: &str, text: String| {
         let p = dir.join(name);
         atomic::write_derived(&p, text.as_bytes())
-            .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
-    }
+            .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))
+    };
+    // The synthesized FRFs are as large as all the rest together: formed and written on a
+    // thread of their own.
+    std::thread::scope(|scope| {
+        let syn = (!m.synthesized.is_empty()).then(|| {
+            scope.spawn(|| {
+                let blocks = synthesized_csv_blocks(m);
+                let p = dir.join("synthesized.csv");
+                atomic::write_derived_with(&p, |f| {
+                    use std::io::Write as _;
+                    blocks.iter().try_for_each(|b| f.write_all(b.as_bytes()))
+                })
+                .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))
+            })
+        });
+        write("result.json", result_json(a, m))?;
+        if let Some(st) = &m.stabilization {
+            write("stabilization.csv", stabilization_csv(st))?;
+        }
+        write("indicators.csv", indicators_csv(m))?;
+        match syn.map(|h| h.join()) {
+            Some(Ok(r)) => r,
+            Some(Err(_)) => Err(InputError::new(
+                dir.join("synthesized.csv"),
+                "the writer failed",
+            )),
+            None => Ok(()),
+        }
+    })?;
     if std::env::var_os("TAPGRID_TIMING").is_some() {
         eprintln!("timing: fit outputs {:.3} s", t.elapsed().as_secs_f64());
     }

@@ -54,30 +54,21 @@ pub fn corner_from_tail(
         .map(|f| Complex64::from_polar(1.0, TAU * f * h))
         .collect();
     let mut phasors = vec![Complex64::new(1.0, 0.0); hum_hz.len()];
-    let mut row = vec![0.0; nfix];
     let yy: f64 = ys.iter().map(|y| y * y).sum();
-    // Products of the fixed columns do not depend on the trial corner: formed once.
-    let mut gff = DMatrix::<f64>::zeros(nfix, nfix);
-    let mut gfy = DVector::<f64>::zeros(nfix);
-    for &y in &ys {
-        row[0] = 1.0;
+    // Products of the fixed columns do not depend on the trial corner: formed once, as one
+    // matrix product.
+    let mut fixed = DMatrix::<f64>::zeros(ys.len(), nfix);
+    for k in 0..ys.len() {
+        fixed[(k, 0)] = 1.0;
         for (j, (p, z)) in phasors.iter_mut().zip(&steps).enumerate() {
-            row[1 + 2 * j] = p.im;
-            row[2 + 2 * j] = p.re;
+            fixed[(k, 1 + 2 * j)] = p.im;
+            fixed[(k, 2 + 2 * j)] = p.re;
             *p *= z;
         }
-        for r in 0..nfix {
-            gfy[r] += row[r] * y;
-            for c in r..nfix {
-                gff[(r, c)] += row[r] * row[c];
-            }
-        }
     }
-    for r in 0..nfix {
-        for c in 0..r {
-            gff[(r, c)] = gff[(c, r)];
-        }
-    }
+    let fixed_t = fixed.transpose();
+    let gff = &fixed_t * &fixed;
+    let gfy = &fixed_t * DVector::from_column_slice(&ys);
     let n_rows = ys.len();
     // Σ_{k<n} z^k in closed form; |z| < 1 here (a decaying trial exponential).
     let geometric = |z: Complex64| (Complex64::new(1.0, 0.0) - z.powu(n_rows as u32)) / (1.0 - z);
@@ -97,11 +88,22 @@ pub fn corner_from_tail(
             ata[(0, 2 + 2 * j)] = s.im;
             ata[(0, 3 + 2 * j)] = s.re;
         }
-        let mut e = 1.0;
-        let mut ey = 0.0;
-        for &y in &ys {
-            ey += e * y;
-            e *= q;
+        // Σ q^k·y_k in four interleaved chains (stride q⁴), which run side by side.
+        let q4 = (q * q) * (q * q);
+        let mut e = [1.0, q, q * q, q * q * q];
+        let mut acc = [0.0f64; 4];
+        let (quads, rest) = ys.as_chunks::<4>();
+        for c in quads {
+            for j in 0..4 {
+                acc[j] += e[j] * c[j];
+                e[j] *= q4;
+            }
+        }
+        let mut ey = acc.iter().sum::<f64>();
+        let mut e0 = e[0];
+        for &y in rest {
+            ey += e0 * y;
+            e0 *= q;
         }
         aty[0] = ey;
         for c in 1..cols {

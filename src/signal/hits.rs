@@ -39,9 +39,10 @@ pub fn find_triggers(x: &[f64], level: f64, slope: Slope, holdoff: usize) -> Vec
     let mut i = 1;
     while i < x.len() {
         let end = (i + BLOCK).min(x.len());
-        let top = x[i..end]
-            .iter()
-            .fold(f64::NEG_INFINITY, |m, &v| m.max(s * v));
+        let top = x[i..end].iter().fold(f64::NEG_INFINITY, |m, &v| {
+            let u = s * v;
+            if u > m { u } else { m }
+        });
         // NaN-safe: a NaN level is never reached.
         if top.partial_cmp(&level).is_none_or(|o| o.is_lt()) {
             i = end;

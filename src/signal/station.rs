@@ -90,6 +90,8 @@ pub struct StationResult {
     pub exp_tau_s: f64,
     /// Trigger level used, full-scale units.
     pub trigger_level_fs: f64,
+    /// Where each tap was found (trigger sample), in recording order.
+    pub tap_samples: Vec<usize>,
     /// AC-coupling corner undone in the FRF, Hz (hammer layout), when there was one.
     pub ac_corner_hz: Option<f64>,
     /// Where the force spectrum stays within the roll-off limit of its largest value (hammer
@@ -188,6 +190,7 @@ pub fn analyze_station(
         df_hz: rp.df,
         exp_tau_s: rp.tau_s,
         trigger_level_fs: level,
+        tap_samples: triggers.clone(),
         ac_corner_hz: corner_hz,
         usable_band_hz,
         first_null_hz,

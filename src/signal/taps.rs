@@ -24,10 +24,7 @@ pub fn find_strikes(x: &[f64], level: f64, slope: Slope, fs: u32) -> Vec<usize> 
     let fs = fs.max(1) as f64;
     let block = ((fs * 1e-3) as usize).max(1);
     // Block maxima of |x| (1 ms blocks) make each onset test a handful of comparisons.
-    let bmax: Vec<f64> = x
-        .chunks(block)
-        .map(|c| c.iter().fold(0.0f64, |m, v| m.max(v.abs())))
-        .collect();
+    let bmax: Vec<f64> = x.chunks(block).map(super::hits::peak_abs).collect();
     let span_max = |from: usize, to: usize| -> f64 {
         // Maximum over whole blocks overlapping [from, to).
         if to <= from {
