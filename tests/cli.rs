@@ -306,3 +306,44 @@ fn simulate_command_writes_a_set() {
             && out.join("stations.csv").is_file()
     );
 }
+
+/// The record is chosen from the tapping only when it must be: taps 0.7 s apart at 16 kHz are
+/// closer than the default record (the next power of two ≥ 1 s: 16384 samples, 1.024 s), so the
+/// first pass stops, every tap is surveyed and a shorter record is used, with a note saying so;
+/// taps 1.5 s apart keep the default record and need no note (common practice: a record must
+/// end before the next tap).
+#[test]
+fn the_record_follows_the_tapping_only_when_taps_are_faster_than_it() {
+    let t = tempfile::tempdir().unwrap();
+    for (interval, shortened) in [(0.7, true), (1.5, false)] {
+        let set = t.path().join(format!("set-{interval}"));
+        let mut sc = Scenario::pump_shaft();
+        sc.stations_m = vec![0.0, 0.3, 0.6, 0.9];
+        sc.drive_station = 4;
+        sc.hits_per_station = 3;
+        sc.hit_interval_s = interval;
+        sc.rig.sample_rate_hz = 16_000;
+        sc.write(&set).unwrap();
+        let out = t.path().join(format!("out-{interval}"));
+        let run = bin()
+            .args([
+                "analyze",
+                set.to_str().unwrap(),
+                "--out",
+                out.to_str().unwrap(),
+            ])
+            .args(["--band", "10:3000"])
+            .assert()
+            .success();
+        let text = String::from_utf8_lossy(&run.get_output().stdout).to_string();
+        assert_eq!(text.contains("taps came 0.70 s apart"), shortened, "{text}");
+        assert_eq!(!text.contains("record 16384 samples"), shortened, "{text}");
+        let r = read_json(out.join("result.json"));
+        let hits = r["hits"].as_array().unwrap();
+        assert_eq!(hits.len(), 12);
+        assert!(
+            hits.iter().all(|h| h["accepted"].as_bool().unwrap()),
+            "{hits:?}"
+        );
+    }
+}
