@@ -103,6 +103,10 @@ pub(super) fn analyze(
         out.join("frf.csv").display(),
         out.join("result.json").display()
     );
+    // The command ends here: the operating system reclaims the tens of megabytes of spectra at
+    // exit at once, where freeing them block by block would only delay it.
+    std::mem::forget(a);
+    std::mem::forget(modes);
     Ok(())
 }
 
