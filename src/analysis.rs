@@ -244,17 +244,19 @@ fn per_station<S: Default, T: Send>(
             std::thread::Builder::new()
                 .name(format!("tapgrid-analysis-{w}"))
                 .spawn_scoped(scope, move || {
-                    let mut state = S::default();
-                    loop {
-                        let i = next.fetch_add(1, Ordering::Relaxed);
-                        let Some(src) = data.stations.get(i) else {
-                            break;
-                        };
-                        let r = work(&mut state, src);
-                        if let Ok(mut g) = out.lock() {
-                            g[i] = Some(r);
+                    crate::numeric::as_parallel_worker(|| {
+                        let mut state = S::default();
+                        loop {
+                            let i = next.fetch_add(1, Ordering::Relaxed);
+                            let Some(src) = data.stations.get(i) else {
+                                break;
+                            };
+                            let r = work(&mut state, src);
+                            if let Ok(mut g) = out.lock() {
+                                g[i] = Some(r);
+                            }
                         }
-                    }
+                    })
                 })
                 .expect("spawning an analysis thread");
         }

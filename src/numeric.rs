@@ -13,6 +13,23 @@ use crate::Complex64;
 /// Iterations allowed per row of the matrix: QR-type sweeps need a few per eigenvalue.
 const SWEEPS_PER_ROW: usize = 60;
 
+std::thread_local! {
+    static PARALLEL_WORKER: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Runs `f` as one worker of a parallel section: [`par_map`] called inside runs inline.
+pub fn as_parallel_worker<R>(f: impl FnOnce() -> R) -> R {
+    let was = PARALLEL_WORKER.with(|w| w.replace(true));
+    let r = f();
+    PARALLEL_WORKER.with(|w| w.set(was));
+    r
+}
+
+/// Whether this thread is a worker of a parallel section.
+pub fn in_parallel_section() -> bool {
+    PARALLEL_WORKER.with(|w| w.get())
+}
+
 /// `f` of every item, in order, spread over the machine's cores (each thread takes the next
 /// item as it finishes one, so uneven items balance). Runs inline for a single item or core.
 pub fn par_map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync) -> Vec<R> {
@@ -20,7 +37,9 @@ pub fn par_map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync) -> Vec
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
         .min(items.len());
-    if workers < 2 {
+    // Inside a parallel section every core is already busy: more threads would only cost their
+    // start-up and the switching between them.
+    if workers < 2 || in_parallel_section() {
         return items.iter().map(f).collect();
     }
     let next = AtomicUsize::new(0);
@@ -29,15 +48,17 @@ pub fn par_map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync) -> Vec
         let handles: Vec<_> = (0..workers)
             .map(|_| {
                 scope.spawn(move || {
-                    let mut mine = Vec::new();
-                    loop {
-                        let i = next.fetch_add(1, Ordering::Relaxed);
-                        let Some(item) = items.get(i) else {
-                            break;
-                        };
-                        mine.push((i, f(item)));
-                    }
-                    mine
+                    as_parallel_worker(|| {
+                        let mut mine = Vec::new();
+                        loop {
+                            let i = next.fetch_add(1, Ordering::Relaxed);
+                            let Some(item) = items.get(i) else {
+                                break;
+                            };
+                            mine.push((i, f(item)));
+                        }
+                        mine
+                    })
                 })
             })
             .collect();
