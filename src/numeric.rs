@@ -357,6 +357,49 @@ pub fn eigenvector_near(
 
 #[cfg(test)]
 mod tests {
+
+    /// par_map keeps the items' order, and runs inline inside a parallel section (common
+    /// practice: no nested thread pools).
+    #[test]
+    fn par_map_keeps_order_and_nests_inline() {
+        let items: Vec<u64> = (0..1000).collect();
+        let squares = par_map(&items, |&v| v * v);
+        assert_eq!(squares, items.iter().map(|v| v * v).collect::<Vec<_>>());
+        let inner = par_map(&[0u8, 1], |_| {
+            let outer = in_parallel_section();
+            let threads: Vec<std::thread::ThreadId> =
+                par_map(&[0u8, 1, 2], |_| std::thread::current().id());
+            (
+                outer,
+                threads.iter().all(|t| *t == std::thread::current().id()),
+            )
+        });
+        if std::thread::available_parallelism().map_or(1, |n| n.get()) > 1 {
+            assert!(
+                inner.iter().all(|&(outer, same)| outer && same),
+                "{inner:?}"
+            );
+        }
+        assert!(!in_parallel_section());
+    }
+
+    /// Sums and finiteness tests against plain loops (values exactly representable).
+    #[test]
+    fn lane_sum_and_finite_match_plain_loops() {
+        let x: Vec<f64> = (0..1037).map(|i| (i % 17) as f64 - 8.0).collect();
+        assert_eq!(lane_sum(&x, |v| v), x.iter().sum::<f64>());
+        assert_eq!(
+            lane_sum(&x, |v| v * v),
+            x.iter().map(|v| v * v).sum::<f64>()
+        );
+        assert!(finite(&x));
+        let mut y = x.clone();
+        y[1030] = f64::NAN;
+        assert!(!finite(&y));
+        y[1030] = f64::NEG_INFINITY;
+        assert!(!finite(&y));
+    }
+
     use super::*;
 
     /// The lowest modes of a fixed–fixed chain of 400 equal masses and springs against the

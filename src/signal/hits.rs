@@ -191,6 +191,42 @@ pub fn flat_top_at(x: &[f64], m: f64) -> bool {
 
 #[cfg(test)]
 mod tests {
+
+    /// The block-skipping scan finds exactly the crossings of a sample-by-sample scan, also at
+    /// block edges and with NaN samples (common practice: a trigger is the first sample at or
+    /// past the level after one below it).
+    #[test]
+    fn block_scan_matches_a_plain_scan() {
+        let plain = |x: &[f64], level: f64, s: f64, hold: usize| {
+            let mut out = Vec::new();
+            let mut i = 1;
+            while i < x.len() {
+                if s * x[i - 1] < level && s * x[i] >= level {
+                    out.push(i);
+                    i += hold.max(1);
+                } else {
+                    i += 1;
+                }
+            }
+            out
+        };
+        let mut x: Vec<f64> = (0..5000)
+            .map(|i| ((i * 7919) % 1000) as f64 / 1000.0 - 0.5)
+            .map(|v: f64| v * 0.1)
+            .collect();
+        for &k in &[255usize, 256, 257, 511, 512, 1023, 4096, 4999] {
+            x[k] = 0.9;
+            x[k - 1] = 0.0;
+        }
+        x[3000] = f64::NAN;
+        x[3001] = 0.95;
+        for (slope, s) in [(Slope::Rising, 1.0), (Slope::Falling, -1.0)] {
+            for hold in [1, 3, 200] {
+                assert_eq!(find_triggers(&x, 0.5, slope, hold), plain(&x, 0.5, s, hold));
+            }
+        }
+    }
+
     use super::*;
 
     #[test]
