@@ -436,8 +436,12 @@ fn station_pass(
                         < n0
                 })
             });
-            let damaged =
-                !crate::numeric::finite(&w.decoder.a) || !crate::numeric::finite(&w.decoder.b);
+            let damaged = match &r {
+                Ok(res) => res.non_finite_samples > 0,
+                Err(_) => {
+                    !crate::numeric::finite(&w.decoder.a) || !crate::numeric::finite(&w.decoder.b)
+                }
+            };
             if fast || damaged {
                 stop.store(true, Ordering::Relaxed);
                 return None;

@@ -92,6 +92,8 @@ pub struct StationResult {
     pub trigger_level_fs: f64,
     /// Where each tap was found (trigger sample), in recording order.
     pub tap_samples: Vec<usize>,
+    /// Samples that were not finite (NaN or ±∞) in either channel, read as zero.
+    pub non_finite_samples: usize,
     /// AC-coupling corner undone in the FRF, Hz (hammer layout), when there was one.
     pub ac_corner_hz: Option<f64>,
     /// Where the force spectrum stays within the roll-off limit of its largest value (hammer
@@ -191,6 +193,7 @@ pub fn analyze_station(
         exp_tau_s: rp.tau_s,
         trigger_level_fs: level,
         tap_samples: triggers.clone(),
+        non_finite_samples: finite.bad.len(),
         ac_corner_hz: corner_hz,
         usable_band_hz,
         first_null_hz,
