@@ -185,15 +185,20 @@ pub fn stabilization_from(
 
     // Per output: R_o (to factor), X_o = L⁻¹S_o, and T_o (summed). Their entries are sums over
     // lines of powers of z times W², W²H and W²|H|².
-    let sums = line_sums(&z, h, weight, np);
+    let (re_sums, im_sums) = line_sums(&z, h, weight, np);
     let per_output = (0..no).map(|o| {
-        let col = |c: usize, row0: usize| -> Vec<f64> {
-            (0..np).map(|d| sums[(row0 + d, 4 * o + c)]).collect()
-        };
-        let (re_h, im_h) = (col(1, 0), col(2, np));
+        let col = |m: &DMatrix<f64>, c: usize| -> Vec<f64> { (0..np).map(|d| m[(d, c)]).collect() };
+        let (re_h, im_h) = (col(&re_sums, 3 * o + 1), col(&im_sums, o));
         let s: Vec<f64> = re_h.iter().zip(&im_h).map(|(a, b)| a - b).collect();
         let u: Vec<f64> = re_h.iter().zip(&im_h).map(|(a, b)| a + b).collect();
-        output_factor(o, &col(0, 0), &s, &u, &col(3, 0), np)
+        output_factor(
+            o,
+            &col(&re_sums, 3 * o),
+            &s,
+            &u,
+            &col(&re_sums, 3 * o + 2),
+            np,
+        )
     });
     let mut tsum = DMatrix::<f64>::zeros(np, np);
     let mut factors: Vec<(DMatrix<f64>, DMatrix<f64>)> = Vec::with_capacity(no);
@@ -248,16 +253,16 @@ pub fn stabilization_from(
 /// Lines per block of the sums over lines: a block's powers and data stay in cache.
 const LINE_BLOCK: usize = 512;
 
-/// The sums over lines behind every output's normal equations: rows d and np + d hold
-/// Σ_k Re z_k^d·c_k and Σ_k Im z_k^d·c_k for the columns c = W², W²·Re H, W²·Im H, W²|H|² of
-/// each output (4 per output). Formed as matrix products block by block, the blocks spread over
-/// the cores.
+/// The sums over lines behind every output's normal equations, for d < np: Σ_k Re z_k^d·c_k for
+/// the columns c = W², W²·Re H, W²|H|² of each output (3 per output, first matrix), and
+/// Σ_k Im z_k^d·W²·Im H (one per output, second). Formed as matrix products block by block, the
+/// blocks spread over the cores.
 fn line_sums(
     z: &[Complex64],
     h: &[Vec<Complex64>],
     weight: &[Vec<f64>],
     np: usize,
-) -> DMatrix<f64> {
+) -> (DMatrix<f64>, DMatrix<f64>) {
     let no = h.len();
     let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
     let per = z.len().div_ceil(workers.max(1)).max(LINE_BLOCK);
@@ -266,17 +271,20 @@ fn line_sums(
         .map(|k0| (k0, (k0 + per).min(z.len())))
         .collect();
     let parts = crate::numeric::par_map(&ranges, |&(r0, r1)| {
-        let mut sums = DMatrix::<f64>::zeros(2 * np, 4 * no);
-        let mut powers = DMatrix::<f64>::zeros(2 * np, LINE_BLOCK);
-        let mut data = DMatrix::<f64>::zeros(LINE_BLOCK, 4 * no);
+        let mut re_sums = DMatrix::<f64>::zeros(np, 3 * no);
+        let mut im_sums = DMatrix::<f64>::zeros(np, no);
+        let mut re_pow = DMatrix::<f64>::zeros(np, LINE_BLOCK);
+        let mut im_pow = DMatrix::<f64>::zeros(np, LINE_BLOCK);
+        let mut re_data = DMatrix::<f64>::zeros(LINE_BLOCK, 3 * no);
+        let mut im_data = DMatrix::<f64>::zeros(LINE_BLOCK, no);
         for k0 in (r0..r1).step_by(LINE_BLOCK) {
             let kb = (r1 - k0).min(LINE_BLOCK);
             for k in 0..kb {
                 let zk = z[k0 + k];
                 let mut zp = Complex64::new(1.0, 0.0);
                 for d in 0..np {
-                    powers[(d, k)] = zp.re;
-                    powers[(np + d, k)] = zp.im;
+                    re_pow[(d, k)] = zp.re;
+                    im_pow[(d, k)] = zp.im;
                     zp *= zk;
                 }
             }
@@ -284,20 +292,21 @@ fn line_sums(
                 for k in 0..kb {
                     let w2 = weight[o][k0 + k] * weight[o][k0 + k];
                     let hk = h[o][k0 + k];
-                    data[(k, 4 * o)] = w2;
-                    data[(k, 4 * o + 1)] = w2 * hk.re;
-                    data[(k, 4 * o + 2)] = w2 * hk.im;
-                    data[(k, 4 * o + 3)] = w2 * hk.norm_sqr();
+                    re_data[(k, 3 * o)] = w2;
+                    re_data[(k, 3 * o + 1)] = w2 * hk.re;
+                    re_data[(k, 3 * o + 2)] = w2 * hk.norm_sqr();
+                    im_data[(k, o)] = w2 * hk.im;
                 }
             }
-            sums.gemm(1.0, &powers.columns(0, kb), &data.rows(0, kb), 1.0);
+            re_sums.gemm(1.0, &re_pow.columns(0, kb), &re_data.rows(0, kb), 1.0);
+            im_sums.gemm(1.0, &im_pow.columns(0, kb), &im_data.rows(0, kb), 1.0);
         }
-        sums
+        (re_sums, im_sums)
     });
     parts
         .into_iter()
-        .reduce(|a, b| a + b)
-        .unwrap_or_else(|| DMatrix::zeros(2 * np, 4 * no))
+        .reduce(|(a, b), (c, d)| (a + c, b + d))
+        .unwrap_or_else(|| (DMatrix::zeros(np, 3 * no), DMatrix::zeros(np, no)))
 }
 
 /// The poles of model order `p` from its reduced normal matrix `m` ((p+1)², of T − SᵀR⁻¹S),
