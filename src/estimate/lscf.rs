@@ -344,37 +344,48 @@ fn poles_of_order(
                 .unwrap_or_else(|| DVector::zeros(p + 1))
         })
         .collect();
-    let mut here: Vec<Pole> = Vec::new();
-    for zr in roots.iter() {
-        let zr = Complex64::new(zr.re, zr.im);
-        if zr.im <= 0.0 || zr.norm() >= 1.0 {
-            continue;
+    // The roots that are poles in the band, then every output's numerator at each of them at
+    // once: the roots' powers times the numerators' coefficients, as two matrix products.
+    let kept: Vec<(Complex64, Complex64)> = roots
+        .iter()
+        .map(|zr| Complex64::new(zr.re, zr.im))
+        .filter(|zr| zr.im > 0.0 && zr.norm() < 1.0)
+        .map(|zr| (zr, zr.ln() / dt))
+        .filter(|(_, lam)| {
+            let f = lam.norm() / TAU;
+            f >= f_lo && f <= f_hi
+        })
+        .collect();
+    let coef = DMatrix::from_fn(p + 1, betas.len(), |r, o| betas[o][r]);
+    let mut pow_re = DMatrix::<f64>::zeros(kept.len(), p + 1);
+    let mut pow_im = DMatrix::<f64>::zeros(kept.len(), p + 1);
+    for (i, (zr, _)) in kept.iter().enumerate() {
+        let mut zp = Complex64::new(1.0, 0.0);
+        for r in 0..=p {
+            pow_re[(i, r)] = zp.re;
+            pow_im[(i, r)] = zp.im;
+            zp *= zr;
         }
-        let lam = zr.ln() / dt;
-        let f = lam.norm() / TAU;
-        if f < f_lo || f > f_hi {
-            continue;
-        }
-        let shape: Vec<Complex64> = betas
-            .iter()
-            .map(|b| {
-                let mut acc = Complex64::new(0.0, 0.0);
-                for r in (0..=p).rev() {
-                    acc = acc * zr + b[r];
-                }
-                acc
-            })
-            .collect();
-        here.push(Pole {
-            order: p,
-            lambda: lam,
-            frequency_hz: f,
-            damping_ratio: -lam.re / lam.norm(),
-            status: PoleStatus::New,
-            mpc: mpc(&shape),
-            shape,
-        });
     }
+    let (num_re, num_im) = (&pow_re * &coef, &pow_im * &coef);
+    let mut here: Vec<Pole> = kept
+        .iter()
+        .enumerate()
+        .map(|(i, &(_, lam))| {
+            let shape: Vec<Complex64> = (0..betas.len())
+                .map(|o| Complex64::new(num_re[(i, o)], num_im[(i, o)]))
+                .collect();
+            Pole {
+                order: p,
+                lambda: lam,
+                frequency_hz: lam.norm() / TAU,
+                damping_ratio: -lam.re / lam.norm(),
+                status: PoleStatus::New,
+                mpc: mpc(&shape),
+                shape,
+            }
+        })
+        .collect();
     here.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
     Some(here)
 }
