@@ -85,23 +85,8 @@ pub fn record_for_spacing(
     if default_n <= max_n {
         return default_n;
     }
-    let mut n = max_n.max(1024);
-    while n > 1024 && !five_smooth(n) {
-        n -= 1;
-    }
-    n & !1
-}
-
-fn five_smooth(mut n: usize) -> bool {
-    if n == 0 {
-        return false;
-    }
-    for p in [2, 3, 5] {
-        while n.is_multiple_of(p) {
-            n /= p;
-        }
-    }
-    n == 1
+    // 1024 is itself 2·3·5-smooth, so the record never falls below it.
+    super::frf::smooth_len_at_most(max_n.max(1024)) & !1
 }
 
 #[cfg(test)]
@@ -136,7 +121,7 @@ mod tests {
     fn record_fits_between_taps() {
         // 1.2 s spacing at 48 kHz with 10 % pretrigger: post-trigger part ≤ 1.195 s.
         let n = record_for_spacing(65_536, 57_600, 0.1, 48_000);
-        assert!(five_smooth(n));
+        assert_eq!(crate::signal::frf::smooth_len_at_most(n), n);
         assert!((n as f64 * 0.9) <= 57_600.0 - 240.0);
         assert!(n > 60_000, "{n}");
         assert_eq!(record_for_spacing(65_536, 96_000, 0.1, 48_000), 65_536);
