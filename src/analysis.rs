@@ -349,45 +349,39 @@ fn layout_hint(setup: &Setup, stations: &[StationAnalysis]) -> Option<String> {
     })
 }
 
-/// The record and window that fit this test, where the setup leaves them open.
-///
-/// Record: the default length unless the taps come faster than it (then the longest that ends
-/// before the next tap, see [`taps::record_for_spacing`]). Returns the setup to use and notes on what was chosen.
+/// The record that fits this test, for a setup that leaves record length and hold-off open: the
+/// default length unless the taps come faster than it (then the longest that ends before the
+/// next tap, see [`taps::record_for_spacing`]). Returns the setup to use and notes on what was
+/// chosen.
 fn fit_setup_to_test(data: &Dataset, setup: &Setup) -> (Setup, Vec<String>) {
     let mut out = setup.clone();
     let mut notes = Vec::new();
-    let choose_record =
-        setup.trigger.record_length_s.is_none() && setup.trigger.holdoff_s.is_none();
-    if !choose_record {
-        return (out, notes);
-    }
     let Some(sv) = survey(data, setup) else {
         return (out, notes);
     };
     let fs = sv.sample_rate_hz;
-    if choose_record {
-        let spacings: Vec<usize> = sv
-            .strikes
-            .iter()
-            .flat_map(|t| t.windows(2).map(|w| w[1] - w[0]).collect::<Vec<_>>())
-            .collect();
-        if let Some(spacing) = taps::typical_short_spacing(&spacings) {
-            let n0 = setup.record_samples(fs);
-            let n = taps::record_for_spacing(n0, spacing, setup.trigger.pretrigger_fraction, fs);
-            if n < n0 {
-                out.trigger.record_length_s = Some(n as f64 / fs as f64);
-                notes.push(format!(
-                    "taps came {:.2} s apart (the shortest ordinary spacing), less than the default \
-                     record of {:.3} s: records of {n} samples ({:.3} s, {:.3} Hz lines) were used \
-                     so that each ends before the next tap; leave more time between taps for finer \
-                     lines",
-                    spacing as f64 / fs as f64,
-                    n0 as f64 / fs as f64,
-                    n as f64 / fs as f64,
-                    fs as f64 / n as f64
-                ));
-            }
-        }
+    let spacings: Vec<usize> = sv
+        .strikes
+        .iter()
+        .flat_map(|t| t.windows(2).map(|w| w[1] - w[0]).collect::<Vec<_>>())
+        .collect();
+    let Some(spacing) = taps::typical_short_spacing(&spacings) else {
+        return (out, notes);
+    };
+    let n0 = setup.record_samples(fs);
+    let n = taps::record_for_spacing(n0, spacing, setup.trigger.pretrigger_fraction, fs);
+    if n < n0 {
+        out.trigger.record_length_s = Some(n as f64 / fs as f64);
+        notes.push(format!(
+            "taps came {:.2} s apart (the shortest ordinary spacing), less than the default \
+             record of {:.3} s: records of {n} samples ({:.3} s, {:.3} Hz lines) were used \
+             so that each ends before the next tap; leave more time between taps for finer \
+             lines",
+            spacing as f64 / fs as f64,
+            n0 as f64 / fs as f64,
+            n as f64 / fs as f64,
+            fs as f64 / n as f64
+        ));
     }
     (out, notes)
 }

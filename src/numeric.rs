@@ -30,6 +30,17 @@ pub fn in_parallel_section() -> bool {
     PARALLEL_WORKER.with(|w| w.get())
 }
 
+/// `0..n` cut into contiguous ranges, one per core, each at least `min_len` long (fewer when
+/// `n` is short): the shares of a sum that [`par_map`] spreads over the cores.
+pub fn core_ranges(n: usize, min_len: usize) -> Vec<(usize, usize)> {
+    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let per = n.div_ceil(workers).max(min_len).max(1);
+    (0..n)
+        .step_by(per)
+        .map(|k0| (k0, (k0 + per).min(n)))
+        .collect()
+}
+
 /// `f` of every item, in order, spread over the machine's cores (each thread takes the next
 /// item as it finishes one, so uneven items balance). Runs inline for a single item or core.
 pub fn par_map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync) -> Vec<R> {
@@ -357,6 +368,7 @@ pub fn eigenvector_near(
 
 #[cfg(test)]
 mod tests {
+    use super::*;
 
     /// par_map keeps the items' order, and runs inline inside a parallel section (common
     /// practice: no nested thread pools).
@@ -399,8 +411,6 @@ mod tests {
         y[1030] = f64::NEG_INFINITY;
         assert!(!finite(&y));
     }
-
-    use super::*;
 
     /// The lowest modes of a fixed–fixed chain of 400 equal masses and springs against the
     /// closed form λ_j = (4k/m) sin²(jπ/(2(N+1))) (any vibration text, e.g. Meirovitch 2001).

@@ -264,12 +264,7 @@ fn line_sums(
     np: usize,
 ) -> (DMatrix<f64>, DMatrix<f64>) {
     let no = h.len();
-    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
-    let per = z.len().div_ceil(workers.max(1)).max(LINE_BLOCK);
-    let ranges: Vec<(usize, usize)> = (0..z.len())
-        .step_by(per)
-        .map(|k0| (k0, (k0 + per).min(z.len())))
-        .collect();
+    let ranges = crate::numeric::core_ranges(z.len(), LINE_BLOCK);
     let parts = crate::numeric::par_map(&ranges, |&(r0, r1)| {
         let mut re_sums = DMatrix::<f64>::zeros(np, 3 * no);
         let mut im_sums = DMatrix::<f64>::zeros(np, no);

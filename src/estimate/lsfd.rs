@@ -103,12 +103,7 @@ pub fn fit_outputs(
         .flat_map(|i| (i..cols).map(move |j| (i, j)))
         .collect();
     // Contiguous ranges of lines, one per core, each summed block by block.
-    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
-    let per = nl.div_ceil(workers.max(1)).max(BLOCK);
-    let ranges: Vec<(usize, usize)> = (0..nl)
-        .step_by(per)
-        .map(|k0| (k0, (k0 + per).min(nl)))
-        .collect();
+    let ranges = crate::numeric::core_ranges(nl, BLOCK);
     let sums = crate::numeric::par_map(&ranges, |&(r0, r1)| {
         let mut gram = DMatrix::<f64>::zeros(pairs.len(), no);
         let mut rhs = DMatrix::<f64>::zeros(cols, no);
@@ -211,14 +206,14 @@ pub fn fit_outputs(
         }
         (syn_re, syn_im)
     });
-    let line = |k: usize, o: usize| -> Complex64 {
-        let part = k / per;
-        let (re, im) = &parts[part];
-        Complex64::new(re[(k - part * per, o)], im[(k - part * per, o)])
-    };
     Ok((0..no)
         .map(|o| {
-            let synthesized: Vec<Complex64> = (0..nl).map(|k| line(k, o)).collect();
+            let synthesized: Vec<Complex64> = parts
+                .iter()
+                .flat_map(|(re, im)| {
+                    (0..re.nrows()).map(move |k| Complex64::new(re[(k, o)], im[(k, o)]))
+                })
+                .collect();
             let (mut num, mut den, mut weighted_residual) = (0.0, 0.0, 0.0);
             for ((a, b), w) in h[o].iter().zip(&synthesized).zip(weight[o]) {
                 let e = (a - b).norm_sqr();

@@ -26,8 +26,7 @@ pub(super) fn fit_chosen(
             .map(|(h, c)| {
                 let top = h
                     .iter()
-                    .fold(0.0f64, |m, v| m.max(v.norm_sqr()))
-                    .sqrt()
+                    .fold(0.0f64, |m, v| m.max(v.norm()))
                     .max(f64::MIN_POSITIVE);
                 c.iter()
                     .map(|&g| {
@@ -48,18 +47,24 @@ pub(super) fn fit_chosen(
     };
     // The fit over the whole band on one thread; each mode's local residues and damping checks,
     // independent of it and of each other, on the others.
+    // Each pole as measured (through the exponential window) and corrected for it.
+    let measured: Vec<[f64; 4]> = lambdas
+        .iter()
+        .map(|l| {
+            let (f, z) = (l.norm() / TAU_F, -l.re / l.norm());
+            let (fc, zc) = correct_damping(f, z, set.exp_tau_s);
+            [f, z, fc, zc]
+        })
+        .collect();
     let modes: Vec<usize> = (0..chosen.len()).collect();
     let (fits, local) = std::thread::scope(|scope| {
         let global =
             scope.spawn(|| lsfd::fit_outputs(&set.freq_hz, &hs, &ws, &lambdas, set.exp_tau_s));
         let local = crate::numeric::par_map(&modes, |&r| {
-            let f_meas = lambdas[r].norm() / TAU_F;
-            let z_meas = -lambdas[r].re / lambdas[r].norm();
-            let (fc, _) = correct_damping(f_meas, z_meas, set.exp_tau_s);
             let checks = if close_to_another(chosen[r].0) {
                 (None, None)
             } else {
-                local_damping(set, fc)
+                local_damping(set, measured[r][2])
             };
             (local_residues(set, w, &lambdas, r), checks)
         });
@@ -74,11 +79,7 @@ pub(super) fn fit_chosen(
     for ((r, &(pi, size)), (raw, (hp, cf))) in chosen.iter().enumerate().zip(local) {
         let raw: Vec<Complex64> =
             raw.unwrap_or_else(|| fits.iter().map(|f| f.residues[r]).collect());
-        let (f_meas, z_meas) = (
-            lambdas[r].norm() / TAU_F,
-            -lambdas[r].re / lambdas[r].norm(),
-        );
-        let (fc, zc) = correct_damping(f_meas, z_meas, set.exp_tau_s);
+        let [f_meas, z_meas, fc, zc] = measured[r];
         let close = close_to_another(pi);
         let mut notes = Vec::new();
         if close {

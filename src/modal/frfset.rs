@@ -127,10 +127,7 @@ impl FrfSet {
     pub(super) fn weights(&self, coherence: bool) -> Vec<Vec<f64>> {
         (0..self.h.len())
             .map(|o| {
-                let hmax = self.h[o]
-                    .iter()
-                    .fold(0.0f64, |m, c| m.max(c.norm_sqr()))
-                    .sqrt();
+                let hmax = self.h[o].iter().fold(0.0f64, |m, c| m.max(c.norm()));
                 let n = self.hits[o].max(1) as f64;
                 let edge = self.usable_hi_hz.get(o).copied().unwrap_or(f64::INFINITY);
                 let k_edge = self.freq_hz.partition_point(|&f| f <= edge);
@@ -142,7 +139,7 @@ impl FrfSet {
                     .zip(&self.coherence[o])
                     .enumerate()
                     .map(|(k, (h, &g))| {
-                        let mag = h.norm_sqr().sqrt().max(1e-6 * hmax).max(f64::MIN_POSITIVE);
+                        let mag = h.norm().max(1e-6 * hmax).max(f64::MIN_POSITIVE);
                         let w = if coherence {
                             let g = g.clamp(1e-3, 1.0 - 1e-6);
                             (2.0 * n * g / (1.0 - g)).sqrt() / mag

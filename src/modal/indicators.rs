@@ -24,17 +24,17 @@ pub fn indicators(set: &FrfSet) -> Indicators {
         mif: vec![0.0; nf],
         sum_response_autospectra: vec![0.0; nf],
     };
-    // Station by station along the lines (memory order); |H| as √|H|² (hypot's overflow guard
-    // costs several times more and FRF magnitudes are far from overflow).
+    // Station by station along the lines (memory order); each line's sums still add the
+    // stations in the same order.
     let mut re_abs = vec![0.0; nf];
     let mut sq = vec![0.0; nf];
     for (h, gbb) in set.h.iter().zip(&set.gbb) {
         for k in 0..nf {
-            let (n2, hk) = (h[k].norm_sqr(), h[k]);
-            let n = n2.sqrt();
+            let hk = h[k];
+            let n = hk.norm();
             ind.sum_abs[k] += n;
             re_abs[k] += hk.re.abs() * n;
-            sq[k] += n2;
+            sq[k] += hk.norm_sqr();
             ind.sum_response_autospectra[k] += gbb[k];
         }
     }

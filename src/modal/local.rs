@@ -105,14 +105,14 @@ pub(super) fn local_poles(
         return out;
     }
     let y = &ind.sum_abs;
+    let near = |f: f64, g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
     // Peaks no chosen pole explains that stand out as resonances; their local diagrams are
     // independent and run on all cores.
     let peaks: Vec<f64> = prominent_peaks(y)
         .into_iter()
         .filter_map(|k| {
             let f = set.freq_hz[k];
-            let near = |g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
-            if chosen.iter().any(|c| near(stab.poles[c.0].frequency_hz)) {
+            if chosen.iter().any(|c| near(f, stab.poles[c.0].frequency_hz)) {
                 return None;
             }
             // A resonance stands at least 6 dB above the lowest point within ±10 % on each side.
@@ -128,8 +128,7 @@ pub(super) fn local_poles(
         .collect();
     let columns = crate::numeric::par_map(&peaks, |&f| local_columns(set, w, f, s, physical));
     for (&f, cols) in peaks.iter().zip(columns) {
-        let near = |g: f64| (g - f).abs() <= (0.01 * f).max(3.0 * set.df_hz);
-        if out.iter().any(|p| near(p.0.frequency_hz)) {
+        if out.iter().any(|p| near(f, p.0.frequency_hz)) {
             continue;
         }
         if let Some(best) = cols

@@ -79,9 +79,10 @@ fn text_blocks<T: Sync>(
     chars: impl Fn(&T) -> usize + Sync,
     fill: impl Fn(&mut String, &T) + Sync,
 ) -> Vec<String> {
-    let workers = std::thread::available_parallelism().map_or(1, |n| n.get());
-    let chunk = items.len().div_ceil(workers.max(1)).max(1);
-    let groups: Vec<&[T]> = items.chunks(chunk).collect();
+    let groups: Vec<&[T]> = crate::numeric::core_ranges(items.len(), 1)
+        .into_iter()
+        .map(|(a, b)| &items[a..b])
+        .collect();
     crate::numeric::par_map(&groups, |g| {
         let mut out = String::with_capacity(g.iter().map(&chars).sum());
         for it in *g {
@@ -423,12 +424,7 @@ pub fn write_frf_csv(a: &Analysis, dir: &Path) -> Result<(), InputError> {
     let t = std::time::Instant::now();
     let csv = frf_csv_blocks(a);
     let t1 = t.elapsed();
-    let p = dir.join("frf.csv");
-    atomic::write_derived_with(&p, |f| {
-        use std::io::Write as _;
-        csv.iter().try_for_each(|b| f.write_all(b.as_bytes()))
-    })
-    .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))?;
+    write_blocks(&dir.join("frf.csv"), &csv)?;
     if std::env::var_os("TAPGRID_TIMING").is_some() {
         eprintln!(
             "timing: frf.csv text {:.3} s, write {:.3} s",
@@ -437,6 +433,15 @@ pub fn write_frf_csv(a: &Analysis, dir: &Path) -> Result<(), InputError> {
         );
     }
     Ok(())
+}
+
+/// Writes a derived table given as consecutive pieces, atomically, without joining them first.
+fn write_blocks(p: &Path, blocks: &[String]) -> Result<(), InputError> {
+    atomic::write_derived_with(p, |f| {
+        use std::io::Write as _;
+        blocks.iter().try_for_each(|b| f.write_all(b.as_bytes()))
+    })
+    .map_err(|e| InputError::new(p, format!("cannot write: {e}")))
 }
 
 /// Writes `result.json` and the fit's tables (stabilization, indicators, synthesized FRFs)
@@ -454,15 +459,7 @@ pub fn write_fit_outputs(a: &Analysis, m: &ModalResult, dir: &Path) -> Result<()
     // thread of their own.
     std::thread::scope(|scope| {
         let syn = (!m.synthesized.is_empty()).then(|| {
-            scope.spawn(|| {
-                let blocks = synthesized_csv_blocks(m);
-                let p = dir.join("synthesized.csv");
-                atomic::write_derived_with(&p, |f| {
-                    use std::io::Write as _;
-                    blocks.iter().try_for_each(|b| f.write_all(b.as_bytes()))
-                })
-                .map_err(|e| InputError::new(&p, format!("cannot write: {e}")))
-            })
+            scope.spawn(|| write_blocks(&dir.join("synthesized.csv"), &synthesized_csv_blocks(m)))
         });
         write("result.json", result_json(a, m))?;
         if let Some(st) = &m.stabilization {

@@ -246,11 +246,7 @@ fn fit_and_extrapolate(
     let ata = basis.tr_mul(&basis);
     let atb = basis.tr_mul(&y);
     let coef = crate::numeric::svd_solve(ata, &atb, 1e-12)?;
-    // The model over the record by recurrence, e^{λ(t+Δt)} = e^{λt}·e^{λΔt}, started afresh from
-    // the exact value every 1024 samples so round-off cannot build up: one complex product per
-    // sample and pole instead of an exponential and a sine–cosine pair. The constant term is the
-    // baseline, which the chain removes itself.
-    // Each pole's term by recurrence, e^{λ(t+Δt)} = e^{λt}·e^{λΔt}, in LANES interleaved chains
+    // The model over the record: each pole's term by recurrence, e^{λ(t+Δt)} = e^{λt}·e^{λΔt}, in LANES interleaved chains
     // (sample k + j advances by e^{λ·LANES·Δt}) that the compiler runs side by side in vector
     // registers, restarted from the exact value every 1024 samples so round-off cannot build up:
     // a few products per sample and pole instead of an exponential and a sine–cosine pair. The

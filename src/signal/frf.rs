@@ -211,6 +211,7 @@ pub fn accelerance_to_receptance(a: Complex64, f_hz: f64) -> Complex64 {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
 
     /// 2·3·5-smooth lengths (common practice for FFT sizes): 1000 = 2³5³ stays, 1009 (prime)
     /// goes down to 1000, 65537 (prime) to 65536.
@@ -235,8 +236,6 @@ mod tests {
             );
         }
     }
-
-    use super::*;
 
     #[test]
     fn estimators_agree_without_noise_and_bracket_with_noise() {

@@ -191,6 +191,7 @@ pub fn flat_top_at(x: &[f64], m: f64) -> bool {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
 
     /// The block-skipping scan finds exactly the crossings of a sample-by-sample scan, also at
     /// block edges and with NaN samples (common practice: a trigger is the first sample at or
@@ -226,8 +227,6 @@ mod tests {
             }
         }
     }
-
-    use super::*;
 
     #[test]
     fn triggers_respect_holdoff_and_slope() {
