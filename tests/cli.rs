@@ -288,8 +288,10 @@ fn simulate_command_writes_a_set() {
             "simulate",
             "--out",
             out.to_str().unwrap(),
+            // 14 stations: 0.9 m · 13/13 rounds to 0.9000000000000001 and was refused as
+            // beyond the shaft.
             "--stations",
-            "3",
+            "14",
             "--hits",
             "2",
             "--fs",
@@ -300,8 +302,10 @@ fn simulate_command_writes_a_set() {
         .assert()
         .success()
         .stdout(predicate::str::contains("Hz"));
+    let csv = std::fs::read_to_string(out.join("stations.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 15);
     assert!(
-        out.join("station-03.wav").is_file()
+        out.join("station-14.wav").is_file()
             && out.join("truth.json").is_file()
             && out.join("stations.csv").is_file()
     );

@@ -37,7 +37,7 @@ pub(super) fn simulate(a: SimulateArgs) -> Result<()> {
             bail!("--stations must be at least 2");
         }
         let l = sc.shaft.length_m();
-        sc.stations_m = (0..n).map(|i| l * i as f64 / (n - 1) as f64).collect();
+        sc.stations_m = (0..n).map(|i| l * (i as f64 / (n - 1) as f64)).collect();
         sc.drive_station = sc.drive_station.min(n as u32);
         sc.reference_station = sc.reference_station.min(n as u32);
     }

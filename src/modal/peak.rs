@@ -30,6 +30,70 @@ pub(super) fn prominent_peaks(y: &[f64]) -> Vec<usize> {
     out
 }
 
+/// Least height, dB, of a roving-sensor peak over the median level around it: its half-power
+/// points then lie 3 dB or more above that floor, so their spacing is the peak's width.
+const MIN_CLEAR_DB: f64 = 6.0;
+
+/// Whether the peak at line `i` of a power spectrum `y` stands clear of the spectrum around it:
+/// [`MIN_CLEAR_DB`] above the median of ±10 % of its frequency (at least ±32 lines; the median
+/// passes over the sharp peaks of sparse modes), and at its half-power level (3 dB) above the
+/// higher of its flanking minima.
+pub(super) fn stands_clear(y: &[f64], i: usize) -> bool {
+    let half = (i / 10).max(32);
+    let (lo, hi) = (i.saturating_sub(half), (i + half + 1).min(y.len()));
+    let mut w = y[lo..hi].to_vec();
+    let mid = w.len() / 2;
+    let median = *w.select_nth_unstable_by(mid, f64::total_cmp).1;
+    let flank = |range: &mut dyn Iterator<Item = usize>| {
+        let mut m = y[i];
+        for k in range {
+            if y[k] > y[i] {
+                break;
+            }
+            m = m.min(y[k]);
+        }
+        m
+    };
+    let (left, right) = (flank(&mut (0..i).rev()), flank(&mut (i + 1..y.len())));
+    y[i] >= 10f64.powf(MIN_CLEAR_DB / 10.0) * median && y[i] >= 2.0 * left.max(right)
+}
+
+/// Whether the peak at line `i` of a power spectrum `y` is less than 10 dB above the skirt that
+/// the mains lines present in `y` get from the exponential window (time constant `tau_s`): a
+/// stationary line of power P leaks P / (1 + (2πτΔf)²) to Δf away (the window's Lorentzian
+/// spectrum, Laplace transform of e^{−t/τ}). Hum coherent on both channels of a roving-sensor
+/// test rings nowhere, yet its skirt carries the ripple of the window's edges; a resonance there
+/// cannot be told from it.
+pub(super) fn in_mains_skirt(f: &[f64], y: &[f64], i: usize, tau_s: f64, mains: &[f64]) -> bool {
+    let (Some(&f0), Some(&f1)) = (f.first(), f.last()) else {
+        return false;
+    };
+    if !tau_s.is_finite() || f.len() < 2 {
+        return false;
+    }
+    let df = (f1 - f0) / (f.len() - 1) as f64;
+    let mut skirt = 0.0;
+    for &m in mains.iter().filter(|&&m| m > 0.0) {
+        let mut k = (f0 / m).ceil().max(1.0);
+        while k * m <= f1 {
+            let fh = k * m;
+            // The line's level: the highest value within a line of its nominal frequency. Only
+            // a line above the peak counts: a weaker one's skirt stays below a tenth of the peak
+            // unless within a few lines, and near a mode it is the mode's own flank.
+            let c = ((fh - f0) / df).round() as usize;
+            let (a, b) = (c.saturating_sub(1).min(y.len()), (c + 2).min(y.len()));
+            if let Some(level) = y[a..b].iter().copied().reduce(f64::max)
+                && level > y[i]
+            {
+                let x = std::f64::consts::TAU * tau_s * (f[i] - fh);
+                skirt += level / (1.0 + x * x);
+            }
+            k += 1.0;
+        }
+    }
+    y[i] < 10.0 * skirt
+}
+
 /// Parabolic interpolation of ln(y) around line i: (fractional offset, peak value).
 pub(super) fn interpolate_peak(y: &[f64], i: usize) -> (f64, f64) {
     if i == 0 || i + 1 >= y.len() || y[i - 1] <= 0.0 || y[i + 1] <= 0.0 {
@@ -82,6 +146,22 @@ pub(super) fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings)
     };
     let f = &set.freq_hz;
     let mut peaks = prominent_peaks(y);
+    if sensor {
+        // Summed auto-spectra have no coherence to tell a resonance from the ripple of the floor
+        // (hum leakage, noise): a resonance's half-power points must lie clear of both.
+        let before = peaks.len();
+        peaks.retain(|&i| {
+            stands_clear(y, i) && !in_mains_skirt(f, y, i, set.exp_tau_s, &s.mains_hz)
+        });
+        let dropped = before - peaks.len();
+        if dropped > 0 {
+            res.warnings.push(format!(
+                "{dropped} response peak(s) less than {MIN_CLEAR_DB} dB above the spectrum \
+                 around them, less than 3 dB above their flanks or less than 10 dB above the \
+                 window's skirt of a mains line were taken for noise or leakage, not resonances"
+            ));
+        }
+    }
     // Rank by height for Count/Near selections.
     let mut chosen: Vec<usize> = match &s.selection {
         Selection::Auto => peaks.clone(),
@@ -244,4 +324,67 @@ pub(super) fn is_hum(f: f64, zeta_true: f64, window_zeta: f64, df: f64, mains: &
             let k = (f / m).round();
             k >= 1.0 && (f - k * m).abs() <= tol
         })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A lightly damped resonance's power spectrum, |1/(ωn² − ω² + 2jζωnω)|² (any vibration
+    /// text, e.g. Ewins 2000 §2.2), over `f`.
+    fn resonance(f: &[f64], fn_hz: f64, zeta: f64, gain: f64) -> Vec<f64> {
+        f.iter()
+            .map(|&x| {
+                let (w, wn) = (std::f64::consts::TAU * x, std::f64::consts::TAU * fn_hz);
+                gain / ((wn * wn - w * w).powi(2) + (2.0 * zeta * wn * w).powi(2))
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_resonance_stands_clear_and_a_ripple_does_not() {
+        let f: Vec<f64> = (0..4000).map(|k| 100.0 + 0.5 * k as f64).collect();
+        // A weak mode 8 dB over a flat floor (a real case of a station near a node).
+        let floor = 1e-9;
+        let peak = resonance(&f, 1200.0, 0.004, 1.0);
+        let scale = 10f64.powf(0.8) * floor / peak[2200];
+        let y: Vec<f64> = peak.iter().map(|p| floor + scale * p).collect();
+        let i = 2200;
+        assert!(stands_clear(&y, i));
+        // A ±3 dB ripple of period 8 lines (leakage of a stationary line through a window's
+        // edges): its crests stand 3 dB over the median, not 6.
+        let ripple: Vec<f64> = (0..4000)
+            .map(|k| floor * 10f64.powf(0.3 * (std::f64::consts::TAU * k as f64 / 8.0).sin()))
+            .collect();
+        let crest = 2002;
+        assert!(ripple[crest] > ripple[crest - 1] && ripple[crest] >= ripple[crest + 1]);
+        assert!(!stands_clear(&ripple, crest));
+    }
+
+    #[test]
+    fn a_peak_in_a_mains_lines_window_skirt_is_set_aside() {
+        let f: Vec<f64> = (0..2000).map(|k| 40.0 + 0.25 * k as f64).collect();
+        let tau = 0.25;
+        // A strong 50 Hz line, its Lorentzian skirt through the exponential window (Laplace
+        // transform of e^{−t/τ}), and a bump 14 Hz away 3 dB above it.
+        let line = |x: f64| {
+            let u = std::f64::consts::TAU * tau * (x - 50.0);
+            1.0 / (1.0 + u * u)
+        };
+        let mut y: Vec<f64> = f.iter().map(|&x| 1e-9 + line(x)).collect();
+        let i = ((64.0 - 40.0) / 0.25) as usize;
+        y[i] *= 2.0;
+        assert!(in_mains_skirt(&f, &y, i, tau, &[50.0, 60.0]));
+        // 20 dB over the skirt: a resonance, kept.
+        y[i] = 100.0 * line(64.0);
+        assert!(!in_mains_skirt(&f, &y, i, tau, &[50.0, 60.0]));
+        // No exponential window: no skirt model, nothing set aside.
+        assert!(!in_mains_skirt(&f, &y, i, f64::INFINITY, &[50.0]));
+        // A mode beside a mains harmonic is not set aside by its own flank: the line at the
+        // harmonic must stand above the peak.
+        let m = resonance(&f, 120.4, 0.003, 1.0);
+        let j = f.iter().position(|&x| x >= 120.4).unwrap();
+        let j = if m[j - 1] > m[j] { j - 1 } else { j };
+        assert!(!in_mains_skirt(&f, &m, j, tau, &[60.0]));
+    }
 }

@@ -180,7 +180,9 @@ fn real_mac(a: &[f64], b: &[f64]) -> f64 {
 }
 
 fn grid(length: f64, n: usize) -> Vec<f64> {
-    (0..n).map(|i| length * i as f64 / (n - 1) as f64).collect()
+    (0..n)
+        .map(|i| length * (i as f64 / (n - 1) as f64))
+        .collect()
 }
 
 /// Auto-MAC matrix, its largest off-diagonal value and the smallest fraction of a mode's largest

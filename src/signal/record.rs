@@ -5,7 +5,7 @@
 
 use std::ops::Range;
 
-use super::window::{exponential, exponential_tau_s};
+use super::window::{exponential, exponential_tau_s, onset_taper};
 use crate::setup::Setup;
 
 /// Records of a test at one sample rate.
@@ -31,6 +31,11 @@ pub struct RecordPlan {
     pub tau_s: f64,
     /// The exponential window over the record (1 up to the trigger).
     pub exp_window: Vec<f64>,
+    /// The sensor layout's window: the exponential window raised from 0 over the first ⅞ of
+    /// the pretrigger ([`onset_taper`]), where only noise and hum lie. Its auto-spectra are
+    /// read directly, and a record starting at full hum leaks a comb of false peaks
+    /// 1/pretrigger apart.
+    pub sensor_window: Vec<f64>,
     /// Full-scale units → engineering units, channel A.
     pub scale_a: f64,
     /// Full-scale units → engineering units, channel B.
@@ -89,6 +94,11 @@ impl RecordPlan {
             freq_hz,
             tau_s,
             exp_window: exponential(n, pre, dt, tau_s),
+            sensor_window: {
+                let mut w = exponential(n, pre, dt, tau_s);
+                onset_taper(&mut w, pre - pre / 8);
+                w
+            },
             scale_a: setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit(),
             scale_b: setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit(),
         })

@@ -29,6 +29,13 @@ pub fn exponential(n: usize, t0: usize, dt: f64, tau_s: f64) -> Vec<f64> {
     w
 }
 
+/// Raises the first `len` samples of `w` from 0 with a half cosine (Hann rise).
+pub fn onset_taper(w: &mut [f64], len: usize) {
+    for (k, v) in w.iter_mut().take(len).enumerate() {
+        *v *= 0.5 * (1.0 - (std::f64::consts::PI * (k as f64 + 0.5) / len as f64).cos());
+    }
+}
+
 /// Time constant τ (s) of an exponential window that falls to `end_value` after `post_s` seconds:
 /// τ = T / ln(1/p) (Fladung 1997). `end_value` = 1 means no window: τ = ∞.
 pub fn exponential_tau_s(post_s: f64, end_value: f64) -> f64 {
