@@ -92,9 +92,9 @@ pub fn fit_peak(
     let sigma0 = (zeta_guess * TAU * f_hz).max(0.3 * TAU * df);
     let start = [sigma0.ln(), TAU * f_hz];
     let step = [0.3, 0.3 * TAU * df];
-    let mut best = nelder_mead(fit, start, step, 150)?;
+    let mut best = nelder_mead(fit, start, step, 150, [0.0; 2])?;
     // A restart from the first answer guards against a simplex collapsed early.
-    best = nelder_mead(fit, best, [0.1, 0.1 * TAU * df], 150)?;
+    best = nelder_mead(fit, best, [0.1, 0.1 * TAU * df], 150, [0.0; 2])?;
     let (sigma, wd) = (best[0].exp(), best[1]);
     let wn = (sigma * sigma + wd * wd).sqrt();
     let f = wn / TAU;

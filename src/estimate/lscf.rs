@@ -226,9 +226,12 @@ pub fn stabilization_from(
     }
     // Each order's poles are independent of the others': solved on all cores, then classified
     // against the order below in turn.
-    let found = crate::numeric::par_map(&reduced, |(p, m)| {
-        poles_of_order(*p, m, &factors, dt, [f_lo, f_hi])
-    });
+    // The eigenvalues of an order-p companion matrix cost ~p³: the highest orders go first.
+    let found = crate::numeric::par_map_dearest_first(
+        &reduced,
+        |(p, _)| *p as f64,
+        |(p, m)| poles_of_order(*p, m, &factors, dt, [f_lo, f_hi]),
+    );
     let mut out = Stabilization {
         poles: Vec::new(),
         max_order,

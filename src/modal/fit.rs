@@ -60,14 +60,19 @@ pub(super) fn fit_chosen(
     let (fits, local) = std::thread::scope(|scope| {
         let global =
             scope.spawn(|| lsfd::fit_outputs(&set.freq_hz, &hs, &ws, &lambdas, set.exp_tau_s));
-        let local = crate::numeric::par_map(&modes, |&r| {
-            let checks = if close_to_another(chosen[r].0) {
-                (None, None)
-            } else {
-                local_damping(set, measured[r][2])
-            };
-            (local_residues(set, w, &lambdas, r), checks)
-        });
+        // A mode's local band (±10 %), and its cost, grows with its frequency.
+        let local = crate::numeric::par_map_dearest_first(
+            &modes,
+            |&r| measured[r][0],
+            |&r| {
+                let checks = if close_to_another(chosen[r].0) {
+                    (None, None)
+                } else {
+                    local_damping(set, measured[r][2])
+                };
+                (local_residues(set, w, &lambdas, r), checks)
+            },
+        );
         let global = match global.join() {
             Ok(g) => g,
             Err(p) => std::panic::resume_unwind(p),

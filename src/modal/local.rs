@@ -126,7 +126,12 @@ pub(super) fn local_poles(
             (left.is_finite() && right.is_finite() && y[k] >= 2.0 * left.max(right)).then_some(f)
         })
         .collect();
-    let columns = crate::numeric::par_map(&peaks, |&f| local_columns(set, w, f, s, physical));
+    // A band of ±15 % around each peak: its cost grows with the frequency.
+    let columns = crate::numeric::par_map_dearest_first(
+        &peaks,
+        |&f| f,
+        |&f| local_columns(set, w, f, s, physical),
+    );
     for (&f, cols) in peaks.iter().zip(columns) {
         if out.iter().any(|p| near(f, p.0.frequency_hz)) {
             continue;

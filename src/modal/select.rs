@@ -199,9 +199,12 @@ pub(super) fn lscf_modes(
         // A pole the global fit gave to two close modes (a split pair from two bending planes,
         // widened by the exponential window) shows as two columns over a narrow band.
         let mut splits: Vec<(usize, Vec<(Pole, usize)>)> = Vec::new();
-        let columns = crate::numeric::par_map(&chosen, |&(pi, _)| {
-            local_columns(set, &w, poles[pi].frequency_hz, s, &physical_pole)
-        });
+        // A band of ±15 % around each: its cost grows with the frequency.
+        let columns = crate::numeric::par_map_dearest_first(
+            &chosen,
+            |&(pi, _)| poles[pi].frequency_hz,
+            |&(pi, _)| local_columns(set, &w, poles[pi].frequency_hz, s, &physical_pole),
+        );
         for (ci, (&(pi, _), cols)) in chosen.iter().zip(columns).enumerate() {
             let f = poles[pi].frequency_hz;
             let near: Vec<(Pole, usize)> = cols

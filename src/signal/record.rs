@@ -6,7 +6,7 @@
 use std::ops::Range;
 
 use super::window::{exponential, exponential_tau_s, onset_taper};
-use crate::setup::Setup;
+use crate::setup::{Layout, Setup};
 
 /// Records of a test at one sample rate.
 #[derive(Debug, Clone, PartialEq)]
@@ -34,7 +34,7 @@ pub struct RecordPlan {
     /// The sensor layout's window: the exponential window raised from 0 over the first ⅞ of
     /// the pretrigger ([`onset_taper`]), where only noise and hum lie. Its auto-spectra are
     /// read directly, and a record starting at full hum leaks a comb of false peaks
-    /// 1/pretrigger apart.
+    /// 1/pretrigger apart. Empty in the hammer layout.
     pub sensor_window: Vec<f64>,
     /// Full-scale units → engineering units, channel A.
     pub scale_a: f64,
@@ -94,10 +94,12 @@ impl RecordPlan {
             freq_hz,
             tau_s,
             exp_window: exponential(n, pre, dt, tau_s),
-            sensor_window: {
+            sensor_window: if setup.layout == Layout::Sensor {
                 let mut w = exponential(n, pre, dt, tau_s);
                 onset_taper(&mut w, pre - pre / 8);
                 w
+            } else {
+                Vec::new()
             },
             scale_a: setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit(),
             scale_b: setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit(),
