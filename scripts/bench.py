@@ -114,7 +114,8 @@ def kinds(tmp):
         # on the machine falls on both alike.
         os.sync()
         ours = [BIN, "analyze", s, "--out", tmp / f"k{i}a", "--band", band, "--sensitivity", "2.25,1.02"]
-        peer = [py, ROOT / "scripts" / "bench_reference.py", s, tmp / f"k{i}r"]
+        # The same job on both sides: the peer's FRF table spans the same band.
+        peer = [py, ROOT / "scripts" / "bench_reference.py", s, tmp / f"k{i}r", "--band", band]
         t_a, t_r = [], []
         for _ in range(REPEAT):
             for cmd, acc in ((ours, t_a), (peer, t_r)):

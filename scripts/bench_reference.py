@@ -4,7 +4,10 @@ find hits (level trigger, hold-off), cut records with pretrigger, remove the bas
 force and exponential windows, FFT, average G_aa, G_bb, G_ab over the hits, H1 and coherence in the
 band, and write frf.csv. Verdicts are reduced to the overload/weak tests (vectorised).
 
-Usage: bench_reference.py WAVSET OUTDIR [--no-csv]
+Usage: bench_reference.py WAVSET OUTDIR [--band LO:HI] [--no-csv]
+
+The band defaults to 10:5000 Hz; the benchmark passes the band `tapgrid analyze` is given, so that
+both write the same table.
 """
 import pathlib
 import re
@@ -79,12 +82,16 @@ def analyse(path, band=(10.0, 5000.0), level=0.02, pre_frac=0.1, exp_end=0.01):
 def main():
     src, out = pathlib.Path(sys.argv[1]), pathlib.Path(sys.argv[2])
     write = "--no-csv" not in sys.argv
+    band = (10.0, 5000.0)
+    if "--band" in sys.argv:
+        lo, hi = sys.argv[sys.argv.index("--band") + 1].split(":")
+        band = (float(lo), float(hi))
     out.mkdir(parents=True, exist_ok=True)
     files = sorted(src.glob("*.wav"))
     blocks = []
     for p in files:
         st = int(re.search(r"(\d+)$", p.stem).group(1))
-        f, h, c = analyse(p)
+        f, h, c = analyse(p, band)
         if write:
             blocks.append(np.column_stack([np.full(len(f), st), f, h.real, h.imag, c]))
     if write:
