@@ -11,6 +11,11 @@ use super::*;
 /// frequency stability is what is asked; the local refinement then settles the damping against
 /// the data. Each column is returned as its median pole with the number of orders it stood for,
 /// by frequency.
+///
+/// Where a column near `f` sits close to one of those limits (the weaker member of a close pair
+/// often does), one diagram's verdict hinges on the last digits of the data: two more diagrams,
+/// over bands 2 % of `f` narrower and wider, vote, and the number of columns near `f` that most
+/// of the three find decides.
 pub(super) fn local_columns(
     set: &FrfSet,
     w_all: &[Vec<f64>],
@@ -18,17 +23,60 @@ pub(super) fn local_columns(
     s: &ModalSettings,
     physical: &(dyn Fn(&Pole) -> bool + Sync),
 ) -> Vec<(Pole, usize)> {
-    let half = (0.15 * f).max(40.0 * set.df_hz);
+    let first = local_diagram(set, w_all, f, 0.15, s, physical);
+    if !first.borderline {
+        return first.columns;
+    }
+    let near = |c: &[(Pole, usize)]| {
+        c.iter()
+            .filter(|c| (c.0.frequency_hz / f - 1.0).abs() < 0.015)
+            .count()
+    };
+    let others = [0.13, 0.17].map(|h| local_diagram(set, w_all, f, h, s, physical));
+    let (n0, n1, n2) = (
+        near(&first.columns),
+        near(&others[0].columns),
+        near(&others[1].columns),
+    );
+    if n1 == n2 && n1 != n0 {
+        let [a, _] = others;
+        a.columns
+    } else {
+        first.columns
+    }
+}
+
+/// One narrow-band diagram's columns, and whether a column near its centre sat near a limit.
+struct LocalDiagram {
+    columns: Vec<(Pole, usize)>,
+    borderline: bool,
+}
+
+/// [`local_columns`] over ±`half_fraction`·`f` (or ±40 lines).
+fn local_diagram(
+    set: &FrfSet,
+    w_all: &[Vec<f64>],
+    f: f64,
+    half_fraction: f64,
+    s: &ModalSettings,
+    physical: &(dyn Fn(&Pole) -> bool + Sync),
+) -> LocalDiagram {
+    let mut borderline = false;
+    let half = (half_fraction * f).max(40.0 * set.df_hz);
     let k0 = set.freq_hz.partition_point(|&x| x < f - half);
     let k1 = set.freq_hz.partition_point(|&x| x <= f + half);
+    let none = LocalDiagram {
+        columns: Vec::new(),
+        borderline: false,
+    };
     if k1 < k0 + 24 {
-        return Vec::new();
+        return none;
     }
     let h: Vec<Vec<Complex64>> = set.h.iter().map(|v| v[k0..k1].to_vec()).collect();
     let w: Vec<Vec<f64>> = w_all.iter().map(|v| v[k0..k1].to_vec()).collect();
     let order = 32.min((k1 - k0 - 2) / 2);
     let Ok(local) = lscf::stabilization(&set.freq_hz[k0..k1], &h, &w, order, s.criteria) else {
-        return Vec::new();
+        return none;
     };
     let mut upper: Vec<&Pole> = local
         .poles
@@ -65,16 +113,27 @@ pub(super) fn local_columns(
             )
         });
         column.dedup_by_key(|p| p.order);
-        if column.is_empty() || 5 * column.len() < 3 * orders_upper {
+        if column.is_empty() {
             continue;
         }
+        let share = column.len() as f64 / orders_upper as f64;
         column.sort_by(|a, b| a.damping_ratio.total_cmp(&b.damping_ratio));
         let mid = column[column.len() / 2].damping_ratio;
         let (q1, q3) = (
-            column[column.len() / 4].damping_ratio,
-            column[3 * column.len() / 4].damping_ratio,
+            column[column.len() / 4].damping_ratio / mid,
+            column[3 * column.len() / 4].damping_ratio / mid,
         );
-        if !(q1 > 0.75 * mid && q3 < 1.25 * mid) {
+        // Near a limit: within about a fifth of it (a column of 0.45–0.75 of the orders, or
+        // damping quartiles 0.65–0.85 or 1.12–1.4 of the median).
+        if (column[0].frequency_hz / f - 1.0).abs() < 0.015
+            && share >= 0.45
+            && ((0.45..=0.75).contains(&share)
+                || (0.65..=0.85).contains(&q1)
+                || (1.12..=1.4).contains(&q3))
+        {
+            borderline = true;
+        }
+        if 5 * column.len() < 3 * orders_upper || !(q1 > 0.75 && q3 < 1.25) {
             continue;
         }
         let pick = column[column.len() / 2].clone();
@@ -83,7 +142,10 @@ pub(super) fn local_columns(
         }
     }
     out.sort_by(|a, b| a.0.frequency_hz.total_cmp(&b.0.frequency_hz));
-    out
+    LocalDiagram {
+        columns: out,
+        borderline,
+    }
 }
 
 /// Poles for prominent resonances of the Σ|H| indicator that no chosen pole explains, each from
