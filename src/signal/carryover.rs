@@ -246,39 +246,57 @@ fn fit_and_extrapolate(
     let ata = basis.tr_mul(&basis);
     let atb = basis.tr_mul(&y);
     let coef = crate::numeric::svd_solve(ata, &atb, 1e-12)?;
-    // The model over the record: each pole's term by recurrence, e^{λ(t+Δt)} = e^{λt}·e^{λΔt}, in LANES interleaved chains
-    // (sample k + j advances by e^{λ·LANES·Δt}) that the compiler runs side by side in vector
-    // registers, restarted from the exact value every 1024 samples so round-off cannot build up:
-    // a few products per sample and pole instead of an exponential and a sine–cosine pair. The
-    // constant term is the baseline, which the chain removes itself.
+    // The model over the record, pole by pole. A term y_k = Re(C·z^k) obeys the real recurrence
+    // y_{k+L} = 2 Re(z^L)·y_k − |z^L|²·y_{k−L}: LANES interleaved chains (sample k + j advances
+    // by L = LANES samples) of two products and a difference per sample, which the compiler
+    // runs side by side in vector registers instead of a complex product (six operations) and
+    // an exponential and a sine–cosine pair. Each 1024-sample block restarts the chains from
+    // exact values, so round-off cannot build up. The constant term is the baseline, which the
+    // chain removes itself.
     const LANES: usize = 8;
-    // Written before it is read: `vec![0.0; n]` would hand out fresh, unmapped pages, the `+=`
-    // below would map each to the shared zero page and then copy it on write, a page fault and a
-    // TLB shootdown across the cores per 4 KiB (a fifth of this function's time).
-    let mut out = Vec::with_capacity(n);
-    out.resize(n, 0.0);
+    // The first pole's term is written, the others added: the buffer is never read before it is
+    // written (a read of fresh zeroed pages maps the shared zero page, and the write after it
+    // copies that page: a fault and a TLB shootdown across the cores per 4 KiB).
+    let mut out = vec![0.0; n];
     for (r, l) in poles.iter().enumerate() {
-        let (p, q) = (coef[2 * r], coef[2 * r + 1]);
+        let c = Complex64::new(coef[2 * r], -coef[2 * r + 1]);
         let one = (l * dt).exp();
         let stride = (l * (LANES as f64 * dt)).exp();
+        let (c1, c2) = (2.0 * stride.re, stride.norm_sqr());
         for (b, block) in out.chunks_mut(1024).enumerate() {
-            let (mut er, mut ei) = ([0.0f64; LANES], [0.0f64; LANES]);
+            let (mut prev, mut cur) = ([0.0f64; LANES], [0.0f64; LANES]);
             let mut e = (l * ((s + 1024 * b) as f64 - anchor as f64) * dt).exp();
             for j in 0..LANES {
-                (er[j], ei[j]) = (e.re, e.im);
+                prev[j] = (c * e).re;
+                cur[j] = (c * e * stride).re;
                 e *= one;
             }
             let (chunks, rest) = block.as_chunks_mut::<LANES>();
-            for c in chunks {
+            let step = |prev: &mut [f64; LANES], cur: &mut [f64; LANES]| {
                 for j in 0..LANES {
-                    c[j] += p * er[j] + q * ei[j];
-                    let (a, d) = (er[j], ei[j]);
-                    er[j] = a * stride.re - d * stride.im;
-                    ei[j] = a * stride.im + d * stride.re;
+                    let next = c1 * cur[j] - c2 * prev[j];
+                    prev[j] = cur[j];
+                    cur[j] = next;
                 }
-            }
-            for (j, o) in rest.iter_mut().enumerate() {
-                *o += p * er[j] + q * ei[j];
+            };
+            if r == 0 {
+                for ch in chunks {
+                    *ch = prev;
+                    step(&mut prev, &mut cur);
+                }
+                for (j, o) in rest.iter_mut().enumerate() {
+                    *o = prev[j];
+                }
+            } else {
+                for ch in chunks {
+                    for j in 0..LANES {
+                        ch[j] += prev[j];
+                    }
+                    step(&mut prev, &mut cur);
+                }
+                for (j, o) in rest.iter_mut().enumerate() {
+                    *o += prev[j];
+                }
             }
         }
     }
