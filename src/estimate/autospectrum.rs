@@ -7,7 +7,7 @@
 //! where the half-power method needs several lines inside the half-power band (≥ 5
 //! lines, common practice) and fails below that.
 
-use super::refine::nelder_mead;
+use super::refine::nelder_mead_n;
 
 const TAU: f64 = 2.0 * std::f64::consts::PI;
 
@@ -92,9 +92,10 @@ pub fn fit_peak(
     let sigma0 = (zeta_guess * TAU * f_hz).max(0.3 * TAU * df);
     let start = [sigma0.ln(), TAU * f_hz];
     let step = [0.3, 0.3 * TAU * df];
-    let mut best = nelder_mead(fit, start, step, 150, [0.0; 2])?;
+    let f2 = |x: &[f64]| fit(x[0], x[1]);
+    let best = nelder_mead_n(f2, &start, &step, 150, &[0.0; 2])?;
     // A restart from the first answer guards against a simplex collapsed early.
-    best = nelder_mead(fit, best, [0.1, 0.1 * TAU * df], 150, [0.0; 2])?;
+    let best = nelder_mead_n(f2, &best, &[0.1, 0.1 * TAU * df], 150, &[0.0; 2])?;
     let (sigma, wd) = (best[0].exp(), best[1]);
     let wn = (sigma * sigma + wd * wd).sqrt();
     let f = wn / TAU;

@@ -239,64 +239,6 @@ pub(crate) fn nelder_mead_n(
     Some(pts[best].clone())
 }
 
-/// A small Nelder–Mead simplex minimiser in two dimensions: at most `iters` steps, fewer once
-/// every vertex lies within `tol` (per coordinate) of the best.
-pub(crate) fn nelder_mead(
-    f: impl Fn(f64, f64) -> f64,
-    x0: [f64; 2],
-    step: [f64; 2],
-    iters: usize,
-    tol: [f64; 2],
-) -> Option<[f64; 2]> {
-    let mut pts = [x0, [x0[0] + step[0], x0[1]], [x0[0], x0[1] + step[1]]];
-    let mut val = pts.map(|p| f(p[0], p[1]));
-    if !val.iter().all(|v| v.is_finite()) {
-        return None;
-    }
-    for _ in 0..iters {
-        let mut idx = [0usize, 1, 2];
-        idx.sort_by(|&a, &b| val[a].total_cmp(&val[b]));
-        let (b, m, w) = (idx[0], idx[1], idx[2]);
-        if [m, w].iter().all(|&i| {
-            (pts[i][0] - pts[b][0]).abs() <= tol[0] && (pts[i][1] - pts[b][1]).abs() <= tol[1]
-        }) {
-            break;
-        }
-        let c = [(pts[b][0] + pts[m][0]) / 2.0, (pts[b][1] + pts[m][1]) / 2.0];
-        let at = |t: f64| [c[0] + t * (pts[w][0] - c[0]), c[1] + t * (pts[w][1] - c[1])];
-        let xr = at(-1.0);
-        let fr = f(xr[0], xr[1]);
-        if fr < val[b] {
-            let xe = at(-2.0);
-            let fe = f(xe[0], xe[1]);
-            if fe < fr {
-                pts[w] = xe;
-                val[w] = fe;
-            } else {
-                pts[w] = xr;
-                val[w] = fr;
-            }
-        } else if fr < val[m] {
-            pts[w] = xr;
-            val[w] = fr;
-        } else {
-            let xc = at(0.5);
-            let fc = f(xc[0], xc[1]);
-            if fc < val[w] {
-                pts[w] = xc;
-                val[w] = fc;
-            } else {
-                for i in [m, w] {
-                    pts[i] = [(pts[i][0] + pts[b][0]) / 2.0, (pts[i][1] + pts[b][1]) / 2.0];
-                    val[i] = f(pts[i][0], pts[i][1]);
-                }
-            }
-        }
-    }
-    let best = (0..3).min_by(|&a, &b| val[a].total_cmp(&val[b]))?;
-    Some(pts[best])
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -325,14 +267,16 @@ mod tests {
         assert!(nelder_mead_n(|_| f64::NAN, &[0.0, 0.0], &[1.0, 1.0], 10, &[0.0; 2]).is_none());
     }
 
-    /// In two dimensions the general simplex takes the same steps as the two-dimensional one.
+    /// A quadratic bowl's minimum (derived: ∇f = 0 at (0.3, −0.7) when the cross term is
+    /// absent) is found to the tolerance asked, well before the step limit.
     #[test]
-    fn the_general_simplex_matches_the_planar_one() {
-        let f2 = |a: f64, b: f64| (a - 0.3).powi(2) + 5.0 * (b + 0.7).powi(2) + 0.1 * a * b;
-        let a = nelder_mead(f2, [1.0, 1.0], [0.2, 0.3], 40, [1e-9; 2]).unwrap();
-        let b =
-            nelder_mead_n(|x| f2(x[0], x[1]), &[1.0, 1.0], &[0.2, 0.3], 40, &[1e-9; 2]).unwrap();
-        assert_eq!(a.to_vec(), b);
+    fn simplex_stops_at_its_tolerance() {
+        let f = |x: &[f64]| (x[0] - 0.3).powi(2) + 5.0 * (x[1] + 0.7).powi(2);
+        let x = nelder_mead_n(f, &[1.0, 1.0], &[0.2, 0.3], 10_000, &[1e-9; 2]).unwrap();
+        assert!(
+            (x[0] - 0.3).abs() < 1e-8 && (x[1] + 0.7).abs() < 1e-8,
+            "{x:?}"
+        );
     }
 
     #[test]
