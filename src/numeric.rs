@@ -388,8 +388,6 @@ pub fn eigenvector_near(
 mod tests {
     use super::*;
 
-    /// par_map keeps the items' order, and runs inline inside a parallel section (common
-    /// practice: no nested thread pools).
     #[test]
     fn dearest_first_returns_results_in_the_items_order() {
         let items: Vec<u64> = vec![5, 1, 9, 3, 7, 2, 8];
@@ -398,6 +396,8 @@ mod tests {
         assert!(par_map_dearest_first(&[] as &[u64], |_| 0.0, |&x| x).is_empty());
     }
 
+    /// par_map keeps the items' order, and runs inline inside a parallel section (common
+    /// practice: no nested thread pools).
     #[test]
     fn par_map_keeps_order_and_nests_inline() {
         let items: Vec<u64> = (0..1000).collect();

@@ -51,11 +51,10 @@ pub fn fit_peak(
         return None;
     }
     let (fs, ys) = (&freq_hz[k0..k1], &y[k0..k1]);
-    // For given (σ', ω_d): the shape g(ω); A and B by weighted linear least squares (relative
-    // error, weights 1/y). Returns the objective.
-    // The measured spectrum is the mode's line shape times the force spectrum, which falls
-    // across the band of a soft tip: its slope over the peak pulls a fitted frequency low (by
-    // 1e-4 to 5e-4 on a simulated set). A first-order term in the amplitude takes it up.
+    // For given (σ', ω_d): the shape g(ω), and its amplitude, the amplitude's slope and the
+    // background linear; returns the objective. The measured spectrum is the line shape times
+    // the force spectrum, which falls across the band of a soft tip: its slope over the peak
+    // pulled a fitted frequency low (by 1e-4 to 5e-4 on simulated sets).
     let wc = TAU * f_hz;
     let fit = |ls: f64, wd: f64| -> f64 {
         let sigma = ls.exp();

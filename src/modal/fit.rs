@@ -45,8 +45,6 @@ pub(super) fn fit_chosen(
             o != pi && (poles[o].frequency_hz / poles[pi].frequency_hz - 1.0).abs() < 0.02
         })
     };
-    // The fit over the whole band on one thread; each mode's local residues and damping checks,
-    // independent of it and of each other, on the others.
     // Each pole as measured (through the exponential window) and corrected for it.
     let measured: Vec<[f64; 4]> = lambdas
         .iter()
@@ -57,6 +55,8 @@ pub(super) fn fit_chosen(
         })
         .collect();
     let modes: Vec<usize> = (0..chosen.len()).collect();
+    // The fit over the whole band on one thread; each mode's local residues and damping checks,
+    // independent of it and of each other, on the others.
     let (fits, local) = std::thread::scope(|scope| {
         let global =
             scope.spawn(|| lsfd::fit_outputs(&set.freq_hz, &hs, &ws, &lambdas, set.exp_tau_s));

@@ -5,6 +5,16 @@ use super::*;
 
 /// Local maxima of `y` standing at least 3 dB above the higher of their two flanking minima.
 pub(super) fn prominent_peaks(y: &[f64]) -> Vec<usize> {
+    peaks_with_flanks(y)
+        .into_iter()
+        .filter(|&(i, flank)| y[i] >= std::f64::consts::SQRT_2 * flank)
+        .map(|(i, _)| i)
+        .collect()
+}
+
+/// Every local maximum of `y` with the higher of its two flanking minima (the lowest values
+/// before the spectrum rises above the maximum again on either side).
+fn peaks_with_flanks(y: &[f64]) -> Vec<(usize, f64)> {
     let n = y.len();
     let mut out = Vec::new();
     for i in 1..n.saturating_sub(1) {
@@ -23,9 +33,7 @@ pub(super) fn prominent_peaks(y: &[f64]) -> Vec<usize> {
             r += 1;
             rmin = rmin.min(y[r]);
         }
-        if y[i] >= std::f64::consts::SQRT_2 * lmin.max(rmin) {
-            out.push(i);
-        }
+        out.push((i, lmin.max(rmin)));
     }
     out
 }
@@ -34,28 +42,16 @@ pub(super) fn prominent_peaks(y: &[f64]) -> Vec<usize> {
 /// points then lie 3 dB or more above that floor, so their spacing is the peak's width.
 const MIN_CLEAR_DB: f64 = 6.0;
 
-/// Whether the peak at line `i` of a power spectrum `y` stands clear of the spectrum around it:
-/// [`MIN_CLEAR_DB`] above the median of ±10 % of its frequency (at least ±32 lines; the median
-/// passes over the sharp peaks of sparse modes), and at its half-power level (3 dB) above the
-/// higher of its flanking minima.
+/// Whether the peak at line `i` of a power spectrum `y` stands [`MIN_CLEAR_DB`] above the median
+/// of ±10 % of its frequency (at least ±32 lines; the median passes over the sharp peaks of
+/// sparse modes).
 pub(super) fn stands_clear(y: &[f64], i: usize) -> bool {
     let half = (i / 10).max(32);
     let (lo, hi) = (i.saturating_sub(half), (i + half + 1).min(y.len()));
     let mut w = y[lo..hi].to_vec();
     let mid = w.len() / 2;
     let median = *w.select_nth_unstable_by(mid, f64::total_cmp).1;
-    let flank = |range: &mut dyn Iterator<Item = usize>| {
-        let mut m = y[i];
-        for k in range {
-            if y[k] > y[i] {
-                break;
-            }
-            m = m.min(y[k]);
-        }
-        m
-    };
-    let (left, right) = (flank(&mut (0..i).rev()), flank(&mut (i + 1..y.len())));
-    y[i] >= 10f64.powf(MIN_CLEAR_DB / 10.0) * median && y[i] >= 2.0 * left.max(right)
+    y[i] >= 10f64.powf(MIN_CLEAR_DB / 10.0) * median
 }
 
 /// Whether the peak at line `i` of a power spectrum `y` is less than 10 dB above the skirt that
@@ -145,15 +141,21 @@ pub(super) fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings)
         &res.indicators.sum_abs
     };
     let f = &set.freq_hz;
-    let mut peaks = prominent_peaks(y);
+    let mut flanked: Vec<(usize, f64)> = peaks_with_flanks(y)
+        .into_iter()
+        .filter(|&(i, flank)| y[i] >= std::f64::consts::SQRT_2 * flank)
+        .collect();
     if sensor {
         // Summed auto-spectra have no coherence to tell a resonance from the ripple of the floor
-        // (hum leakage, noise): a resonance's half-power points must lie clear of both.
-        let before = peaks.len();
-        peaks.retain(|&i| {
-            stands_clear(y, i) && !in_mains_skirt(f, y, i, set.exp_tau_s, &s.mains_hz)
+        // (hum leakage, noise): a resonance's half-power points must lie clear of both, at its
+        // half-power level (3 dB) above its flanks.
+        let before = flanked.len();
+        flanked.retain(|&(i, flank)| {
+            y[i] >= 2.0 * flank
+                && stands_clear(y, i)
+                && !in_mains_skirt(f, y, i, set.exp_tau_s, &s.mains_hz)
         });
-        let dropped = before - peaks.len();
+        let dropped = before - flanked.len();
         if dropped > 0 {
             res.warnings.push(format!(
                 "{dropped} response peak(s) less than {MIN_CLEAR_DB} dB above the spectrum \
@@ -162,6 +164,7 @@ pub(super) fn peak_modes(set: &FrfSet, res: &mut ModalResult, s: &ModalSettings)
             ));
         }
     }
+    let mut peaks: Vec<usize> = flanked.into_iter().map(|(i, _)| i).collect();
     // Rank by height for Count/Near selections.
     let mut chosen: Vec<usize> = match &s.selection {
         Selection::Auto => peaks.clone(),

@@ -230,7 +230,7 @@ impl HitCutter<'_> {
                 self.hammer_spectra(plan, &mut rep, [ra, ra_w, rb_w], start, cut)
             }
             Layout::Sensor => {
-                let (rp, ew) = (self.rp, &self.rp.sensor_window);
+                let (rp, ew) = (self.rp, &self.rp.exp_window);
                 let (ma, mb) = baseline(ra_w, rb_w, pre.saturating_sub(pre / 10));
                 let lines = || rp.lines.clone();
                 let sa = plan.lines_of(|x| windowed(x, ra_w, ma, rp.scale_a, ew), rp.dt, lines());

@@ -29,13 +29,11 @@ pub struct RecordPlan {
     pub freq_hz: Vec<f64>,
     /// Time constant of the exponential window, s.
     pub tau_s: f64,
-    /// The exponential window over the record (1 up to the trigger).
+    /// The exponential window over the record (1 up to the trigger). In the sensor layout it
+    /// rises from 0 over the first ⅞ of the pretrigger ([`onset_taper`]), where only noise and
+    /// hum lie: that layout's auto-spectra are read directly, and a record starting at full hum
+    /// leaks a comb of false peaks 1/pretrigger apart.
     pub exp_window: Vec<f64>,
-    /// The sensor layout's window: the exponential window raised from 0 over the first ⅞ of
-    /// the pretrigger ([`onset_taper`]), where only noise and hum lie. Its auto-spectra are
-    /// read directly, and a record starting at full hum leaks a comb of false peaks
-    /// 1/pretrigger apart. Empty in the hammer layout.
-    pub sensor_window: Vec<f64>,
     /// Full-scale units → engineering units, channel A.
     pub scale_a: f64,
     /// Full-scale units → engineering units, channel B.
@@ -93,13 +91,12 @@ impl RecordPlan {
             lines,
             freq_hz,
             tau_s,
-            exp_window: exponential(n, pre, dt, tau_s),
-            sensor_window: if setup.layout == Layout::Sensor {
+            exp_window: {
                 let mut w = exponential(n, pre, dt, tau_s);
-                onset_taper(&mut w, pre - pre / 8);
+                if setup.layout == Layout::Sensor {
+                    onset_taper(&mut w, pre - pre / 8);
+                }
                 w
-            } else {
-                Vec::new()
             },
             scale_a: setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit(),
             scale_b: setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit(),

@@ -280,7 +280,7 @@ pub fn hit_traces(
             }
             (w, wstart.saturating_sub(taper))
         }
-        None => (rp.sensor_window.clone(), pre.saturating_sub(pre / 10)),
+        None => (ew.clone(), pre.saturating_sub(pre / 10)),
     };
     let (ma, mb) = baseline(ra, rb, base_end);
     let ta: Vec<f64> = ra.iter().map(|v| (v - ma) * rp.scale_a).collect();
