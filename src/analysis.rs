@@ -11,8 +11,10 @@ use crate::acquire::InputError;
 use crate::acquire::wav::{Decoder, NonFinite};
 use crate::acquire::wavset::{PositionSource, WavSet};
 use crate::setup::Setup;
+use crate::signal::carryover::{self, RingingPoles};
 use crate::signal::hits::level_of;
-use crate::signal::{SpectrumPlan, StationResult, analyze_station, taps};
+use crate::signal::station::lend_free_decays;
+use crate::signal::{SpectrumPlan, StationResult, analyze_station_in_test, taps};
 
 /// Progress of a long analysis on stderr, for the command line (`TAPGRID_PROGRESS=1`, or any
 /// analysis of more than 8 stations when stderr is a terminal).
@@ -233,11 +235,20 @@ fn per_station<S: Default, T: Send>(
     data: &Dataset,
     work: impl Fn(&mut S, &StationSource) -> T + Sync,
 ) -> Vec<T> {
+    let all: Vec<&StationSource> = data.stations.iter().collect();
+    per_source(&all, work)
+}
+
+/// [`per_station`] over some of a test's stations.
+fn per_source<S: Default, T: Send>(
+    stations: &[&StationSource],
+    work: impl Fn(&mut S, &StationSource) -> T + Sync,
+) -> Vec<T> {
     let next = AtomicUsize::new(0);
-    let out: Mutex<Vec<Option<T>>> = Mutex::new((0..data.stations.len()).map(|_| None).collect());
+    let out: Mutex<Vec<Option<T>>> = Mutex::new((0..stations.len()).map(|_| None).collect());
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
-        .min(data.stations.len().max(1));
+        .min(stations.len().max(1));
     std::thread::scope(|scope| {
         for w in 0..workers {
             let (next, out, work) = (&next, &out, &work);
@@ -248,7 +259,7 @@ fn per_station<S: Default, T: Send>(
                         let mut state = S::default();
                         loop {
                             let i = next.fetch_add(1, Ordering::Relaxed);
-                            let Some(src) = data.stations.get(i) else {
+                            let Some(&src) = stations.get(i) else {
                                 break;
                             };
                             let r = work(&mut state, src);
@@ -400,7 +411,10 @@ fn station_pass(
 ) -> Option<Vec<StationOutcome>> {
     let stop = std::sync::atomic::AtomicBool::new(false);
     let progress = Progress::new(data.stations.len());
-    let results = per_station(data, |w: &mut Worker, src| -> Option<StationOutcome> {
+    let analyse = |w: &mut Worker,
+                   src: &StationSource,
+                   ringing: RingingPoles|
+     -> Option<StationOutcome> {
         if stop.load(Ordering::Relaxed) {
             return None;
         }
@@ -414,13 +428,14 @@ fn station_pass(
             Err(e) => return Some(Err(e)),
         };
         let fs = info.sample_rate_hz;
-        let r = analyze_station(
+        let r = analyze_station_in_test(
             &w.decoder.a,
             &w.decoder.b,
             fs,
             setup,
             &src.overrides,
             &mut w.plan,
+            ringing,
         );
         if stop_on_fast_taps {
             let n0 = setup.record_samples(fs);
@@ -443,9 +458,55 @@ fn station_pass(
         }
         progress.station_done(src.station);
         Some(Ok((fs, r)))
+    };
+    let n = data.stations.len();
+    if !setup.remove_carryover || n < 2 * PILOTS {
+        return per_station(data, |w: &mut Worker, src| {
+            analyse(w, src, RingingPoles::Own)
+        })
+        .into_iter()
+        .collect();
+    }
+    // The part's ringing poles are estimated once, from free decays lent by a few stations spread
+    // along the part (so that no mode sits at a node of all of them), and every station fits
+    // its carried-over ringing with those; each station estimating its own would repeat the
+    // same estimate. The pilots are chosen by position in the list, so the result does not
+    // depend on which thread finishes first.
+    let pilots: Vec<&StationSource> = (0..PILOTS)
+        .map(|j| &data.stations[(2 * j + 1) * n / (2 * PILOTS)])
+        .collect();
+    let lent = per_source(&pilots, |dec: &mut Decoder, src| {
+        let info = dec
+            .decode_with(
+                &src.path,
+                setup.channel_a.index,
+                setup.channel_b.index,
+                NonFinite::Keep,
+            )
+            .ok()?;
+        let fs = info.sample_rate_hz;
+        let decays = lend_free_decays(&dec.a, &dec.b, fs, setup).ok()?;
+        Some((fs, decays))
     });
-    results.into_iter().collect()
+    let fs = lent.iter().flatten().map(|l| l.0).next();
+    let decays: Vec<Vec<f64>> = lent
+        .into_iter()
+        .flatten()
+        .filter(|l| Some(l.0) == fs)
+        .flat_map(|l| l.1)
+        .collect();
+    let poles = fs.and_then(|fs| carryover::test_poles(&decays, fs, setup.band(fs)));
+    let ringing = match &poles {
+        Some(p) => RingingPoles::Test(p),
+        None => RingingPoles::Own,
+    };
+    per_station(data, |w: &mut Worker, src| analyse(w, src, ringing))
+        .into_iter()
+        .collect()
 }
+
+/// Stations that lend free decays to a test's estimate of its ringing poles.
+const PILOTS: usize = 4;
 
 /// Decodes and analyses every station, using up to `available_parallelism` threads.
 ///

@@ -1,7 +1,7 @@
 //! Cutting one station's recording into hit records: non-finite samples, where the taps start,
 //! the force pulses, and each hit's checks, windows and spectra.
 
-use super::carryover::PulseSpan;
+use super::carryover::{PulseSpan, RingingModel};
 use super::frf::SpectrumPlan;
 use super::hits::{Pulse, find_pulse, find_triggers, flat_top_at, peak_abs, second_impact};
 use super::record::RecordPlan;
@@ -148,16 +148,18 @@ pub(super) struct HitCutter<'a> {
     pub(super) bad: &'a [usize],
     pub(super) spans: &'a [PulseSpan],
     pub(super) pulses: &'a [Option<Pulse>],
-    pub(super) corr_a: &'a [Option<Vec<f64>>],
-    pub(super) corr_b: &'a [Option<Vec<f64>>],
+    pub(super) corr_a: &'a [Option<RingingModel>],
+    pub(super) corr_b: &'a [Option<RingingModel>],
     /// Factors that undo the interface's high-pass on the response, per line.
     pub(super) unhp: Option<Vec<Complex64>>,
 }
 
 impl HitCutter<'_> {
+    /// `scratch` holds the records with carried-over ringing removed (reused from hit to hit).
     pub(super) fn cut(
         &self,
         plan: &mut SpectrumPlan,
+        scratch: &mut [Vec<f64>; 2],
         index: usize,
         trig: usize,
         override_accept: Option<bool>,
@@ -207,12 +209,13 @@ impl HitCutter<'_> {
         let rb = &b[start..start + n];
         // Overload checks see the raw samples; the spectra see the samples with any carried-over
         // ringing removed.
-        let fix = |raw: &[f64], c: &Option<Vec<f64>>| -> Option<Vec<f64>> {
-            c.as_ref()
-                .map(|c| raw.iter().zip(c).map(|(r, c)| r - c).collect())
+        let [sa, sb] = scratch;
+        let fix = |raw: &[f64], c: &Option<RingingModel>, out: &mut Vec<f64>| -> bool {
+            c.as_ref().map(|c| c.subtract(raw, out)).is_some()
         };
-        let (fa, fb) = (fix(ra, &self.corr_a[index]), fix(rb, &self.corr_b[index]));
-        rep.ringing_removed = fa.is_some() || fb.is_some();
+        let fixed_a = fix(ra, &self.corr_a[index], sa);
+        let fixed_b = fix(rb, &self.corr_b[index], sb);
+        rep.ringing_removed = fixed_a || fixed_b;
         rep.peak_a_fs = peak_abs(ra);
         rep.peak_b_fs = peak_abs(rb);
         if rep.peak_a_fs >= q.overload_fraction
@@ -222,8 +225,8 @@ impl HitCutter<'_> {
         {
             rep.reasons.push(Reason::Overload);
         }
-        let ra_w: &[f64] = fa.as_deref().unwrap_or(ra);
-        let rb_w: &[f64] = fb.as_deref().unwrap_or(rb);
+        let ra_w: &[f64] = if fixed_a { sa } else { ra };
+        let rb_w: &[f64] = if fixed_b { sb } else { rb };
         let (sa, sb) = match self.setup.layout {
             Layout::Hammer => {
                 let cut = next_in_record.unwrap_or(n);

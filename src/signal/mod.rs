@@ -14,5 +14,8 @@ pub mod window;
 
 pub use frf::{CrossSpectra, SpectrumPlan};
 pub use record::RecordPlan;
-pub use station::{HitReport, HitTraces, StationFrf, StationResult, analyze_station, hit_traces};
+pub use station::{
+    HitReport, HitTraces, StationFrf, StationResult, analyze_station, analyze_station_in_test,
+    hit_traces,
+};
 pub use verdict::Reason;

@@ -4,7 +4,7 @@ use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
-use super::carryover;
+use super::carryover::{self, RingingPoles};
 use super::coupling;
 use super::cut::{Candidate, FiniteChannels, HitCutter, baseline, locate_taps, pulse_spans};
 use super::frf::{CrossSpectra, SpectrumPlan};
@@ -116,6 +116,20 @@ pub fn analyze_station(
     overrides: &BTreeMap<usize, bool>,
     plan: &mut Option<SpectrumPlan>,
 ) -> Result<StationResult, String> {
+    analyze_station_in_test(a, b, fs, setup, overrides, plan, RingingPoles::Own)
+}
+
+/// [`analyze_station`] as one station of a test whose stations share the poles of the part's
+/// carried-over ringing (see [`RingingPoles`]).
+pub fn analyze_station_in_test(
+    a: &[f64],
+    b: &[f64],
+    fs: u32,
+    setup: &Setup,
+    overrides: &BTreeMap<usize, bool>,
+    plan: &mut Option<SpectrumPlan>,
+    ringing: RingingPoles,
+) -> Result<StationResult, String> {
     let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
     let finite = FiniteChannels::of(a, b);
     let (a, b) = (finite.a(), finite.b());
@@ -130,16 +144,11 @@ pub fn analyze_station(
     // Ringing from earlier hits: always on the response; on the reference too when it is an
     // accelerometer (sensor layout).
     let (pre, n, band) = (rp.pre, rp.n, rp.band_hz);
+    let corrections = |x: &[f64]| carryover::corrections(x, fs, &spans, pre, n, band, ringing);
     let (corr_a, corr_b) = match (setup.remove_carryover, setup.layout) {
         (false, _) => (vec![None; spans.len()], vec![None; spans.len()]),
-        (true, Layout::Hammer) => (
-            vec![None; spans.len()],
-            carryover::corrections(b, fs, &spans, pre, n, band),
-        ),
-        (true, Layout::Sensor) => (
-            carryover::corrections(a, fs, &spans, pre, n, band),
-            carryover::corrections(b, fs, &spans, pre, n, band),
-        ),
+        (true, Layout::Hammer) => (vec![None; spans.len()], corrections(b)),
+        (true, Layout::Sensor) => (corrections(a), corrections(b)),
     };
     // Undo the interface's high-pass, which the force window leaves in the response only (see
     // `coupling`); in the sensor layout both channels are responses and it cancels.
@@ -165,8 +174,15 @@ pub fn analyze_station(
     let mut hits = Vec::with_capacity(triggers.len());
     let mut nulls: Vec<Option<f64>> = Vec::new();
     let mut cands: Vec<Option<Candidate>> = Vec::with_capacity(triggers.len());
+    let mut scratch = [Vec::new(), Vec::new()];
     for (index, &trig) in triggers.iter().enumerate() {
-        let cut = cutter.cut(plan, index, trig, overrides.get(&index).copied());
+        let cut = cutter.cut(
+            plan,
+            &mut scratch,
+            index,
+            trig,
+            overrides.get(&index).copied(),
+        );
         if let Some(null) = cut.first_null_hz {
             nulls.push(null);
         }
@@ -198,6 +214,29 @@ pub fn analyze_station(
         usable_band_hz,
         first_null_hz,
         notes,
+    })
+}
+
+/// Copies of a few of the station's free decays (between its taps) on the channels that carry
+/// ringing worth removing, for the test's estimate of its ringing poles
+/// ([`carryover::test_poles`]); empty when none does. Errors as [`analyze_station`]'s.
+pub fn lend_free_decays(
+    a: &[f64],
+    b: &[f64],
+    fs: u32,
+    setup: &Setup,
+) -> Result<Vec<Vec<f64>>, String> {
+    let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
+    let finite = FiniteChannels::of(a, b);
+    let (a, b) = (finite.a(), finite.b());
+    let level = level_of(a, setup.trigger.level);
+    let triggers = locate_taps(a, fs, setup, level, finite.bad.len())?;
+    let (_, spans) = pulse_spans(a, fs, setup, &triggers);
+    let lend = |x: &[f64]| carryover::lend_decays(x, fs, &spans, rp.pre, rp.n, rp.band_hz);
+    Ok(match (setup.remove_carryover, setup.layout) {
+        (false, _) => Vec::new(),
+        (true, Layout::Hammer) => lend(b),
+        (true, Layout::Sensor) => [lend(a), lend(b)].concat(),
     })
 }
 
