@@ -37,6 +37,14 @@ pub const RINGING_THRESHOLD: f64 = 0.003;
 /// Free decays each pilot station lends to the test's pole estimate (per channel).
 const PILOT_DECAYS: usize = 3;
 
+/// Lines over the band of a station's own pole estimate: bounded work per station (the decays'
+/// poles are sharp; a coarser line spacing resolves them once the window is removed).
+const STATION_LINES: f64 = 1500.0;
+
+/// Lines over the band of the test's estimate: made once, and every station's model rests on
+/// it, so its errors do not average out over the stations as those of their own estimates do.
+const TEST_LINES: f64 = 4000.0;
+
 /// Where the poles of a station's ringing model come from.
 #[derive(Debug, Clone, Copy)]
 pub enum RingingPoles<'a> {
@@ -128,11 +136,17 @@ fn free_decays(x: &[f64], fs: u32, hits: &[PulseSpan]) -> Vec<(usize, usize)> {
 /// gives 1500 lines over the band (the decays' poles are sharp; a coarser line spacing resolves
 /// them once the window is removed), so that the work per estimate is bounded. `None` when the
 /// decays are too short (under 0.2 s) or too few to estimate from.
-fn decay_len(shortest: usize, count: usize, fs: u32, band_hz: [f64; 2]) -> Option<usize> {
+fn decay_len(
+    shortest: usize,
+    count: usize,
+    fs: u32,
+    band_hz: [f64; 2],
+    lines: f64,
+) -> Option<usize> {
     if shortest < (0.2 * fs as f64) as usize || count < 2 {
         return None;
     }
-    let max_len = (1500.0 * fs as f64 / (1.3 * band_hz[1] - 0.8 * band_hz[0]).max(1.0)) as usize;
+    let max_len = (lines * fs as f64 / (1.3 * band_hz[1] - 0.8 * band_hz[0]).max(1.0)) as usize;
     Some(super::frf::smooth_len_at_most(
         shortest.min(max_len.max((0.1 * fs as f64) as usize)),
     ))
@@ -153,7 +167,7 @@ pub fn lend_decays(
     }
     let segs = free_decays(x, fs, hits);
     let shortest = segs.iter().map(|(s, e)| e - s).min().unwrap_or(0);
-    let Some(len) = decay_len(shortest, segs.len(), fs, band_hz) else {
+    let Some(len) = decay_len(shortest, segs.len(), fs, band_hz, TEST_LINES) else {
         return Vec::new();
     };
     segs.iter()
@@ -166,7 +180,7 @@ pub fn lend_decays(
 /// ([`lend_decays`]): one estimate for the part, where each station would otherwise repeat it.
 pub fn test_poles(decays: &[Vec<f64>], fs: u32, band_hz: [f64; 2]) -> Option<Vec<Complex64>> {
     let shortest = decays.iter().map(Vec::len).min()?;
-    let len = decay_len(shortest, decays.len(), fs, band_hz)?;
+    let len = decay_len(shortest, decays.len(), fs, band_hz, TEST_LINES)?;
     let segs: Vec<&[f64]> = decays.iter().map(|d| &d[..len]).collect();
     decay_poles(&segs, 1.0 / fs as f64, band_hz)
 }
@@ -222,7 +236,7 @@ pub fn corrections(
     }
     let segs = free_decays(x, fs, hits);
     let shortest = segs.iter().map(|(s, e)| e - s).min().unwrap_or(0);
-    let Some(len) = decay_len(shortest, segs.len(), fs, band_hz) else {
+    let Some(len) = decay_len(shortest, segs.len(), fs, band_hz, STATION_LINES) else {
         return out;
     };
     // Bounded work per station: at most six decays feed the pole estimate.
