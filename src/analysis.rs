@@ -283,15 +283,23 @@ fn per_source<S: Default, T: Send>(
 /// decoded. The benchmark's baseline: the chain cannot be faster than reading its input.
 pub fn decode_all(data: &Dataset, setup: &Setup) -> Result<usize, InputError> {
     let frames = per_station(data, |dec: &mut Decoder, src| {
-        dec.decode_with(
-            &src.path,
-            setup.channel_a.index,
-            setup.channel_b.index,
-            NonFinite::Keep,
-        )
-        .map(|info| info.frames)
+        decode(dec, src, setup).map(|info| info.frames)
     });
     frames.into_iter().sum()
+}
+
+/// A station's recording, channels A and B as the setup names them.
+fn decode(
+    dec: &mut Decoder,
+    src: &StationSource,
+    setup: &Setup,
+) -> Result<crate::acquire::wav::WavInfo, InputError> {
+    dec.decode_with(
+        &src.path,
+        setup.channel_a.index,
+        setup.channel_b.index,
+        NonFinite::Keep,
+    )
 }
 
 #[derive(Default)]
@@ -418,12 +426,7 @@ fn station_pass(
         if stop.load(Ordering::Relaxed) {
             return None;
         }
-        let info = match w.decoder.decode_with(
-            &src.path,
-            setup.channel_a.index,
-            setup.channel_b.index,
-            NonFinite::Keep,
-        ) {
+        let info = match decode(&mut w.decoder, src, setup) {
             Ok(i) => i,
             Err(e) => return Some(Err(e)),
         };
@@ -476,14 +479,7 @@ fn station_pass(
         .map(|j| &data.stations[(2 * j + 1) * n / (2 * PILOTS)])
         .collect();
     let lent = per_source(&pilots, |dec: &mut Decoder, src| {
-        let info = dec
-            .decode_with(
-                &src.path,
-                setup.channel_a.index,
-                setup.channel_b.index,
-                NonFinite::Keep,
-            )
-            .ok()?;
+        let info = decode(dec, src, setup).ok()?;
         let fs = info.sample_rate_hz;
         let decays = lend_free_decays(&dec.a, &dec.b, fs, setup).ok()?;
         Some((fs, decays))
