@@ -133,8 +133,8 @@ fn free_decays(x: &[f64], fs: u32, hits: &[PulseSpan]) -> Vec<(usize, usize)> {
 }
 
 /// The length of free decay a pole estimate uses: the shortest decay offered, but at most what
-/// gives 1500 lines over the band (the decays' poles are sharp; a coarser line spacing resolves
-/// them once the window is removed), so that the work per estimate is bounded. `None` when the
+/// gives `lines` lines over the band (the decays' poles are sharp; a coarser line spacing
+/// resolves them once the window is removed), so that the work per estimate is bounded. `None` when the
 /// decays are too short (under 0.2 s) or too few to estimate from.
 fn decay_len(
     shortest: usize,
