@@ -61,8 +61,8 @@ struct Ringing {
     flagged: Vec<bool>,
     /// The channel's noise rms.
     floor: f64,
-    /// Per hit: the pretrigger's mean and the record's largest deviation from it after the pulse.
-    levels: Vec<(f64, f64)>,
+    /// Per hit: the record's largest deviation from its pretrigger mean after the pulse.
+    peaks: Vec<f64>,
 }
 
 impl Ringing {
@@ -72,7 +72,7 @@ impl Ringing {
         // recording the noise alone would otherwise pass the relative test below and every
         // record would pay for a fit that can only model noise.
         let floor = noise_floor_rms(x, fs);
-        let mut levels = vec![(0.0, 0.0); hits.len()];
+        let mut peaks = vec![0.0; hits.len()];
         let flagged = hits
             .iter()
             .enumerate()
@@ -91,14 +91,14 @@ impl Ringing {
                 let peak = x[h.start..s + n]
                     .iter()
                     .fold(0.0f64, |m, v| m.max((v - mean).abs()));
-                levels[i] = (mean, peak);
+                peaks[i] = peak;
                 standing(rms, peak, floor)
             })
             .collect();
         Self {
             flagged,
             floor,
-            levels,
+            peaks,
         }
     }
 
@@ -134,8 +134,8 @@ fn free_decays(x: &[f64], fs: u32, hits: &[PulseSpan]) -> Vec<(usize, usize)> {
 
 /// The length of free decay a pole estimate uses: the shortest decay offered, but at most what
 /// gives `lines` lines over the band (the decays' poles are sharp; a coarser line spacing
-/// resolves them once the window is removed), so that the work per estimate is bounded. `None` when the
-/// decays are too short (under 0.2 s) or too few to estimate from.
+/// resolves them once the window is removed), so that the work per estimate is bounded. `None`
+/// when the decays are too short (under 0.2 s) or too few to estimate from.
 fn decay_len(
     shortest: usize,
     count: usize,
@@ -165,15 +165,33 @@ pub fn lend_decays(
     if !Ringing::of(x, fs, hits, pre, n).any() {
         return Vec::new();
     }
+    spread_decays(x, fs, hits, band_hz, TEST_LINES, PILOT_DECAYS)
+        .into_iter()
+        .flatten()
+        .map(<[f64]>::to_vec)
+        .collect()
+}
+
+/// Up to `count` of the channel's free decays, spread over the recording and all cut to the
+/// length an estimate over `lines` lines uses ([`decay_len`]); `None` when they are too short or
+/// too few.
+fn spread_decays<'x>(
+    x: &'x [f64],
+    fs: u32,
+    hits: &[PulseSpan],
+    band_hz: [f64; 2],
+    lines: f64,
+    count: usize,
+) -> Option<Vec<&'x [f64]>> {
     let segs = free_decays(x, fs, hits);
     let shortest = segs.iter().map(|(s, e)| e - s).min().unwrap_or(0);
-    let Some(len) = decay_len(shortest, segs.len(), fs, band_hz, TEST_LINES) else {
-        return Vec::new();
-    };
-    segs.iter()
-        .step_by(segs.len().div_ceil(PILOT_DECAYS))
-        .map(|&(s, _)| x[s..s + len].to_vec())
-        .collect()
+    let len = decay_len(shortest, segs.len(), fs, band_hz, lines)?;
+    Some(
+        segs.iter()
+            .step_by(segs.len().div_ceil(count))
+            .map(|&(s, _)| &x[s..s + len])
+            .collect(),
+    )
 }
 
 /// The poles of a test's ringing (rad/s), from free decays lent by a few of its stations
@@ -224,7 +242,7 @@ pub fn corrections(
                 continue;
             }
             match fit(i, test) {
-                Some(f) if !standing(f.residual_rms, ringing.levels[i].1, ringing.floor) => {
+                Some(f) if !standing(f.residual_rms, ringing.peaks[i], ringing.floor) => {
                     *o = Some(f.model);
                 }
                 _ => unexplained = true,
@@ -234,19 +252,10 @@ pub fn corrections(
             return out;
         }
     }
-    let segs = free_decays(x, fs, hits);
-    let shortest = segs.iter().map(|(s, e)| e - s).min().unwrap_or(0);
-    let Some(len) = decay_len(shortest, segs.len(), fs, band_hz, STATION_LINES) else {
-        return out;
-    };
     // Bounded work per station: at most six decays feed the pole estimate.
-    let step = segs.len().div_ceil(6);
-    let own: Vec<&[f64]> = segs
-        .iter()
-        .step_by(step)
-        .map(|&(s, _)| &x[s..s + len])
-        .collect();
-    let Some(own) = decay_poles(&own, dt, band_hz) else {
+    let Some(own) = spread_decays(x, fs, hits, band_hz, STATION_LINES, 6)
+        .and_then(|own| decay_poles(&own, dt, band_hz))
+    else {
         return out;
     };
     for (i, o) in out.iter_mut().enumerate() {
@@ -582,7 +591,7 @@ mod tests {
         let dt = 1.0 / FS as f64;
         let one = fit_decay(&x, &p[..1], taps[1], (0.3 / dt) as usize, taps[1] - 400, dt).unwrap();
         let r = Ringing::of(&x, FS, &spans(&taps), 400, 4096);
-        assert!(standing(one.residual_rms, r.levels[1].1, r.floor));
+        assert!(standing(one.residual_rms, r.peaks[1], r.floor));
         for (name, ringing) in [
             ("test poles", RingingPoles::Test(&p)),
             ("own", RingingPoles::Own),

@@ -8,7 +8,7 @@ use super::carryover::{self, RingingPoles};
 use super::coupling;
 use super::cut::{Candidate, FiniteChannels, HitCutter, baseline, locate_taps, pulse_spans};
 use super::frf::{CrossSpectra, SpectrumPlan};
-use super::hits::level_of;
+use super::hits::{Pulse, level_of};
 use super::record::RecordPlan;
 use super::verdict::Reason;
 use super::window::force_window;
@@ -105,6 +105,36 @@ pub struct StationResult {
     pub notes: Vec<String>,
 }
 
+/// A station's recording as the chain reads it: the record plan, the channels with non-finite
+/// samples read as zero, and where the taps and their pulses lie. The analysis and the lending
+/// of free decays both start here, so they cannot disagree on where the taps are.
+struct Located<'a> {
+    rp: RecordPlan,
+    finite: FiniteChannels<'a>,
+    level: f64,
+    triggers: Vec<usize>,
+    pulses: Vec<Option<Pulse>>,
+    spans: Vec<carryover::PulseSpan>,
+}
+
+impl<'a> Located<'a> {
+    fn of(a: &'a [f64], b: &'a [f64], fs: u32, setup: &Setup) -> Result<Self, String> {
+        let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
+        let finite = FiniteChannels::of(a, b);
+        let level = level_of(finite.a(), setup.trigger.level);
+        let triggers = locate_taps(finite.a(), fs, setup, level, finite.bad.len())?;
+        let (pulses, spans) = pulse_spans(finite.a(), fs, setup, &triggers);
+        Ok(Self {
+            rp,
+            finite,
+            level,
+            triggers,
+            pulses,
+            spans,
+        })
+    }
+}
+
 /// Analyses one station's recording (`a`, `b` in full-scale units at `fs`).
 /// `overrides` maps hit index → accept (true) / reject (false).
 /// Errors are sentences for the user (the caller names the file).
@@ -130,17 +160,20 @@ pub fn analyze_station_in_test(
     plan: &mut Option<SpectrumPlan>,
     ringing: RingingPoles,
 ) -> Result<StationResult, String> {
-    let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
-    let finite = FiniteChannels::of(a, b);
+    let Located {
+        rp,
+        finite,
+        level,
+        triggers,
+        pulses,
+        spans,
+    } = Located::of(a, b, fs, setup)?;
     let (a, b) = (finite.a(), finite.b());
     if plan.as_ref().is_none_or(|p| p.len() != rp.n) {
         *plan = Some(SpectrumPlan::new(rp.n));
     }
     let plan = plan.as_mut().expect("plan set above");
 
-    let level = level_of(a, setup.trigger.level);
-    let triggers = locate_taps(a, fs, setup, level, finite.bad.len())?;
-    let (pulses, spans) = pulse_spans(a, fs, setup, &triggers);
     // Ringing from earlier hits: always on the response; on the reference too when it is an
     // accelerometer (sensor layout).
     let (pre, n, band) = (rp.pre, rp.n, rp.band_hz);
@@ -226,12 +259,10 @@ pub fn lend_free_decays(
     fs: u32,
     setup: &Setup,
 ) -> Result<Vec<Vec<f64>>, String> {
-    let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
-    let finite = FiniteChannels::of(a, b);
+    let Located {
+        rp, finite, spans, ..
+    } = Located::of(a, b, fs, setup)?;
     let (a, b) = (finite.a(), finite.b());
-    let level = level_of(a, setup.trigger.level);
-    let triggers = locate_taps(a, fs, setup, level, finite.bad.len())?;
-    let (_, spans) = pulse_spans(a, fs, setup, &triggers);
     let lend = |x: &[f64]| carryover::lend_decays(x, fs, &spans, rp.pre, rp.n, rp.band_hz);
     Ok(match (setup.remove_carryover, setup.layout) {
         (false, _) => Vec::new(),
