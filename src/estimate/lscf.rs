@@ -186,7 +186,9 @@ pub fn stabilization_from(
     // Per output: R_o (to factor), X_o = L⁻¹S_o, and T_o (summed). Their entries are sums over
     // lines of powers of z times W², W²H and W²|H|².
     let (re_sums, im_sums) = line_sums(&z, h, weight, np);
-    let per_output = (0..no).map(|o| {
+    // Each output's factor is its own: spread over the cores.
+    let outputs: Vec<usize> = (0..no).collect();
+    let per_output = crate::numeric::par_map(&outputs, |&o| {
         let col = |m: &DMatrix<f64>, c: usize| -> Vec<f64> { (0..np).map(|d| m[(d, c)]).collect() };
         let (re_h, im_h) = (col(&re_sums, 3 * o + 1), col(&im_sums, o));
         let s: Vec<f64> = re_h.iter().zip(&im_h).map(|(a, b)| a - b).collect();
@@ -208,16 +210,19 @@ pub fn stabilization_from(
         factors.push((l, x));
     }
 
-    // The reduced normal matrix of every order, in turn: rank-one updates with row i of every
-    // X_o leave gsum's leading (i+1)-block equal to Σ_o S_oᵀ R_o⁻¹ S_o of order i.
+    // The reduced normal matrix of every order: with G_i = Σ_o x_oiᵀ x_oi (x_oi row i of X_o),
+    // the leading (p+1)-block of Σ_{i≤p} G_i equals Σ_o S_oᵀ R_o⁻¹ S_o of order p (L is lower
+    // triangular, so the leading block of X_o is the order's own). Each G_i is one product of
+    // the outputs' rows i, formed on all cores; their running sum is cheap.
+    let rows: Vec<usize> = (0..np).collect();
+    let grams = crate::numeric::par_map(&rows, |&i| {
+        let y = DMatrix::from_fn(no, np, |o, j| factors[o].1[(i, j)]);
+        y.tr_mul(&y)
+    });
     let mut gsum = DMatrix::<f64>::zeros(np, np);
     let mut reduced: Vec<(usize, DMatrix<f64>)> = Vec::new();
-    for i in 0..np {
-        for (_, x) in &factors {
-            let row = x.row(i);
-            gsum.ger(1.0, &row.transpose(), &row.transpose(), 1.0);
-        }
-        let p = i;
+    for (p, g) in grams.into_iter().enumerate() {
+        gsum += g;
         if p == 0 || p + 1 < first_order {
             continue;
         }

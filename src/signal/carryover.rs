@@ -297,15 +297,27 @@ fn decay_poles(segs: &[&[f64]], dt: f64, band_hz: [f64; 2]) -> Option<Vec<Comple
     }
     let lines = k_lo..k_hi + 1;
     let freq: Vec<f64> = lines.clone().map(|k| k as f64 * df).collect();
-    let mut plan = SpectrumPlan::new(len);
-    let mut h = Vec::with_capacity(segs.len());
-    for &seg in segs {
-        let mut seg: Vec<f64> = seg[..len].to_vec();
-        let mean = seg.iter().sum::<f64>() / len as f64;
-        seg.iter_mut().for_each(|v| *v -= mean);
-        apply_exponential(&mut seg, 0, dt, tau);
-        h.push(plan.lines(&seg, dt, lines.clone()));
-    }
+    // The decays' spectra, a plan per core (a test lends a dozen decays; a station's own
+    // estimate runs inside a parallel pass, where this is one serial chunk).
+    let chunks = crate::numeric::core_ranges(segs.len(), 1);
+    let h: Vec<Vec<Complex64>> = crate::numeric::par_map(&chunks, |&(a, b)| {
+        let mut plan = SpectrumPlan::new(len);
+        let mut seg = Vec::with_capacity(len);
+        segs[a..b]
+            .iter()
+            .map(|s| {
+                seg.clear();
+                seg.extend_from_slice(&s[..len]);
+                let mean = seg.iter().sum::<f64>() / len as f64;
+                seg.iter_mut().for_each(|v| *v -= mean);
+                apply_exponential(&mut seg, 0, dt, tau);
+                plan.lines(&seg, dt, lines.clone())
+            })
+            .collect::<Vec<_>>()
+    })
+    .into_iter()
+    .flatten()
+    .collect();
     // Relative weighting, as for FRFs of uniform coherence.
     let w: Vec<Vec<f64>> = h
         .iter()

@@ -42,7 +42,15 @@ pub struct SpectrumPlan {
 impl SpectrumPlan {
     /// Plans a real FFT of length `n`.
     pub fn new(n: usize) -> Self {
-        let fft = RealFftPlanner::<f64>::new().plan_fft_forward(n);
+        // One planner for the process: a length is planned once (about a millisecond for a
+        // length of many factors), then every thread that needs it shares the plan.
+        static PLANNER: std::sync::OnceLock<std::sync::Mutex<RealFftPlanner<f64>>> =
+            std::sync::OnceLock::new();
+        let fft = PLANNER
+            .get_or_init(Default::default)
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner)
+            .plan_fft_forward(n);
         Self {
             input: fft.make_input_vec(),
             scratch: fft.make_scratch_vec(),
