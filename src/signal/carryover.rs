@@ -343,8 +343,21 @@ fn decay_poles(segs: &[&[f64]], dt: f64, band_hz: [f64; 2]) -> Option<Vec<Comple
         .filter(|p| p.order == top && p.status >= PoleStatus::FrequencyDamping)
         .map(|p| p.lambda + 1.0 / tau)
         .filter(|l| l.re < 0.0 && -l.re / l.norm() < 0.05)
+        // Mains hum is steady, not ringing: a pole at a harmonic of 50 or 60 Hz, extrapolated
+        // from the gap before a tap as a decay, would take hum out of some records and not
+        // others, and their FRFs would then disagree.
+        .filter(|l| !at_mains_harmonic(l.im / std::f64::consts::TAU, (0.5 * df).max(0.3)))
         .collect();
     (!poles.is_empty()).then_some(poles)
+}
+
+/// Whether `f_hz` lies within `tol_hz` of one of the first eight harmonics of 50 or 60 Hz (the
+/// hum's strong ones; above them a resonance is likelier than hum).
+fn at_mains_harmonic(f_hz: f64, tol_hz: f64) -> bool {
+    [50.0, 60.0].iter().any(|&m: &f64| {
+        let k = (f_hz / m).round();
+        (1.0..=8.0).contains(&k) && (f_hz - k * m).abs() <= tol_hz
+    })
 }
 
 /// The model order for free decays' spectra: room for two poles per resonance they show and as
