@@ -699,4 +699,66 @@ mod tests {
         assert!(!at_mains_harmonic(550.0, 0.3));
         assert!(!at_mains_harmonic(20.0, 0.3));
     }
+
+    /// Twelve free decays (1.2 s at 8192 Hz) of ten modes over 50–3000 Hz, all at ζ = 0.04 %, the
+    /// lowest two a split pair 1.2 % apart (291 / 294.6 Hz) with a tenth of the others'
+    /// amplitude, each decay a different mix (a different station), with noise: the test's poles
+    /// hold both members of the pair within 1e-4 in frequency. Weighting each line by 1/|H|
+    /// merged them into one pole at 293.7 Hz with 37 times the damping. Their σ is still up to
+    /// 37 % off (bound 50 %; DEVELOPERS, known gaps). The single-degree free decays are Inman,
+    /// Engineering Vibration, §1.3.
+    #[test]
+    fn a_faint_split_pair_of_very_light_damping_is_resolved_over_a_wide_band() {
+        let fs = 8192u32;
+        let dt = 1.0 / fs as f64;
+        let modes: Vec<(f64, f64)> = [291.0, 294.6, 700.0, 712.0, 1260.0, 1280.0, 1960.0]
+            .into_iter()
+            .chain([1990.0, 2870.0, 2905.0])
+            .enumerate()
+            .map(|(i, f)| (f, if i < 2 { 0.1 } else { 1.0 }))
+            .collect();
+        let lambda = |f: f64| {
+            let w = std::f64::consts::TAU * f;
+            Complex64::new(-4e-4 * w, w * (1.0 - 1.6e-7f64).sqrt())
+        };
+        // Uniform noise at 1e-3 of the strong modes (a 32-bit LCG, Numerical Recipes §7.1).
+        let mut seed = 12345u32;
+        let mut noise = move || {
+            seed = seed.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+            1e-3 * (seed as f64 / u32::MAX as f64 - 0.5)
+        };
+        let decays: Vec<Vec<f64>> = (0..12)
+            .map(|d| {
+                (0..(1.2 * fs as f64) as usize)
+                    .map(|k| {
+                        let t = k as f64 * dt;
+                        modes
+                            .iter()
+                            .enumerate()
+                            .map(|(m, &(f, a))| {
+                                // Mode shapes along a part: sin(πm(d+0.5)/12), off its nodes.
+                                let shape =
+                                    (std::f64::consts::PI * (m + 1) as f64 * (d as f64 + 0.5)
+                                        / 12.3)
+                                        .sin();
+                                let l = lambda(f);
+                                a * shape * (l.re * t).exp() * (l.im * t + 0.3 * m as f64).sin()
+                            })
+                            .sum::<f64>()
+                            + noise()
+                    })
+                    .collect()
+            })
+            .collect();
+        let got = test_poles(&decays, fs, [50.0, 3000.0]).unwrap();
+        for f in [291.0, 294.6] {
+            let l = lambda(f);
+            let near = got
+                .iter()
+                .min_by(|a, b| (*a - l).norm().total_cmp(&(*b - l).norm()))
+                .unwrap();
+            assert!((near.im / l.im - 1.0).abs() < 1e-4, "{near} vs {l}");
+            assert!((near.re / l.re - 1.0).abs() < 0.5, "{near} vs {l}");
+        }
+    }
 }
