@@ -97,7 +97,7 @@ impl Default for ModalSettings {
             criteria: StabilityCriteria::default(),
             coherence_weighting: true,
             min_stable_orders: 8,
-            mains_hz: vec![50.0, 60.0],
+            mains_hz: crate::signal::MAINS_HZ.to_vec(),
             refine_poles: true,
             band_hz: None,
         }

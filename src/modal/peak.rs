@@ -321,12 +321,8 @@ pub(super) fn local_damping(set: &FrfSet, f_hz: f64) -> (Option<f64>, Option<f64
 /// An undamped line at a mains harmonic: hum, not a mode. `window_zeta` is the damping the
 /// exponential window alone gives a pure line; an estimate well below it is a line, not a mode.
 pub(super) fn is_hum(f: f64, zeta_true: f64, window_zeta: f64, df: f64, mains: &[f64]) -> bool {
-    let tol = (0.5 * df).max(0.3);
     zeta_true < 3e-4f64.max(0.75 * window_zeta)
-        && mains.iter().any(|&m| {
-            let k = (f / m).round();
-            k >= 1.0 && (f - k * m).abs() <= tol
-        })
+        && crate::signal::near_mains_harmonic(f, (0.5 * df).max(0.3), mains, u32::MAX)
 }
 
 #[cfg(test)]

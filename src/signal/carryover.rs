@@ -354,10 +354,7 @@ fn decay_poles(segs: &[&[f64]], dt: f64, band_hz: [f64; 2]) -> Option<Vec<Comple
 /// Whether `f_hz` lies within `tol_hz` of one of the first eight harmonics of 50 or 60 Hz (the
 /// hum's strong ones; above them a resonance is likelier than hum).
 fn at_mains_harmonic(f_hz: f64, tol_hz: f64) -> bool {
-    [50.0, 60.0].iter().any(|&m: &f64| {
-        let k = (f_hz / m).round();
-        (1.0..=8.0).contains(&k) && (f_hz - k * m).abs() <= tol_hz
-    })
+    super::near_mains_harmonic(f_hz, tol_hz, &super::MAINS_HZ, 8)
 }
 
 /// The model order for free decays' spectra: room for two poles per resonance they show and as
