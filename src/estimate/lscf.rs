@@ -229,7 +229,7 @@ pub fn stabilization_from(
     }
     // Each order's poles are independent of the others': solved on all cores, then classified
     // against the order below in turn.
-    // The eigenvalues of an order-p companion matrix cost ~p³: the highest orders go first.
+    // An order's roots cost ~p² per sweep: the highest orders go first.
     let found = crate::numeric::par_map_dearest_first(
         &reduced,
         |(p, _)| *p as f64,
@@ -310,6 +310,23 @@ fn line_sums(
         .unwrap_or_else(|| (DMatrix::zeros(np, 3 * no), DMatrix::zeros(np, no)))
 }
 
+/// The roots of z^p + α_{p−1} z^{p−1} + … + α_0 (`alpha` from α_0 up): by the Aberth
+/// iteration, or, should that not settle, as the eigenvalues of the Frobenius companion matrix.
+fn denominator_roots(alpha: &[f64]) -> Option<Vec<Complex64>> {
+    if let Some(r) = crate::numeric::polynomial_roots(alpha) {
+        return Some(r);
+    }
+    let p = alpha.len();
+    let mut comp = DMatrix::<f64>::zeros(p, p);
+    for j in 0..p {
+        comp[(0, j)] = -alpha[p - 1 - j];
+    }
+    for j in 1..p {
+        comp[(j, j - 1)] = 1.0;
+    }
+    crate::numeric::complex_eigenvalues(comp)
+}
+
 /// The poles of model order `p` from its reduced normal matrix `m` ((p+1)², of T − SᵀR⁻¹S),
 /// unclassified: the denominator's roots inside the unit circle, in `band` (Hz), with their
 /// shapes from every output's numerator. `None` when the order's system is singular.
@@ -326,15 +343,7 @@ fn poles_of_order(
     let mut alpha = DVector::<f64>::zeros(p + 1);
     alpha.rows_mut(0, p).copy_from(&sol.column(0));
     alpha[p] = 1.0;
-    // Frobenius companion of z^p + α_{p−1} z^{p−1} + … + α_0.
-    let mut comp = DMatrix::<f64>::zeros(p, p);
-    for j in 0..p {
-        comp[(0, j)] = -alpha[p - 1 - j];
-    }
-    for j in 1..p {
-        comp[(j, j - 1)] = 1.0;
-    }
-    let roots = crate::numeric::complex_eigenvalues(comp)?;
+    let roots = denominator_roots(&alpha.as_slice()[..p])?;
     // β_o = −R_o⁻¹S_oα = −L⁻ᵀ(X_o α) on the leading blocks.
     let betas: Vec<DVector<f64>> = factors
         .iter()

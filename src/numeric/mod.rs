@@ -10,6 +10,9 @@ use nalgebra::{DMatrix, DVector, SVD, Schur, SymmetricEigen};
 
 use crate::Complex64;
 
+mod roots;
+pub use roots::polynomial_roots;
+
 /// Iterations allowed per row of the matrix: QR-type sweeps need a few per eigenvalue.
 const SWEEPS_PER_ROW: usize = 60;
 
