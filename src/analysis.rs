@@ -14,7 +14,7 @@ use crate::setup::Setup;
 use crate::signal::carryover::{self, RingingPoles};
 use crate::signal::hits::level_of;
 use crate::signal::station::lend_free_decays;
-use crate::signal::{SpectrumPlan, StationResult, analyze_station_in_test, taps};
+use crate::signal::{StationPlans, StationResult, analyze_station_in_test, taps};
 
 /// Progress of a long analysis on stderr, for the command line (`TAPGRID_PROGRESS=1`, or any
 /// analysis of more than 8 stations when stderr is a terminal).
@@ -305,7 +305,7 @@ fn decode(
 #[derive(Default)]
 struct Worker {
     decoder: Decoder,
-    plan: Option<SpectrumPlan>,
+    plans: StationPlans,
 }
 
 /// What a quick look at every recording says about the test as a whole.
@@ -421,25 +421,20 @@ fn station_pass(
     let progress = Progress::new(data.stations.len());
     let analyse = |w: &mut Worker,
                    src: &StationSource,
-                   ringing: RingingPoles|
+                   ringing: RingingPoles,
+                   kept: Option<Decoded>|
      -> Option<StationOutcome> {
         if stop.load(Ordering::Relaxed) {
             return None;
         }
-        let info = match decode(&mut w.decoder, src, setup) {
-            Ok(i) => i,
-            Err(e) => return Some(Err(e)),
+        let (fs, a, b) = match &kept {
+            Some(k) => (k.fs, &k.a[..], &k.b[..]),
+            None => match decode(&mut w.decoder, src, setup) {
+                Ok(i) => (i.sample_rate_hz, &w.decoder.a[..], &w.decoder.b[..]),
+                Err(e) => return Some(Err(e)),
+            },
         };
-        let fs = info.sample_rate_hz;
-        let r = analyze_station_in_test(
-            &w.decoder.a,
-            &w.decoder.b,
-            fs,
-            setup,
-            &src.overrides,
-            &mut w.plan,
-            ringing,
-        );
+        let r = analyze_station_in_test(a, b, fs, setup, &src.overrides, &mut w.plans, ringing);
         if stop_on_fast_taps {
             let n0 = setup.record_samples(fs);
             let fast = r.as_ref().is_ok_and(|res| {
@@ -450,9 +445,7 @@ fn station_pass(
             });
             let damaged = match &r {
                 Ok(res) => res.non_finite_samples > 0,
-                Err(_) => {
-                    !crate::numeric::finite(&w.decoder.a) || !crate::numeric::finite(&w.decoder.b)
-                }
+                Err(_) => !crate::numeric::finite(a) || !crate::numeric::finite(b),
             };
             if fast || damaged {
                 stop.store(true, Ordering::Relaxed);
@@ -465,7 +458,7 @@ fn station_pass(
     let n = data.stations.len();
     if !setup.remove_carryover || n < 2 * PILOTS {
         return per_station(data, |w: &mut Worker, src| {
-            analyse(w, src, RingingPoles::Own)
+            analyse(w, src, RingingPoles::Own, None)
         })
         .into_iter()
         .collect();
@@ -478,10 +471,22 @@ fn station_pass(
     let pilots: Vec<&StationSource> = (0..PILOTS)
         .map(|j| &data.stations[(2 * j + 1) * n / (2 * PILOTS)])
         .collect();
+    // A pilot's recording is kept for its own analysis below, unless it is long.
+    let kept: Vec<Mutex<Option<Decoded>>> = pilots.iter().map(|_| Mutex::new(None)).collect();
     let lent = per_source(&pilots, |dec: &mut Decoder, src| {
         let info = decode(dec, src, setup).ok()?;
         let fs = info.sample_rate_hz;
         let decays = lend_free_decays(&dec.a, &dec.b, fs, setup).ok()?;
+        if info.frames <= KEEP_FRAMES
+            && let Some(j) = pilots.iter().position(|p| std::ptr::eq(*p, src))
+            && let Ok(mut slot) = kept[j].lock()
+        {
+            *slot = Some(Decoded {
+                fs,
+                a: std::mem::take(&mut dec.a),
+                b: std::mem::take(&mut dec.b),
+            });
+        }
         Some((fs, decays))
     });
     let fs = lent.iter().flatten().map(|l| l.0).next();
@@ -496,10 +501,27 @@ fn station_pass(
         Some(p) => RingingPoles::Test(p),
         None => RingingPoles::Own,
     };
-    per_station(data, |w: &mut Worker, src| analyse(w, src, ringing))
-        .into_iter()
-        .collect()
+    per_station(data, |w: &mut Worker, src| {
+        let mine = pilots
+            .iter()
+            .position(|p| std::ptr::eq(*p, src))
+            .and_then(|j| kept[j].lock().ok()?.take());
+        analyse(w, src, ringing, mine)
+    })
+    .into_iter()
+    .collect()
 }
+
+/// A recording's two channels as decoded, kept from one pass to the next.
+struct Decoded {
+    fs: u32,
+    a: Vec<f64>,
+    b: Vec<f64>,
+}
+
+/// Pilots' recordings up to this many frames are kept between the passes (4 × 2 × 8 B × this
+/// = 128 MB at most); longer ones are decoded again.
+const KEEP_FRAMES: usize = 2_000_000;
 
 /// Stations that lend free decays to a test's estimate of its ringing poles.
 const PILOTS: usize = 4;

@@ -6,7 +6,7 @@ use super::frf::SpectrumPlan;
 use super::hits::{Pulse, find_pulse, find_triggers, flat_top_at, peak_abs, second_impact};
 use super::record::RecordPlan;
 use super::station::HitReport;
-use super::taps::find_strikes;
+use super::taps::{BlockPeaks, find_strikes_in};
 use super::verdict::Reason;
 use super::window::force_window;
 use crate::Complex64;
@@ -28,9 +28,10 @@ pub(super) struct FiniteChannels<'a> {
 }
 
 impl<'a> FiniteChannels<'a> {
-    pub(super) fn of(a: &'a [f64], b: &'a [f64]) -> Self {
+    /// `a_finite`: whether channel A is known finite (its block maxima were taken first).
+    pub(super) fn of(a: &'a [f64], b: &'a [f64], a_finite: bool) -> Self {
         use std::borrow::Cow;
-        if crate::numeric::finite(a) && crate::numeric::finite(b) {
+        if a_finite && crate::numeric::finite(b) {
             return Self {
                 a: Cow::Borrowed(a),
                 b: Cow::Borrowed(b),
@@ -66,6 +67,7 @@ impl<'a> FiniteChannels<'a> {
 /// anything else.
 pub(super) fn locate_taps(
     a: &[f64],
+    peaks: &BlockPeaks,
     fs: u32,
     setup: &Setup,
     level: f64,
@@ -78,7 +80,7 @@ pub(super) fn locate_taps(
             setup.trigger.slope,
             (h * fs as f64).round() as usize,
         ),
-        None => find_strikes(a, level, setup.trigger.slope, fs),
+        None => find_strikes_in(a, peaks, level, setup.trigger.slope, fs),
     };
     if triggers.is_empty() && non_finite > 0 {
         return Err(format!(

@@ -15,8 +15,8 @@ pub mod window;
 pub use frf::{CrossSpectra, SpectrumPlan};
 pub use record::RecordPlan;
 pub use station::{
-    HitReport, HitTraces, StationFrf, StationResult, analyze_station, analyze_station_in_test,
-    hit_traces,
+    HitReport, HitTraces, StationFrf, StationPlans, StationResult, analyze_station,
+    analyze_station_in_test, hit_traces,
 };
 pub use verdict::Reason;
 

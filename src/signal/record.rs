@@ -4,6 +4,7 @@
 //! they cannot disagree.
 
 use std::ops::Range;
+use std::sync::Arc;
 
 use super::window::{exponential, exponential_tau_s, onset_taper};
 use crate::setup::{Layout, Setup};
@@ -33,11 +34,23 @@ pub struct RecordPlan {
     /// rises from 0 over the first ⅞ of the pretrigger ([`onset_taper`]), where only noise and
     /// hum lie: that layout's auto-spectra are read directly, and a record starting at full hum
     /// leaks a comb of false peaks 1/pretrigger apart.
-    pub exp_window: Vec<f64>,
+    pub exp_window: Arc<[f64]>,
     /// Full-scale units → engineering units, channel A.
     pub scale_a: f64,
     /// Full-scale units → engineering units, channel B.
     pub scale_b: f64,
+    /// What the exponential window was built from.
+    window_key: WindowKey,
+}
+
+/// Everything the exponential window depends on.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct WindowKey {
+    n: usize,
+    pre: usize,
+    dt: f64,
+    tau_s: f64,
+    onset_taper: bool,
 }
 
 impl RecordPlan {
@@ -45,6 +58,17 @@ impl RecordPlan {
     /// for the user (the caller names the file): a zero rate, a record longer than the recording
     /// (checked before any buffer is sized from it), a band above Nyquist or without a line.
     pub fn new(setup: &Setup, fs: u32, available: usize) -> Result<Self, String> {
+        Self::new_after(setup, fs, available, None)
+    }
+
+    /// [`RecordPlan::new`], taking the exponential window from `previous` when it is the same
+    /// window (a test's stations share one; building it is a pass over the record).
+    pub fn new_after(
+        setup: &Setup,
+        fs: u32,
+        available: usize,
+        previous: Option<&RecordPlan>,
+    ) -> Result<Self, String> {
         if fs == 0 {
             return Err("the recording's sample rate is 0 Hz".into());
         }
@@ -81,6 +105,13 @@ impl RecordPlan {
         let lines = k_lo..k_hi + 1;
         let freq_hz = lines.clone().map(|k| k as f64 * df).collect();
         let tau_s = exponential_tau_s((n - pre) as f64 * dt, setup.windows.exponential_end);
+        let window_key = WindowKey {
+            n,
+            pre,
+            dt,
+            tau_s,
+            onset_taper: setup.layout == Layout::Sensor,
+        };
         Ok(Self {
             fs,
             dt,
@@ -91,13 +122,17 @@ impl RecordPlan {
             lines,
             freq_hz,
             tau_s,
-            exp_window: {
-                let mut w = exponential(n, pre, dt, tau_s);
-                if setup.layout == Layout::Sensor {
-                    onset_taper(&mut w, pre - pre / 8);
+            exp_window: match previous {
+                Some(p) if p.window_key == window_key => p.exp_window.clone(),
+                _ => {
+                    let mut w = exponential(n, pre, dt, tau_s);
+                    if setup.layout == Layout::Sensor {
+                        onset_taper(&mut w, pre - pre / 8);
+                    }
+                    w.into()
                 }
-                w
             },
+            window_key,
             scale_a: setup.full_scale_volts / setup.channel_a.sensitivity.volts_per_unit(),
             scale_b: setup.full_scale_volts / setup.channel_b.sensitivity.volts_per_unit(),
         })

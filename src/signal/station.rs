@@ -10,6 +10,7 @@ use super::cut::{Candidate, FiniteChannels, HitCutter, baseline, locate_taps, pu
 use super::frf::{CrossSpectra, SpectrumPlan};
 use super::hits::{Pulse, level_of};
 use super::record::RecordPlan;
+use super::taps::BlockPeaks;
 use super::verdict::Reason;
 use super::window::force_window;
 use crate::Complex64;
@@ -118,11 +119,24 @@ struct Located<'a> {
 }
 
 impl<'a> Located<'a> {
-    fn of(a: &'a [f64], b: &'a [f64], fs: u32, setup: &Setup) -> Result<Self, String> {
-        let rp = RecordPlan::new(setup, fs, a.len().min(b.len()))?;
-        let finite = FiniteChannels::of(a, b);
+    fn of(
+        a: &'a [f64],
+        b: &'a [f64],
+        fs: u32,
+        setup: &Setup,
+        previous: Option<&RecordPlan>,
+    ) -> Result<Self, String> {
+        let rp = RecordPlan::new_after(setup, fs, a.len().min(b.len()), previous)?;
+        // Channel A's block maxima also say whether it is finite: one pass, not two.
+        let peaks = BlockPeaks::of(a, fs);
+        let finite = FiniteChannels::of(a, b, peaks.finite);
+        let peaks = if peaks.finite {
+            peaks
+        } else {
+            BlockPeaks::of(finite.a(), fs)
+        };
         let level = level_of(finite.a(), setup.trigger.level);
-        let triggers = locate_taps(finite.a(), fs, setup, level, finite.bad.len())?;
+        let triggers = locate_taps(finite.a(), &peaks, fs, setup, level, finite.bad.len())?;
         let (pulses, spans) = pulse_spans(finite.a(), fs, setup, &triggers);
         Ok(Self {
             rp,
@@ -146,7 +160,21 @@ pub fn analyze_station(
     overrides: &BTreeMap<usize, bool>,
     plan: &mut Option<SpectrumPlan>,
 ) -> Result<StationResult, String> {
-    analyze_station_in_test(a, b, fs, setup, overrides, plan, RingingPoles::Own)
+    let mut plans = StationPlans {
+        spectrum: plan.take(),
+        record: None,
+    };
+    let r = analyze_station_in_test(a, b, fs, setup, overrides, &mut plans, RingingPoles::Own);
+    *plan = plans.spectrum;
+    r
+}
+
+/// What one station's analysis leaves for the next of the same test: the FFT plan and the
+/// record plan (whose exponential window is reused when it is the same).
+#[derive(Default)]
+pub struct StationPlans {
+    spectrum: Option<SpectrumPlan>,
+    record: Option<RecordPlan>,
 }
 
 /// [`analyze_station`] as one station of a test whose stations share the poles of the part's
@@ -157,7 +185,7 @@ pub fn analyze_station_in_test(
     fs: u32,
     setup: &Setup,
     overrides: &BTreeMap<usize, bool>,
-    plan: &mut Option<SpectrumPlan>,
+    plans: &mut StationPlans,
     ringing: RingingPoles,
 ) -> Result<StationResult, String> {
     let Located {
@@ -167,8 +195,10 @@ pub fn analyze_station_in_test(
         triggers,
         pulses,
         spans,
-    } = Located::of(a, b, fs, setup)?;
+    } = Located::of(a, b, fs, setup, plans.record.as_ref())?;
     let (a, b) = (finite.a(), finite.b());
+    plans.record = Some(rp.clone());
+    let plan = &mut plans.spectrum;
     if plan.as_ref().is_none_or(|p| p.len() != rp.n) {
         *plan = Some(SpectrumPlan::new(rp.n));
     }
@@ -261,7 +291,7 @@ pub fn lend_free_decays(
 ) -> Result<Vec<Vec<f64>>, String> {
     let Located {
         rp, finite, spans, ..
-    } = Located::of(a, b, fs, setup)?;
+    } = Located::of(a, b, fs, setup, None)?;
     let (a, b) = (finite.a(), finite.b());
     let lend = |x: &[f64]| carryover::lend_decays(x, fs, &spans, rp.pre, rp.n, rp.band_hz);
     Ok(match (setup.remove_carryover, setup.layout) {
@@ -338,7 +368,7 @@ pub fn hit_traces(
     if start + n > a.len() || start + n > b.len() {
         return None;
     }
-    let ew = rp.exp_window.clone();
+    let ew = rp.exp_window.to_vec();
     let ra = &a[start..start + n];
     let rb = &b[start..start + n];
     let (window_a, base_end) = match hit.force_window {

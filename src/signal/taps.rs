@@ -6,7 +6,6 @@
 //! (a reference accelerometer in the roving-sensor layout, a lightly damped part) is never taken
 //! for a new tap, and a next tap a second later is never taken for a rebound.
 
-use super::hits::find_triggers;
 use crate::setup::Slope;
 
 /// Impacts closer than this to the previous one belong to the same tap (a rebound or a stutter);
@@ -16,15 +15,57 @@ pub const STRIKE_GAP_S: f64 = 0.15;
 /// An onset must rise this many times above the largest value of the preceding 100 ms.
 const ONSET_RATIO: f64 = 2.0;
 
+/// Maxima of |x| over 1 ms blocks, and whether every sample is finite: one pass over a
+/// channel that the tap search and the damaged-sample check share.
+pub struct BlockPeaks {
+    /// Samples per block (the last may be shorter).
+    pub block: usize,
+    /// Largest |x| of each block (non-finite samples do not count).
+    pub max: Vec<f64>,
+    /// Whether every sample is finite.
+    pub finite: bool,
+}
+
+impl BlockPeaks {
+    /// The block maxima of `x` sampled at `fs`.
+    pub fn of(x: &[f64], fs: u32) -> Self {
+        let block = ((fs.max(1) as f64 * 1e-3) as usize).max(1);
+        // x·0 is 0 for every finite sample and NaN otherwise: a sum the compiler vectorises
+        // alongside the maxima, with no branch per sample.
+        let mut nan = 0.0;
+        let max = x
+            .chunks(block)
+            .map(|c| {
+                nan += crate::numeric::lane_sum(c, |v| v * 0.0);
+                super::hits::peak_abs(c)
+            })
+            .collect();
+        Self {
+            block,
+            max,
+            finite: nan == 0.0,
+        }
+    }
+}
+
 /// Trigger samples of the taps in `x`: the first level crossing of each tap.
 pub fn find_strikes(x: &[f64], level: f64, slope: Slope, fs: u32) -> Vec<usize> {
+    find_strikes_in(x, &BlockPeaks::of(x, fs), level, slope, fs)
+}
+
+/// [`find_strikes`] with the channel's block maxima already taken (`peaks` of `x` at `fs`).
+pub fn find_strikes_in(
+    x: &[f64],
+    peaks: &BlockPeaks,
+    level: f64,
+    slope: Slope,
+    fs: u32,
+) -> Vec<usize> {
     if x.is_empty() || !level.is_finite() || level <= 0.0 {
         return Vec::new();
     }
     let fs = fs.max(1) as f64;
-    let block = ((fs * 1e-3) as usize).max(1);
-    // Block maxima of |x| (1 ms blocks) make each onset test a handful of comparisons.
-    let bmax: Vec<f64> = x.chunks(block).map(super::hits::peak_abs).collect();
+    let (block, bmax) = (peaks.block, &peaks.max);
     let span_max = |from: usize, to: usize| -> f64 {
         // Maximum over whole blocks overlapping [from, to).
         if to <= from {
@@ -41,7 +82,7 @@ pub fn find_strikes(x: &[f64], level: f64, slope: Slope, fs: u32) -> Vec<usize> 
     let gap = (STRIKE_GAP_S * fs) as usize;
     let mut strikes: Vec<usize> = Vec::new();
     let mut last_onset: Option<usize> = None;
-    for t in find_triggers(x, level, slope, holdoff) {
+    for t in triggers_in(x, peaks, level, slope, holdoff) {
         let after = span_max(t, (t + holdoff).min(x.len()));
         let before = span_max(t.saturating_sub(look_back), t.saturating_sub(quiet_gap));
         let onset = after > ONSET_RATIO * before;
@@ -54,6 +95,45 @@ pub fn find_strikes(x: &[f64], level: f64, slope: Slope, fs: u32) -> Vec<usize> 
         last_onset = Some(t);
     }
     strikes
+}
+
+/// [`super::hits::find_triggers`], skipping the blocks whose largest |x| stays below the level
+/// (a crossing at i needs s·x[i] ≥ level, and |x| ≥ s·x): the same crossings, without a second
+/// pass over the channel.
+fn triggers_in(
+    x: &[f64],
+    peaks: &BlockPeaks,
+    level: f64,
+    slope: Slope,
+    holdoff: usize,
+) -> Vec<usize> {
+    let s = slope.sign();
+    let crosses = |i: usize| s * x[i - 1] < level && s * x[i] >= level;
+    let block = peaks.block;
+    let mut out = Vec::new();
+    let mut i = 1;
+    while i < x.len() {
+        let b = i / block;
+        let end = ((b + 1) * block).min(x.len());
+        // NaN-safe: a NaN level is never reached.
+        if peaks
+            .max
+            .get(b)
+            .is_none_or(|m| m.partial_cmp(&level).is_none_or(|o| o.is_lt()))
+        {
+            i = end;
+            continue;
+        }
+        while i < end {
+            if crosses(i) {
+                out.push(i);
+                i = i.saturating_add(holdoff.max(1));
+            } else {
+                i += 1;
+            }
+        }
+    }
+    out
 }
 
 /// The time between successive taps that the record must fit: the shortest spacing that is not
