@@ -231,7 +231,7 @@ impl Analysis {
 /// Runs `work` on every station on up to `available_parallelism` named threads; each thread
 /// keeps its own state `S` (FFT plan, decode buffers) across the stations it takes. Results come
 /// back in station order.
-fn per_station<S: Default, T: Send>(
+fn per_station<S: Default + Send, T: Send>(
     data: &Dataset,
     work: impl Fn(&mut S, &StationSource) -> T + Sync,
 ) -> Vec<T> {
@@ -240,23 +240,39 @@ fn per_station<S: Default, T: Send>(
 }
 
 /// [`per_station`] over some of a test's stations.
-fn per_source<S: Default, T: Send>(
+fn per_source<S: Default + Send, T: Send>(
     stations: &[&StationSource],
     work: impl Fn(&mut S, &StationSource) -> T + Sync,
 ) -> Vec<T> {
+    per_source_pooled(stations, Vec::new(), work).0
+}
+
+/// [`per_source`] whose workers start from the states in `pool` (defaults when it runs out), and
+/// hand their states back: the next pass reuses their buffers instead of faulting in fresh
+/// memory (a station's decode buffers are megabytes).
+fn per_source_pooled<S: Default + Send, T: Send>(
+    stations: &[&StationSource],
+    pool: Vec<S>,
+    work: impl Fn(&mut S, &StationSource) -> T + Sync,
+) -> (Vec<T>, Vec<S>) {
     let next = AtomicUsize::new(0);
     let out: Mutex<Vec<Option<T>>> = Mutex::new((0..stations.len()).map(|_| None).collect());
+    let pool = Mutex::new(pool);
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
         .min(stations.len().max(1));
     std::thread::scope(|scope| {
         for w in 0..workers {
-            let (next, out, work) = (&next, &out, &work);
+            let (next, out, work, pool) = (&next, &out, &work, &pool);
             std::thread::Builder::new()
                 .name(format!("tapgrid-analysis-{w}"))
                 .spawn_scoped(scope, move || {
                     crate::numeric::as_parallel_worker(|| {
-                        let mut state = S::default();
+                        let mut state = pool
+                            .lock()
+                            .ok()
+                            .and_then(|mut p| p.pop())
+                            .unwrap_or_default();
                         loop {
                             let i = next.fetch_add(1, Ordering::Relaxed);
                             let Some(&src) = stations.get(i) else {
@@ -267,16 +283,21 @@ fn per_source<S: Default, T: Send>(
                                 g[i] = Some(r);
                             }
                         }
+                        if let Ok(mut p) = pool.lock() {
+                            p.push(state);
+                        }
                     })
                 })
                 .expect("spawning an analysis thread");
         }
     });
-    out.into_inner()
+    let results = out
+        .into_inner()
         .unwrap_or_default()
         .into_iter()
         .map(|r| r.expect("every station was taken by a worker"))
-        .collect()
+        .collect();
+    (results, pool.into_inner().unwrap_or_default())
 }
 
 /// Decodes every recording with the same threads as [`run`] and nothing else; returns the frames
@@ -422,12 +443,12 @@ fn station_pass(
     let analyse = |w: &mut Worker,
                    src: &StationSource,
                    ringing: RingingPoles,
-                   kept: Option<Decoded>|
+                   kept: Option<&Decoded>|
      -> Option<StationOutcome> {
         if stop.load(Ordering::Relaxed) {
             return None;
         }
-        let (fs, a, b) = match &kept {
+        let (fs, a, b) = match kept {
             Some(k) => (k.fs, &k.a[..], &k.b[..]),
             None => match decode(&mut w.decoder, src, setup) {
                 Ok(i) => (i.sample_rate_hz, &w.decoder.a[..], &w.decoder.b[..]),
@@ -468,15 +489,17 @@ fn station_pass(
     // its carried-over ringing with those; each station estimating its own would repeat the
     // same estimate. The pilots are chosen by position in the list, so the result does not
     // depend on which thread finishes first.
-    let pilots: Vec<&StationSource> = (0..PILOTS)
-        .map(|j| &data.stations[(2 * j + 1) * n / (2 * PILOTS)])
+    let pilot_at: Vec<usize> = (0..PILOTS)
+        .map(|j| (2 * j + 1) * n / (2 * PILOTS))
         .collect();
+    let pilots: Vec<&StationSource> = pilot_at.iter().map(|&i| &data.stations[i]).collect();
     // A pilot's recording is kept for its own analysis below, unless it is long.
     let kept: Vec<Mutex<Option<Decoded>>> = pilots.iter().map(|_| Mutex::new(None)).collect();
-    let lent = per_source(&pilots, |dec: &mut Decoder, src| {
+    let (lent, workers) = per_source_pooled(&pilots, Vec::new(), |w: &mut Worker, src| {
+        let dec = &mut w.decoder;
         let info = decode(dec, src, setup).ok()?;
         let fs = info.sample_rate_hz;
-        let decays = lend_free_decays(&dec.a, &dec.b, fs, setup).ok()?;
+        let decays = lend_free_decays(&dec.a, &dec.b, fs, setup, &mut w.plans).ok()?;
         if info.frames <= KEEP_FRAMES
             && let Some(j) = pilots.iter().position(|p| std::ptr::eq(*p, src))
             && let Ok(mut slot) = kept[j].lock()
@@ -501,15 +524,32 @@ fn station_pass(
         Some(p) => RingingPoles::Test(p),
         None => RingingPoles::Own,
     };
-    per_station(data, |w: &mut Worker, src| {
+    // The pilots first: their kept buffers then serve the workers for the rest.
+    let order: Vec<usize> = pilot_at
+        .iter()
+        .copied()
+        .chain((0..n).filter(|i| !pilot_at.contains(i)))
+        .collect();
+    let ordered: Vec<&StationSource> = order.iter().map(|&i| &data.stations[i]).collect();
+    let (done, _) = per_source_pooled(&ordered, workers, |w: &mut Worker, src| {
         let mine = pilots
             .iter()
             .position(|p| std::ptr::eq(*p, src))
             .and_then(|j| kept[j].lock().ok()?.take());
-        analyse(w, src, ringing, mine)
-    })
-    .into_iter()
-    .collect()
+        let r = analyse(w, src, ringing, mine.as_ref());
+        // A pilot's buffers become the worker's when it has none yet.
+        if let Some(m) = mine
+            && w.decoder.a.capacity() == 0
+        {
+            (w.decoder.a, w.decoder.b) = (m.a, m.b);
+        }
+        r
+    });
+    let mut out: Vec<Option<Option<StationOutcome>>> = (0..n).map(|_| None).collect();
+    for (i, r) in order.into_iter().zip(done) {
+        out[i] = Some(r);
+    }
+    out.into_iter().flatten().collect()
 }
 
 /// A recording's two channels as decoded, kept from one pass to the next.

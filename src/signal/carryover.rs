@@ -397,23 +397,31 @@ pub struct RingingModel {
 impl RingingModel {
     /// `out = record − model`, over the record's length.
     pub fn subtract(&self, record: &[f64], out: &mut Vec<f64>) {
-        out.clear();
-        out.extend_from_slice(record);
         // A term y_k = Re(c·z^k) obeys the real recurrence y_{k+L} = 2 Re(z^L)·y_k −
         // |z^L|²·y_{k−L}: LANES interleaved chains (sample k + j advances by L = LANES samples)
         // of two products and a difference per sample, which the compiler runs side by side in
         // vector registers instead of a complex product (six operations) and an exponential and
         // a sine–cosine pair. Each 1024-sample block restarts the chains from exact values, so
-        // round-off cannot build up.
+        // round-off cannot build up; the block is copied and every term taken from it while it
+        // sits in the first-level cache.
         const LANES: usize = 8;
+        const BLOCK: usize = 1024;
         let dt = self.dt;
-        for &(l, c) in &self.terms {
-            let one = (l * dt).exp();
-            let stride = (l * (LANES as f64 * dt)).exp();
-            let (c1, c2) = (2.0 * stride.re, stride.norm_sqr());
-            for (b, block) in out.chunks_mut(1024).enumerate() {
+        let steps: Vec<[Complex64; 4]> = self
+            .terms
+            .iter()
+            .map(|&(l, c)| [l, c, (l * dt).exp(), (l * (LANES as f64 * dt)).exp()])
+            .collect();
+        out.clear();
+        out.reserve(record.len());
+        for (b, src) in record.chunks(BLOCK).enumerate() {
+            let at = out.len();
+            out.extend_from_slice(src);
+            let block = &mut out[at..];
+            for &[l, c, one, stride] in &steps {
+                let (c1, c2) = (2.0 * stride.re, stride.norm_sqr());
                 let (mut prev, mut cur) = ([0.0f64; LANES], [0.0f64; LANES]);
-                let mut e = (l * (self.offset + (1024 * b) as f64) * dt).exp();
+                let mut e = (l * (self.offset + (BLOCK * b) as f64) * dt).exp();
                 for j in 0..LANES {
                     prev[j] = (c * e).re;
                     cur[j] = (c * e * stride).re;

@@ -3,7 +3,7 @@
 
 use super::carryover::{PulseSpan, RingingModel};
 use super::frf::SpectrumPlan;
-use super::hits::{Pulse, find_pulse, find_triggers, flat_top_at, peak_abs, second_impact};
+use super::hits::{Pulse, find_pulse, find_triggers, flat_top_in, second_impact};
 use super::record::RecordPlan;
 use super::station::HitReport;
 use super::taps::{BlockPeaks, find_strikes_in};
@@ -28,10 +28,10 @@ pub(super) struct FiniteChannels<'a> {
 }
 
 impl<'a> FiniteChannels<'a> {
-    /// `a_finite`: whether channel A is known finite (its block maxima were taken first).
-    pub(super) fn of(a: &'a [f64], b: &'a [f64], a_finite: bool) -> Self {
+    /// `finite`: whether both channels are known finite (their block maxima were taken first).
+    pub(super) fn of(a: &'a [f64], b: &'a [f64], finite: bool) -> Self {
         use std::borrow::Cow;
-        if a_finite && crate::numeric::finite(b) {
+        if finite {
             return Self {
                 a: Cow::Borrowed(a),
                 b: Cow::Borrowed(b),
@@ -148,6 +148,8 @@ pub(super) struct HitCutter<'a> {
     pub(super) setup: &'a Setup,
     pub(super) rp: &'a RecordPlan,
     pub(super) bad: &'a [usize],
+    /// Block maxima of channels A and B.
+    pub(super) peaks: &'a [BlockPeaks; 2],
     pub(super) spans: &'a [PulseSpan],
     pub(super) pulses: &'a [Option<Pulse>],
     pub(super) corr_a: &'a [Option<RingingModel>],
@@ -218,12 +220,13 @@ impl HitCutter<'_> {
         let fixed_a = fix(ra, &self.corr_a[index], sa);
         let fixed_b = fix(rb, &self.corr_b[index], sb);
         rep.ringing_removed = fixed_a || fixed_b;
-        rep.peak_a_fs = peak_abs(ra);
-        rep.peak_b_fs = peak_abs(rb);
+        let [pa, pb] = self.peaks;
+        rep.peak_a_fs = pa.peak_in(a, start, start + n);
+        rep.peak_b_fs = pb.peak_in(b, start, start + n);
         if rep.peak_a_fs >= q.overload_fraction
             || rep.peak_b_fs >= q.overload_fraction
-            || flat_top_at(ra, rep.peak_a_fs)
-            || flat_top_at(rb, rep.peak_b_fs)
+            || flat_top_in(ra, rep.peak_a_fs, start, pa)
+            || flat_top_in(rb, rep.peak_b_fs, start, pb)
         {
             rep.reasons.push(Reason::Overload);
         }

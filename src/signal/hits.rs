@@ -147,20 +147,42 @@ pub fn flat_top(x: &[f64]) -> bool {
 
 /// [`flat_top`] with the record's largest absolute sample `m` already known.
 pub fn flat_top_at(x: &[f64], m: f64) -> bool {
-    if m < 0.25 {
-        return false;
-    }
     // Whole blocks without a sample at the extreme are skipped by a vectorised test.
     const BLOCK: usize = 256;
-    let mut i = 0;
-    while i < x.len() {
-        if i.is_multiple_of(BLOCK)
+    flat_top_scan(x, m, |i| {
+        let skip = i.is_multiple_of(BLOCK)
             && i + BLOCK <= x.len()
             && !x[i..i + BLOCK]
                 .iter()
-                .fold(false, |hit, v| hit | (v.abs() == m))
-        {
-            i += BLOCK;
+                .fold(false, |hit, v| hit | (v.abs() == m));
+        if skip { BLOCK } else { 0 }
+    })
+}
+
+/// [`flat_top_at`] for the record `x` that starts at sample `offset` of a channel whose block
+/// maxima are `peaks`: the blocks whose maximum lies below `m` are skipped unread.
+pub fn flat_top_in(x: &[f64], m: f64, offset: usize, peaks: &super::taps::BlockPeaks) -> bool {
+    let block = peaks.block;
+    flat_top_scan(x, m, |i| {
+        let g = offset + i;
+        let skip = g.is_multiple_of(block)
+            && i + block <= x.len()
+            && peaks.max.get(g / block).is_some_and(|&b| b < m);
+        if skip { block } else { 0 }
+    })
+}
+
+/// The scan behind [`flat_top_at`]: `skip(i)` gives how many samples from `i` on are known to
+/// hold no sample at the extreme (0: look at sample `i`).
+fn flat_top_scan(x: &[f64], m: f64, skip: impl Fn(usize) -> usize) -> bool {
+    if m < 0.25 {
+        return false;
+    }
+    let mut i = 0;
+    while i < x.len() {
+        let k = skip(i);
+        if k > 0 {
+            i += k;
             continue;
         }
         if x[i].abs() == m {

@@ -112,6 +112,8 @@ pub struct StationResult {
 struct Located<'a> {
     rp: RecordPlan,
     finite: FiniteChannels<'a>,
+    /// Block maxima of channels A and B (as read: non-finite samples zero).
+    peaks: [BlockPeaks; 2],
     level: f64,
     triggers: Vec<usize>,
     pulses: Vec<Option<Pulse>>,
@@ -127,20 +129,25 @@ impl<'a> Located<'a> {
         previous: Option<&RecordPlan>,
     ) -> Result<Self, String> {
         let rp = RecordPlan::new_after(setup, fs, a.len().min(b.len()), previous)?;
-        // Channel A's block maxima also say whether it is finite: one pass, not two.
-        let peaks = BlockPeaks::of(a, fs);
-        let finite = FiniteChannels::of(a, b, peaks.finite);
-        let peaks = if peaks.finite {
-            peaks
+        // The channels' block maxima also say whether they are finite: one pass each, which
+        // the tap search and every hit's peak then read instead of the samples.
+        let (pa, pb) = (BlockPeaks::of(a, fs), BlockPeaks::of(b, fs));
+        let finite = FiniteChannels::of(a, b, pa.finite && pb.finite);
+        let peaks = if finite.bad.is_empty() {
+            [pa, pb]
         } else {
-            BlockPeaks::of(finite.a(), fs)
+            [
+                BlockPeaks::of(finite.a(), fs),
+                BlockPeaks::of(finite.b(), fs),
+            ]
         };
         let level = level_of(finite.a(), setup.trigger.level);
-        let triggers = locate_taps(finite.a(), &peaks, fs, setup, level, finite.bad.len())?;
+        let triggers = locate_taps(finite.a(), &peaks[0], fs, setup, level, finite.bad.len())?;
         let (pulses, spans) = pulse_spans(finite.a(), fs, setup, &triggers);
         Ok(Self {
             rp,
             finite,
+            peaks,
             level,
             triggers,
             pulses,
@@ -162,19 +169,22 @@ pub fn analyze_station(
 ) -> Result<StationResult, String> {
     let mut plans = StationPlans {
         spectrum: plan.take(),
-        record: None,
+        ..StationPlans::default()
     };
     let r = analyze_station_in_test(a, b, fs, setup, overrides, &mut plans, RingingPoles::Own);
     *plan = plans.spectrum;
     r
 }
 
-/// What one station's analysis leaves for the next of the same test: the FFT plan and the
-/// record plan (whose exponential window is reused when it is the same).
+/// What one station's analysis leaves for the next of the same test: the FFT plan, the record
+/// plan (whose exponential window is reused when it is the same) and the record buffers, so that
+/// a test's stations do not each fault in fresh memory.
 #[derive(Default)]
 pub struct StationPlans {
     spectrum: Option<SpectrumPlan>,
     record: Option<RecordPlan>,
+    /// Records with carried-over ringing removed, reused from hit to hit.
+    scratch: [Vec<f64>; 2],
 }
 
 /// [`analyze_station`] as one station of a test whose stations share the poles of the part's
@@ -191,6 +201,7 @@ pub fn analyze_station_in_test(
     let Located {
         rp,
         finite,
+        peaks,
         level,
         triggers,
         pulses,
@@ -198,7 +209,7 @@ pub fn analyze_station_in_test(
     } = Located::of(a, b, fs, setup, plans.record.as_ref())?;
     let (a, b) = (finite.a(), finite.b());
     plans.record = Some(rp.clone());
-    let plan = &mut plans.spectrum;
+    let (plan, scratch) = (&mut plans.spectrum, &mut plans.scratch);
     if plan.as_ref().is_none_or(|p| p.len() != rp.n) {
         *plan = Some(SpectrumPlan::new(rp.n));
     }
@@ -228,6 +239,7 @@ pub fn analyze_station_in_test(
         setup,
         rp: &rp,
         bad: &finite.bad,
+        peaks: &peaks,
         spans: &spans,
         pulses: &pulses,
         corr_a: &corr_a,
@@ -237,15 +249,8 @@ pub fn analyze_station_in_test(
     let mut hits = Vec::with_capacity(triggers.len());
     let mut nulls: Vec<Option<f64>> = Vec::new();
     let mut cands: Vec<Option<Candidate>> = Vec::with_capacity(triggers.len());
-    let mut scratch = [Vec::new(), Vec::new()];
     for (index, &trig) in triggers.iter().enumerate() {
-        let cut = cutter.cut(
-            plan,
-            &mut scratch,
-            index,
-            trig,
-            overrides.get(&index).copied(),
-        );
+        let cut = cutter.cut(plan, scratch, index, trig, overrides.get(&index).copied());
         if let Some(null) = cut.first_null_hz {
             nulls.push(null);
         }
@@ -288,17 +293,20 @@ pub fn lend_free_decays(
     b: &[f64],
     fs: u32,
     setup: &Setup,
+    plans: &mut StationPlans,
 ) -> Result<Vec<Vec<f64>>, String> {
     let Located {
         rp, finite, spans, ..
-    } = Located::of(a, b, fs, setup, None)?;
+    } = Located::of(a, b, fs, setup, plans.record.as_ref())?;
     let (a, b) = (finite.a(), finite.b());
     let lend = |x: &[f64]| carryover::lend_decays(x, fs, &spans, rp.pre, rp.n, rp.band_hz);
-    Ok(match (setup.remove_carryover, setup.layout) {
+    let lent = match (setup.remove_carryover, setup.layout) {
         (false, _) => Vec::new(),
         (true, Layout::Hammer) => lend(b),
         (true, Layout::Sensor) => [lend(a), lend(b)].concat(),
-    })
+    };
+    plans.record = Some(rp);
+    Ok(lent)
 }
 
 /// The decisions (a person's override wins) and the average of the accepted hits' spectra.
