@@ -239,7 +239,19 @@ pub(super) fn lscf_modes(
                 chosen.push((stab.poles.len() - 1, size));
             }
         }
+        // A resonance the whole-band fit missed may be a member of a pair just split above
+        // (local_poles saw only the whole band's pole): it is already chosen.
+        let split_hz: Vec<f64> = chosen
+            .iter()
+            .map(|c| stab.poles[c.0].frequency_hz)
+            .collect();
         for (pole, size) in found {
+            if split_hz
+                .iter()
+                .any(|&g| (g / pole.frequency_hz - 1.0).abs() < 0.003)
+            {
+                continue;
+            }
             res.warnings.push(format!(
                 "a resonance at {:.1} Hz that the fit over the whole band did not resolve was \
                  fitted over a narrow band around it",
