@@ -30,19 +30,36 @@ pub fn level_of(x: &[f64], level: TriggerLevel) -> f64 {
 /// Sample indices where `x` crosses the level with the given slope, at least `holdoff` apart.
 pub fn find_triggers(x: &[f64], level: f64, slope: Slope, holdoff: usize) -> Vec<usize> {
     let s = slope.sign();
-    let crosses = |i: usize| s * x[i - 1] < level && s * x[i] >= level;
     // Most of a tap recording is quiet: blocks are first tested for any sample at or beyond the
     // level (a branch-free maximum the compiler vectorises), and only those are scanned sample by
-    // sample. A crossing at i needs x[i] at the level, so no crossing is skipped.
+    // sample.
     const BLOCK: usize = 256;
-    let mut out = Vec::new();
-    let mut i = 1;
-    while i < x.len() {
+    scan_crossings(x, level, slope, holdoff, |i| {
         let end = (i + BLOCK).min(x.len());
         let top = x[i..end].iter().fold(f64::NEG_INFINITY, |m, &v| {
             let u = s * v;
             if u > m { u } else { m }
         });
+        (end, top)
+    })
+}
+
+/// The scan behind [`find_triggers`]: `block(i)` gives the end of a stretch from `i` on and an
+/// upper bound of s·x over it; a stretch whose bound stays below the level is skipped (a crossing
+/// at i needs s·x[i] at the level, so none is missed), the others are read sample by sample.
+pub(super) fn scan_crossings(
+    x: &[f64],
+    level: f64,
+    slope: Slope,
+    holdoff: usize,
+    block: impl Fn(usize) -> (usize, f64),
+) -> Vec<usize> {
+    let s = slope.sign();
+    let crosses = |i: usize| s * x[i - 1] < level && s * x[i] >= level;
+    let mut out = Vec::new();
+    let mut i = 1;
+    while i < x.len() {
+        let (end, top) = block(i);
         // NaN-safe: a NaN level is never reached.
         if top.partial_cmp(&level).is_none_or(|o| o.is_lt()) {
             i = end;

@@ -124,33 +124,12 @@ fn triggers_in(
     slope: Slope,
     holdoff: usize,
 ) -> Vec<usize> {
-    let s = slope.sign();
-    let crosses = |i: usize| s * x[i - 1] < level && s * x[i] >= level;
     let block = peaks.block;
-    let mut out = Vec::new();
-    let mut i = 1;
-    while i < x.len() {
+    super::hits::scan_crossings(x, level, slope, holdoff, |i| {
         let b = i / block;
-        let end = ((b + 1) * block).min(x.len());
-        // NaN-safe: a NaN level is never reached.
-        if peaks
-            .max
-            .get(b)
-            .is_none_or(|m| m.partial_cmp(&level).is_none_or(|o| o.is_lt()))
-        {
-            i = end;
-            continue;
-        }
-        while i < end {
-            if crosses(i) {
-                out.push(i);
-                i = i.saturating_add(holdoff.max(1));
-            } else {
-                i += 1;
-            }
-        }
-    }
-    out
+        let top = peaks.max.get(b).copied().unwrap_or(f64::NAN);
+        (((b + 1) * block).min(x.len()), top)
+    })
 }
 
 /// The time between successive taps that the record must fit: the shortest spacing that is not
