@@ -188,6 +188,55 @@ pub fn lane_sum(x: &[f64], f: impl Fn(f64) -> f64) -> f64 {
     acc.iter().sum::<f64>() + rest.iter().map(|&v| f(v)).sum::<f64>()
 }
 
+/// Mean and rms deviation from it, in one pass: sums of `v − x[0]` and its square in eight
+/// lanes (the shift keeps the square's sum from cancelling against a large offset). `(0, 0)`
+/// for an empty slice.
+pub fn mean_rms(x: &[f64]) -> (f64, f64) {
+    let Some(&r) = x.first() else {
+        return (0.0, 0.0);
+    };
+    let (mut s1, mut s2) = ([0.0f64; 8], [0.0f64; 8]);
+    let (blocks, rest) = x.as_chunks::<8>();
+    for b in blocks {
+        for j in 0..8 {
+            let d = b[j] - r;
+            s1[j] += d;
+            s2[j] += d * d;
+        }
+    }
+    let (mut t1, mut t2) = (s1.iter().sum::<f64>(), s2.iter().sum::<f64>());
+    for &v in rest {
+        t1 += v - r;
+        t2 += (v - r) * (v - r);
+    }
+    let n = x.len() as f64;
+    let m = t1 / n;
+    (r + m, (t2 / n - m * m).max(0.0).sqrt())
+}
+
+/// Smallest and largest value, in eight lanes of plain comparisons (which the compiler keeps in
+/// vector registers; `f64::min`/`max` and their NaN rule do not vectorise). For finite samples;
+/// `(∞, −∞)` for an empty slice.
+pub fn extrema(x: &[f64]) -> (f64, f64) {
+    let (mut lo, mut hi) = ([f64::INFINITY; 8], [f64::NEG_INFINITY; 8]);
+    let (blocks, rest) = x.as_chunks::<8>();
+    for b in blocks {
+        for j in 0..8 {
+            lo[j] = if b[j] < lo[j] { b[j] } else { lo[j] };
+            hi[j] = if b[j] > hi[j] { b[j] } else { hi[j] };
+        }
+    }
+    let fold = |a: &[f64], init: f64, less: fn(f64, f64) -> bool| {
+        a.iter()
+            .chain(rest)
+            .fold(init, |m, &v| if less(v, m) { v } else { m })
+    };
+    (
+        fold(&lo, f64::INFINITY, |v, m| v < m),
+        fold(&hi, f64::NEG_INFINITY, |v, m| v > m),
+    )
+}
+
 /// Whether every value is finite. Blocks are tested without an early exit inside, which the
 /// compiler vectorises: a scan of long recordings at memory speed.
 pub fn finite(x: &[f64]) -> bool {

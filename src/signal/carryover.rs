@@ -68,32 +68,42 @@ struct Ringing {
 impl Ringing {
     fn of(x: &[f64], fs: u32, hits: &[PulseSpan], pre: usize, n: usize) -> Self {
         let guard = guard(fs);
-        // Ringing is only worth modelling where it stands out of the channel's noise; on a noisy
-        // recording the noise alone would otherwise pass the relative test below and every
-        // record would pay for a fit that can only model noise.
-        let floor = noise_floor_rms(x, fs);
         let mut peaks = vec![0.0; hits.len()];
-        let flagged = hits
+        // Per hit: the rms of the stretch before its pulse, where carried-over ringing would show.
+        let rms: Vec<Option<f64>> = hits
             .iter()
             .enumerate()
             .map(|(i, h)| {
-                let Some(s) = h.trigger.checked_sub(pre) else {
-                    return false;
-                };
+                let s = h.trigger.checked_sub(pre)?;
                 if i == 0 || s + n > x.len() || h.start <= s + guard {
-                    return false;
+                    return None;
                 }
-                let pre_seg = &x[s..h.start - guard];
-                let mean = pre_seg.iter().sum::<f64>() / pre_seg.len() as f64;
-                let rms = (pre_seg.iter().map(|v| (v - mean).powi(2)).sum::<f64>()
-                    / pre_seg.len() as f64)
-                    .sqrt();
-                let peak = x[h.start..s + n]
-                    .iter()
-                    .fold(0.0f64, |m, v| m.max((v - mean).abs()));
-                peaks[i] = peak;
-                standing(rms, peak, floor)
+                let (mean, rms) = crate::numeric::mean_rms(&x[s..h.start - guard]);
+                let (lo, hi) = crate::numeric::extrema(&x[h.start..s + n]);
+                peaks[i] = (hi - mean).max(mean - lo);
+                Some(rms)
             })
+            .collect();
+        // Ringing is only worth modelling where it stands out of the channel's noise; on a noisy
+        // recording the noise alone would otherwise pass the relative test and every record
+        // would pay for a fit that can only model noise. The floor costs a pass over the whole
+        // channel: taken only when some record passes the relative test (a force channel's
+        // never does).
+        let relative: Vec<bool> = rms
+            .iter()
+            .zip(&peaks)
+            .map(|(r, &p)| r.is_some_and(|r| standing(r, p, 0.0)))
+            .collect();
+        let floor = if relative.contains(&true) {
+            noise_floor_rms(x, fs)
+        } else {
+            0.0
+        };
+        let flagged = rms
+            .iter()
+            .zip(&peaks)
+            .zip(&relative)
+            .map(|((r, &p), &rel)| rel && r.is_some_and(|r| standing(r, p, floor)))
             .collect();
         Self {
             flagged,
@@ -274,10 +284,7 @@ fn noise_floor_rms(x: &[f64], fs: u32) -> f64 {
     let block = ((0.01 * fs as f64) as usize).max(16);
     let mut r: Vec<f64> = x
         .chunks_exact(block)
-        .map(|c| {
-            let m = crate::numeric::lane_sum(c, |v| v) / block as f64;
-            (crate::numeric::lane_sum(c, |v| (v - m) * (v - m)) / block as f64).sqrt()
-        })
+        .map(|c| crate::numeric::mean_rms(c).1)
         .collect();
     if r.is_empty() {
         return 0.0;
