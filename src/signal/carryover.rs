@@ -342,28 +342,44 @@ fn decay_poles(segs: &[&[f64]], dt: f64, band_hz: [f64; 2]) -> Option<Vec<Comple
     if order < 4 {
         return None;
     }
-    let mut poles = top_order_poles(&freq, &h, &w, order, tau)?;
     // A wide band's z-domain fit is ill-conditioned at its low end, where the poles crowd near
     // z = 1: there a split pair of very light damping came out as one pole, or none, and its
     // ringing stayed in the records. Each resonance is fitted again over a narrow band around
     // it (±15 %), and the poles of that band's middle (±7 %) replace the wide band's there.
-    let mut done: Vec<f64> = Vec::new();
+    let mut bands: Vec<(f64, usize, usize)> = Vec::new();
     for k in resonance_lines(&h, &w) {
         let f = freq[k];
-        if done.iter().any(|&g| (f / g - 1.0).abs() < LOCAL_KEEP) {
+        if bands.iter().any(|&(g, ..)| (f / g - 1.0).abs() < LOCAL_KEEP) {
             continue;
         }
-        done.push(f);
         let k0 = freq.partition_point(|&x| x < f * (1.0 - LOCAL_HALF));
         let k1 = freq.partition_point(|&x| x <= f * (1.0 + LOCAL_HALF));
-        if k1 < k0 + 24 {
-            continue;
+        bands.push((f, k0, k1));
+    }
+    // The wide fit and the narrow ones are independent of each other: solved side by side
+    // (the largest first), then merged in the order above.
+    let fits: Vec<Option<(usize, usize, usize)>> = std::iter::once(Some((0, freq.len(), order)))
+        .chain(bands.iter().map(|&(_, k0, k1)| {
+            (k1 >= k0 + 24).then(|| (k0, k1, LOCAL_ORDER.min((k1 - k0 - 2) / 2)))
+        }))
+        .collect();
+    let cost = |t: &Option<(usize, usize, usize)>| {
+        t.map_or(0.0, |(k0, k1, o)| ((k1 - k0) * (o + 1) * (o + 1)) as f64)
+    };
+    let solved = crate::numeric::par_map_dearest_first(&fits, cost, |t| {
+        let (k0, k1, o) = (*t)?;
+        if (k0, k1) == (0, freq.len()) {
+            return top_order_poles(&freq, &h, &w, o, tau);
         }
         let part = |v: &Vec<Complex64>| v[k0..k1].to_vec();
         let hl: Vec<Vec<Complex64>> = h.iter().map(part).collect();
         let wl: Vec<Vec<f64>> = w.iter().map(|v| v[k0..k1].to_vec()).collect();
-        let local_order = LOCAL_ORDER.min((k1 - k0 - 2) / 2);
-        let Some(local) = top_order_poles(&freq[k0..k1], &hl, &wl, local_order, tau) else {
+        top_order_poles(&freq[k0..k1], &hl, &wl, o, tau)
+    });
+    let mut solved = solved.into_iter();
+    let mut poles = solved.next().flatten()?;
+    for (&(f, ..), local) in bands.iter().zip(solved) {
+        let Some(local) = local else {
             continue;
         };
         let middle =
