@@ -440,6 +440,35 @@ pub fn eigenvector_near(
 mod tests {
     use super::*;
 
+    /// Population mean and standard deviation (the definitions; NumPy's `mean` and `std` with
+    /// its default ddof = 0 give the same), on a record with a large offset, where a one-pass
+    /// sum of squares without the shift would lose most digits.
+    #[test]
+    fn one_pass_mean_and_rms_match_the_definitions() {
+        for n in [1usize, 7, 8, 9, 100, 1037] {
+            let x: Vec<f64> = (0..n)
+                .map(|i| 1.0e4 + (i as f64 * 0.37).sin() * 1e-3 + (i % 5) as f64 * 1e-4)
+                .collect();
+            let mean = x.iter().sum::<f64>() / n as f64;
+            let sd = (x.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n as f64).sqrt();
+            let (m, r) = mean_rms(&x);
+            assert!((m - mean).abs() < 1e-10, "n {n}: {m} vs {mean}");
+            assert!((r - sd).abs() <= 1e-9 * sd.max(1e-12), "n {n}: {r} vs {sd}");
+        }
+        assert_eq!(mean_rms(&[]), (0.0, 0.0));
+    }
+
+    #[test]
+    fn extrema_match_a_plain_scan() {
+        for n in [1usize, 5, 8, 13, 64, 1001] {
+            let x: Vec<f64> = (0..n).map(|i| ((i * 7919) % 1009) as f64 - 500.5).collect();
+            let lo = x.iter().copied().fold(f64::INFINITY, f64::min);
+            let hi = x.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            assert_eq!(extrema(&x), (lo, hi), "n {n}");
+        }
+        assert_eq!(extrema(&[]), (f64::INFINITY, f64::NEG_INFINITY));
+    }
+
     #[test]
     fn dearest_first_returns_results_in_the_items_order() {
         let items: Vec<u64> = vec![5, 1, 9, 3, 7, 2, 8];

@@ -349,7 +349,10 @@ fn decay_poles(segs: &[&[f64]], dt: f64, band_hz: [f64; 2]) -> Option<Vec<Comple
     let mut bands: Vec<(f64, usize, usize)> = Vec::new();
     for k in resonance_lines(&h, &w) {
         let f = freq[k];
-        if bands.iter().any(|&(g, ..)| (f / g - 1.0).abs() < LOCAL_KEEP) {
+        if bands
+            .iter()
+            .any(|&(g, ..)| (f / g - 1.0).abs() < LOCAL_KEEP)
+        {
             continue;
         }
         let k0 = freq.partition_point(|&x| x < f * (1.0 - LOCAL_HALF));
