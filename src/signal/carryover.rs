@@ -89,22 +89,17 @@ impl Ringing {
         // would pay for a fit that can only model noise. The floor costs a pass over the whole
         // channel: taken only when some record passes the relative test (a force channel's
         // never does).
-        let relative: Vec<bool> = rms
-            .iter()
-            .zip(&peaks)
-            .map(|(r, &p)| r.is_some_and(|r| standing(r, p, 0.0)))
-            .collect();
-        let floor = if relative.contains(&true) {
+        let standing_over = |floor: f64| {
+            rms.iter()
+                .zip(&peaks)
+                .map(move |(r, &p)| r.is_some_and(|r| standing(r, p, floor)))
+        };
+        let floor = if standing_over(0.0).any(|b| b) {
             noise_floor_rms(x, fs)
         } else {
             0.0
         };
-        let flagged = rms
-            .iter()
-            .zip(&peaks)
-            .zip(&relative)
-            .map(|((r, &p), &rel)| rel && r.is_some_and(|r| standing(r, p, floor)))
-            .collect();
+        let flagged = standing_over(floor).collect();
         Self {
             flagged,
             floor,

@@ -137,17 +137,29 @@ pub fn second_impact(rec: &[f64], pulse: &Pulse, sign: f64, fraction: f64) -> Op
 }
 
 /// Largest absolute sample.
+#[inline]
 pub fn peak_abs(x: &[f64]) -> f64 {
-    // Eight running maxima with a plain comparison (not `f64::max`, whose NaN rule blocks
-    // vectorising; samples are finite), so the compiler keeps them in vector registers.
+    // The finiteness sums go unread here, and the compiler drops them.
+    peak_abs_with_finite(x, &mut [0.0; 8])
+}
+
+/// Largest absolute sample, adding `v·0` of every sample to `nan` (0 for a finite sample, NaN
+/// otherwise): a channel's peak and its finiteness check in one pass. Eight running maxima with a
+/// plain comparison (not `f64::max`, whose NaN rule blocks vectorising; |NaN| fails every
+/// comparison, so the maxima skip it), which the compiler keeps in vector registers.
+#[inline]
+pub fn peak_abs_with_finite(x: &[f64], nan: &mut [f64; 8]) -> f64 {
     let mut lanes = [0.0f64; 8];
-    let chunks = x.chunks_exact(8);
-    let tail = chunks.remainder();
-    for c in chunks {
-        for (m, v) in lanes.iter_mut().zip(c) {
-            let a = v.abs();
-            *m = if a > *m { a } else { *m };
+    let (eights, tail) = x.as_chunks::<8>();
+    for e in eights {
+        for j in 0..8 {
+            let a = e[j].abs();
+            lanes[j] = if a > lanes[j] { a } else { lanes[j] };
+            nan[j] += e[j] * 0.0;
         }
+    }
+    for &v in tail {
+        nan[0] += v * 0.0;
     }
     tail.iter()
         .chain(&lanes)

@@ -31,28 +31,11 @@ impl BlockPeaks {
     pub fn of(x: &[f64], fs: u32) -> Self {
         let block = ((fs.max(1) as f64 * 1e-3) as usize).max(1);
         // x·0 is 0 for every finite sample and NaN otherwise: a sum the compiler vectorises
-        // alongside the maxima, in the same pass, with no branch per sample. (|NaN| fails every
-        // comparison, so the maxima skip it; ∞ is caught by the sum.)
+        // alongside the maxima, in the same pass, with no branch per sample.
         let mut nan = [0.0f64; 8];
         let max = x
             .chunks(block)
-            .map(|c| {
-                let mut top = [0.0f64; 8];
-                let (eights, rest) = c.as_chunks::<8>();
-                for e in eights {
-                    for j in 0..8 {
-                        let a = e[j].abs();
-                        top[j] = if a > top[j] { a } else { top[j] };
-                        nan[j] += e[j] * 0.0;
-                    }
-                }
-                for &v in rest {
-                    let a = v.abs();
-                    top[0] = if a > top[0] { a } else { top[0] };
-                    nan[0] += v * 0.0;
-                }
-                top.iter().fold(0.0f64, |m, &v| if v > m { v } else { m })
-            })
+            .map(|c| super::hits::peak_abs_with_finite(c, &mut nan))
             .collect();
         Self {
             block,
